@@ -1,0 +1,355 @@
+//! The validated configuration model: what the rest of seepd reads.
+//!
+//! Everything here is already checked and in SI units (m, kPa, s); the TOML-facing raw types and
+//! the validation that produces these live in `config::load`. Nothing here does I/O.
+
+use std::collections::BTreeMap;
+use std::fmt;
+use std::path::PathBuf;
+
+use chrono::{DateTime, Utc};
+
+/// A secret (password, token). Never printed by `Debug` or `Display`.
+#[derive(Clone, PartialEq, Eq)]
+pub struct Secret(pub String);
+
+impl fmt::Debug for Secret {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("Secret(***)")
+    }
+}
+
+/// The whole validated configuration: one service file plus one file per site.
+#[derive(Debug, Clone)]
+pub struct Config {
+    /// Directory the configuration was read from (relative paths in it resolve against this).
+    pub dir: PathBuf,
+    pub service: Service,
+    pub mqtt: Mqtt,
+    /// Topic subscriptions, each with its payload format and how it maps to instruments.
+    pub subscriptions: Vec<Subscription>,
+    /// Sites in file-name order.
+    pub sites: Vec<Site>,
+    /// Every instrument of every site, by id (ids are unique across sites).
+    pub instruments: BTreeMap<String, Instrument>,
+}
+
+impl Config {
+    /// The site an instrument belongs to.
+    pub fn site_of(&self, instrument: &Instrument) -> Option<&Site> {
+        self.sites.iter().find(|s| s.id == instrument.site)
+    }
+}
+
+/// Service-wide settings from `seepd.toml`.
+#[derive(Debug, Clone)]
+pub struct Service {
+    /// SQLite database file (absolute, resolved against the config directory).
+    pub database: PathBuf,
+    /// Group commit: a batch closes at this many readings...
+    pub commit_max_readings: usize,
+    /// ...or this long after its first message, or when the queue runs dry.
+    pub commit_max_ms: u64,
+    /// Payloads larger than this are quarantined as `oversized` (bytes).
+    pub max_payload_bytes: usize,
+    /// Readings stamped further than this into the future are quarantined (s). Default 600.
+    pub max_future_s: i64,
+    /// How far apart in time a barometer reading may be from the reading it corrects (s).
+    pub barometer_max_age_s: i64,
+    /// Shutdown deadline (s): after SIGINT/SIGTERM the service exits within this.
+    pub shutdown_deadline_s: u64,
+}
+
+/// MQTT connection settings.
+#[derive(Debug, Clone)]
+pub struct Mqtt {
+    pub host: String,
+    pub port: u16,
+    pub client_id: String,
+    pub username: Option<String>,
+    pub password: Option<Secret>,
+    pub tls: Option<Tls>,
+    /// Keep the broker session between connections (clean_session = false).
+    pub persistent_session: bool,
+    pub keep_alive_s: u64,
+    /// Largest MQTT packet the client accepts or sends (bytes).
+    pub max_packet_bytes: usize,
+    /// Reconnect backoff: first delay and cap (ms).
+    pub reconnect_min_ms: u64,
+    pub reconnect_max_ms: u64,
+}
+
+/// TLS to the broker.
+#[derive(Debug, Clone)]
+pub struct Tls {
+    pub ca_file: PathBuf,
+    /// Client certificate and key (PEM) for mutual TLS.
+    pub client_cert_file: Option<PathBuf>,
+    pub client_key_file: Option<PathBuf>,
+}
+
+/// Payload format of a subscription.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PayloadFormat {
+    Json,
+    Senml,
+    Csv,
+}
+
+/// How numeric timestamps are read.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum EpochUnit {
+    /// Seconds below 1e11, milliseconds above.
+    Auto,
+    Seconds,
+    Milliseconds,
+}
+
+/// Field names of the JSON payload format.
+#[derive(Debug, Clone)]
+pub struct JsonFields {
+    /// Time of the reading (RFC 3339 string or epoch number). Missing → arrival time, flagged.
+    pub time: String,
+    /// Instrument id in the payload (optional way of mapping).
+    pub instrument: String,
+    /// Logger channel in the payload.
+    pub channel: String,
+    pub value: String,
+    pub temperature: String,
+    /// When present, an array of per-channel objects (several channels per message).
+    pub readings: String,
+}
+
+/// One subscription: a topic pattern with named placeholders, a payload format and a mapping.
+#[derive(Debug, Clone)]
+pub struct Subscription {
+    /// Pattern with `{logger}`, `{channel}`, `{instrument}` or `{site}` placeholders, each one
+    /// whole topic level, e.g. `field/{site}/{logger}/json`.
+    pub pattern: String,
+    /// The MQTT filter derived from the pattern (placeholders become `+`).
+    pub filter: String,
+    pub qos: u8,
+    pub format: PayloadFormat,
+    pub epoch_unit: EpochUnit,
+    pub json: JsonFields,
+}
+
+/// Units for display (reports, emails, summaries).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DisplayUnits {
+    Si,
+    Us,
+}
+
+/// A site: a dam or a levee system, one file in the config directory.
+#[derive(Debug, Clone)]
+pub struct Site {
+    pub id: String,
+    pub name: String,
+    /// IANA time zone name for reports (kept as text; time is UTC inside).
+    pub time_zone: String,
+    /// Unit weight of water (kN/m³): 9.81 default; 9.80665 and 9.8034 (62.4 pcf) allowed.
+    pub gamma_w_kn_m3: f64,
+    pub display_units: DisplayUnits,
+    /// The file this site came from (for messages).
+    pub file: PathBuf,
+}
+
+/// Where an instrument sits.
+#[derive(Debug, Clone, Default)]
+pub struct Location {
+    pub reach: Option<String>,
+    pub section: Option<String>,
+    pub station_m: Option<f64>,
+    pub offset_m: Option<f64>,
+}
+
+/// A pressure unit accepted in configuration and payloads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PressureUnit {
+    Kpa,
+    Psi,
+    Bar,
+    Mpa,
+    Hpa,
+    /// Metres of water column (converted with the site's γw).
+    MWater,
+    /// Feet of water column (converted with the site's γw).
+    FtWater,
+}
+
+/// A length unit accepted in configuration and payloads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LengthUnit {
+    M,
+    Ft,
+}
+
+/// What a vibrating-wire logger channel reports.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum VwReading {
+    FrequencyHz,
+    PeriodS,
+    PeriodUs,
+    Digits,
+}
+
+/// Sign convention of the linear vibrating-wire reduction.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum VwSign {
+    /// `P = G·(R0 − R1) + ...` (pressure rises as digits fall).
+    ZeroMinusCurrent,
+    /// `P = G·(R1 − R0) + ...`.
+    CurrentMinusZero,
+}
+
+/// Calibration form of a vibrating-wire piezometer.
+#[derive(Debug, Clone, PartialEq)]
+pub enum VwCalibration {
+    /// `P = G·(R0 − R1)` or `G·(R1 − R0)`; G in the calibration pressure unit per digit.
+    Linear { gauge_factor: f64, zero_reading_digits: f64, sign: VwSign },
+    /// `P = A·R1² + B·R1 + C`.
+    Polynomial { a: f64, b: f64, c: f64 },
+}
+
+/// Barometric compensation of a pressure sensor.
+#[derive(Debug, Clone, PartialEq)]
+pub enum BaroCorrection {
+    /// Vented gauge or none wanted.
+    None,
+    /// Sealed gauge: subtract `(S1 − S0)`; S0 the barometric pressure at the zero reading.
+    Sealed { barometer: String, zero_kpa: f64 },
+    /// Absolute sensor: subtract `S1`.
+    Absolute { barometer: String },
+}
+
+impl BaroCorrection {
+    /// The barometer this correction reads, if any.
+    pub fn barometer(&self) -> Option<&str> {
+        match self {
+            BaroCorrection::None => None,
+            BaroCorrection::Sealed { barometer, .. } | BaroCorrection::Absolute { barometer } => {
+                Some(barometer)
+            }
+        }
+    }
+}
+
+/// Vibrating-wire piezometer settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct VibratingWire {
+    pub reading: VwReading,
+    pub calibration: VwCalibration,
+    /// Unit the calibration produces (G, A, B, C and K are in this unit).
+    pub calibration_unit: PressureUnit,
+    /// Thermal factor K (calibration unit per °C) and T0 (°C); K = 0 disables it.
+    pub thermal_factor: f64,
+    pub zero_temperature_c: f64,
+    pub baro: BaroCorrection,
+}
+
+/// Output of a pressure transducer.
+#[derive(Debug, Clone, PartialEq)]
+pub enum TransducerOutput {
+    /// Reads pressure directly in this unit.
+    Pressure(PressureUnit),
+    /// 4–20 mA (or another current span) mapped linearly onto a pressure span.
+    Current { ma_low: f64, ma_high: f64, p_low: f64, p_high: f64, unit: PressureUnit },
+}
+
+/// Pressure transducer settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Transducer {
+    pub output: TransducerOutput,
+    pub baro: BaroCorrection,
+}
+
+/// Standpipe / open well: depth to water below a reference point (top of casing).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Standpipe {
+    pub reference_elevation_m: f64,
+    pub depth_unit: LengthUnit,
+}
+
+/// How a stage gauge reports.
+#[derive(Debug, Clone, PartialEq)]
+pub enum StageMode {
+    /// Water-surface elevation directly, in this unit.
+    Elevation(LengthUnit),
+    /// Depth above a datum elevation (m).
+    DepthAboveDatum { datum_m: f64, unit: LengthUnit },
+}
+
+/// Which water body a stage gauge reads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum WaterBody {
+    Reservoir,
+    River,
+    Tailwater,
+    Pond,
+}
+
+/// Stage gauge settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StageGauge {
+    pub mode: StageMode,
+    pub water_body: WaterBody,
+}
+
+/// Barometer settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Barometer {
+    pub unit: PressureUnit,
+}
+
+/// Instrument kinds with their reduction settings.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Kind {
+    VibratingWire(VibratingWire),
+    Transducer(Transducer),
+    Standpipe(Standpipe),
+    StageGauge(StageGauge),
+    Barometer(Barometer),
+}
+
+impl Kind {
+    /// Short stable name used in the database, summaries and output.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Kind::VibratingWire(_) => "vibrating_wire",
+            Kind::Transducer(_) => "pressure_transducer",
+            Kind::Standpipe(_) => "standpipe",
+            Kind::StageGauge(_) => "stage_gauge",
+            Kind::Barometer(_) => "barometer",
+        }
+    }
+
+    /// The barometer this instrument's reduction needs, if any.
+    pub fn barometer(&self) -> Option<&str> {
+        match self {
+            Kind::VibratingWire(v) => v.baro.barometer(),
+            Kind::Transducer(t) => t.baro.barometer(),
+            _ => None,
+        }
+    }
+}
+
+/// One instrument, validated.
+#[derive(Debug, Clone)]
+pub struct Instrument {
+    pub id: String,
+    pub site: String,
+    pub kind: Kind,
+    pub location: Location,
+    /// Tip elevation (piezometers; standpipes: bottom of the screened zone, optional).
+    pub tip_elevation_m: Option<f64>,
+    /// Readings dated before this are quarantined.
+    pub installed: DateTime<Utc>,
+    /// Expected interval between readings (s).
+    pub interval_s: u64,
+    /// Physical range of the raw value, in the raw value's own unit (Hz, digits, kPa, mA, m...).
+    pub raw_range: (f64, f64),
+    /// Logger and channel that carry this instrument (for topic/channel mapping).
+    pub logger: Option<String>,
+    pub channel: Option<String>,
+}

@@ -1,0 +1,8 @@
+//! seepd: watches seepage under and through earth dams and levees.
+//!
+//! Layers (see DEVELOPERS.md): `domain` is pure engineering (no I/O, no clock); `engine` turns
+//! an incoming message into stored rows by calling the domain and is shared by `run` and
+//! `replay`; `ingest`, `store` and `demo` are adapters; `cli` parses arguments.
+
+pub mod config;
+pub mod quality;
