@@ -1,0 +1,7 @@
+//! The engineering core: pure functions, no I/O, no clock reads (time is a parameter).
+//!
+//! Everything of engineering substance lives here and is unit-tested against published values
+//! (see README "Sources of formulas").
+
+pub mod reduce;
+pub mod units;
