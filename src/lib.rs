@@ -7,3 +7,4 @@
 pub mod config;
 pub mod domain;
 pub mod quality;
+pub mod store;

@@ -1,0 +1,291 @@
+//! SQLite storage: schema migrations, instruments, readings and quarantine.
+//!
+//! Owns the database connection and every SQL statement. WAL mode with `synchronous=FULL`: a
+//! committed batch survives a process crash and, on storage that honours fsync, a power loss.
+//! Reading inserts are idempotent on (instrument, time) because QoS 1 redelivers.
+
+mod schema;
+
+use std::path::Path;
+
+use chrono::{DateTime, Utc};
+use rusqlite::{params, Connection, OptionalExtension};
+
+use crate::config::Config;
+use crate::quality::{Flags, Reason};
+
+pub use schema::SCHEMA_VERSION;
+
+/// Errors from the store.
+#[derive(Debug, thiserror::Error)]
+pub enum StoreError {
+    #[error("database: {0}")]
+    Sqlite(#[from] rusqlite::Error),
+    #[error("database {path} has schema version {found}, newer than this seepd ({supported})")]
+    TooNew { path: String, found: i64, supported: i64 },
+}
+
+/// One reading ready to store: raw fields, reduced values and quality.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReadingRow {
+    pub instrument: String,
+    /// Reading time (logger time, or arrival time when `flags` has `TIME_FROM_ARRIVAL`).
+    pub t_ms: i64,
+    /// When the message reached seepd.
+    pub arrival_ms: i64,
+    pub raw: f64,
+    pub temperature_c: Option<f64>,
+    /// Barometric pressure used for the correction, if any.
+    pub baro_kpa: Option<f64>,
+    pub eng_value: f64,
+    pub eng_unit: &'static str,
+    pub pressure_kpa: Option<f64>,
+    pub pressure_head_m: Option<f64>,
+    pub total_head_m: Option<f64>,
+    pub flags: Flags,
+}
+
+/// One quarantined input.
+#[derive(Debug, Clone, PartialEq)]
+pub struct QuarantineRow {
+    pub received_ms: i64,
+    pub topic: String,
+    pub reason: Reason,
+    pub detail: String,
+    /// The payload as received (truncated for oversized payloads; `detail` says so).
+    pub payload: Vec<u8>,
+    /// The broker marked the message as a redelivery: skip if the same row is already stored.
+    pub redelivered: bool,
+}
+
+/// What a committed batch did.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct BatchStats {
+    pub inserted: usize,
+    /// Readings already stored for (instrument, time): not inserted again.
+    pub duplicates: usize,
+    pub quarantined: usize,
+}
+
+/// A latest stored value, for summaries.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Latest {
+    pub instrument: String,
+    pub t_ms: i64,
+    pub total_head_m: Option<f64>,
+    pub pressure_kpa: Option<f64>,
+    pub flags: Flags,
+}
+
+/// The database.
+pub struct Store {
+    /// The one connection; the store is used from one thread at a time.
+    conn: Connection,
+}
+
+impl Store {
+    /// Open (creating if needed) and migrate the database at `path`.
+    ///
+    /// # Errors
+    /// SQLite errors, or a database written by a newer seepd.
+    pub fn open(path: &Path) -> Result<Store, StoreError> {
+        let conn = Connection::open(path)?;
+        Self::init(conn, &path.display().to_string())
+    }
+
+    /// An in-memory database (replay without `--db`, tests).
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn open_in_memory() -> Result<Store, StoreError> {
+        Self::init(Connection::open_in_memory()?, ":memory:")
+    }
+
+    fn init(conn: Connection, name: &str) -> Result<Store, StoreError> {
+        conn.busy_timeout(std::time::Duration::from_secs(10))?;
+        conn.pragma_update(None, "journal_mode", "WAL")?;
+        conn.pragma_update(None, "synchronous", "FULL")?;
+        conn.pragma_update(None, "foreign_keys", "ON")?;
+        schema::migrate(&conn, name)?;
+        Ok(Store { conn })
+    }
+
+    /// The connection, for modules that own further tables (later issues) and tests.
+    pub fn conn(&self) -> &Connection {
+        &self.conn
+    }
+
+    /// Record the configured instruments (upsert), so the database describes itself.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn sync_instruments(&mut self, cfg: &Config, now: DateTime<Utc>) -> Result<(), StoreError> {
+        let tx = self.conn.transaction()?;
+        {
+            let mut st = tx.prepare(
+                "INSERT INTO instruments (id, site, kind, reach, section, station_m, offset_m,
+                    tip_elevation_m, installed_ms, interval_s, updated_ms)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)
+                 ON CONFLICT(id) DO UPDATE SET site=excluded.site, kind=excluded.kind,
+                    reach=excluded.reach, section=excluded.section, station_m=excluded.station_m,
+                    offset_m=excluded.offset_m, tip_elevation_m=excluded.tip_elevation_m,
+                    installed_ms=excluded.installed_ms, interval_s=excluded.interval_s,
+                    updated_ms=excluded.updated_ms",
+            )?;
+            for i in cfg.instruments.values() {
+                st.execute(params![
+                    i.id,
+                    i.site,
+                    i.kind.name(),
+                    i.location.reach,
+                    i.location.section,
+                    i.location.station_m,
+                    i.location.offset_m,
+                    i.tip_elevation_m,
+                    i.installed.timestamp_millis(),
+                    i.interval_s as i64,
+                    now.timestamp_millis(),
+                ])?;
+            }
+        }
+        tx.commit()?;
+        Ok(())
+    }
+
+    /// Write readings and quarantine rows in one transaction and commit it.
+    ///
+    /// # Errors
+    /// SQLite errors; nothing of the batch is stored then.
+    pub fn write_batch(
+        &mut self,
+        readings: &[ReadingRow],
+        quarantined: &[QuarantineRow],
+    ) -> Result<BatchStats, StoreError> {
+        let tx = self.conn.transaction()?;
+        let mut stats = BatchStats::default();
+        {
+            let mut ins = tx.prepare_cached(
+                "INSERT OR IGNORE INTO readings (instrument, t_ms, arrival_ms, raw,
+                    temperature_c, baro_kpa, eng_value, eng_unit, pressure_kpa, pressure_head_m,
+                    total_head_m, flags)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
+            )?;
+            for r in readings {
+                let n = ins.execute(params![
+                    r.instrument,
+                    r.t_ms,
+                    r.arrival_ms,
+                    r.raw,
+                    r.temperature_c,
+                    r.baro_kpa,
+                    r.eng_value,
+                    r.eng_unit,
+                    r.pressure_kpa,
+                    r.pressure_head_m,
+                    r.total_head_m,
+                    r.flags.0,
+                ])?;
+                if n == 1 {
+                    stats.inserted += 1;
+                } else {
+                    stats.duplicates += 1;
+                }
+            }
+            let mut q = tx.prepare_cached(
+                "INSERT INTO quarantine (received_ms, topic, reason, detail, payload)
+                 SELECT ?1, ?2, ?3, ?4, ?5
+                 WHERE NOT ?6 OR NOT EXISTS
+                    (SELECT 1 FROM quarantine WHERE topic = ?2 AND payload = ?5 AND reason = ?3
+                        AND detail = ?4)",
+            )?;
+            for r in quarantined {
+                stats.quarantined += q.execute(params![
+                    r.received_ms,
+                    r.topic,
+                    r.reason.code(),
+                    r.detail,
+                    r.payload,
+                    r.redelivered,
+                ])?;
+            }
+        }
+        tx.commit()?;
+        Ok(stats)
+    }
+
+    /// Number of stored readings (all instruments).
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn count_readings(&self) -> Result<i64, StoreError> {
+        Ok(self.conn.query_row("SELECT count(*) FROM readings", [], |r| r.get(0))?)
+    }
+
+    /// Quarantine counts by reason code.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn quarantine_counts(&self) -> Result<Vec<(String, i64)>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare("SELECT reason, count(*) FROM quarantine GROUP BY reason ORDER BY reason")?;
+        let rows = st.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// The latest reading of each instrument.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn latest_all(&self) -> Result<Vec<Latest>, StoreError> {
+        let mut st = self.conn.prepare(
+            "SELECT r.instrument, r.t_ms, r.total_head_m, r.pressure_kpa, r.flags
+             FROM readings r
+             JOIN (SELECT instrument, max(t_ms) AS t FROM readings GROUP BY instrument) m
+               ON m.instrument = r.instrument AND m.t = r.t_ms
+             ORDER BY r.instrument",
+        )?;
+        let rows = st.query_map([], |r| {
+            Ok(Latest {
+                instrument: r.get(0)?,
+                t_ms: r.get(1)?,
+                total_head_m: r.get(2)?,
+                pressure_kpa: r.get(3)?,
+                flags: Flags(r.get(4)?),
+            })
+        })?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// Barometric pressures (time ms, kPa) of `barometer` since `since_ms`, oldest first — to seed
+    /// the engine's barometer memory at start.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn barometer_since(&self, barometer: &str, since_ms: i64) -> Result<Vec<(i64, f64)>, StoreError> {
+        let mut st = self.conn.prepare(
+            "SELECT t_ms, pressure_kpa FROM readings
+             WHERE instrument = ?1 AND t_ms >= ?2 AND pressure_kpa IS NOT NULL ORDER BY t_ms",
+        )?;
+        let rows = st.query_map(params![barometer, since_ms], |r| Ok((r.get(0)?, r.get(1)?)))?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// One stored reading (tests, tools).
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn reading(&self, instrument: &str, t_ms: i64) -> Result<Option<(f64, Option<f64>, Flags)>, StoreError> {
+        Ok(self
+            .conn
+            .query_row(
+                "SELECT raw, total_head_m, flags FROM readings WHERE instrument = ?1 AND t_ms = ?2",
+                params![instrument, t_ms],
+                |r| Ok((r.get(0)?, r.get(1)?, Flags(r.get(2)?))),
+            )
+            .optional()?)
+    }
+}
+
+#[cfg(test)]
+mod tests;
