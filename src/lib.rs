@@ -4,7 +4,14 @@
 //! an incoming message into stored rows by calling the domain and is shared by `run` and
 //! `replay`; `ingest`, `store` and `demo` are adapters; `cli` parses arguments.
 
+pub mod cli;
 pub mod config;
+#[cfg(feature = "demo-broker")]
+pub mod demo;
 pub mod domain;
+pub mod engine;
+pub mod ingest;
 pub mod quality;
+pub mod replay;
+pub mod service;
 pub mod store;

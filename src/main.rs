@@ -1,1 +1,15 @@
-fn main() {}
+//! The `seepd` binary: parse arguments, set up logging, hand over to the library.
+
+use clap::Parser;
+
+fn main() {
+    let cli = seepd::cli::Cli::parse();
+    tracing_subscriber::fmt()
+        .with_env_filter(
+            tracing_subscriber::EnvFilter::try_from_env("SEEPD_LOG")
+                .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info")),
+        )
+        .with_writer(std::io::stderr)
+        .init();
+    std::process::exit(seepd::cli::main_with(cli));
+}

@@ -1,0 +1,309 @@
+//! The pipeline shared by `run` and `replay`: an incoming message becomes reading rows and
+//! quarantine rows, by decoding (ingest::decode), mapping to an instrument, checking, and
+//! reducing (domain::reduce).
+//!
+//! Pure apart from the state it keeps (the channel table and recent barometer readings): no
+//! I/O and no clock reads; the arrival time comes with the message.
+
+use std::collections::{BTreeMap, HashMap};
+use std::sync::Arc;
+
+use chrono::{DateTime, Utc};
+
+use crate::config::{Config, Instrument, Subscription};
+use crate::domain::reduce::{reduce, Context};
+use crate::ingest::decode::{decode, Decoded};
+use crate::ingest::topic::{match_topic, TopicFields};
+use crate::quality::{Flags, Reason, Reject};
+use crate::store::{QuarantineRow, ReadingRow};
+
+/// Quarantined payloads are stored up to this many bytes.
+const QUARANTINE_PAYLOAD_MAX: usize = 4096;
+
+/// One message as it arrived.
+#[derive(Debug, Clone)]
+pub struct Message {
+    pub topic: String,
+    pub payload: Vec<u8>,
+    pub arrival: DateTime<Utc>,
+    /// The broker marked it as a redelivery (MQTT DUP).
+    pub redelivered: bool,
+}
+
+/// What one message produced.
+#[derive(Debug, Default)]
+pub struct Outcome {
+    pub readings: Vec<ReadingRow>,
+    pub quarantined: Vec<QuarantineRow>,
+}
+
+/// The pipeline state.
+pub struct Engine {
+    /// The validated configuration.
+    cfg: Arc<Config>,
+    /// Channel table: (logger, channel) → instrument id.
+    channels: HashMap<(String, String), String>,
+    /// Recent barometric pressures by barometer id: time (ms) → kPa. Pruned to a window.
+    baro: HashMap<String, BTreeMap<i64, f64>>,
+}
+
+impl Engine {
+    pub fn new(cfg: Arc<Config>) -> Engine {
+        let channels = cfg
+            .instruments
+            .values()
+            .filter_map(|i| match (&i.logger, &i.channel) {
+                (Some(l), Some(c)) => Some(((l.clone(), c.clone()), i.id.clone())),
+                _ => None,
+            })
+            .collect();
+        Engine { cfg, channels, baro: HashMap::new() }
+    }
+
+    /// The configuration the engine runs on.
+    pub fn config(&self) -> &Config {
+        &self.cfg
+    }
+
+    /// Barometer ids that some instrument's reduction needs.
+    pub fn barometers(&self) -> Vec<String> {
+        let mut ids: Vec<String> = self
+            .cfg
+            .instruments
+            .values()
+            .filter_map(|i| i.kind.barometer().map(str::to_string))
+            .collect();
+        ids.sort();
+        ids.dedup();
+        ids
+    }
+
+    /// Remember a barometric pressure (from the store at start, or from a new reading).
+    pub fn remember_barometer(&mut self, barometer: &str, t_ms: i64, kpa: f64) {
+        let keep_ms = self.cfg.service.barometer_max_age_s * 1000 * 4;
+        let series = self.baro.entry(barometer.to_string()).or_default();
+        series.insert(t_ms, kpa);
+        // Keep memory bounded: drop what is far older than the newest entry.
+        if let Some((&newest, _)) = series.last_key_value() {
+            while let Some((&oldest, _)) = series.first_key_value() {
+                if newest - oldest > keep_ms && series.len() > 2 {
+                    series.pop_first();
+                } else {
+                    break;
+                }
+            }
+        }
+    }
+
+    /// The barometer reading nearest in time to `t_ms`, if within the configured window.
+    fn barometer_at(&self, barometer: &str, t_ms: i64) -> Option<f64> {
+        let series = self.baro.get(barometer)?;
+        let max = self.cfg.service.barometer_max_age_s * 1000;
+        let before = series.range(..=t_ms).next_back();
+        let after = series.range(t_ms..).next();
+        [before, after]
+            .into_iter()
+            .flatten()
+            .map(|(&t, &p)| ((t - t_ms).abs(), p))
+            .filter(|(d, _)| *d <= max)
+            .min_by_key(|(d, _)| *d)
+            .map(|(_, p)| p)
+    }
+
+    /// Process one message.
+    pub fn process(&mut self, msg: &Message) -> Outcome {
+        let mut out = Outcome::default();
+        let quarantine = |out: &mut Outcome, reject: Reject| {
+            out.quarantined.push(quarantine_row(msg, reject));
+        };
+        if msg.payload.len() > self.cfg.service.max_payload_bytes {
+            let detail = format!(
+                "payload of {} bytes exceeds max_payload_bytes {} (first {} bytes kept)",
+                msg.payload.len(),
+                self.cfg.service.max_payload_bytes,
+                QUARANTINE_PAYLOAD_MAX
+            );
+            quarantine(&mut out, Reject::new(Reason::Oversized, detail));
+            return out;
+        }
+        let cfg = Arc::clone(&self.cfg);
+        let Some((sub, fields)) = find_subscription(&cfg.subscriptions, &msg.topic) else {
+            let detail = format!("topic {:?} matches no subscription pattern", msg.topic);
+            quarantine(&mut out, Reject::new(Reason::UnknownTopic, detail));
+            return out;
+        };
+        let entries = match decode(sub, &msg.payload, msg.arrival) {
+            Ok(e) => e,
+            Err(reject) => {
+                quarantine(&mut out, reject);
+                return out;
+            }
+        };
+        // Map and check every entry; barometers first so that a message carrying both the
+        // barometer and the gauges it corrects is reduced consistently.
+        let mut accepted: Vec<(&Instrument, Decoded, i64, Flags)> = Vec::new();
+        for entry in entries {
+            match entry.and_then(|d| self.admit(&cfg, &fields, d, msg.arrival)) {
+                Ok(a) => accepted.push(a),
+                Err(reject) => quarantine(&mut out, reject),
+            }
+        }
+        accepted.sort_by_key(|(i, ..)| i.kind.barometer().is_some());
+        for (instrument, d, t_ms, flags) in accepted {
+            match self.reduce_one(&cfg, instrument, &d, t_ms, flags, msg.arrival) {
+                Ok(row) => out.readings.push(row),
+                Err(reject) => quarantine(&mut out, reject),
+            }
+        }
+        out
+    }
+
+    /// Map a decoded entry to its instrument and apply the input checks.
+    fn admit<'c>(
+        &self,
+        cfg: &'c Config,
+        fields: &TopicFields,
+        d: Decoded,
+        arrival: DateTime<Utc>,
+    ) -> Result<(&'c Instrument, Decoded, i64, Flags), Reject> {
+        let instrument = self.resolve(cfg, fields, &d)?;
+        let mut flags = Flags::empty();
+        if !d.value.is_finite() {
+            return Err(Reject::new(
+                Reason::NonFinite,
+                format!("instrument {}: value is {}", instrument.id, d.value),
+            ));
+        }
+        if d.temperature_c.is_some_and(|t| !t.is_finite()) {
+            return Err(Reject::new(
+                Reason::NonFinite,
+                format!("instrument {}: temperature is not finite", instrument.id),
+            ));
+        }
+        let (lo, hi) = instrument.raw_range;
+        if d.value < lo || d.value > hi {
+            return Err(Reject::new(
+                Reason::OutOfRange,
+                format!(
+                    "instrument {}: value {} outside its physical range [{lo}, {hi}]",
+                    instrument.id, d.value
+                ),
+            ));
+        }
+        let time = match d.time {
+            Some(t) => t,
+            None => {
+                flags.insert(Flags::TIME_FROM_ARRIVAL);
+                arrival
+            }
+        };
+        let ahead_s = (time - arrival).num_seconds();
+        if ahead_s > cfg.service.max_future_s {
+            return Err(Reject::new(
+                Reason::TimeInFuture,
+                format!(
+                    "instrument {}: time {} is {ahead_s} s after arrival (limit {} s)",
+                    instrument.id,
+                    time.to_rfc3339(),
+                    cfg.service.max_future_s
+                ),
+            ));
+        }
+        if time < instrument.installed {
+            return Err(Reject::new(
+                Reason::BeforeInstall,
+                format!(
+                    "instrument {}: time {} is before its install date {}",
+                    instrument.id,
+                    time.to_rfc3339(),
+                    instrument.installed.to_rfc3339()
+                ),
+            ));
+        }
+        Ok((instrument, d, time.timestamp_millis(), flags))
+    }
+
+    /// Which instrument a decoded entry belongs to: an id in the topic, then an id in the
+    /// payload, then the (logger, channel) table.
+    fn resolve<'c>(
+        &self,
+        cfg: &'c Config,
+        fields: &TopicFields,
+        d: &Decoded,
+    ) -> Result<&'c Instrument, Reject> {
+        let by_id = |id: &Option<String>| id.as_ref().and_then(|id| cfg.instruments.get(id));
+        if let Some(i) = by_id(&fields.instrument).or_else(|| by_id(&d.instrument)) {
+            return Ok(i);
+        }
+        let channel = d.channel.as_ref().or(fields.channel.as_ref());
+        if let (Some(logger), Some(channel)) = (&fields.logger, channel) {
+            if let Some(i) = self
+                .channels
+                .get(&(logger.clone(), channel.clone()))
+                .and_then(|id| cfg.instruments.get(id))
+            {
+                return Ok(i);
+            }
+        }
+        let what = match (&fields.instrument, &d.instrument, &fields.logger, channel) {
+            (Some(id), ..) | (None, Some(id), ..) => format!("instrument id {id:?}"),
+            (None, None, Some(l), Some(c)) => format!("logger {l:?} channel {c:?}"),
+            (None, None, None, Some(c)) => format!("channel {c:?} (no logger in topic)"),
+            _ => "no instrument id or channel".to_string(),
+        };
+        Err(Reject::new(Reason::UnknownInstrument, format!("{what} is not configured")))
+    }
+
+    fn reduce_one(
+        &mut self,
+        cfg: &Config,
+        instrument: &Instrument,
+        d: &Decoded,
+        t_ms: i64,
+        flags: Flags,
+        arrival: DateTime<Utc>,
+    ) -> Result<ReadingRow, Reject> {
+        let gamma_w_kn_m3 = cfg.site_of(instrument).map_or(9.81, |s| s.gamma_w_kn_m3);
+        let baro_kpa = instrument.kind.barometer().and_then(|b| self.barometer_at(b, t_ms));
+        let ctx = Context { temperature_c: d.temperature_c, baro_kpa, gamma_w_kn_m3 };
+        let r = reduce(instrument, d.value, &ctx)?;
+        if matches!(instrument.kind, crate::config::Kind::Barometer(_)) {
+            if let Some(p) = r.pressure_kpa {
+                self.remember_barometer(&instrument.id, t_ms, p);
+            }
+        }
+        let mut all = flags;
+        all.insert(r.flags);
+        Ok(ReadingRow {
+            instrument: instrument.id.clone(),
+            t_ms,
+            arrival_ms: arrival.timestamp_millis(),
+            raw: d.value,
+            temperature_c: d.temperature_c,
+            baro_kpa,
+            eng_value: r.engineering_value,
+            eng_unit: r.engineering_unit,
+            pressure_kpa: r.pressure_kpa,
+            pressure_head_m: r.pressure_head_m,
+            total_head_m: r.total_head_m,
+            flags: all,
+        })
+    }
+}
+
+/// The first subscription whose pattern matches `topic`, with the captured fields.
+fn find_subscription<'s>(subs: &'s [Subscription], topic: &str) -> Option<(&'s Subscription, TopicFields)> {
+    subs.iter().find_map(|s| match_topic(&s.pattern, topic).map(|f| (s, f)))
+}
+
+fn quarantine_row(msg: &Message, reject: Reject) -> QuarantineRow {
+    let keep = msg.payload.len().min(QUARANTINE_PAYLOAD_MAX);
+    QuarantineRow {
+        received_ms: msg.arrival.timestamp_millis(),
+        topic: msg.topic.clone(),
+        reason: reject.reason,
+        detail: reject.detail,
+        payload: msg.payload[..keep].to_vec(),
+        redelivered: msg.redelivered,
+    }
+}
