@@ -1,0 +1,180 @@
+//! `seepd demo`: an embedded broker (rumqttd) on a free loopback port, the service itself, and
+//! simulated loggers for the invented demo site publishing at accelerated time, with a live
+//! summary. Everything here is demo-only; the data are invented.
+
+mod broker;
+pub mod sim;
+
+use std::future::Future;
+use std::io::Write;
+use std::sync::Arc;
+use std::time::Duration;
+
+use anyhow::Context as _;
+use chrono::{TimeZone, Utc};
+use rumqttc::{AsyncClient, MqttOptions, QoS};
+use tokio::sync::watch;
+
+use crate::config::Config;
+use crate::ingest::progress::Counters;
+use crate::store::Store;
+
+/// The example configuration, compiled in so the demo runs from anywhere.
+pub const EXAMPLE_CONFIG: [(&str, &str); 3] = [
+    ("seepd.toml", include_str!("../../config/seepd.toml")),
+    ("levee-ash-bend.toml", include_str!("../../config/levee-ash-bend.toml")),
+    ("dam-tarn.toml", include_str!("../../config/dam-tarn.toml")),
+];
+
+/// Write the example configuration into `dir` and load it.
+///
+/// # Errors
+/// I/O errors, or problems in the example configuration (a bug).
+pub fn example_config(dir: &std::path::Path) -> anyhow::Result<Config> {
+    for (name, text) in EXAMPLE_CONFIG {
+        std::fs::write(dir.join(name), text)?;
+    }
+    crate::config::load_dir(dir).map_err(|p| anyhow::anyhow!("example configuration: {p}"))
+}
+
+/// Run the demo until `shutdown` resolves (or after `days` simulated days).
+///
+/// # Errors
+/// Broker start-up or database errors.
+pub async fn run(seconds_per_day: f64, days: Option<u32>, shutdown: impl Future<Output = ()>) -> anyhow::Result<()> {
+    let dir = tempfile_dir()?;
+    let mut cfg = example_config(&dir)?;
+    let port = broker::start().context("starting the embedded broker")?;
+    cfg.mqtt.port = port;
+    cfg.mqtt.host = "127.0.0.1".into();
+    cfg.service.database = dir.join("demo.sqlite");
+    let cfg = Arc::new(cfg);
+    println!("seepd demo: embedded broker on 127.0.0.1:{port}; database {}", cfg.service.database.display());
+    println!("Invented site, invented data. Press Ctrl-C to stop.\n");
+
+    let (stop_tx, stop_rx) = watch::channel(false);
+    let counters = Arc::new(Counters::default());
+    let service = {
+        let cfg = Arc::clone(&cfg);
+        let counters = Arc::clone(&counters);
+        let mut rx = stop_rx.clone();
+        tokio::spawn(async move {
+            crate::service::run(cfg, counters, async move {
+                let _ = rx.wait_for(|s| *s).await;
+            })
+            .await
+        })
+    };
+
+    let total_days = days.unwrap_or(sim::SCENARIO_DAYS);
+    let start = Utc::now() - chrono::Duration::days(i64::from(sim::SCENARIO_DAYS));
+    let start = Utc.timestamp_opt(start.timestamp() - start.timestamp() % 3600, 0).single().unwrap_or(start);
+    let loggers = tokio::spawn(publish_loop(port, start, seconds_per_day, total_days, stop_rx.clone()));
+
+    let db = cfg.service.database.clone();
+    let summary = {
+        let mut rx = stop_rx.clone();
+        let counters = Arc::clone(&counters);
+        tokio::spawn(async move {
+            loop {
+                tokio::select! {
+                    _ = tokio::time::sleep(Duration::from_secs(3)) => print_summary(&db, &counters),
+                    _ = rx.wait_for(|s| *s) => break,
+                }
+            }
+        })
+    };
+
+    tokio::pin!(shutdown);
+    tokio::select! {
+        _ = &mut shutdown => println!("\nStopping..."),
+        r = loggers => {
+            if let Ok(Err(e)) = r { eprintln!("simulated loggers: {e:#}"); }
+            if days.is_some() {
+                tokio::time::sleep(Duration::from_secs(2)).await;
+            } else {
+                println!("\nScenario finished; the service keeps running. Press Ctrl-C to stop.");
+                shutdown.await;
+            }
+        }
+    }
+    let _ = stop_tx.send(true);
+    let _ = summary.await;
+    match service.await {
+        Ok(r) => r?,
+        Err(e) => anyhow::bail!("service task failed: {e}"),
+    }
+    print_summary(&cfg.service.database, &counters);
+    println!("Demo stopped cleanly. Database kept at {}", cfg.service.database.display());
+    Ok(())
+}
+
+fn tempfile_dir() -> anyhow::Result<std::path::PathBuf> {
+    let dir = std::env::temp_dir().join(format!("seepd-demo-{}", std::process::id()));
+    std::fs::create_dir_all(&dir)?;
+    Ok(dir)
+}
+
+/// Publish the scenario: one hourly round of every logger per simulated hour.
+async fn publish_loop(
+    port: u16,
+    start: chrono::DateTime<Utc>,
+    seconds_per_day: f64,
+    days: u32,
+    mut stop: watch::Receiver<bool>,
+) -> anyhow::Result<()> {
+    let mut o = MqttOptions::new(format!("demo-loggers-{}", std::process::id()), "127.0.0.1", port);
+    o.set_keep_alive(Duration::from_secs(30)).set_inflight(200);
+    let (client, mut el) = AsyncClient::new(o, 1000);
+    tokio::spawn(async move {
+        loop {
+            if el.poll().await.is_err() {
+                tokio::time::sleep(Duration::from_millis(200)).await;
+            }
+        }
+    });
+    let per_hour = Duration::from_secs_f64((seconds_per_day / 24.0).max(0.001));
+    for hour in 0..(days * 24) {
+        let t = start + chrono::Duration::hours(i64::from(hour));
+        for (topic, payload) in sim::messages(hour, t) {
+            client.publish(topic, QoS::AtLeastOnce, false, payload).await?;
+        }
+        tokio::select! {
+            _ = tokio::time::sleep(per_hour) => {}
+            _ = stop.wait_for(|s| *s) => return Ok(()),
+        }
+    }
+    Ok(())
+}
+
+fn print_summary(db: &std::path::Path, counters: &Counters) {
+    let Ok(store) = Store::open(db) else { return };
+    let (messages, stored, dups, quarantined) = counters.snapshot();
+    let mut s = String::new();
+    s.push_str(&format!(
+        "--- {} messages, {stored} readings stored, {dups} duplicates, {quarantined} quarantined ---\n",
+        messages
+    ));
+    if let Ok(latest) = store.latest_all() {
+        for l in latest {
+            let t = Utc.timestamp_millis_opt(l.t_ms).single().map(|t| t.format("%Y-%m-%d %H:%M").to_string()).unwrap_or_default();
+            match l.total_head_m {
+                Some(h) => s.push_str(&format!("  {:<10} {t}  head/elevation {h:8.3} m\n", l.instrument)),
+                None => s.push_str(&format!(
+                    "  {:<10} {t}  pressure {:8.3} kPa\n",
+                    l.instrument,
+                    l.pressure_kpa.unwrap_or(f64::NAN)
+                )),
+            }
+        }
+    }
+    if let Ok(q) = store.quarantine_counts() {
+        if !q.is_empty() {
+            let parts: Vec<String> = q.iter().map(|(r, n)| format!("{r}={n}")).collect();
+            s.push_str(&format!("  quarantine: {}\n", parts.join(", ")));
+        }
+    }
+    let mut out = std::io::stdout().lock();
+    let _ = out.write_all(s.as_bytes());
+    let _ = out.flush();
+}

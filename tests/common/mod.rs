@@ -1,0 +1,252 @@
+//! Test harness: real Mosquitto brokers and real seepd processes on free loopback ports, each
+//! test in its own temp directory. Polls until ready instead of sleeping blindly.
+#![allow(dead_code)]
+
+use std::io::Write;
+use std::net::{TcpListener, TcpStream};
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::time::{Duration, Instant};
+
+/// A free TCP port on 127.0.0.1 (bound then released).
+pub fn free_port() -> u16 {
+    TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port()
+}
+
+/// Poll `f` every 50 ms until it returns Some or `timeout` passes.
+pub fn wait_for<T>(timeout: Duration, mut f: impl FnMut() -> Option<T>) -> Option<T> {
+    let end = Instant::now() + timeout;
+    loop {
+        if let Some(v) = f() {
+            return Some(v);
+        }
+        if Instant::now() > end {
+            return None;
+        }
+        std::thread::sleep(Duration::from_millis(50));
+    }
+}
+
+/// A Mosquitto broker started for one test.
+pub struct Broker {
+    pub port: u16,
+    dir: PathBuf,
+    child: Option<Child>,
+}
+
+impl Broker {
+    /// Start Mosquitto on a free port with persistence in `dir`.
+    pub fn start(dir: &Path) -> Broker {
+        let mut b = Broker { port: free_port(), dir: dir.to_path_buf(), child: None };
+        b.spawn();
+        b
+    }
+
+    fn spawn(&mut self) {
+        let conf = self.dir.join("mosquitto.conf");
+        let mut f = std::fs::File::create(&conf).unwrap();
+        writeln!(
+            f,
+            "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\n\
+             persistence_location {dir}/\nautosave_interval 1\nmax_queued_messages 0\n\
+             max_inflight_messages 100\nmessage_size_limit 0\nlog_dest file {dir}/mosquitto.log\n",
+            port = self.port,
+            dir = self.dir.display()
+        )
+        .unwrap();
+        let child = Command::new(mosquitto_path())
+            .arg("-c")
+            .arg(&conf)
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .expect("mosquitto must be installed (tests/run.sh installs it)");
+        self.child = Some(child);
+        let port = self.port;
+        wait_for(Duration::from_secs(10), || TcpStream::connect(("127.0.0.1", port)).ok())
+            .expect("mosquitto did not start listening");
+    }
+
+    /// Stop with SIGTERM (Mosquitto saves its persistence file) and wait for it.
+    pub fn stop(&mut self) {
+        if let Some(mut c) = self.child.take() {
+            let _ = Command::new("kill").arg("-TERM").arg(c.id().to_string()).status();
+            let _ = c.wait();
+        }
+    }
+
+    /// Start again on the same port with the same persistence.
+    pub fn restart(&mut self) {
+        self.stop();
+        self.spawn();
+    }
+}
+
+impl Drop for Broker {
+    fn drop(&mut self) {
+        if let Some(mut c) = self.child.take() {
+            let _ = c.kill();
+            let _ = c.wait();
+        }
+    }
+}
+
+fn mosquitto_path() -> &'static str {
+    if Path::new("/usr/sbin/mosquitto").exists() {
+        "/usr/sbin/mosquitto"
+    } else {
+        "mosquitto"
+    }
+}
+
+/// The seepd binary under test.
+pub fn seepd_bin() -> &'static str {
+    env!("CARGO_BIN_EXE_seepd")
+}
+
+/// Copy the example configuration into `dir/config`, pointed at `port` and `dir/seepd.sqlite`,
+/// with a unique client id. Returns the config directory.
+pub fn example_config(dir: &Path, port: u16) -> PathBuf {
+    let cfg = dir.join("config");
+    std::fs::create_dir_all(&cfg).unwrap();
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("config");
+    for e in std::fs::read_dir(&src).unwrap() {
+        let p = e.unwrap().path();
+        if p.extension().is_some_and(|x| x == "toml") {
+            let mut text = std::fs::read_to_string(&p).unwrap();
+            if p.file_name().is_some_and(|n| n == "seepd.toml") {
+                text = text
+                    .replace("port = 1883", &format!("port = {port}"))
+                    .replace("database = \"seepd.sqlite\"", &format!("database = \"{}\"", dir.join("seepd.sqlite").display()))
+                    .replace("client_id = \"seepd-demo\"", &format!("client_id = \"seepd-test-{port}\""))
+                    .replace("reconnect_max_ms = 30000", "reconnect_max_ms = 1000")
+                    .replace("reconnect_min_ms = 500", "reconnect_min_ms = 100");
+            }
+            std::fs::write(cfg.join(p.file_name().unwrap()), text).unwrap();
+        }
+    }
+    cfg
+}
+
+/// A seepd `run` process.
+pub struct Daemon {
+    pub child: Child,
+    pub log: PathBuf,
+}
+
+impl Daemon {
+    pub fn start(config: &Path, log: &Path) -> Daemon {
+        let out = std::fs::OpenOptions::new().create(true).append(true).open(log).unwrap();
+        let child = Command::new(seepd_bin())
+            .args(["run", "--config"])
+            .arg(config)
+            .env("SEEPD_LOG", "info")
+            .stdout(Stdio::null())
+            .stderr(out)
+            .spawn()
+            .unwrap();
+        Daemon { child, log: log.to_path_buf() }
+    }
+
+    /// Wait until the log says it has connected.
+    pub fn wait_connected(&self, times: usize) {
+        let log = self.log.clone();
+        wait_for(Duration::from_secs(20), || {
+            let text = std::fs::read_to_string(&log).unwrap_or_default();
+            (text.matches("Connected to broker").count() >= times).then_some(())
+        })
+        .unwrap_or_else(|| panic!("seepd did not connect; log:\n{}", std::fs::read_to_string(&self.log).unwrap_or_default()));
+    }
+
+    pub fn kill9(&mut self) {
+        let _ = self.child.kill(); // SIGKILL
+        let _ = self.child.wait();
+    }
+
+    /// SIGTERM and wait; returns the exit code and how long it took.
+    pub fn terminate(&mut self) -> (Option<i32>, Duration) {
+        let t = Instant::now();
+        let _ = Command::new("kill").arg("-TERM").arg(self.child.id().to_string()).status();
+        let status = self.child.wait().unwrap();
+        (status.code(), t.elapsed())
+    }
+}
+
+impl Drop for Daemon {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+/// A QoS 1 publisher with a persistent session that survives broker restarts, driven from a
+/// thread of its own. `publish_all` returns once the broker has acknowledged every message.
+pub struct Publisher {
+    rt: tokio::runtime::Runtime,
+    client: rumqttc::AsyncClient,
+    acked: std::sync::Arc<std::sync::atomic::AtomicUsize>,
+}
+
+impl Publisher {
+    pub fn connect(port: u16, id: &str) -> Publisher {
+        let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(1).enable_all().build().unwrap();
+        let mut o = rumqttc::MqttOptions::new(id, "127.0.0.1", port);
+        o.set_clean_session(false).set_keep_alive(Duration::from_secs(5)).set_inflight(50);
+        let (client, mut el) = rumqttc::AsyncClient::new(o, 100_000);
+        let acked = std::sync::Arc::new(std::sync::atomic::AtomicUsize::new(0));
+        let a = acked.clone();
+        rt.spawn(async move {
+            loop {
+                match el.poll().await {
+                    Ok(rumqttc::Event::Incoming(rumqttc::Packet::PubAck(_))) => {
+                        a.fetch_add(1, std::sync::atomic::Ordering::SeqCst);
+                    }
+                    Ok(_) => {}
+                    Err(_) => tokio::time::sleep(Duration::from_millis(100)).await,
+                }
+            }
+        });
+        Publisher { rt, client, acked }
+    }
+
+    /// Queue a QoS 1 message (does not wait for the broker).
+    pub fn send(&self, topic: &str, payload: impl Into<Vec<u8>>) {
+        let payload = payload.into();
+        self.rt
+            .block_on(self.client.publish(topic, rumqttc::QoS::AtLeastOnce, false, payload))
+            .unwrap();
+    }
+
+    /// Number of PUBACKs received so far.
+    pub fn acked(&self) -> usize {
+        self.acked.load(std::sync::atomic::Ordering::SeqCst)
+    }
+
+    /// Wait until `n` messages in total have been acknowledged by the broker.
+    pub fn wait_acked(&self, n: usize, timeout: Duration) {
+        wait_for(timeout, || (self.acked() >= n).then_some(()))
+            .unwrap_or_else(|| panic!("broker acknowledged {} of {n}", self.acked()));
+    }
+}
+
+/// Open the test database read-only-ish (a second connection; WAL allows it).
+pub fn db(dir: &Path) -> rusqlite::Connection {
+    let c = rusqlite::Connection::open(dir.join("seepd.sqlite")).unwrap();
+    c.busy_timeout(Duration::from_secs(5)).unwrap();
+    c
+}
+
+/// Count of rows in `table` matching `where_`, or 0 when the database is not there yet.
+pub fn count(dir: &Path, table: &str, where_: &str) -> i64 {
+    if !dir.join("seepd.sqlite").exists() {
+        return 0;
+    }
+    db(dir)
+        .query_row(&format!("SELECT count(*) FROM {table} WHERE {where_}"), [], |r| r.get(0))
+        .unwrap_or(0)
+}
+
+/// A JSON reading message for the levee logger's river channel (depth above datum, metres).
+pub fn river_json(t_s: i64, depth_m: f64) -> String {
+    format!(r#"{{"time": {t_s}, "channel": "river", "value": {depth_m}}}"#)
+}

@@ -1,0 +1,21 @@
+#!/usr/bin/env bash
+# Install what the tests need (if missing) and run every test. This is the project's one test
+# command; .ci/run calls it. Works on a fresh Debian/Ubuntu machine with Rust installed.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+need=()
+command -v mosquitto >/dev/null 2>&1 || [ -x /usr/sbin/mosquitto ] || need+=(mosquitto)
+command -v mosquitto_sub >/dev/null 2>&1 || need+=(mosquitto-clients)
+/usr/bin/python3 -c 'import aiosmtpd' >/dev/null 2>&1 || need+=(python3-aiosmtpd)
+/usr/bin/python3 -c 'import scipy' >/dev/null 2>&1 || need+=(python3-scipy)
+command -v victoria-metrics >/dev/null 2>&1 || [ -x /usr/bin/victoria-metrics ] || need+=(victoria-metrics)
+if [ ${#need[@]} -gt 0 ]; then
+  echo "tests/run.sh: installing ${need[*]}"
+  SUDO=""
+  [ "$(id -u)" -eq 0 ] || SUDO="sudo"
+  $SUDO apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq "${need[@]}"
+fi
+
+cargo test --all-targets "$@"
