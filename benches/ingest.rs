@@ -1,0 +1,97 @@
+//! Throughput benchmark (not a test): live ingest end to end against a real Mosquitto, next to
+//! `mosquitto_sub -q 1` draining the same queued stream, and `seepd replay` throughput.
+//!
+//! Run: `cargo bench --bench ingest` (env SEEPD_BENCH_N sets the stream length, default 20000).
+//! Figures go to the README.
+
+#[path = "../tests/common/mod.rs"]
+mod common;
+
+use std::process::{Command, Stdio};
+use std::time::{Duration, Instant};
+
+use common::*;
+
+fn main() {
+    let n: i64 = std::env::var("SEEPD_BENCH_N").ok().and_then(|s| s.parse().ok()).unwrap_or(20_000);
+    let dir = tempfile::tempdir().unwrap();
+    let broker = Broker::start(dir.path());
+    let cfg = example_config(dir.path(), broker.port);
+    let topic = "demo/AB-LOG1/json";
+    let t0 = chrono::Utc::now().timestamp() - 30 * 86_400;
+
+    // 1. mosquitto_sub draining a queued QoS 1 stream from its persistent session.
+    let sub_id = "bench-sub";
+    let status = Command::new("mosquitto_sub")
+        .args(["-p", &broker.port.to_string(), "-q", "1", "-c", "-i", sub_id, "-t", "demo/+/json", "-E"])
+        .status()
+        .expect("mosquitto_sub (package mosquitto-clients)");
+    assert!(status.success());
+    // 2. Create seepd's persistent session, then stop it so the stream queues for it too.
+    let log = dir.path().join("seepd.log");
+    let mut d = Daemon::start(&cfg, &log);
+    d.wait_connected(1);
+    d.terminate();
+
+    let p = Publisher::connect(broker.port, "bench-pub");
+    for i in 0..n {
+        p.send(topic, river_json(t0 + i, 3.0));
+    }
+    p.wait_acked(n as usize, Duration::from_secs(600));
+
+    let started = Instant::now();
+    let out = Command::new("mosquitto_sub")
+        .args(["-p", &broker.port.to_string(), "-q", "1", "-c", "-i", sub_id, "-t", "demo/+/json"])
+        .args(["-C", &n.to_string()])
+        .stdout(Stdio::null())
+        .status()
+        .unwrap();
+    assert!(out.success());
+    let sub_s = started.elapsed().as_secs_f64();
+
+    let started = Instant::now();
+    let d2 = Daemon::start(&cfg, &log);
+    wait_for(Duration::from_secs(600), || {
+        (count(dir.path(), "readings", "1") >= n).then_some(())
+    })
+    .expect("seepd did not store the stream");
+    let seepd_s = started.elapsed().as_secs_f64();
+    drop(d2);
+
+    let sub_rate = n as f64 / sub_s;
+    let seepd_rate = n as f64 / seepd_s;
+    println!("live ingest, {n} queued QoS 1 messages (one reading each):");
+    println!("  mosquitto_sub -q 1 drain : {sub_rate:>10.0} msg/s ({sub_s:.2} s)");
+    println!("  seepd stored + acked     : {seepd_rate:>10.0} readings/s ({seepd_s:.2} s, incl. start-up)");
+    println!("  ratio                    : {:.2}", seepd_rate / sub_rate);
+
+    // 3. Replay throughput.
+    let rn: i64 = 200_000;
+    let input = dir.path().join("replay.ndjson");
+    let ids = ["AB-PZ-1A", "AB-PZ-2B", "AB-SP-3", "TH-PZ-1", "TH-POOL"];
+    let vals = [2800.0, 10.0, 4.0, 8000.0, 215.0];
+    let mut text = String::with_capacity(rn as usize * 80);
+    for i in 0..rn {
+        let k = (i % 5) as usize;
+        let extra = if k == 0 { ",\"temperature\":12.0" } else { "" };
+        text.push_str(&format!(
+            "{{\"time\":{},\"instrument\":\"{}\",\"value\":{}{extra}}}\n",
+            t0 + i / 5 * 60,
+            ids[k],
+            vals[k]
+        ));
+    }
+    std::fs::write(&input, text).unwrap();
+    for (label, db) in [("in-memory", None), ("SQLite file", Some(dir.path().join("replay.sqlite")))] {
+        let mut cmd = Command::new(seepd_bin());
+        cmd.args(["replay", "--config"]).arg(&cfg).arg("--input").arg(&input).args(["--output", "/dev/null"]);
+        if let Some(db) = &db {
+            cmd.arg("--db").arg(db);
+        }
+        let started = Instant::now();
+        let st = cmd.stderr(Stdio::null()).status().unwrap();
+        assert!(st.success());
+        let s = started.elapsed().as_secs_f64();
+        println!("replay ({label}): {rn} readings in {s:.2} s = {:.0} readings/s", rn as f64 / s);
+    }
+}
