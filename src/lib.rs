@@ -5,4 +5,5 @@
 //! `replay`; `ingest`, `store` and `demo` are adapters; `cli` parses arguments.
 
 pub mod config;
+pub mod ingest;
 pub mod quality;
