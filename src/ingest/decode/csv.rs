@@ -19,7 +19,8 @@ pub(super) fn decode(unit: EpochUnit, payload: &[u8]) -> Result<Entries, Reject>
         .split('\n')
         .enumerate()
         .filter_map(|(i, raw)| {
-            let line = raw.strip_suffix('\r').unwrap_or(raw).trim();
+            // `trim` also removes the `\r` of a CRLF line end.
+            let line = raw.trim();
             if line.is_empty() || line.starts_with('#') {
                 None
             } else {
