@@ -78,7 +78,10 @@ pub struct Reject {
 
 impl Reject {
     pub fn new(reason: Reason, detail: impl Into<String>) -> Self {
-        Reject { reason, detail: detail.into() }
+        Reject {
+            reason,
+            detail: detail.into(),
+        }
     }
 }
 

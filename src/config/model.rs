@@ -207,7 +207,11 @@ pub enum VwSign {
 #[derive(Debug, Clone, PartialEq)]
 pub enum VwCalibration {
     /// `P = G·(R0 − R1)` or `G·(R1 − R0)`; G in the calibration pressure unit per digit.
-    Linear { gauge_factor: f64, zero_reading_digits: f64, sign: VwSign },
+    Linear {
+        gauge_factor: f64,
+        zero_reading_digits: f64,
+        sign: VwSign,
+    },
     /// `P = A·R1² + B·R1 + C`.
     Polynomial { a: f64, b: f64, c: f64 },
 }
@@ -254,7 +258,13 @@ pub enum TransducerOutput {
     /// Reads pressure directly in this unit.
     Pressure(PressureUnit),
     /// 4–20 mA (or another current span) mapped linearly onto a pressure span.
-    Current { ma_low: f64, ma_high: f64, p_low: f64, p_high: f64, unit: PressureUnit },
+    Current {
+        ma_low: f64,
+        ma_high: f64,
+        p_low: f64,
+        p_high: f64,
+        unit: PressureUnit,
+    },
 }
 
 /// Pressure transducer settings.
