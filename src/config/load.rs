@@ -317,3 +317,9 @@ pub fn summary(cfg: &Config) -> String {
     }
     s
 }
+
+#[cfg(test)]
+mod tests;
+
+#[cfg(test)]
+mod check_tests;

@@ -39,12 +39,18 @@ pub(crate) fn resolve(dir: &Path, p: &str) -> PathBuf {
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) -> ServiceFile {
     root.check_keys(cx, &["service", "mqtt", "subscription"]);
     let service = match root.sub(cx, "service", "[service]") {
-        Some(t) => read_service(cx, &t, dir),
+        Some(mut t) => {
+            t.what = "[service]".into();
+            read_service(cx, &t, dir)
+        }
         None if root.has("service") => None,
         None => Some(default_service(dir)),
     };
     let mqtt = match root.sub(cx, "mqtt", "[mqtt]") {
-        Some(t) => read_mqtt(cx, &t, dir, env),
+        Some(mut t) => {
+            t.what = "[mqtt]".into();
+            read_mqtt(cx, &t, dir, env)
+        }
         None if root.has("mqtt") => None,
         None => Some(default_mqtt()),
     };
@@ -161,9 +167,10 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
             "a password is configured but \"username\" is not; expected both or neither",
         );
     }
-    let tls = t
-        .sub(cx, "tls", "[mqtt.tls]")
-        .and_then(|tls| read_tls(cx, &tls, dir));
+    let tls = t.sub(cx, "tls", "[mqtt.tls]").and_then(|mut tls| {
+        tls.what = "[mqtt.tls]".into();
+        read_tls(cx, &tls, dir)
+    });
     let m = Mqtt {
         host: t.nonempty(cx, "host").unwrap_or(d.host),
         port: t.int_in(cx, "port", 1, 65535, 1883) as u16,
@@ -282,11 +289,11 @@ fn read_tls(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Tls> {
 /// Check a pattern's levels and derive the MQTT filter (placeholders become `+`).
 pub(crate) fn pattern_filter(pattern: &str) -> Result<String, String> {
     if pattern.is_empty() {
-        return Err("is empty; expected a topic such as \"site/{logger}/json\"".into());
+        return Err("expected a topic such as \"site/{logger}/json\"".into());
     }
     if pattern.contains('#') || pattern.contains('+') {
         return Err(format!(
-            "{pattern:?} contains an MQTT wildcard (# or +); expected placeholders instead: {}",
+            "it contains an MQTT wildcard (# or +); expected placeholders instead: {}",
             PLACEHOLDERS.join(", ")
         ));
     }
@@ -299,13 +306,13 @@ pub(crate) fn pattern_filter(pattern: &str) -> Result<String, String> {
         }
         if !PLACEHOLDERS.contains(&level) {
             return Err(format!(
-                "{pattern:?} has level {level:?}; a placeholder must be a whole level and one of: {}",
+                "level {level:?} is not a placeholder; expected a whole level that is one of: {}",
                 PLACEHOLDERS.join(", ")
             ));
         }
         if used.contains(&level) {
             return Err(format!(
-                "{pattern:?} uses {level} twice; expected each placeholder at most once"
+                "it uses {level} twice; expected each placeholder at most once"
             ));
         }
         used.push(level);
@@ -324,7 +331,7 @@ fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
     let filter = pattern.as_deref().and_then(|p| match pattern_filter(p) {
         Ok(f) => Some(f),
         Err(e) => {
-            t.problem_at(cx, "pattern", format!("key \"pattern\" {e}"));
+            t.problem_at(cx, "pattern", format!("key \"pattern\": {e}"));
             None
         }
     });

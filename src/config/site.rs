@@ -47,8 +47,18 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     let mut m_per_unit = 1.0;
     let mut id = None;
     let site = match root.sub(cx, "site", "[site]") {
-        Some(t) => {
+        Some(mut t) => {
+            t.what = "[site]".into();
             let before = cx.problems.len();
+            let sid = t.nonempty(cx, "id");
+            if let Some(sid) = &sid {
+                t.what = format!("site {sid:?}");
+            }
+            if t.has("id") {
+                id = sid.clone().map(|s| (s, cx.pos(t.value_span("id"))));
+            } else {
+                t.missing(cx, "id", "");
+            }
             t.check_keys(
                 cx,
                 &[
@@ -60,12 +70,6 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
                     "length_unit",
                 ],
             );
-            let sid = t.nonempty(cx, "id");
-            if t.has("id") {
-                id = sid.clone().map(|s| (s, cx.pos(t.value_span("id"))));
-            } else {
-                t.missing(cx, "id", "");
-            }
             let name = t.nonempty(cx, "name");
             let time_zone = t.nonempty(cx, "time_zone").unwrap_or_else(|| "UTC".into());
             let gamma = t.number(cx, "unit_weight_water_kn_m3", false);
@@ -156,22 +160,35 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
     let present: Vec<&str> = KINDS.into_iter().filter(|k| t.has(k)).collect();
     let mut kind_read = None;
     if let Some(kind) = kind_name {
-        for other in present.iter().filter(|k| **k != kind) {
+        let others: Vec<&str> = present.iter().copied().filter(|k| *k != kind).collect();
+        if let ([other], false) = (others.as_slice(), t.has(kind)) {
+            // The usual slip: `kind` and the settings table disagree. One problem, not two.
             cx.at(
                 t.key_span(other),
                 format!(
-                    "{}: [instrument.{other}] does not match kind = \"{kind}\"; expected only [instrument.{kind}]",
+                    "{}: kind = \"{kind}\" but the settings table is [instrument.{other}]; \
+                     expected [instrument.{kind}] (or kind = \"{other}\")",
                     t.what
                 ),
             );
-        }
-        match t.sub(cx, kind, &format!("[instrument.{kind}]")) {
-            Some(sub) => kind_read = Some(kinds::read(cx, kind, &sub, m_per_unit)),
-            None if !t.has(kind) => t.problem(
-                cx,
-                format!("kind = \"{kind}\" but there is no [instrument.{kind}] table; expected one with its settings"),
-            ),
-            None => {}
+        } else {
+            for other in &others {
+                cx.at(
+                    t.key_span(other),
+                    format!(
+                        "{}: [instrument.{other}] does not match kind = \"{kind}\"; expected only [instrument.{kind}]",
+                        t.what
+                    ),
+                );
+            }
+            match t.sub(cx, kind, &format!("[instrument.{kind}]")) {
+                Some(sub) => kind_read = Some(kinds::read(cx, kind, &sub, m_per_unit)),
+                None if !t.has(kind) => t.problem(
+                    cx,
+                    format!("kind = \"{kind}\" but there is no [instrument.{kind}] table; expected one with its settings"),
+                ),
+                None => {}
+            }
         }
         let piezometer = kind == "vibrating_wire" || kind == "pressure_transducer";
         if piezometer && !t.has("tip_elevation") {
