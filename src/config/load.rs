@@ -12,7 +12,7 @@ use std::path::{Path, PathBuf};
 
 use toml_edit::ImDocument;
 
-use super::model::Config;
+use super::model::{Config, PayloadFormat};
 use super::problem::{whole_file, Cx};
 use super::reader::Tbl;
 use super::service::{self, Env, ServiceFile};
@@ -282,10 +282,15 @@ pub fn summary(cfg: &Config) -> String {
     );
     let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
     for sub in &cfg.subscriptions {
+        let format = match sub.format {
+            PayloadFormat::Json => "json",
+            PayloadFormat::Senml => "senml",
+            PayloadFormat::Csv => "csv",
+        };
         let _ = writeln!(
             s,
-            "  {}  ({:?}, qos {}, from pattern {})",
-            sub.filter, sub.format, sub.qos, sub.pattern
+            "  {}  ({format}, qos {}, from pattern {})",
+            sub.filter, sub.qos, sub.pattern
         );
     }
     let _ = writeln!(
@@ -305,7 +310,7 @@ pub fn summary(cfg: &Config) -> String {
             .map_or_else(String::new, |n| n.to_string_lossy().into_owned());
         let _ = writeln!(
             s,
-            "  {} ({}, {}): {} instruments",
+            "  {}: {:?}, file {}, {} instruments",
             site.id,
             site.name,
             file,

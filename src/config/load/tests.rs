@@ -90,7 +90,7 @@ fn example_directory_loads_without_problems() {
     let s = summary(&cfg);
     assert!(s.contains("ash-bend"), "{s}");
     assert!(s.contains("vibrating_wire: 2"), "{s}");
-    assert!(s.contains("demo/+/senml"), "{s}");
+    assert!(s.contains("demo/+/senml  (senml, qos 1"), "{s}");
 }
 
 #[test]
