@@ -1,6 +1,13 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
-//! (`load`).
+//! (`load`, with `service`, `site` and `kinds` reading the tables through `reader`).
 
+mod kinds;
+pub mod load;
 pub mod model;
+mod problem;
+mod reader;
+mod service;
+mod site;
 
+pub use load::{load_dir, summary, Problem, Problems};
 pub use model::*;

@@ -1,0 +1,330 @@
+//! Loading a configuration directory: find the files, parse each one keeping spans, read the
+//! service and site files, run the checks that span files, and build the validated `Config` —
+//! or return every problem found, located.
+//!
+//! Owns the directory layout (`seepd.toml` plus one `*.toml` per site, in file-name order), the
+//! cross-file checks (unique ids, barometer references, logger channels) and the `seepd check`
+//! summary. Per-table keys and checks live in `service`, `site` and `kinds`.
+
+use std::collections::BTreeMap;
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use toml_edit::ImDocument;
+
+use super::model::{Config, PayloadFormat};
+use super::problem::{whole_file, Cx};
+use super::reader::Tbl;
+use super::service::{self, Env, ServiceFile};
+use super::site::{self, Pos, SiteFile};
+
+pub use super::problem::{Problem, Problems};
+
+/// Name of the service file inside the configuration directory.
+pub const SERVICE_FILE: &str = "seepd.toml";
+
+/// Load and validate the configuration directory `dir`.
+///
+/// # Errors
+///
+/// Every problem found in every file (syntax, unknown keys, wrong types, missing keys, bad
+/// values, cross-file inconsistencies), each with file, line and column.
+pub fn load_dir(dir: &Path) -> Result<Config, Problems> {
+    load_dir_with(dir, &|name| std::env::var(name).ok())
+}
+
+/// `load_dir` with the environment lookup passed in (tests use their own map).
+///
+/// # Errors
+///
+/// As `load_dir`.
+pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems> {
+    let abs = match dir.canonicalize() {
+        Ok(abs) if abs.is_dir() => abs,
+        Ok(_) => {
+            return Err(one(
+                dir,
+                "is not a directory; expected the configuration directory",
+            ))
+        }
+        Err(e) => {
+            return Err(one(
+                dir,
+                format!("cannot open the configuration directory: {e}"),
+            ))
+        }
+    };
+    let mut site_paths = match site_files(dir) {
+        Ok(paths) => paths,
+        Err(e) => {
+            return Err(one(
+                dir,
+                format!("cannot list the configuration directory: {e}"),
+            ))
+        }
+    };
+    site_paths.sort();
+    let mut problems = Vec::new();
+
+    let service_path = dir.join(SERVICE_FILE);
+    let service = if service_path.is_file() {
+        with_document(&service_path, &mut problems, |cx, root| {
+            service::read(cx, root, &abs, env)
+        })
+    } else {
+        problems.push(whole_file(
+            &service_path,
+            format!(
+                "missing service file {SERVICE_FILE}; expected it in the configuration directory"
+            ),
+        ));
+        None
+    };
+    let sites: Vec<(PathBuf, SiteFile)> = site_paths
+        .iter()
+        .filter_map(|p| {
+            let sf = with_document(p, &mut problems, |cx, root| site::read(cx, root, p))?;
+            Some((p.clone(), sf))
+        })
+        .collect();
+    cross_checks(&sites, &mut problems);
+
+    if !problems.is_empty() {
+        let order = |p: &Problem| {
+            site_paths
+                .iter()
+                .position(|s| *s == p.file)
+                .map_or(0, |i| i + 1)
+        };
+        problems.sort_by_key(|p| (order(p), p.line, p.column));
+        return Err(Problems(problems));
+    }
+    let Some(ServiceFile {
+        service: Some(service),
+        mqtt: Some(mqtt),
+        subscriptions,
+    }) = service
+    else {
+        return Err(one(&service_path, "service file could not be read"));
+    };
+    let mut cfg = Config {
+        dir: abs,
+        service,
+        mqtt,
+        subscriptions,
+        sites: Vec::new(),
+        instruments: BTreeMap::new(),
+    };
+    for (_, sf) in sites {
+        cfg.sites.extend(sf.site);
+        for i in sf.entries.into_iter().filter_map(|e| e.instrument) {
+            cfg.instruments.insert(i.id.clone(), i);
+        }
+    }
+    Ok(cfg)
+}
+
+fn one(file: &Path, message: impl Into<String>) -> Problems {
+    Problems(vec![whole_file(file, message)])
+}
+
+/// Every `*.toml` regular file in `dir` except the service file (unsorted).
+fn site_files(dir: &Path) -> std::io::Result<Vec<PathBuf>> {
+    let mut out = Vec::new();
+    for entry in std::fs::read_dir(dir)? {
+        let path = entry?.path();
+        let is_toml = path.extension().is_some_and(|e| e == "toml");
+        let is_service = path.file_name().is_some_and(|n| n == SERVICE_FILE);
+        if is_toml && !is_service && path.is_file() {
+            out.push(path);
+        }
+    }
+    Ok(out)
+}
+
+/// Read and parse one file, then hand its root table to `read`. A file that cannot be read or
+/// parsed gives one problem (syntax errors located) and `None`.
+fn with_document<T>(
+    path: &Path,
+    problems: &mut Vec<Problem>,
+    read: impl FnOnce(&mut Cx<'_>, &Tbl<'_>) -> T,
+) -> Option<T> {
+    let text = match std::fs::read_to_string(path) {
+        Ok(text) => text,
+        Err(e) => {
+            problems.push(whole_file(path, format!("cannot read file: {e}")));
+            return None;
+        }
+    };
+    let mut cx = Cx {
+        file: path,
+        text: &text,
+        problems,
+    };
+    let doc = match ImDocument::parse(text.as_str()) {
+        Ok(doc) => doc,
+        Err(e) => {
+            let message = e.message().trim().replace('\n', "; ");
+            cx.at(e.span(), format!("TOML syntax error: {message}"));
+            return None;
+        }
+    };
+    let name = path
+        .file_name()
+        .map_or_else(String::new, |n| n.to_string_lossy().into_owned());
+    let root = Tbl::new(&mut cx, doc.as_item(), name, "the top level")?;
+    Some(read(&mut cx, &root))
+}
+
+/// `file:line` for naming an earlier occurrence in a message.
+fn at(file: &Path, pos: Pos) -> String {
+    format!("{}:{}", file.display(), pos.0)
+}
+
+fn problem(file: &Path, pos: Pos, message: String) -> Problem {
+    Problem {
+        file: file.to_path_buf(),
+        line: pos.0,
+        column: pos.1,
+        message,
+    }
+}
+
+/// Checks across all site files: unique site ids, unique instrument ids, barometer references
+/// to barometers, unique (logger, channel) pairs.
+fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) {
+    let mut site_ids: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
+    for (file, sf) in sites {
+        let Some((id, pos)) = &sf.id else { continue };
+        if let Some((f0, p0)) = site_ids.get(id.as_str()) {
+            let msg = format!(
+                "site id {id:?} is already used at {}; expected each site file to have its own id",
+                at(f0, *p0)
+            );
+            problems.push(problem(file, *pos, msg));
+        } else {
+            site_ids.insert(id, (file, *pos));
+        }
+    }
+
+    // First occurrence of each instrument id: file, position, kind.
+    let mut ids: BTreeMap<&str, (&Path, Pos, Option<&str>)> = BTreeMap::new();
+    let mut channels: BTreeMap<(&str, &str), (&Path, Pos, &str)> = BTreeMap::new();
+    for (file, sf) in sites {
+        for e in &sf.entries {
+            let Some((id, pos)) = &e.id else { continue };
+            if let Some((f0, p0, _)) = ids.get(id.as_str()) {
+                let msg = format!(
+                    "instrument id {id:?} is already used at {}; expected ids unique across all sites",
+                    at(f0, *p0)
+                );
+                problems.push(problem(file, *pos, msg));
+            } else {
+                ids.insert(id, (file, *pos, e.kind));
+            }
+            if let Some((logger, channel, cpos)) = &e.logger_channel {
+                let key = (logger.as_str(), channel.as_str());
+                if let Some((f0, p0, other)) = channels.get(&key) {
+                    let msg = format!(
+                        "instrument {id:?}: logger {logger:?} channel {channel:?} is already \
+                         mapped to instrument {other:?} at {}; expected each logger channel once",
+                        at(f0, *p0)
+                    );
+                    problems.push(problem(file, *cpos, msg));
+                } else {
+                    channels.insert(key, (file, *cpos, id));
+                }
+            }
+        }
+    }
+
+    for (file, sf) in sites {
+        for e in &sf.entries {
+            let (Some((id, _)), Some((baro, pos))) = (&e.id, &e.barometer) else {
+                continue;
+            };
+            let msg = match ids.get(baro.as_str()) {
+                None => format!(
+                    "instrument {id:?}: barometer {baro:?} is not an instrument in any site file; \
+                     expected the id of a kind = \"barometer\" instrument"
+                ),
+                Some((f0, p0, Some(kind))) if *kind != "barometer" => format!(
+                    "instrument {id:?}: barometer {baro:?} is a {kind} (at {}); expected an \
+                     instrument of kind \"barometer\"",
+                    at(f0, *p0)
+                ),
+                Some(_) => continue,
+            };
+            problems.push(problem(file, *pos, msg));
+        }
+    }
+}
+
+/// Human summary for `seepd check`: sites, instruments per site and kind, topic filters
+/// subscribed, database path.
+pub fn summary(cfg: &Config) -> String {
+    let mut s = String::new();
+    let m = &cfg.mqtt;
+    let _ = writeln!(s, "Configuration: {}", cfg.dir.display());
+    let _ = writeln!(s, "Database: {}", cfg.service.database.display());
+    let _ = writeln!(
+        s,
+        "MQTT broker: {}:{} as client {:?}, TLS {}, {} session",
+        m.host,
+        m.port,
+        m.client_id,
+        if m.tls.is_some() { "on" } else { "off" },
+        if m.persistent_session {
+            "persistent"
+        } else {
+            "clean"
+        }
+    );
+    let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
+    for sub in &cfg.subscriptions {
+        let format = match sub.format {
+            PayloadFormat::Json => "json",
+            PayloadFormat::Senml => "senml",
+            PayloadFormat::Csv => "csv",
+        };
+        let _ = writeln!(
+            s,
+            "  {}  ({format}, qos {}, from pattern {})",
+            sub.filter, sub.qos, sub.pattern
+        );
+    }
+    let _ = writeln!(
+        s,
+        "Sites ({}), instruments ({}):",
+        cfg.sites.len(),
+        cfg.instruments.len()
+    );
+    for site in &cfg.sites {
+        let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
+        for i in cfg.instruments.values().filter(|i| i.site == site.id) {
+            *kinds.entry(i.kind.name()).or_default() += 1;
+        }
+        let file = site
+            .file
+            .file_name()
+            .map_or_else(String::new, |n| n.to_string_lossy().into_owned());
+        let _ = writeln!(
+            s,
+            "  {}: {:?}, file {}, {} instruments",
+            site.id,
+            site.name,
+            file,
+            kinds.values().sum::<usize>()
+        );
+        for (kind, n) in kinds {
+            let _ = writeln!(s, "    {kind}: {n}");
+        }
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests;
+
+#[cfg(test)]
+mod check_tests;

@@ -1,0 +1,132 @@
+//! Configuration problems: what went wrong, in which file, at which line and column.
+//!
+//! Owns the `Problem`/`Problems` error types and the conversion from a byte span in a file's
+//! text to a 1-based line and column. It knows nothing about which keys exist.
+
+use std::fmt;
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+/// One configuration problem, located.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Problem {
+    /// The file the problem is in.
+    pub file: PathBuf,
+    /// 1-based line of the offending key, value or table header.
+    pub line: usize,
+    /// 1-based column (in characters) on that line.
+    pub column: usize,
+    /// What was found and what was expected.
+    pub message: String,
+}
+
+impl fmt::Display for Problem {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(
+            f,
+            "{}:{}:{}: {}",
+            self.file.display(),
+            self.line,
+            self.column,
+            self.message
+        )
+    }
+}
+
+/// All the problems found in a configuration directory (never just the first).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Problems(pub Vec<Problem>);
+
+impl fmt::Display for Problems {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        for (i, p) in self.0.iter().enumerate() {
+            if i > 0 {
+                f.write_str("\n")?;
+            }
+            write!(f, "{p}")?;
+        }
+        Ok(())
+    }
+}
+
+impl std::error::Error for Problems {}
+
+/// 1-based (line, column) of a byte offset in `text`; columns count characters, not bytes.
+pub(crate) fn line_col(text: &str, offset: usize) -> (usize, usize) {
+    let mut offset = offset.min(text.len());
+    while !text.is_char_boundary(offset) {
+        offset -= 1;
+    }
+    let before = &text[..offset];
+    let line = before.matches('\n').count() + 1;
+    let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+    let column = before[line_start..].chars().count() + 1;
+    (line, column)
+}
+
+/// The file being checked and the problem list every check writes into.
+pub(crate) struct Cx<'a> {
+    /// Path of the file (as shown in messages).
+    pub file: &'a Path,
+    /// The file's text, to turn spans into lines and columns.
+    pub text: &'a str,
+    /// Where problems go (shared by all files of the directory).
+    pub problems: &'a mut Vec<Problem>,
+}
+
+impl Cx<'_> {
+    /// Record a problem at a span (start of the file when the span is unknown).
+    pub fn at(&mut self, span: Option<Range<usize>>, message: impl Into<String>) {
+        let (line, column) = self.pos(span);
+        self.problems.push(Problem {
+            file: self.file.to_path_buf(),
+            line,
+            column,
+            message: message.into(),
+        });
+    }
+
+    /// 1-based line and column of a span's start.
+    pub fn pos(&self, span: Option<Range<usize>>) -> (usize, usize) {
+        span.map_or((1, 1), |s| line_col(self.text, s.start))
+    }
+}
+
+/// A problem for a whole file (cannot be read, missing): located at line 1, column 1.
+pub(crate) fn whole_file(file: &Path, message: impl Into<String>) -> Problem {
+    Problem {
+        file: file.to_path_buf(),
+        line: 1,
+        column: 1,
+        message: message.into(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn line_col_counts_lines_and_characters() {
+        let text = "a = 1\nbé = 2\n";
+        assert_eq!(line_col(text, 0), (1, 1));
+        assert_eq!(line_col(text, 6), (2, 1));
+        // "bé = " is 6 bytes but 5 characters: the value starts at column 6.
+        let value = text.find('2').unwrap_or(0);
+        assert_eq!(line_col(text, value), (2, 6));
+    }
+
+    #[test]
+    fn problems_display_one_line_each() {
+        let p = Problems(vec![
+            whole_file(Path::new("a.toml"), "first"),
+            Problem {
+                file: PathBuf::from("b.toml"),
+                line: 3,
+                column: 7,
+                message: "second".into(),
+            },
+        ]);
+        assert_eq!(p.to_string(), "a.toml:1:1: first\nb.toml:3:7: second");
+    }
+}

@@ -1,0 +1,371 @@
+//! Typed, located reads from one TOML table of a parsed (span-keeping) document.
+//!
+//! Owns the generic checks every table gets: unknown keys, wrong types, missing required keys,
+//! bad choice strings and non-finite numbers, each reported as a located problem. It does not
+//! know what any key means; `service` and `site` decide that.
+
+use std::ops::Range;
+
+use toml_edit::{Item, TableLike, Value};
+
+use super::problem::Cx;
+
+/// One table being read: the table, where it starts, and how messages name it.
+pub(crate) struct Tbl<'t> {
+    table: &'t dyn TableLike,
+    /// Span of the table header (or inline table), for "missing key" problems.
+    span: Option<Range<usize>>,
+    /// How messages name what this table describes, e.g. `instrument "AB-PZ-1A"` or `[mqtt]`.
+    pub what: String,
+    /// The table's name as written in the file, e.g. `[instrument.vibrating_wire]`.
+    pub header: String,
+}
+
+/// How a value is described in a message: strings quoted, numbers as written, others by type.
+pub(crate) fn found(v: &Value) -> String {
+    match v {
+        Value::String(s) => format!("{:?}", s.value()),
+        Value::Integer(_) | Value::Float(_) | Value::Boolean(_) | Value::Datetime(_) => {
+            v.to_string().trim().to_string()
+        }
+        Value::Array(_) => "an array".into(),
+        Value::InlineTable(_) => "a table".into(),
+    }
+}
+
+fn found_item(item: &Item) -> String {
+    match item {
+        Item::Value(v) => found(v),
+        Item::Table(_) => "a table".into(),
+        Item::ArrayOfTables(_) => "an array of tables".into(),
+        Item::None => "nothing".into(),
+    }
+}
+
+/// A finite number (integers are accepted as numbers).
+fn number(v: &Value) -> Option<f64> {
+    match v {
+        Value::Float(f) => Some(*f.value()),
+        Value::Integer(i) => Some(*i.value() as f64),
+        _ => None,
+    }
+}
+
+/// Edit distance, for "did you mean" hints on misspelt keys.
+fn distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut cur = vec![i + 1];
+        for (j, cb) in b.iter().enumerate() {
+            let sub = prev[j] + usize::from(ca != *cb);
+            cur.push(sub.min(prev[j + 1] + 1).min(cur[j] + 1));
+        }
+        prev = cur;
+    }
+    prev[b.len()]
+}
+
+impl<'t> Tbl<'t> {
+    /// Read `item` as a table; `None` (with a problem) if it is something else.
+    pub fn new(
+        cx: &mut Cx<'_>,
+        item: &'t Item,
+        what: impl Into<String>,
+        header: impl Into<String>,
+    ) -> Option<Self> {
+        let what = what.into();
+        let header = header.into();
+        match item.as_table_like() {
+            Some(table) => Some(Tbl {
+                table,
+                span: item.span(),
+                what,
+                header,
+            }),
+            None => {
+                cx.at(
+                    item.span(),
+                    format!("{header} is {}, expected a table", found_item(item)),
+                );
+                None
+            }
+        }
+    }
+
+    /// Span of the table header, for problems about the table as a whole.
+    pub fn span(&self) -> Option<Range<usize>> {
+        self.span.clone()
+    }
+
+    /// Whether a key is present.
+    pub fn has(&self, key: &str) -> bool {
+        self.table.contains_key(key)
+    }
+
+    /// A string value, if the key holds one (no problem reported either way).
+    pub fn peek_str(&self, key: &str) -> Option<&'t str> {
+        self.table.get(key)?.as_str()
+    }
+
+    /// Span of a key's value (or of the table when the key is absent).
+    pub fn value_span(&self, key: &str) -> Option<Range<usize>> {
+        self.table
+            .get(key)
+            .and_then(Item::span)
+            .or_else(|| self.key_span(key))
+    }
+
+    /// Span of a key itself (or of the table when the key is absent).
+    pub fn key_span(&self, key: &str) -> Option<Range<usize>> {
+        self.table
+            .key(key)
+            .and_then(|k| k.span())
+            .or_else(|| self.span())
+    }
+
+    /// Record a problem about this table (at its header), prefixed with `what`.
+    pub fn problem(&self, cx: &mut Cx<'_>, message: impl AsRef<str>) {
+        cx.at(self.span(), format!("{}: {}", self.what, message.as_ref()));
+    }
+
+    /// Record a problem at a key's value, prefixed with `what`.
+    pub fn problem_at(&self, cx: &mut Cx<'_>, key: &str, message: impl AsRef<str>) {
+        cx.at(
+            self.value_span(key),
+            format!("{}: {}", self.what, message.as_ref()),
+        );
+    }
+
+    /// Report every key not in `allowed`, with a "did you mean" hint when one is close.
+    pub fn check_keys(&self, cx: &mut Cx<'_>, allowed: &[&str]) {
+        for (key, _) in self.table.iter() {
+            if allowed.contains(&key) {
+                continue;
+            }
+            let close = allowed
+                .iter()
+                .map(|a| (distance(key, a), *a))
+                .filter(|(d, _)| *d <= 2)
+                .min();
+            let hint = match close {
+                Some((_, a)) => format!("did you mean \"{a}\"?"),
+                None => format!("expected one of: {}", allowed.join(", ")),
+            };
+            cx.at(
+                self.key_span(key),
+                format!(
+                    "{}: unknown key \"{key}\" in {}; {hint}",
+                    self.what, self.header
+                ),
+            );
+        }
+    }
+
+    /// Report a missing required key at the table header.
+    pub fn missing(&self, cx: &mut Cx<'_>, key: &str, why: &str) {
+        self.problem(cx, format!("missing key \"{key}\" in {}{why}", self.header));
+    }
+
+    /// The value under `key`, converted by `conv`; problems for a wrong type or (if `required`)
+    /// absence.
+    fn get<T>(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        required: bool,
+        expected: &str,
+        conv: impl Fn(&Value) -> Option<T>,
+    ) -> Option<T> {
+        let Some(item) = self.table.get(key) else {
+            if required {
+                self.missing(cx, key, "");
+            }
+            return None;
+        };
+        let converted = item.as_value().and_then(&conv);
+        if converted.is_none() {
+            self.problem_at(
+                cx,
+                key,
+                format!("key \"{key}\" is {}, expected {expected}", found_item(item)),
+            );
+        }
+        converted
+    }
+
+    /// An optional string.
+    pub fn string(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
+        self.get(cx, key, false, "a string", |v| v.as_str().map(String::from))
+    }
+
+    /// A required string.
+    pub fn req_string(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
+        self.get(cx, key, true, "a string", |v| v.as_str().map(String::from))
+    }
+
+    /// An optional non-empty string.
+    pub fn nonempty(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
+        let s = self.string(cx, key)?;
+        if s.trim().is_empty() {
+            self.problem_at(cx, key, format!("key \"{key}\" is empty"));
+            return None;
+        }
+        Some(s)
+    }
+
+    /// A date or date-time, as text: a TOML string or a TOML date/date-time value.
+    pub fn date_text(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<String> {
+        self.get(cx, key, req, "an RFC 3339 date or date-time", |v| match v {
+            Value::String(s) => Some(s.value().clone()),
+            Value::Datetime(d) => Some(d.value().to_string()),
+            _ => None,
+        })
+    }
+
+    /// A non-empty label written as a string or an integer (`channel = 3` means `"3"`).
+    pub fn label(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
+        let s = self.get(cx, key, false, "a string or an integer", |v| match v {
+            Value::String(s) => Some(s.value().clone()),
+            Value::Integer(i) => Some(i.value().to_string()),
+            _ => None,
+        })?;
+        if s.trim().is_empty() {
+            self.problem_at(cx, key, format!("key \"{key}\" is empty"));
+            return None;
+        }
+        Some(s)
+    }
+
+    /// A finite number (`req`: required).
+    pub fn number(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<f64> {
+        let n = self.get(cx, key, req, "a number", number)?;
+        if !n.is_finite() {
+            self.problem_at(
+                cx,
+                key,
+                format!("key \"{key}\" is {n}, expected a finite number"),
+            );
+            return None;
+        }
+        Some(n)
+    }
+
+    /// An integer within `lo..=hi`, or `default` when absent.
+    pub fn int_in(&self, cx: &mut Cx<'_>, key: &str, lo: i64, hi: i64, default: i64) -> i64 {
+        self.opt_int_in(cx, key, lo, hi, false).unwrap_or(default)
+    }
+
+    /// An integer within `lo..=hi`; `None` when absent (a problem if `req`) or invalid.
+    pub fn opt_int_in(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        lo: i64,
+        hi: i64,
+        req: bool,
+    ) -> Option<i64> {
+        let n = self.get(cx, key, req, "an integer", Value::as_integer)?;
+        if n < lo || n > hi {
+            let expected = if hi == i64::MAX {
+                format!("at least {lo}")
+            } else {
+                format!("between {lo} and {hi}")
+            };
+            self.problem_at(
+                cx,
+                key,
+                format!("key \"{key}\" is {n}, expected {expected}"),
+            );
+            return None;
+        }
+        Some(n)
+    }
+
+    /// A boolean, or `default` when absent.
+    pub fn boolean(&self, cx: &mut Cx<'_>, key: &str, default: bool) -> bool {
+        self.get(cx, key, false, "true or false", Value::as_bool)
+            .unwrap_or(default)
+    }
+
+    /// `[low, high]`: two finite numbers with low < high.
+    pub fn pair(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<(f64, f64)> {
+        let expected = "[low, high] (two numbers)";
+        let pair = self.get(cx, key, req, expected, |v| {
+            let a = v.as_array()?;
+            if a.len() != 2 {
+                return None;
+            }
+            Some((number(a.get(0)?)?, number(a.get(1)?)?))
+        })?;
+        let (lo, hi) = pair;
+        if !(lo.is_finite() && hi.is_finite() && lo < hi) {
+            self.problem_at(
+                cx,
+                key,
+                format!(
+                    "key \"{key}\" is [{lo}, {hi}], expected finite [low, high] with low < high"
+                ),
+            );
+            return None;
+        }
+        Some(pair)
+    }
+
+    /// One of a fixed set of strings; the problem lists the accepted spellings.
+    pub fn choice<T: Copy>(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        req: bool,
+        options: &[(&str, T)],
+    ) -> Option<T> {
+        let s = self.get(cx, key, req, "a string", |v| v.as_str().map(String::from))?;
+        if let Some((_, t)) = options.iter().find(|(name, _)| *name == s) {
+            return Some(*t);
+        }
+        let names: Vec<&str> = options.iter().map(|(n, _)| *n).collect();
+        self.problem_at(
+            cx,
+            key,
+            format!(
+                "key \"{key}\" is {s:?}, expected one of: {}",
+                names.join(", ")
+            ),
+        );
+        None
+    }
+
+    /// A sub-table, if present (a problem if `key` holds something else).
+    pub fn sub(&self, cx: &mut Cx<'_>, key: &str, header: &str) -> Option<Tbl<'t>> {
+        let item = self.table.get(key)?;
+        Tbl::new(cx, item, self.what.clone(), header)
+    }
+
+    /// The `[[key]]` tables, named `key #1`, `key #2`... in messages (callers rename them once
+    /// they know an id). A problem if `key` holds something else; empty when absent.
+    pub fn tables(&self, cx: &mut Cx<'_>, key: &str) -> Vec<Tbl<'t>> {
+        let Some(item) = self.table.get(key) else {
+            return Vec::new();
+        };
+        let Some(aot) = item.as_array_of_tables() else {
+            cx.at(
+                item.span(),
+                format!(
+                    "key \"{key}\" is {}, expected [[{key}]] tables",
+                    found_item(item)
+                ),
+            );
+            return Vec::new();
+        };
+        aot.iter()
+            .enumerate()
+            .map(|(i, table)| Tbl {
+                table,
+                span: table.span(),
+                what: format!("{key} #{}", i + 1),
+                header: format!("[[{key}]]"),
+            })
+            .collect()
+    }
+}

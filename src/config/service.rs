@@ -1,0 +1,409 @@
+//! Reading the service file (`seepd.toml`): `[service]`, `[mqtt]` (with TLS and the password
+//! secret) and the `[[subscription]]` topic patterns.
+//!
+//! Owns the keys, defaults and checks of those tables. Reads only the files the configuration
+//! names (password, TLS); never connects to anything.
+
+use std::path::{Path, PathBuf};
+
+use super::model::{
+    EpochUnit, JsonFields, Mqtt, PayloadFormat, Secret, Service, Subscription, Tls,
+};
+use super::problem::Cx;
+use super::reader::Tbl;
+
+/// Placeholders a subscription pattern may use, each as one whole topic level.
+pub(crate) const PLACEHOLDERS: [&str; 4] = ["{logger}", "{channel}", "{instrument}", "{site}"];
+
+/// Everything the service file holds; `None` parts had problems (already reported).
+pub(crate) struct ServiceFile {
+    pub service: Option<Service>,
+    pub mqtt: Option<Mqtt>,
+    pub subscriptions: Vec<Subscription>,
+}
+
+/// Where the loader looks up environment variables (the process environment, or a test's map).
+pub(crate) type Env<'e> = &'e dyn Fn(&str) -> Option<String>;
+
+/// Resolve a configured path against the configuration directory.
+pub(crate) fn resolve(dir: &Path, p: &str) -> PathBuf {
+    let p = Path::new(p);
+    if p.is_absolute() {
+        p.to_path_buf()
+    } else {
+        dir.join(p)
+    }
+}
+
+/// Read the service file's root table.
+pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) -> ServiceFile {
+    root.check_keys(cx, &["service", "mqtt", "subscription"]);
+    let service = match root.sub(cx, "service", "[service]") {
+        Some(mut t) => {
+            t.what = "[service]".into();
+            read_service(cx, &t, dir)
+        }
+        None if root.has("service") => None,
+        None => Some(default_service(dir)),
+    };
+    let mqtt = match root.sub(cx, "mqtt", "[mqtt]") {
+        Some(mut t) => {
+            t.what = "[mqtt]".into();
+            read_mqtt(cx, &t, dir, env)
+        }
+        None if root.has("mqtt") => None,
+        None => Some(default_mqtt()),
+    };
+    let mut subscriptions: Vec<Subscription> = Vec::new();
+    for mut t in root.tables(cx, "subscription") {
+        if let Some(s) = read_subscription(cx, &mut t) {
+            if let Some(first) = subscriptions.iter().find(|o| o.filter == s.filter) {
+                t.problem_at(
+                    cx,
+                    "pattern",
+                    format!(
+                        "pattern {:?} subscribes to {:?}, the same filter as pattern {:?}; \
+                         expected each subscription to have its own filter",
+                        s.pattern, s.filter, first.pattern
+                    ),
+                );
+                continue;
+            }
+            subscriptions.push(s);
+        }
+    }
+    ServiceFile {
+        service,
+        mqtt,
+        subscriptions,
+    }
+}
+
+fn default_service(dir: &Path) -> Service {
+    Service {
+        database: dir.join("seepd.sqlite"),
+        commit_max_readings: 500,
+        commit_max_ms: 50,
+        max_payload_bytes: 65536,
+        max_future_s: 600,
+        barometer_max_age_s: 7200,
+        shutdown_deadline_s: 10,
+    }
+}
+
+fn default_mqtt() -> Mqtt {
+    Mqtt {
+        host: "127.0.0.1".into(),
+        port: 1883,
+        client_id: "seepd".into(),
+        username: None,
+        password: None,
+        tls: None,
+        persistent_session: true,
+        keep_alive_s: 30,
+        max_packet_bytes: 1_048_576,
+        reconnect_min_ms: 500,
+        reconnect_max_ms: 30_000,
+    }
+}
+
+fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
+    t.check_keys(
+        cx,
+        &[
+            "database",
+            "commit_max_readings",
+            "commit_max_ms",
+            "max_payload_bytes",
+            "max_future_s",
+            "barometer_max_age_s",
+            "shutdown_deadline_s",
+        ],
+    );
+    let d = default_service(dir);
+    let before = cx.problems.len();
+    let database = t
+        .nonempty(cx, "database")
+        .map_or(d.database, |p| resolve(dir, &p));
+    let max = i64::MAX;
+    let s = Service {
+        database,
+        commit_max_readings: t.int_in(cx, "commit_max_readings", 1, max, 500) as usize,
+        commit_max_ms: t.int_in(cx, "commit_max_ms", 0, max, 50) as u64,
+        max_payload_bytes: t.int_in(cx, "max_payload_bytes", 1, max, 65536) as usize,
+        max_future_s: t.int_in(cx, "max_future_s", 0, max, 600),
+        barometer_max_age_s: t.int_in(cx, "barometer_max_age_s", 0, max, 7200),
+        shutdown_deadline_s: t.int_in(cx, "shutdown_deadline_s", 1, max, 10) as u64,
+    };
+    (cx.problems.len() == before).then_some(s)
+}
+
+fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Mqtt> {
+    t.check_keys(
+        cx,
+        &[
+            "host",
+            "port",
+            "client_id",
+            "username",
+            "password_env",
+            "password_file",
+            "persistent_session",
+            "keep_alive_s",
+            "max_packet_bytes",
+            "reconnect_min_ms",
+            "reconnect_max_ms",
+            "tls",
+        ],
+    );
+    let d = default_mqtt();
+    let before = cx.problems.len();
+    let max = i64::MAX;
+    let username = t.nonempty(cx, "username");
+    let password = read_password(cx, t, dir, env);
+    if password.is_some() && username.is_none() {
+        t.problem(
+            cx,
+            "a password is configured but \"username\" is not; expected both or neither",
+        );
+    }
+    let tls = t.sub(cx, "tls", "[mqtt.tls]").and_then(|mut tls| {
+        tls.what = "[mqtt.tls]".into();
+        read_tls(cx, &tls, dir)
+    });
+    let m = Mqtt {
+        host: t.nonempty(cx, "host").unwrap_or(d.host),
+        port: t.int_in(cx, "port", 1, 65535, 1883) as u16,
+        client_id: t.nonempty(cx, "client_id").unwrap_or(d.client_id),
+        username,
+        password,
+        tls,
+        persistent_session: t.boolean(cx, "persistent_session", true),
+        keep_alive_s: t.int_in(cx, "keep_alive_s", 0, 65535, 30) as u64,
+        max_packet_bytes: t.int_in(cx, "max_packet_bytes", 1, max, 1_048_576) as usize,
+        reconnect_min_ms: t.int_in(cx, "reconnect_min_ms", 0, max, 500) as u64,
+        reconnect_max_ms: t.int_in(cx, "reconnect_max_ms", 0, max, 30_000) as u64,
+    };
+    if m.reconnect_min_ms > m.reconnect_max_ms {
+        t.problem_at(
+            cx,
+            "reconnect_min_ms",
+            format!(
+                "reconnect_min_ms is {} but reconnect_max_ms is {}; expected min <= max",
+                m.reconnect_min_ms, m.reconnect_max_ms
+            ),
+        );
+    }
+    (cx.problems.len() == before).then_some(m)
+}
+
+/// The broker password from `password_env` or `password_file` (not both).
+fn read_password(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Secret> {
+    let var = t.nonempty(cx, "password_env");
+    let file = t.nonempty(cx, "password_file");
+    match (var, file) {
+        (Some(_), Some(_)) => {
+            t.problem_at(
+                cx,
+                "password_file",
+                "both \"password_env\" and \"password_file\" are set; expected only one",
+            );
+            None
+        }
+        (Some(var), None) => match env(&var) {
+            Some(v) if !v.is_empty() => Some(Secret(v)),
+            _ => {
+                t.problem_at(
+                    cx,
+                    "password_env",
+                    format!("environment variable {var} (password_env) is unset or empty; expected the MQTT password"),
+                );
+                None
+            }
+        },
+        (None, Some(file)) => {
+            let path = resolve(dir, &file);
+            match std::fs::read_to_string(&path) {
+                Ok(text) if !text.trim().is_empty() => Some(Secret(text.trim().to_string())),
+                Ok(_) => {
+                    t.problem_at(
+                        cx,
+                        "password_file",
+                        format!(
+                            "password_file {} is empty; expected the MQTT password",
+                            path.display()
+                        ),
+                    );
+                    None
+                }
+                Err(e) => {
+                    t.problem_at(
+                        cx,
+                        "password_file",
+                        format!("password_file {} cannot be read: {e}", path.display()),
+                    );
+                    None
+                }
+            }
+        }
+        (None, None) => None,
+    }
+}
+
+fn read_tls(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Tls> {
+    t.check_keys(cx, &["ca_file", "client_cert_file", "client_key_file"]);
+    let before = cx.problems.len();
+    let file = |cx: &mut Cx<'_>, key: &str, req: bool| -> Option<std::path::PathBuf> {
+        let s = if req {
+            t.req_string(cx, key)?
+        } else {
+            t.string(cx, key)?
+        };
+        let path = resolve(dir, &s);
+        if !path.is_file() {
+            t.problem_at(
+                cx,
+                key,
+                format!("{key} {} does not exist or is not a file", path.display()),
+            );
+        }
+        Some(path)
+    };
+    let ca_file = file(cx, "ca_file", true);
+    let client_cert_file = file(cx, "client_cert_file", false);
+    let client_key_file = file(cx, "client_key_file", false);
+    if client_cert_file.is_some() != client_key_file.is_some() {
+        t.problem(
+            cx,
+            "expected both client_cert_file and client_key_file, or neither",
+        );
+    }
+    let tls = Tls {
+        ca_file: ca_file?,
+        client_cert_file,
+        client_key_file,
+    };
+    (cx.problems.len() == before).then_some(tls)
+}
+
+/// Check a pattern's levels and derive the MQTT filter (placeholders become `+`).
+pub(crate) fn pattern_filter(pattern: &str) -> Result<String, String> {
+    if pattern.is_empty() {
+        return Err("expected a topic such as \"site/{logger}/json\"".into());
+    }
+    if pattern.contains('#') || pattern.contains('+') {
+        return Err(format!(
+            "it contains an MQTT wildcard (# or +); expected placeholders instead: {}",
+            PLACEHOLDERS.join(", ")
+        ));
+    }
+    let mut used: Vec<&str> = Vec::new();
+    let mut levels: Vec<&str> = Vec::new();
+    for level in pattern.split('/') {
+        if !(level.contains('{') || level.contains('}')) {
+            levels.push(level);
+            continue;
+        }
+        if !PLACEHOLDERS.contains(&level) {
+            return Err(format!(
+                "level {level:?} is not a placeholder; expected a whole level that is one of: {}",
+                PLACEHOLDERS.join(", ")
+            ));
+        }
+        if used.contains(&level) {
+            return Err(format!(
+                "it uses {level} twice; expected each placeholder at most once"
+            ));
+        }
+        used.push(level);
+        levels.push("+");
+    }
+    Ok(levels.join("/"))
+}
+
+fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
+    t.check_keys(cx, &["pattern", "format", "qos", "epoch_unit", "json"]);
+    let before = cx.problems.len();
+    let pattern = t.req_string(cx, "pattern");
+    if let Some(p) = &pattern {
+        t.what = format!("subscription {p:?}");
+    }
+    let filter = pattern.as_deref().and_then(|p| match pattern_filter(p) {
+        Ok(f) => Some(f),
+        Err(e) => {
+            t.problem_at(cx, "pattern", format!("key \"pattern\": {e}"));
+            None
+        }
+    });
+    let format = t.choice(
+        cx,
+        "format",
+        true,
+        &[
+            ("json", PayloadFormat::Json),
+            ("senml", PayloadFormat::Senml),
+            ("csv", PayloadFormat::Csv),
+        ],
+    );
+    let qos = t.opt_int_in(cx, "qos", 0, 1, false).unwrap_or(1) as u8;
+    let epoch_unit = t
+        .choice(
+            cx,
+            "epoch_unit",
+            false,
+            &[
+                ("auto", EpochUnit::Auto),
+                ("s", EpochUnit::Seconds),
+                ("ms", EpochUnit::Milliseconds),
+            ],
+        )
+        .unwrap_or(EpochUnit::Auto);
+    let mut json = JsonFields {
+        time: "time".into(),
+        instrument: "instrument".into(),
+        channel: "channel".into(),
+        value: "value".into(),
+        temperature: "temperature".into(),
+        readings: "readings".into(),
+    };
+    if let Some(j) = t.sub(cx, "json", "[subscription.json]") {
+        let names = [
+            "time",
+            "instrument",
+            "channel",
+            "value",
+            "temperature",
+            "readings",
+        ];
+        j.check_keys(cx, &names);
+        if format.is_some_and(|f| f != PayloadFormat::Json) {
+            t.problem_at(
+                cx,
+                "json",
+                "[subscription.json] is set but format is not \"json\"; expected it only with format = \"json\"",
+            );
+        }
+        let fields = [
+            &mut json.time,
+            &mut json.instrument,
+            &mut json.channel,
+            &mut json.value,
+            &mut json.temperature,
+            &mut json.readings,
+        ];
+        for (name, field) in names.iter().zip(fields) {
+            if let Some(v) = j.nonempty(cx, name) {
+                *field = v;
+            }
+        }
+    }
+    let sub = Subscription {
+        pattern: pattern?,
+        filter: filter?,
+        qos,
+        format: format?,
+        epoch_unit,
+        json,
+    };
+    (cx.problems.len() == before).then_some(sub)
+}

@@ -1,0 +1,265 @@
+//! Reading one site file: the `[site]` table and its `[[instrument]]` tables.
+//!
+//! Owns the site keys, the keys every instrument has, the kind/sub-table agreement and the
+//! conversion of lengths to metres. Checks that span files (unique ids, barometer references,
+//! logger channels) belong to `load`, which gets what it needs in `Entry`.
+
+use std::path::Path;
+
+use chrono::{DateTime, NaiveDate, Utc};
+
+use super::kinds::{self, KINDS, LENGTH_UNITS, M_PER_FT};
+use super::model::{DisplayUnits, Instrument, LengthUnit, Location, Site};
+use super::problem::Cx;
+use super::reader::Tbl;
+
+/// A 1-based (line, column) position in a file.
+pub(crate) type Pos = (usize, usize);
+
+/// Accepted unit weights of water (kN/m³).
+const GAMMA_W: [f64; 3] = [9.81, 9.80665, 9.8034];
+
+/// What `load` needs of one instrument for the checks across files.
+pub(crate) struct Entry {
+    /// The id, if it was readable, and where it is written.
+    pub id: Option<(String, Pos)>,
+    /// The kind name, if valid.
+    pub kind: Option<&'static str>,
+    /// A referenced barometer and where the reference is written.
+    pub barometer: Option<(String, Pos)>,
+    /// Logger and channel, and where the channel is written.
+    pub logger_channel: Option<(String, String, Pos)>,
+    /// The validated instrument; `None` if it had problems (already reported).
+    pub instrument: Option<Instrument>,
+}
+
+/// One site file read.
+pub(crate) struct SiteFile {
+    /// The site id and where it is written.
+    pub id: Option<(String, Pos)>,
+    pub site: Option<Site>,
+    pub entries: Vec<Entry>,
+}
+
+/// Read a site file's root table.
+pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
+    root.check_keys(cx, &["site", "instrument"]);
+    let mut m_per_unit = 1.0;
+    let mut id = None;
+    let site = match root.sub(cx, "site", "[site]") {
+        Some(mut t) => {
+            t.what = "[site]".into();
+            let before = cx.problems.len();
+            let sid = t.nonempty(cx, "id");
+            if let Some(sid) = &sid {
+                t.what = format!("site {sid:?}");
+            }
+            if t.has("id") {
+                id = sid.clone().map(|s| (s, cx.pos(t.value_span("id"))));
+            } else {
+                t.missing(cx, "id", "");
+            }
+            t.check_keys(
+                cx,
+                &[
+                    "id",
+                    "name",
+                    "time_zone",
+                    "unit_weight_water_kn_m3",
+                    "display_units",
+                    "length_unit",
+                ],
+            );
+            let name = t.nonempty(cx, "name");
+            let time_zone = t.nonempty(cx, "time_zone").unwrap_or_else(|| "UTC".into());
+            let gamma = t.number(cx, "unit_weight_water_kn_m3", false);
+            if let Some(g) = gamma.filter(|g| !GAMMA_W.iter().any(|a| (a - g).abs() < 1e-9)) {
+                t.problem_at(
+                    cx,
+                    "unit_weight_water_kn_m3",
+                    format!(
+                        "key \"unit_weight_water_kn_m3\" is {g}, expected one of: 9.81, 9.80665, 9.8034"
+                    ),
+                );
+            }
+            let display_units = t
+                .choice(
+                    cx,
+                    "display_units",
+                    false,
+                    &[("si", DisplayUnits::Si), ("us", DisplayUnits::Us)],
+                )
+                .unwrap_or(DisplayUnits::Si);
+            if t.choice(cx, "length_unit", false, &LENGTH_UNITS) == Some(LengthUnit::Ft) {
+                m_per_unit = M_PER_FT;
+            }
+            let site = sid.map(|sid| Site {
+                name: name.unwrap_or_else(|| sid.clone()),
+                id: sid,
+                time_zone,
+                gamma_w_kn_m3: gamma.unwrap_or(9.81),
+                display_units,
+                file: file.to_path_buf(),
+            });
+            site.filter(|_| cx.problems.len() == before)
+        }
+        None => {
+            if !root.has("site") {
+                root.problem(cx, "missing [site] table; expected one per site file");
+            }
+            None
+        }
+    };
+    let site_id = id.as_ref().map_or_else(String::new, |(s, _)| s.clone());
+    let entries = root
+        .tables(cx, "instrument")
+        .into_iter()
+        .map(|mut t| instrument(cx, &mut t, &site_id, m_per_unit))
+        .collect();
+    SiteFile { id, site, entries }
+}
+
+const COMMON_KEYS: [&str; 12] = [
+    "id",
+    "kind",
+    "reach",
+    "section",
+    "station",
+    "offset",
+    "tip_elevation",
+    "installed",
+    "interval_s",
+    "range",
+    "logger",
+    "channel",
+];
+
+/// Parse `installed`: an RFC 3339 date (midnight UTC) or date-time.
+pub(crate) fn parse_installed(s: &str) -> Option<DateTime<Utc>> {
+    if let Ok(d) = NaiveDate::parse_from_str(s, "%Y-%m-%d") {
+        return d.and_hms_opt(0, 0, 0).map(|t| t.and_utc());
+    }
+    DateTime::parse_from_rfc3339(s)
+        .ok()
+        .map(|t| t.with_timezone(&Utc))
+}
+
+fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> Entry {
+    let before = cx.problems.len();
+    let mut keys: Vec<&str> = COMMON_KEYS.to_vec();
+    keys.extend(KINDS);
+    let id = t.nonempty(cx, "id");
+    if let Some(id) = &id {
+        t.what = format!("instrument {id:?}");
+    } else if !t.has("id") {
+        t.missing(cx, "id", "");
+    }
+    let id_pos = cx.pos(t.value_span("id"));
+    t.check_keys(cx, &keys);
+    let kind_name = t.choice(cx, "kind", true, &KINDS.map(|k| (k, k)));
+    let present: Vec<&str> = KINDS.into_iter().filter(|k| t.has(k)).collect();
+    let mut kind_read = None;
+    if let Some(kind) = kind_name {
+        let others: Vec<&str> = present.iter().copied().filter(|k| *k != kind).collect();
+        if let ([other], false) = (others.as_slice(), t.has(kind)) {
+            // The usual slip: `kind` and the settings table disagree. One problem, not two.
+            cx.at(
+                t.key_span(other),
+                format!(
+                    "{}: kind = \"{kind}\" but the settings table is [instrument.{other}]; \
+                     expected [instrument.{kind}] (or kind = \"{other}\")",
+                    t.what
+                ),
+            );
+        } else {
+            for other in &others {
+                cx.at(
+                    t.key_span(other),
+                    format!(
+                        "{}: [instrument.{other}] does not match kind = \"{kind}\"; expected only [instrument.{kind}]",
+                        t.what
+                    ),
+                );
+            }
+            match t.sub(cx, kind, &format!("[instrument.{kind}]")) {
+                Some(sub) => kind_read = Some(kinds::read(cx, kind, &sub, m_per_unit)),
+                None if !t.has(kind) => t.problem(
+                    cx,
+                    format!("kind = \"{kind}\" but there is no [instrument.{kind}] table; expected one with its settings"),
+                ),
+                None => {}
+            }
+        }
+        let piezometer = kind == "vibrating_wire" || kind == "pressure_transducer";
+        if piezometer && !t.has("tip_elevation") {
+            t.missing(
+                cx,
+                "tip_elevation",
+                &format!(" (required for kind = \"{kind}\")"),
+            );
+        }
+    }
+    let tip = t.number(cx, "tip_elevation", false).map(|v| v * m_per_unit);
+    let location = Location {
+        reach: t.nonempty(cx, "reach"),
+        section: t.nonempty(cx, "section"),
+        station_m: t.number(cx, "station", false).map(|v| v * m_per_unit),
+        offset_m: t.number(cx, "offset", false).map(|v| v * m_per_unit),
+    };
+    let installed = t.date_text(cx, "installed", true).and_then(|s| {
+        let parsed = parse_installed(&s);
+        if parsed.is_none() {
+            t.problem_at(
+                cx,
+                "installed",
+                format!("key \"installed\" is {s:?}, expected an RFC 3339 date (2025-03-01) or date-time (2025-03-01T08:00:00Z)"),
+            );
+        }
+        parsed
+    });
+    let interval_s = t.opt_int_in(cx, "interval_s", 1, i64::MAX, true);
+    let raw_range = t.pair(cx, "range", true);
+    let logger = t.label(cx, "logger");
+    let channel = t.label(cx, "channel");
+    if t.has("logger") != t.has("channel") {
+        t.problem(
+            cx,
+            "expected both \"logger\" and \"channel\", or neither (they map logger channels to this instrument)",
+        );
+    }
+    let barometer = kind_read
+        .as_mut()
+        .and_then(|k| k.barometer.take())
+        .map(|(name, span)| (name, cx.pos(span)));
+    let logger_channel = match (&logger, &channel) {
+        (Some(l), Some(c)) => Some((l.clone(), c.clone(), cx.pos(t.value_span("channel")))),
+        _ => None,
+    };
+    let kind = kind_read.and_then(|k| k.kind);
+    let instrument = match (&id, kind, installed, interval_s, raw_range) {
+        (Some(id), Some(kind), Some(installed), Some(interval_s), Some(raw_range))
+            if cx.problems.len() == before =>
+        {
+            Some(Instrument {
+                id: id.clone(),
+                site: site.to_string(),
+                kind,
+                location,
+                tip_elevation_m: tip,
+                installed,
+                interval_s: interval_s as u64,
+                raw_range,
+                logger,
+                channel,
+            })
+        }
+        _ => None,
+    };
+    Entry {
+        id: id.map(|s| (s, id_pos)),
+        kind: kind_name,
+        barometer,
+        logger_channel,
+        instrument,
+    }
+}
