@@ -13,7 +13,10 @@ use std::time::{Duration, Instant};
 use common::*;
 
 fn main() {
-    let n: i64 = std::env::var("SEEPD_BENCH_N").ok().and_then(|s| s.parse().ok()).unwrap_or(20_000);
+    let n: i64 = std::env::var("SEEPD_BENCH_N")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(20_000);
     let dir = tempfile::tempdir().unwrap();
     let broker = Broker::start(dir.path());
     let cfg = example_config(dir.path(), broker.port);
@@ -23,7 +26,18 @@ fn main() {
     // 1. mosquitto_sub draining a queued QoS 1 stream from its persistent session.
     let sub_id = "bench-sub";
     let status = Command::new("mosquitto_sub")
-        .args(["-p", &broker.port.to_string(), "-q", "1", "-c", "-i", sub_id, "-t", "demo/+/json", "-E"])
+        .args([
+            "-p",
+            &broker.port.to_string(),
+            "-q",
+            "1",
+            "-c",
+            "-i",
+            sub_id,
+            "-t",
+            "demo/+/json",
+            "-E",
+        ])
         .status()
         .expect("mosquitto_sub (package mosquitto-clients)");
     assert!(status.success());
@@ -41,7 +55,17 @@ fn main() {
 
     let started = Instant::now();
     let out = Command::new("mosquitto_sub")
-        .args(["-p", &broker.port.to_string(), "-q", "1", "-c", "-i", sub_id, "-t", "demo/+/json"])
+        .args([
+            "-p",
+            &broker.port.to_string(),
+            "-q",
+            "1",
+            "-c",
+            "-i",
+            sub_id,
+            "-t",
+            "demo/+/json",
+        ])
         .args(["-C", &n.to_string()])
         .stdout(Stdio::null())
         .status()
@@ -82,9 +106,16 @@ fn main() {
         ));
     }
     std::fs::write(&input, text).unwrap();
-    for (label, db) in [("in-memory", None), ("SQLite file", Some(dir.path().join("replay.sqlite")))] {
+    for (label, db) in [
+        ("in-memory", None),
+        ("SQLite file", Some(dir.path().join("replay.sqlite"))),
+    ] {
         let mut cmd = Command::new(seepd_bin());
-        cmd.args(["replay", "--config"]).arg(&cfg).arg("--input").arg(&input).args(["--output", "/dev/null"]);
+        cmd.args(["replay", "--config"])
+            .arg(&cfg)
+            .arg("--input")
+            .arg(&input)
+            .args(["--output", "/dev/null"]);
         if let Some(db) = &db {
             cmd.arg("--db").arg(db);
         }
@@ -92,6 +123,9 @@ fn main() {
         let st = cmd.stderr(Stdio::null()).status().unwrap();
         assert!(st.success());
         let s = started.elapsed().as_secs_f64();
-        println!("replay ({label}): {rn} readings in {s:.2} s = {:.0} readings/s", rn as f64 / s);
+        println!(
+            "replay ({label}): {rn} readings in {s:.2} s = {:.0} readings/s",
+            rn as f64 / s
+        );
     }
 }

@@ -16,7 +16,11 @@ use crate::ingest::progress::Counters;
 pub const EXIT_CONFIG: i32 = 78;
 
 #[derive(Parser, Debug)]
-#[command(name = "seepd", version, about = "Seepage watch for earth dams and levees")]
+#[command(
+    name = "seepd",
+    version,
+    about = "Seepage watch for earth dams and levees"
+)]
 pub struct Cli {
     #[command(subcommand)]
     pub command: Command,
@@ -82,7 +86,10 @@ impl From<ReplayFormat> for PayloadFormat {
 fn load(dir: &std::path::Path) -> Result<Config, i32> {
     config::load_dir(dir).map_err(|problems| {
         eprintln!("{problems}");
-        eprintln!("seepd: {} configuration problem(s); not starting", problems.0.len());
+        eprintln!(
+            "seepd: {} configuration problem(s); not starting",
+            problems.0.len()
+        );
         EXIT_CONFIG
     })
 }
@@ -117,7 +124,13 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             rt.block_on(crate::service::run(cfg, counters, crate::service::signal()))?;
             Ok(0)
         }
-        Command::Replay { config, input, format, db, output } => {
+        Command::Replay {
+            config,
+            input,
+            format,
+            db,
+            output,
+        } => {
             let cfg = match load(&config) {
                 Ok(c) => c,
                 Err(code) => return Ok(code),
@@ -137,7 +150,14 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
                 None => Box::new(BufWriter::new(std::io::stdout().lock())),
             };
             let started = std::time::Instant::now();
-            let t = crate::replay::run(&cfg, format.into(), reader, &mut store, &mut out, chrono::Utc::now())?;
+            let t = crate::replay::run(
+                &cfg,
+                format.into(),
+                reader,
+                &mut store,
+                &mut out,
+                chrono::Utc::now(),
+            )?;
             let secs = started.elapsed().as_secs_f64();
             eprintln!(
                 "replay: {} lines, {} readings stored, {} duplicates, {} quarantined, {} records in {:.3} s",
@@ -145,17 +165,26 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             );
             Ok(0)
         }
-        Command::Demo { seconds_per_day, days } => {
+        Command::Demo {
+            seconds_per_day,
+            days,
+        } => {
             #[cfg(feature = "demo-broker")]
             {
                 let rt = tokio::runtime::Runtime::new()?;
-                rt.block_on(crate::demo::run(seconds_per_day, days, crate::service::signal()))?;
+                rt.block_on(crate::demo::run(
+                    seconds_per_day,
+                    days,
+                    crate::service::signal(),
+                ))?;
                 Ok(0)
             }
             #[cfg(not(feature = "demo-broker"))]
             {
                 let _ = (seconds_per_day, days);
-                anyhow::bail!("this build has no embedded broker: rebuild with the `demo-broker` feature")
+                anyhow::bail!(
+                    "this build has no embedded broker: rebuild with the `demo-broker` feature"
+                )
             }
         }
     }

@@ -57,7 +57,11 @@ impl Engine {
                 _ => None,
             })
             .collect();
-        Engine { cfg, channels, baro: HashMap::new() }
+        Engine {
+            cfg,
+            channels,
+            baro: HashMap::new(),
+        }
     }
 
     /// The configuration the engine runs on.
@@ -251,7 +255,10 @@ impl Engine {
             (None, None, None, Some(c)) => format!("channel {c:?} (no logger in topic)"),
             _ => "no instrument id or channel".to_string(),
         };
-        Err(Reject::new(Reason::UnknownInstrument, format!("{what} is not configured")))
+        Err(Reject::new(
+            Reason::UnknownInstrument,
+            format!("{what} is not configured"),
+        ))
     }
 
     fn reduce_one(
@@ -264,8 +271,15 @@ impl Engine {
         arrival: DateTime<Utc>,
     ) -> Result<ReadingRow, Reject> {
         let gamma_w_kn_m3 = cfg.site_of(instrument).map_or(9.81, |s| s.gamma_w_kn_m3);
-        let baro_kpa = instrument.kind.barometer().and_then(|b| self.barometer_at(b, t_ms));
-        let ctx = Context { temperature_c: d.temperature_c, baro_kpa, gamma_w_kn_m3 };
+        let baro_kpa = instrument
+            .kind
+            .barometer()
+            .and_then(|b| self.barometer_at(b, t_ms));
+        let ctx = Context {
+            temperature_c: d.temperature_c,
+            baro_kpa,
+            gamma_w_kn_m3,
+        };
         let r = reduce(instrument, d.value, &ctx)?;
         if matches!(instrument.kind, crate::config::Kind::Barometer(_)) {
             if let Some(p) = r.pressure_kpa {
@@ -292,8 +306,12 @@ impl Engine {
 }
 
 /// The first subscription whose pattern matches `topic`, with the captured fields.
-fn find_subscription<'s>(subs: &'s [Subscription], topic: &str) -> Option<(&'s Subscription, TopicFields)> {
-    subs.iter().find_map(|s| match_topic(&s.pattern, topic).map(|f| (s, f)))
+fn find_subscription<'s>(
+    subs: &'s [Subscription],
+    topic: &str,
+) -> Option<(&'s Subscription, TopicFields)> {
+    subs.iter()
+        .find_map(|s| match_topic(&s.pattern, topic).map(|f| (s, f)))
 }
 
 fn quarantine_row(msg: &Message, reject: Reject) -> QuarantineRow {

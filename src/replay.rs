@@ -45,7 +45,11 @@ pub enum Record<'a> {
         flags: Vec<&'static str>,
     },
     /// An input that went to quarantine.
-    Quarantine { line: u64, reason: &'static str, detail: &'a str },
+    Quarantine {
+        line: u64,
+        reason: &'static str,
+        detail: &'a str,
+    },
 }
 
 /// The subscription replay decodes with: instrument ids in the payload.
@@ -75,9 +79,10 @@ pub fn replay_config(cfg: &Config, format: PayloadFormat) -> Config {
 }
 
 fn rfc3339(t_ms: i64) -> String {
-    Utc.timestamp_millis_opt(t_ms)
-        .single()
-        .map_or_else(|| t_ms.to_string(), |t| t.to_rfc3339_opts(SecondsFormat::Millis, true))
+    Utc.timestamp_millis_opt(t_ms).single().map_or_else(
+        || t_ms.to_string(),
+        |t| t.to_rfc3339_opts(SecondsFormat::Millis, true),
+    )
 }
 
 /// The computed values of one reading, as (quantity, value, unit).
@@ -167,7 +172,11 @@ fn flush(
         }
     }
     for (line, q) in quarantined.iter() {
-        let rec = Record::Quarantine { line: *line, reason: q.reason.code(), detail: &q.detail };
+        let rec = Record::Quarantine {
+            line: *line,
+            reason: q.reason.code(),
+            detail: &q.detail,
+        };
         serde_json::to_writer(&mut *out, &rec)?;
         out.write_all(b"\n")?;
         totals.records += 1;

@@ -37,7 +37,11 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
 ///
 /// # Errors
 /// Database or TLS set-up errors.
-pub async fn run(cfg: Arc<Config>, counters: Arc<Counters>, shutdown: impl Future<Output = ()>) -> anyhow::Result<()> {
+pub async fn run(
+    cfg: Arc<Config>,
+    counters: Arc<Counters>,
+    shutdown: impl Future<Output = ()>,
+) -> anyhow::Result<()> {
     let (store, engine) = open(&cfg)?;
     tracing::info!(
         database = %cfg.service.database.display(),

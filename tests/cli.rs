@@ -7,7 +7,10 @@ use std::path::Path;
 use std::process::Command;
 
 fn seepd(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(common::seepd_bin()).args(args).output().unwrap();
+    let out = Command::new(common::seepd_bin())
+        .args(args)
+        .output()
+        .unwrap();
     (
         out.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&out.stdout).into_owned(),
@@ -16,14 +19,24 @@ fn seepd(args: &[&str]) -> (i32, String, String) {
 }
 
 fn example_dir() -> String {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("config").display().to_string()
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("config")
+        .display()
+        .to_string()
 }
 
 #[test]
 fn check_accepts_the_example_and_summarises_it() {
     let (code, out, err) = seepd(&["check", "--config", &example_dir()]);
     assert_eq!(code, 0, "{out}\n{err}");
-    for needle in ["ash-bend", "tarn-hollow", "vibrating_wire", "demo/+/json", "demo/+/senml", "demo/+/csv"] {
+    for needle in [
+        "ash-bend",
+        "tarn-hollow",
+        "vibrating_wire",
+        "demo/+/json",
+        "demo/+/senml",
+        "demo/+/csv",
+    ] {
         assert!(out.contains(needle), "summary lacks {needle}:\n{out}");
     }
 }
@@ -32,7 +45,11 @@ fn check_accepts_the_example_and_summarises_it() {
 fn check_lists_every_problem_with_file_and_line_and_exits_78() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    std::fs::write(d.join("seepd.toml"), "[service]\ndatabase = \"x.sqlite\"\n\n[mqtt]\nport = 70000\n").unwrap();
+    std::fs::write(
+        d.join("seepd.toml"),
+        "[service]\ndatabase = \"x.sqlite\"\n\n[mqtt]\nport = 70000\n",
+    )
+    .unwrap();
     std::fs::write(
         d.join("site-a.toml"),
         "[site]\nid = \"a\"\nname = \"A\"\n\n[[instrument]]\nid = \"P1\"\nkind = \"standpipe\"\ninstalled = \"2025-01-01\"\ninterval_s = 3600\nrange = [0.0, 10.0]\ncolour = \"red\"\n[instrument.standpipe]\nreference_elevation = 10.0\ndepth_unit = \"yards\"\n",
@@ -66,8 +83,15 @@ fn replay_gives_the_expected_heads_and_quarantines_bad_lines() {
     let out = dir.path().join("out.ndjson");
     let db = dir.path().join("replay.sqlite");
     let (code, _, err) = seepd(&[
-        "replay", "--config", &example_dir(), "--input", &input.display().to_string(),
-        "--db", &db.display().to_string(), "--output", &out.display().to_string(),
+        "replay",
+        "--config",
+        &example_dir(),
+        "--input",
+        &input.display().to_string(),
+        "--db",
+        &db.display().to_string(),
+        "--output",
+        &out.display().to_string(),
     ]);
     assert_eq!(code, 0, "{err}");
     let records: Vec<serde_json::Value> = std::fs::read_to_string(&out)
@@ -88,7 +112,10 @@ fn replay_gives_the_expected_heads_and_quarantines_bad_lines() {
     assert!((value("TH-PZ-1", "pressure") - 46.2).abs() < 1e-9);
     assert!((value("TH-PZ-1", "total_head") - (201.0 + 46.2 / 9.81)).abs() < 1e-9);
     assert!((value("AB-SP-3", "total_head") - 95.5).abs() < 1e-9);
-    let time = records.iter().find(|r| r["id"] == "AB-SP-3").unwrap()["time"].as_str().unwrap().to_string();
+    let time = records.iter().find(|r| r["id"] == "AB-SP-3").unwrap()["time"]
+        .as_str()
+        .unwrap()
+        .to_string();
     assert_eq!(time, "2026-03-01T01:00:00.000Z");
     let reasons: Vec<&str> = records
         .iter()
@@ -98,6 +125,8 @@ fn replay_gives_the_expected_heads_and_quarantines_bad_lines() {
     assert_eq!(reasons, vec!["malformed", "out_of_range"]);
     // The same readings are in the database.
     let c = rusqlite::Connection::open(&db).unwrap();
-    let n: i64 = c.query_row("SELECT count(*) FROM readings", [], |r| r.get(0)).unwrap();
+    let n: i64 = c
+        .query_row("SELECT count(*) FROM readings", [], |r| r.get(0))
+        .unwrap();
     assert_eq!(n, 3);
 }

@@ -148,7 +148,7 @@ pub struct Site {
     pub name: String,
     /// IANA time zone name for reports (kept as text; time is UTC inside).
     pub time_zone: String,
-    /// Unit weight of water (kN/m³): 9.81 default; 9.80665 and 9.8034 (62.4 pcf) allowed.
+    /// Unit weight of water (kN/m³): 9.81 default; 9.80665 and 9.802258 (62.4 pcf) allowed.
     pub gamma_w_kn_m3: f64,
     pub display_units: DisplayUnits,
     /// The file this site came from (for messages).

@@ -8,6 +8,8 @@ use std::path::Path;
 
 use chrono::{DateTime, NaiveDate, Utc};
 
+use crate::domain::units::GAMMA_W_62_4_PCF_KN_M3;
+
 use super::kinds::{self, KINDS, LENGTH_UNITS, M_PER_FT};
 use super::model::{DisplayUnits, Instrument, LengthUnit, Location, Site};
 use super::problem::Cx;
@@ -16,8 +18,20 @@ use super::reader::Tbl;
 /// A 1-based (line, column) position in a file.
 pub(crate) type Pos = (usize, usize);
 
-/// Accepted unit weights of water (kN/m³).
-const GAMMA_W: [f64; 3] = [9.81, 9.80665, 9.8034];
+/// Accepted unit weights of water (kN/m³): common practice, standard gravity, and 62.4 pcf.
+const GAMMA_W: [f64; 3] = [9.81, 9.80665, GAMMA_W_62_4_PCF_KN_M3];
+
+/// How close a written unit weight must be to an accepted one (62.4 pcf is 9.802258 kN/m³ to
+/// the 6 decimals one would write).
+const GAMMA_W_TOLERANCE: f64 = 1e-6;
+
+/// The accepted unit weight `g` stands for, exactly.
+fn accepted_gamma_w(g: f64) -> Option<f64> {
+    GAMMA_W
+        .iter()
+        .copied()
+        .find(|a| (a - g).abs() < GAMMA_W_TOLERANCE)
+}
 
 /// What `load` needs of one instrument for the checks across files.
 pub(crate) struct Entry {
@@ -73,12 +87,12 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
             let name = t.nonempty(cx, "name");
             let time_zone = t.nonempty(cx, "time_zone").unwrap_or_else(|| "UTC".into());
             let gamma = t.number(cx, "unit_weight_water_kn_m3", false);
-            if let Some(g) = gamma.filter(|g| !GAMMA_W.iter().any(|a| (a - g).abs() < 1e-9)) {
+            if let Some(g) = gamma.filter(|g| accepted_gamma_w(*g).is_none()) {
                 t.problem_at(
                     cx,
                     "unit_weight_water_kn_m3",
                     format!(
-                        "key \"unit_weight_water_kn_m3\" is {g}, expected one of: 9.81, 9.80665, 9.8034"
+                        "key \"unit_weight_water_kn_m3\" is {g}, expected one of: 9.81, 9.80665, 9.802258 (62.4 pcf)"
                     ),
                 );
             }
@@ -97,7 +111,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
                 name: name.unwrap_or_else(|| sid.clone()),
                 id: sid,
                 time_zone,
-                gamma_w_kn_m3: gamma.unwrap_or(9.81),
+                gamma_w_kn_m3: gamma.and_then(accepted_gamma_w).unwrap_or(9.81),
                 display_units,
                 file: file.to_path_buf(),
             });

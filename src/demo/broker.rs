@@ -30,12 +30,14 @@ dynamic_filters = true
 "#
     );
     let cfg: rumqttd::Config = toml::from_str(&text)?;
-    std::thread::Builder::new().name("demo-broker".into()).spawn(move || {
-        let mut broker = rumqttd::Broker::new(cfg);
-        if let Err(e) = broker.start() {
-            tracing::error!(error = %e, "Embedded broker stopped");
-        }
-    })?;
+    std::thread::Builder::new()
+        .name("demo-broker".into())
+        .spawn(move || {
+            let mut broker = rumqttd::Broker::new(cfg);
+            if let Err(e) = broker.start() {
+                tracing::error!(error = %e, "Embedded broker stopped");
+            }
+        })?;
     // Wait until it accepts connections.
     for _ in 0..100 {
         if std::net::TcpStream::connect(("127.0.0.1", port)).is_ok() {

@@ -22,7 +22,10 @@ use crate::store::Store;
 /// The example configuration, compiled in so the demo runs from anywhere.
 pub const EXAMPLE_CONFIG: [(&str, &str); 3] = [
     ("seepd.toml", include_str!("../../config/seepd.toml")),
-    ("levee-ash-bend.toml", include_str!("../../config/levee-ash-bend.toml")),
+    (
+        "levee-ash-bend.toml",
+        include_str!("../../config/levee-ash-bend.toml"),
+    ),
     ("dam-tarn.toml", include_str!("../../config/dam-tarn.toml")),
 ];
 
@@ -41,7 +44,11 @@ pub fn example_config(dir: &std::path::Path) -> anyhow::Result<Config> {
 ///
 /// # Errors
 /// Broker start-up or database errors.
-pub async fn run(seconds_per_day: f64, days: Option<u32>, shutdown: impl Future<Output = ()>) -> anyhow::Result<()> {
+pub async fn run(
+    seconds_per_day: f64,
+    days: Option<u32>,
+    shutdown: impl Future<Output = ()>,
+) -> anyhow::Result<()> {
     let dir = tempfile_dir()?;
     let mut cfg = example_config(&dir)?;
     let port = broker::start().context("starting the embedded broker")?;
@@ -49,7 +56,10 @@ pub async fn run(seconds_per_day: f64, days: Option<u32>, shutdown: impl Future<
     cfg.mqtt.host = "127.0.0.1".into();
     cfg.service.database = dir.join("demo.sqlite");
     let cfg = Arc::new(cfg);
-    println!("seepd demo: embedded broker on 127.0.0.1:{port}; database {}", cfg.service.database.display());
+    println!(
+        "seepd demo: embedded broker on 127.0.0.1:{port}; database {}",
+        cfg.service.database.display()
+    );
     println!("Invented site, invented data. Press Ctrl-C to stop.\n");
 
     let (stop_tx, stop_rx) = watch::channel(false);
@@ -68,8 +78,17 @@ pub async fn run(seconds_per_day: f64, days: Option<u32>, shutdown: impl Future<
 
     let total_days = days.unwrap_or(sim::SCENARIO_DAYS);
     let start = Utc::now() - chrono::Duration::days(i64::from(sim::SCENARIO_DAYS));
-    let start = Utc.timestamp_opt(start.timestamp() - start.timestamp() % 3600, 0).single().unwrap_or(start);
-    let loggers = tokio::spawn(publish_loop(port, start, seconds_per_day, total_days, stop_rx.clone()));
+    let start = Utc
+        .timestamp_opt(start.timestamp() - start.timestamp() % 3600, 0)
+        .single()
+        .unwrap_or(start);
+    let loggers = tokio::spawn(publish_loop(
+        port,
+        start,
+        seconds_per_day,
+        total_days,
+        stop_rx.clone(),
+    ));
 
     let db = cfg.service.database.clone();
     let summary = {
@@ -105,7 +124,10 @@ pub async fn run(seconds_per_day: f64, days: Option<u32>, shutdown: impl Future<
         Err(e) => anyhow::bail!("service task failed: {e}"),
     }
     print_summary(&cfg.service.database, &counters);
-    println!("Demo stopped cleanly. Database kept at {}", cfg.service.database.display());
+    println!(
+        "Demo stopped cleanly. Database kept at {}",
+        cfg.service.database.display()
+    );
     Ok(())
 }
 
@@ -123,7 +145,11 @@ async fn publish_loop(
     days: u32,
     mut stop: watch::Receiver<bool>,
 ) -> anyhow::Result<()> {
-    let mut o = MqttOptions::new(format!("demo-loggers-{}", std::process::id()), "127.0.0.1", port);
+    let mut o = MqttOptions::new(
+        format!("demo-loggers-{}", std::process::id()),
+        "127.0.0.1",
+        port,
+    );
     o.set_keep_alive(Duration::from_secs(30)).set_inflight(200);
     let (client, mut el) = AsyncClient::new(o, 1000);
     tokio::spawn(async move {
@@ -137,7 +163,9 @@ async fn publish_loop(
     for hour in 0..(days * 24) {
         let t = start + chrono::Duration::hours(i64::from(hour));
         for (topic, payload) in sim::messages(hour, t) {
-            client.publish(topic, QoS::AtLeastOnce, false, payload).await?;
+            client
+                .publish(topic, QoS::AtLeastOnce, false, payload)
+                .await?;
         }
         tokio::select! {
             _ = tokio::time::sleep(per_hour) => {}
@@ -157,9 +185,16 @@ fn print_summary(db: &std::path::Path, counters: &Counters) {
     ));
     if let Ok(latest) = store.latest_all() {
         for l in latest {
-            let t = Utc.timestamp_millis_opt(l.t_ms).single().map(|t| t.format("%Y-%m-%d %H:%M").to_string()).unwrap_or_default();
+            let t = Utc
+                .timestamp_millis_opt(l.t_ms)
+                .single()
+                .map(|t| t.format("%Y-%m-%d %H:%M").to_string())
+                .unwrap_or_default();
             match l.total_head_m {
-                Some(h) => s.push_str(&format!("  {:<10} {t}  head/elevation {h:8.3} m\n", l.instrument)),
+                Some(h) => s.push_str(&format!(
+                    "  {:<10} {t}  head/elevation {h:8.3} m\n",
+                    l.instrument
+                )),
                 None => s.push_str(&format!(
                     "  {:<10} {t}  pressure {:8.3} kPa\n",
                     l.instrument,

@@ -108,7 +108,10 @@ pub fn messages(hour: u32, t: DateTime<Utc>) -> Vec<(String, Vec<u8>)> {
             {"channel": "4", "value": round(pz(l.pz2b_m, 86.3) / crate::domain::units::KPA_PER_PSI, 4)},
         ]
     });
-    let mut out = vec![("demo/AB-LOG1/json".to_string(), levee.to_string().into_bytes())];
+    let mut out = vec![(
+        "demo/AB-LOG1/json".to_string(),
+        levee.to_string().into_bytes(),
+    )];
     // The standpipe is read by the same logger's CSV channel.
     out.push((
         "demo/AB-LOG1/csv".to_string(),
@@ -123,13 +126,28 @@ pub fn messages(hour: u32, t: DateTime<Utc>) -> Vec<(String, Vec<u8>)> {
         {"n": "PZ-2", "v": round(th_digits(l.th2_m, 200.5), 2)},
         {"n": "PZ-3", "u": "m", "v": round(l.th3_m - 200.0, 3)},
     ]);
-    out.push(("demo/TH-LOG1/senml".to_string(), senml.to_string().into_bytes()));
+    out.push((
+        "demo/TH-LOG1/senml".to_string(),
+        senml.to_string().into_bytes(),
+    ));
     // Now and then, the kinds of bad input a real network produces.
     match hour % 53 {
-        7 => out.push(("demo/AB-LOG1/json".into(), b"{\"time\": \"2026-01-01T00:00:00Z\", \"readings\": [".to_vec())),
-        19 => out.push(("demo/AB-LOG1/json".into(), format!("{{\"time\":\"{ts}\",\"channel\":\"9\",\"value\":1.0}}").into_bytes())),
-        31 => out.push(("demo/AB-LOG1/csv".into(), format!("{ts},5,NaN\n").into_bytes())),
-        43 => out.push(("demo/AB-LOG1/json".into(), format!("{{\"time\":\"{ts}\",\"channel\":\"3\",\"value\":27.5}}").into_bytes())),
+        7 => out.push((
+            "demo/AB-LOG1/json".into(),
+            b"{\"time\": \"2026-01-01T00:00:00Z\", \"readings\": [".to_vec(),
+        )),
+        19 => out.push((
+            "demo/AB-LOG1/json".into(),
+            format!("{{\"time\":\"{ts}\",\"channel\":\"9\",\"value\":1.0}}").into_bytes(),
+        )),
+        31 => out.push((
+            "demo/AB-LOG1/csv".into(),
+            format!("{ts},5,NaN\n").into_bytes(),
+        )),
+        43 => out.push((
+            "demo/AB-LOG1/json".into(),
+            format!("{{\"time\":\"{ts}\",\"channel\":\"3\",\"value\":27.5}}").into_bytes(),
+        )),
         _ => {}
     }
     out
@@ -160,7 +178,12 @@ mod tests {
         let l = levels(hour);
         let mut heads = std::collections::HashMap::new();
         for (topic, payload) in messages(hour, t) {
-            let o = engine.process(&Message { topic, payload, arrival: Utc::now(), redelivered: false });
+            let o = engine.process(&Message {
+                topic,
+                payload,
+                arrival: Utc::now(),
+                redelivered: false,
+            });
             assert!(o.quarantined.is_empty(), "{:?}", o.quarantined);
             for r in o.readings {
                 heads.insert(r.instrument.clone(), r.total_head_m);
@@ -180,7 +203,11 @@ mod tests {
             ("TH-PZ-3", l.th3_m),
         ];
         for (id, want) in expect {
-            let got = heads.get(id).copied().flatten().unwrap_or_else(|| panic!("{id} missing"));
+            let got = heads
+                .get(id)
+                .copied()
+                .flatten()
+                .unwrap_or_else(|| panic!("{id} missing"));
             assert!((got - want).abs() < 0.01, "{id}: {got} vs {want}");
         }
     }

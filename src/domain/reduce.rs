@@ -190,7 +190,7 @@ fn vw_pressure_kpa(
     flags: &mut Flags,
 ) -> f64 {
     let (k, t0, t1) = match (vw.thermal_factor, ctx.temperature_c) {
-        (k, _) if k == 0.0 => (0.0, 0.0, 0.0),
+        (0.0, _) => (0.0, 0.0, 0.0),
         (k, Some(t1)) => (k, vw.zero_temperature_c, t1),
         (_, None) => {
             flags.insert(Flags::TEMP_MISSING);

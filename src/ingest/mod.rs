@@ -5,6 +5,6 @@
 //! and deciding flags belong to the engine.
 
 pub mod decode;
-pub mod topic;
 pub mod mqtt;
 pub mod progress;
+pub mod topic;

@@ -11,7 +11,7 @@ use std::time::{Duration, Instant};
 
 use anyhow::Context as _;
 use chrono::{DateTime, Utc};
-use rumqttc::{AsyncClient, Event, EventLoop, MqttOptions, Packet, Publish, QoS, TlsConfiguration, Transport};
+use rumqttc::{AsyncClient, Event, MqttOptions, Packet, Publish, QoS, TlsConfiguration, Transport};
 use tokio::sync::{mpsc, oneshot};
 
 use crate::config::{Config, Mqtt};
@@ -86,10 +86,12 @@ pub async fn run(
         let cfg = Arc::clone(&cfg);
         let rt = tokio::runtime::Handle::current();
         let counters = Arc::clone(&counters);
-        std::thread::Builder::new().name("seepd-writer".into()).spawn(move || {
-            writer_loop(rx, store, engine, &client, &rt, &cfg, &counters);
-            let _ = done_tx.send(());
-        })?
+        std::thread::Builder::new()
+            .name("seepd-writer".into())
+            .spawn(move || {
+                writer_loop(rx, store, engine, &client, &rt, &cfg, &counters);
+                let _ = done_tx.send(());
+            })?
     };
 
     tokio::pin!(shutdown);
@@ -98,7 +100,8 @@ pub async fn run(
     let deadline_len = Duration::from_secs(cfg.service.shutdown_deadline_s);
     let mut deadline: Option<tokio::time::Instant> = None;
     loop {
-        let stop_at = deadline.unwrap_or_else(|| tokio::time::Instant::now() + Duration::from_secs(86_400));
+        let stop_at =
+            deadline.unwrap_or_else(|| tokio::time::Instant::now() + Duration::from_secs(86_400));
         tokio::select! {
             biased;
             _ = &mut shutdown, if deadline.is_none() => {
@@ -133,7 +136,9 @@ pub async fn run(
         let end = tokio::time::Instant::now() + Duration::from_secs(2);
         loop {
             match tokio::time::timeout_at(end, eventloop.poll()).await {
-                Ok(Ok(Event::Outgoing(rumqttc::Outgoing::Disconnect))) | Ok(Err(_)) | Err(_) => break,
+                Ok(Ok(Event::Outgoing(rumqttc::Outgoing::Disconnect))) | Ok(Err(_)) | Err(_) => {
+                    break
+                }
                 Ok(Ok(_)) => {}
             }
         }
@@ -160,7 +165,13 @@ impl Link {
         }
     }
 
-    async fn on_event(&mut self, ev: Event, client: &AsyncClient, cfg: &Config, tx: Option<&mpsc::Sender<Arrived>>) {
+    async fn on_event(
+        &mut self,
+        ev: Event,
+        client: &AsyncClient,
+        cfg: &Config,
+        tx: Option<&mpsc::Sender<Arrived>>,
+    ) {
         match ev {
             Event::Incoming(Packet::ConnAck(ack)) => {
                 self.connected = true;
@@ -173,28 +184,41 @@ impl Link {
                 );
                 if !ack.session_present {
                     for s in &cfg.subscriptions {
-                        let qos = if s.qos == 0 { QoS::AtMostOnce } else { QoS::AtLeastOnce };
+                        let qos = if s.qos == 0 {
+                            QoS::AtMostOnce
+                        } else {
+                            QoS::AtLeastOnce
+                        };
                         if let Err(e) = client.try_subscribe(s.filter.clone(), qos) {
                             tracing::error!(filter = %s.filter, error = %e, "Subscribe request failed");
                         }
                     }
-                    tracing::info!(count = cfg.subscriptions.len(), "Subscribed (broker had no session)");
+                    tracing::info!(
+                        count = cfg.subscriptions.len(),
+                        "Subscribed (broker had no session)"
+                    );
                 }
             }
             Event::Incoming(Packet::Publish(publish)) => {
                 // While stopping (tx gone) a message is neither stored nor acknowledged: the
                 // broker keeps it for the next session.
                 if let Some(tx) = tx {
-                    let arrived = Arrived { publish, arrival: Utc::now() };
+                    let arrived = Arrived {
+                        publish,
+                        arrival: Utc::now(),
+                    };
                     if tx.send(arrived).await.is_err() {
                         tracing::error!("Writer has stopped; message left unacknowledged");
                     }
                 }
             }
-            Event::Incoming(Packet::SubAck(ack)) => {
-                if ack.return_codes.iter().any(|c| matches!(c, rumqttc::SubscribeReasonCode::Failure)) {
-                    tracing::error!(pkid = ack.pkid, "Broker refused a subscription");
-                }
+            Event::Incoming(Packet::SubAck(ack))
+                if ack
+                    .return_codes
+                    .iter()
+                    .any(|c| matches!(c, rumqttc::SubscribeReasonCode::Failure)) =>
+            {
+                tracing::error!(pkid = ack.pkid, "Broker refused a subscription");
             }
             _ => {}
         }

@@ -22,8 +22,10 @@ impl Counters {
     pub fn add(&self, messages: usize, s: &BatchStats) {
         self.messages.fetch_add(messages as u64, Ordering::Relaxed);
         self.stored.fetch_add(s.inserted as u64, Ordering::Relaxed);
-        self.duplicates.fetch_add(s.duplicates as u64, Ordering::Relaxed);
-        self.quarantined.fetch_add(s.quarantined as u64, Ordering::Relaxed);
+        self.duplicates
+            .fetch_add(s.duplicates as u64, Ordering::Relaxed);
+        self.quarantined
+            .fetch_add(s.quarantined as u64, Ordering::Relaxed);
     }
 
     /// (messages, stored, duplicates, quarantined).
@@ -47,7 +49,11 @@ pub struct QuarantineLog {
 
 impl QuarantineLog {
     pub fn new(window: Duration) -> Self {
-        QuarantineLog { window, started: Instant::now(), seen: BTreeMap::new() }
+        QuarantineLog {
+            window,
+            started: Instant::now(),
+            seen: BTreeMap::new(),
+        }
     }
 
     /// Note one quarantined input; logs it if it is the first of its reason in the window.
@@ -71,7 +77,11 @@ impl QuarantineLog {
     pub fn flush(&mut self) {
         for (reason, n) in &self.seen {
             if *n > 1 {
-                tracing::warn!(reason = reason.code(), count = n, "Inputs quarantined in the last window");
+                tracing::warn!(
+                    reason = reason.code(),
+                    count = n,
+                    "Inputs quarantined in the last window"
+                );
             }
         }
         self.seen.clear();

@@ -10,7 +10,11 @@ use std::time::{Duration, Instant};
 
 /// A free TCP port on 127.0.0.1 (bound then released).
 pub fn free_port() -> u16 {
-    TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port()
+    TcpListener::bind("127.0.0.1:0")
+        .unwrap()
+        .local_addr()
+        .unwrap()
+        .port()
 }
 
 /// Poll `f` every 50 ms until it returns Some or `timeout` passes.
@@ -37,7 +41,11 @@ pub struct Broker {
 impl Broker {
     /// Start Mosquitto on a free port with persistence in `dir`.
     pub fn start(dir: &Path) -> Broker {
-        let mut b = Broker { port: free_port(), dir: dir.to_path_buf(), child: None };
+        let mut b = Broker {
+            port: free_port(),
+            dir: dir.to_path_buf(),
+            child: None,
+        };
         b.spawn();
         b
     }
@@ -63,14 +71,19 @@ impl Broker {
             .expect("mosquitto must be installed (tests/run.sh installs it)");
         self.child = Some(child);
         let port = self.port;
-        wait_for(Duration::from_secs(10), || TcpStream::connect(("127.0.0.1", port)).ok())
-            .expect("mosquitto did not start listening");
+        wait_for(Duration::from_secs(10), || {
+            TcpStream::connect(("127.0.0.1", port)).ok()
+        })
+        .expect("mosquitto did not start listening");
     }
 
     /// Stop with SIGTERM (Mosquitto saves its persistence file) and wait for it.
     pub fn stop(&mut self) {
         if let Some(mut c) = self.child.take() {
-            let _ = Command::new("kill").arg("-TERM").arg(c.id().to_string()).status();
+            let _ = Command::new("kill")
+                .arg("-TERM")
+                .arg(c.id().to_string())
+                .status();
             let _ = c.wait();
         }
     }
@@ -117,8 +130,14 @@ pub fn example_config(dir: &Path, port: u16) -> PathBuf {
             if p.file_name().is_some_and(|n| n == "seepd.toml") {
                 text = text
                     .replace("port = 1883", &format!("port = {port}"))
-                    .replace("database = \"seepd.sqlite\"", &format!("database = \"{}\"", dir.join("seepd.sqlite").display()))
-                    .replace("client_id = \"seepd-demo\"", &format!("client_id = \"seepd-test-{port}\""))
+                    .replace(
+                        "database = \"seepd.sqlite\"",
+                        &format!("database = \"{}\"", dir.join("seepd.sqlite").display()),
+                    )
+                    .replace(
+                        "client_id = \"seepd-demo\"",
+                        &format!("client_id = \"seepd-test-{port}\""),
+                    )
                     .replace("reconnect_max_ms = 30000", "reconnect_max_ms = 1000")
                     .replace("reconnect_min_ms = 500", "reconnect_min_ms = 100");
             }
@@ -136,7 +155,11 @@ pub struct Daemon {
 
 impl Daemon {
     pub fn start(config: &Path, log: &Path) -> Daemon {
-        let out = std::fs::OpenOptions::new().create(true).append(true).open(log).unwrap();
+        let out = std::fs::OpenOptions::new()
+            .create(true)
+            .append(true)
+            .open(log)
+            .unwrap();
         let child = Command::new(seepd_bin())
             .args(["run", "--config"])
             .arg(config)
@@ -145,7 +168,10 @@ impl Daemon {
             .stderr(out)
             .spawn()
             .unwrap();
-        Daemon { child, log: log.to_path_buf() }
+        Daemon {
+            child,
+            log: log.to_path_buf(),
+        }
     }
 
     /// Wait until the log says it has connected.
@@ -155,7 +181,12 @@ impl Daemon {
             let text = std::fs::read_to_string(&log).unwrap_or_default();
             (text.matches("Connected to broker").count() >= times).then_some(())
         })
-        .unwrap_or_else(|| panic!("seepd did not connect; log:\n{}", std::fs::read_to_string(&self.log).unwrap_or_default()));
+        .unwrap_or_else(|| {
+            panic!(
+                "seepd did not connect; log:\n{}",
+                std::fs::read_to_string(&self.log).unwrap_or_default()
+            )
+        });
     }
 
     pub fn kill9(&mut self) {
@@ -166,7 +197,10 @@ impl Daemon {
     /// SIGTERM and wait; returns the exit code and how long it took.
     pub fn terminate(&mut self) -> (Option<i32>, Duration) {
         let t = Instant::now();
-        let _ = Command::new("kill").arg("-TERM").arg(self.child.id().to_string()).status();
+        let _ = Command::new("kill")
+            .arg("-TERM")
+            .arg(self.child.id().to_string())
+            .status();
         let status = self.child.wait().unwrap();
         (status.code(), t.elapsed())
     }
@@ -189,9 +223,15 @@ pub struct Publisher {
 
 impl Publisher {
     pub fn connect(port: u16, id: &str) -> Publisher {
-        let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(1).enable_all().build().unwrap();
+        let rt = tokio::runtime::Builder::new_multi_thread()
+            .worker_threads(1)
+            .enable_all()
+            .build()
+            .unwrap();
         let mut o = rumqttc::MqttOptions::new(id, "127.0.0.1", port);
-        o.set_clean_session(false).set_keep_alive(Duration::from_secs(5)).set_inflight(50);
+        o.set_clean_session(false)
+            .set_keep_alive(Duration::from_secs(5))
+            .set_inflight(50);
         let (client, mut el) = rumqttc::AsyncClient::new(o, 100_000);
         let acked = std::sync::Arc::new(std::sync::atomic::AtomicUsize::new(0));
         let a = acked.clone();
@@ -213,7 +253,10 @@ impl Publisher {
     pub fn send(&self, topic: &str, payload: impl Into<Vec<u8>>) {
         let payload = payload.into();
         self.rt
-            .block_on(self.client.publish(topic, rumqttc::QoS::AtLeastOnce, false, payload))
+            .block_on(
+                self.client
+                    .publish(topic, rumqttc::QoS::AtLeastOnce, false, payload),
+            )
             .unwrap();
     }
 
@@ -242,7 +285,11 @@ pub fn count(dir: &Path, table: &str, where_: &str) -> i64 {
         return 0;
     }
     db(dir)
-        .query_row(&format!("SELECT count(*) FROM {table} WHERE {where_}"), [], |r| r.get(0))
+        .query_row(
+            &format!("SELECT count(*) FROM {table} WHERE {where_}"),
+            [],
+            |r| r.get(0),
+        )
         .unwrap_or(0)
 }
 

@@ -95,7 +95,7 @@ fn base_files_are_valid() {
 fn site_checks() {
     let cases: &[(usize, &str, usize, &str)] = &[
         (2, "id = \"\"", 2, "key \"id\" is empty"),
-        (2, "id = \"s\"\nunit_weight_water_kn_m3 = 9.7", 3, "expected one of: 9.81, 9.80665, 9.8034"),
+        (2, "id = \"s\"\nunit_weight_water_kn_m3 = 9.7", 3, "expected one of: 9.81, 9.80665, 9.802258 (62.4 pcf)"),
         (2, "id = \"s\"\ndisplay_units = \"metric\"", 3, "expected one of: si, us"),
         (2, "id = \"s\"\nlength_unit = \"yd\"", 3, "expected one of: m, ft"),
         (4, "id = \"  \"", 4, "is empty"),

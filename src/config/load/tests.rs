@@ -103,7 +103,7 @@ fn feet_site_is_converted_to_metres() {
         r#"[site]
 id = "ft"
 length_unit = "ft"
-unit_weight_water_kn_m3 = 9.8034
+unit_weight_water_kn_m3 = 9.802258
 display_units = "us"
 
 [[instrument]]
@@ -164,7 +164,10 @@ depth_unit = "ft"
         panic!("FT-SP should be a standpipe")
     };
     assert!(close(sp.reference_elevation_m, 3.048));
-    assert!(close(cfg.sites[0].gamma_w_kn_m3, 9.8034));
+    assert!(close(
+        cfg.sites[0].gamma_w_kn_m3,
+        crate::domain::units::GAMMA_W_62_4_PCF_KN_M3
+    ));
     // Defaults of the service file.
     assert_eq!(cfg.service.commit_max_readings, 500);
     assert_eq!(cfg.mqtt.port, 1883);
