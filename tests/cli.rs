@@ -57,11 +57,11 @@ fn check_lists_every_problem_with_file_and_line_and_exits_78() {
     .unwrap();
     let (code, out, err) = seepd(&["check", "--config", &d.display().to_string()]);
     assert_eq!(code, 78, "{out}\n{err}");
-    // port out of range on line 5 of seepd.toml; unknown key on line 12 and bad unit on line 15
+    // port out of range on line 5 of seepd.toml; unknown key on line 11 and bad unit on line 14
     // of site-a.toml.
     assert!(err.contains("seepd.toml:5:"), "{err}");
-    assert!(err.contains("site-a.toml:12:"), "{err}");
-    assert!(err.contains("site-a.toml:15:"), "{err}");
+    assert!(err.contains("site-a.toml:11:"), "{err}");
+    assert!(err.contains("site-a.toml:14:"), "{err}");
     assert!(err.contains("3 configuration problem(s)"), "{err}");
 }
 

@@ -77,6 +77,11 @@ impl Broker {
         .expect("mosquitto did not start listening");
     }
 
+    /// The broker's log so far (for failure messages).
+    pub fn log(&self) -> String {
+        std::fs::read_to_string(self.dir.join("mosquitto.log")).unwrap_or_default()
+    }
+
     /// Stop with SIGTERM (Mosquitto saves its persistence file) and wait for it.
     pub fn stop(&mut self) {
         if let Some(mut c) = self.child.take() {
@@ -231,7 +236,8 @@ impl Publisher {
         let mut o = rumqttc::MqttOptions::new(id, "127.0.0.1", port);
         o.set_clean_session(false)
             .set_keep_alive(Duration::from_secs(5))
-            .set_inflight(50);
+            .set_inflight(50)
+            .set_max_packet_size(1 << 20, 1 << 20);
         let (client, mut el) = rumqttc::AsyncClient::new(o, 100_000);
         let acked = std::sync::Arc::new(std::sync::atomic::AtomicUsize::new(0));
         let a = acked.clone();
