@@ -4,4 +4,5 @@
 //! (see README "Sources of formulas").
 
 pub mod reduce;
+pub mod trend;
 pub mod units;

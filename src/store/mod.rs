@@ -22,7 +22,11 @@ pub enum StoreError {
     #[error("database: {0}")]
     Sqlite(#[from] rusqlite::Error),
     #[error("database {path} has schema version {found}, newer than this seepd ({supported})")]
-    TooNew { path: String, found: i64, supported: i64 },
+    TooNew {
+        path: String,
+        found: i64,
+        supported: i64,
+    },
 }
 
 /// One reading ready to store: raw fields, reduced values and quality.
@@ -218,7 +222,9 @@ impl Store {
     /// # Errors
     /// SQLite errors.
     pub fn count_readings(&self) -> Result<i64, StoreError> {
-        Ok(self.conn.query_row("SELECT count(*) FROM readings", [], |r| r.get(0))?)
+        Ok(self
+            .conn
+            .query_row("SELECT count(*) FROM readings", [], |r| r.get(0))?)
     }
 
     /// Quarantine counts by reason code.
@@ -262,7 +268,11 @@ impl Store {
     ///
     /// # Errors
     /// SQLite errors.
-    pub fn barometer_since(&self, barometer: &str, since_ms: i64) -> Result<Vec<(i64, f64)>, StoreError> {
+    pub fn barometer_since(
+        &self,
+        barometer: &str,
+        since_ms: i64,
+    ) -> Result<Vec<(i64, f64)>, StoreError> {
         let mut st = self.conn.prepare(
             "SELECT t_ms, pressure_kpa FROM readings
              WHERE instrument = ?1 AND t_ms >= ?2 AND pressure_kpa IS NOT NULL ORDER BY t_ms",
@@ -275,7 +285,11 @@ impl Store {
     ///
     /// # Errors
     /// SQLite errors.
-    pub fn reading(&self, instrument: &str, t_ms: i64) -> Result<Option<(f64, Option<f64>, Flags)>, StoreError> {
+    pub fn reading(
+        &self,
+        instrument: &str,
+        t_ms: i64,
+    ) -> Result<Option<(f64, Option<f64>, Flags)>, StoreError> {
         Ok(self
             .conn
             .query_row(

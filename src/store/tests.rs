@@ -34,10 +34,14 @@ fn bad(topic: &str, payload: &[u8], redelivered: bool) -> QuarantineRow {
 fn inserts_are_idempotent_on_instrument_and_time() {
     let dir = tempfile::tempdir().unwrap();
     let mut s = Store::open(&dir.path().join("a.sqlite")).unwrap();
-    let st = s.write_batch(&[row("P1", 1000, 10.0), row("P1", 2000, 11.0)], &[]).unwrap();
+    let st = s
+        .write_batch(&[row("P1", 1000, 10.0), row("P1", 2000, 11.0)], &[])
+        .unwrap();
     assert_eq!((st.inserted, st.duplicates), (2, 0));
     // A redelivery of the first and one new reading.
-    let st = s.write_batch(&[row("P1", 1000, 99.0), row("P2", 1000, 12.0)], &[]).unwrap();
+    let st = s
+        .write_batch(&[row("P1", 1000, 99.0), row("P2", 1000, 12.0)], &[])
+        .unwrap();
     assert_eq!((st.inserted, st.duplicates), (1, 1));
     assert_eq!(s.count_readings().unwrap(), 3);
     // The first write wins: the redelivered value did not overwrite it.
@@ -50,16 +54,29 @@ fn reopen_keeps_data_and_schema_version() {
     let path = dir.path().join("b.sqlite");
     {
         let mut s = Store::open(&path).unwrap();
-        s.write_batch(&[row("P1", 1, 1.0)], &[bad("t", b"x", false)]).unwrap();
+        s.write_batch(&[row("P1", 1, 1.0)], &[bad("t", b"x", false)])
+            .unwrap();
     }
     let s = Store::open(&path).unwrap();
     assert_eq!(s.count_readings().unwrap(), 1);
-    assert_eq!(s.quarantine_counts().unwrap(), vec![("malformed".to_string(), 1)]);
-    let v: i64 = s.conn().pragma_query_value(None, "user_version", |r| r.get(0)).unwrap();
+    assert_eq!(
+        s.quarantine_counts().unwrap(),
+        vec![("malformed".to_string(), 1)]
+    );
+    let v: i64 = s
+        .conn()
+        .pragma_query_value(None, "user_version", |r| r.get(0))
+        .unwrap();
     assert_eq!(v, SCHEMA_VERSION);
-    let mode: String = s.conn().pragma_query_value(None, "journal_mode", |r| r.get(0)).unwrap();
+    let mode: String = s
+        .conn()
+        .pragma_query_value(None, "journal_mode", |r| r.get(0))
+        .unwrap();
     assert_eq!(mode, "wal");
-    let sync: i64 = s.conn().pragma_query_value(None, "synchronous", |r| r.get(0)).unwrap();
+    let sync: i64 = s
+        .conn()
+        .pragma_query_value(None, "synchronous", |r| r.get(0))
+        .unwrap();
     assert_eq!(sync, 2, "synchronous=FULL");
 }
 
@@ -69,7 +86,8 @@ fn newer_schema_is_refused() {
     let path = dir.path().join("c.sqlite");
     drop(Store::open(&path).unwrap());
     let c = Connection::open(&path).unwrap();
-    c.pragma_update(None, "user_version", SCHEMA_VERSION + 1).unwrap();
+    c.pragma_update(None, "user_version", SCHEMA_VERSION + 1)
+        .unwrap();
     drop(c);
     assert!(matches!(Store::open(&path), Err(StoreError::TooNew { .. })));
 }
@@ -88,7 +106,11 @@ fn redelivered_quarantine_is_not_stored_twice() {
 #[test]
 fn latest_per_instrument() {
     let mut s = Store::open_in_memory().unwrap();
-    s.write_batch(&[row("P1", 1, 1.0), row("P1", 3, 3.0), row("P2", 2, 2.0)], &[]).unwrap();
+    s.write_batch(
+        &[row("P1", 1, 1.0), row("P1", 3, 3.0), row("P2", 2, 2.0)],
+        &[],
+    )
+    .unwrap();
     let l = s.latest_all().unwrap();
     assert_eq!(l.len(), 2);
     assert_eq!((l[0].instrument.as_str(), l[0].t_ms), ("P1", 3));
