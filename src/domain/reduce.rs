@@ -157,7 +157,7 @@ pub fn reduce(instrument: &Instrument, raw: f64, ctx: &Context) -> Result<Reduct
     let finite = r.engineering_value.is_finite()
         && [r.pressure_kpa, r.pressure_head_m, r.total_head_m]
             .iter()
-            .all(|v| v.is_none_or(f64::is_finite));
+            .all(|v| v.map_or(true, f64::is_finite));
     if finite {
         Ok(r)
     } else {
@@ -190,7 +190,7 @@ fn vw_pressure_kpa(
     flags: &mut Flags,
 ) -> f64 {
     let (k, t0, t1) = match (vw.thermal_factor, ctx.temperature_c) {
-        (k, _) if k == 0.0 => (0.0, 0.0, 0.0),
+        (0.0, _) => (0.0, 0.0, 0.0),
         (k, Some(t1)) => (k, vw.zero_temperature_c, t1),
         (_, None) => {
             flags.insert(Flags::TEMP_MISSING);
