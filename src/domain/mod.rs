@@ -3,6 +3,8 @@
 //! Everything of engineering substance lives here and is unit-tested against published values
 //! (see README "Sources of formulas").
 
+pub mod lsq;
 pub mod reduce;
+pub mod response;
 pub mod trend;
 pub mod units;
