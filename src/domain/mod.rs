@@ -3,6 +3,7 @@
 //! Everything of engineering substance lives here and is unit-tested against published values
 //! (see README "Sources of formulas").
 
+pub mod health;
 pub mod hst;
 pub mod lsq;
 pub mod reduce;

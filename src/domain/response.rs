@@ -153,7 +153,7 @@ fn pearson(x: &[f64], y: &[f64]) -> Option<f64> {
 }
 
 /// Fit the lagged model to the head readings `heads` (time ms, total head m) that fall in the
-/// training period `[train_start_ms, train_end_ms)`.
+/// training period `[train_start_ms, train_end_ms)`. Non-finite heads are skipped.
 ///
 /// Cost: one stage interpolation (O(log m)) per reading per lag, then one correlation per lag.
 ///
