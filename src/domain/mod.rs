@@ -3,5 +3,10 @@
 //! Everything of engineering substance lives here and is unit-tested against published values
 //! (see README "Sources of formulas").
 
+pub mod health;
+pub mod hst;
+pub mod lsq;
 pub mod reduce;
+pub mod response;
+pub mod trend;
 pub mod units;
