@@ -157,7 +157,7 @@ pub fn reduce(instrument: &Instrument, raw: f64, ctx: &Context) -> Result<Reduct
     let finite = r.engineering_value.is_finite()
         && [r.pressure_kpa, r.pressure_head_m, r.total_head_m]
             .iter()
-            .all(|v| v.map_or(true, f64::is_finite));
+            .all(|v| v.is_none_or(f64::is_finite));
     if finite {
         Ok(r)
     } else {

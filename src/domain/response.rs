@@ -195,7 +195,7 @@ pub fn fit_response(
     let mut best: Option<(usize, f64)> = None;
     for (k, col) in lagged.iter().enumerate() {
         if let Some(r) = pearson(&h, col) {
-            if best.map_or(true, |(_, b)| r > b) {
+            if best.is_none_or(|(_, b)| r > b) {
                 best = Some((k, r));
             }
         }
