@@ -3,5 +3,11 @@
 //! Everything of engineering substance lives here and is unit-tested against published values
 //! (see README "Sources of formulas").
 
+pub mod blanket;
+pub mod gradient;
 pub mod reduce;
+pub mod toe;
 pub mod units;
+
+#[cfg(test)]
+mod testutil;
