@@ -6,6 +6,7 @@
 pub mod blanket;
 pub mod gradient;
 pub mod reduce;
+pub mod section;
 pub mod toe;
 pub mod units;
 
