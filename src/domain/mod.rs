@@ -7,6 +7,7 @@ pub mod blanket;
 pub mod gradient;
 pub mod reduce;
 pub mod section;
+pub mod section_svg;
 pub mod toe;
 pub mod units;
 
