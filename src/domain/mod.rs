@@ -3,10 +3,18 @@
 //! Everything of engineering substance lives here and is unit-tested against published values
 //! (see README "Sources of formulas").
 
+pub mod blanket;
+pub mod gradient;
 pub mod health;
 pub mod hst;
 pub mod lsq;
 pub mod reduce;
 pub mod response;
+pub mod section;
+pub mod section_svg;
+pub mod toe;
 pub mod trend;
 pub mod units;
+
+#[cfg(test)]
+mod testutil;
