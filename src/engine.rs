@@ -15,7 +15,7 @@ use crate::domain::reduce::{reduce, Context};
 use crate::ingest::decode::{decode, Decoded};
 use crate::ingest::topic::{match_topic, TopicFields};
 use crate::quality::{Flags, Reason, Reject};
-use crate::store::{QuarantineRow, ReadingRow};
+use crate::store::{DerivedRow, QuarantineRow, ReadingRow};
 
 /// Quarantined payloads are stored up to this many bytes.
 const QUARANTINE_PAYLOAD_MAX: usize = 4096;
@@ -34,6 +34,8 @@ pub struct Message {
 #[derive(Debug, Default)]
 pub struct Outcome {
     pub readings: Vec<ReadingRow>,
+    /// Derived values recomputed because of these readings.
+    pub derived: Vec<DerivedRow>,
     pub quarantined: Vec<QuarantineRow>,
 }
 

@@ -13,7 +13,7 @@ use serde::Serialize;
 
 use crate::config::{Config, EpochUnit, JsonFields, PayloadFormat, Subscription};
 use crate::engine::{Engine, Message};
-use crate::store::{QuarantineRow, ReadingRow, Store};
+use crate::store::{DerivedRow, QuarantineRow, ReadingRow, Store};
 
 /// The pseudo-topic replayed messages carry.
 pub const REPLAY_TOPIC: &str = "replay";
@@ -43,6 +43,17 @@ pub enum Record<'a> {
         unit: &'static str,
         #[serde(skip_serializing_if = "Vec::is_empty")]
         flags: Vec<&'static str>,
+    },
+    /// A derived quantity of an object (cluster, toe check, blanket reach, section).
+    Derived {
+        id: &'a str,
+        quantity: &'a str,
+        time: String,
+        value: Option<f64>,
+        unit: &'static str,
+        #[serde(skip_serializing_if = "Option::is_none")]
+        reason: Option<&'a str>,
+        inputs: &'a [String],
     },
     /// An input that went to quarantine.
     Quarantine {
@@ -115,6 +126,7 @@ pub fn run(
     let mut engine = Engine::new(Arc::new(replay_config(cfg, format)));
     let mut totals = Totals::default();
     let mut readings: Vec<ReadingRow> = Vec::with_capacity(BATCH);
+    let mut derived: Vec<DerivedRow> = Vec::new();
     let mut quarantined: Vec<(u64, QuarantineRow)> = Vec::new();
     let mut pending = 0usize;
     for line in input.lines() {
@@ -131,14 +143,29 @@ pub fn run(
         };
         let o = engine.process(&msg);
         readings.extend(o.readings);
+        derived.extend(o.derived);
         quarantined.extend(o.quarantined.into_iter().map(|q| (totals.lines, q)));
         pending += 1;
         if pending >= BATCH {
-            flush(store, &mut readings, &mut quarantined, out, &mut totals)?;
+            flush(
+                store,
+                &mut readings,
+                &mut derived,
+                &mut quarantined,
+                out,
+                &mut totals,
+            )?;
             pending = 0;
         }
     }
-    flush(store, &mut readings, &mut quarantined, out, &mut totals)?;
+    flush(
+        store,
+        &mut readings,
+        &mut derived,
+        &mut quarantined,
+        out,
+        &mut totals,
+    )?;
     out.flush()?;
     Ok(totals)
 }
@@ -146,12 +173,13 @@ pub fn run(
 fn flush(
     store: &mut Store,
     readings: &mut Vec<ReadingRow>,
+    derived: &mut Vec<DerivedRow>,
     quarantined: &mut Vec<(u64, QuarantineRow)>,
     out: &mut impl Write,
     totals: &mut Totals,
 ) -> anyhow::Result<()> {
     let q: Vec<QuarantineRow> = quarantined.iter().map(|(_, q)| q.clone()).collect();
-    let stats = store.write_batch(readings, &q)?;
+    let stats = store.write_batch(readings, derived, &q)?;
     totals.readings += stats.inserted as u64;
     totals.duplicates += stats.duplicates as u64;
     totals.quarantined += q.len() as u64;
@@ -171,6 +199,20 @@ fn flush(
             totals.records += 1;
         }
     }
+    for d in derived.iter() {
+        let rec = Record::Derived {
+            id: &d.object,
+            quantity: &d.quantity,
+            time: rfc3339(d.t_ms),
+            value: d.value,
+            unit: d.unit,
+            reason: d.reason.as_deref(),
+            inputs: &d.inputs,
+        };
+        serde_json::to_writer(&mut *out, &rec)?;
+        out.write_all(b"\n")?;
+        totals.records += 1;
+    }
     for (line, q) in quarantined.iter() {
         let rec = Record::Quarantine {
             line: *line,
@@ -182,6 +224,7 @@ fn flush(
         totals.records += 1;
     }
     readings.clear();
+    derived.clear();
     quarantined.clear();
     Ok(())
 }

@@ -114,6 +114,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         subscriptions,
         sites: Vec::new(),
         instruments: BTreeMap::new(),
+        objects: Default::default(),
     };
     for (_, sf) in sites {
         cfg.sites.extend(sf.site);

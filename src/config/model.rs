@@ -32,6 +32,8 @@ pub struct Config {
     pub sites: Vec<Site>,
     /// Every instrument of every site, by id (ids are unique across sites).
     pub instruments: BTreeMap<String, Instrument>,
+    /// Derived-quantity objects (clusters, toe checks, blanket reaches, sections) of all sites.
+    pub objects: Objects,
 }
 
 impl Config {
@@ -362,4 +364,132 @@ pub struct Instrument {
     /// Logger and channel that carry this instrument (for topic/channel mapping).
     pub logger: Option<String>,
     pub channel: Option<String>,
+}
+
+/// Nested piezometers at one location: vertical gradients between adjacent tips and overall.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Cluster {
+    /// Object id (unique among instruments and objects across all sites).
+    pub id: String,
+    pub site: String,
+    /// Piezometer ids (two or more), any order; sorted by tip elevation when computed.
+    pub piezometers: Vec<String>,
+    /// |i| below this is reported as no vertical flow.
+    pub deadband: f64,
+    /// Inputs must be within this many seconds of the triggering reading.
+    pub tolerance_s: i64,
+}
+
+/// A water level that is either measured by a gauge or fixed.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Level {
+    /// Read from this stage gauge's latest water elevation.
+    Gauge(String),
+    /// A fixed elevation (m).
+    Fixed(f64),
+}
+
+/// How the critical gradient of the top blanket is given.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum CriticalGradientFrom {
+    /// Saturated unit weight (kN/m³); i_c = (γsat − γw)/γw.
+    UnitWeight { gamma_sat_kn_m3: f64 },
+    /// Specific gravity of solids and void ratio; i_c = (Gs − 1)/(1 + e).
+    GsE {
+        specific_gravity: f64,
+        void_ratio: f64,
+    },
+}
+
+/// A toe check: exit gradient and factor of safety against heave/piping at a levee landside toe
+/// or a dam downstream toe.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ToeCheck {
+    pub id: String,
+    pub site: String,
+    /// Piezometer measuring the head at the base of the top blanket.
+    pub piezometer: String,
+    /// Landside (downstream) ground elevation at the toe (m).
+    pub ground_elevation_m: f64,
+    /// Ponded or tail water over the toe, if any.
+    pub water: Option<Level>,
+    /// Top blanket thickness z_t (m).
+    pub blanket_thickness_m: f64,
+    pub critical: CriticalGradientFrom,
+    /// Target factor of safety for the allowable head (e.g. 1.6).
+    pub fs_target: f64,
+    pub tolerance_s: i64,
+}
+
+/// Riverside entrance condition for blanket theory.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum RiversideCase {
+    /// Semipervious riverside blanket of length L1 to the river or a borrow pit (m).
+    OpenEntranceAt { l1_m: f64 },
+    /// No riverside blanket.
+    NoBlanket,
+    /// Impervious riverside blanket of length L1 (m).
+    Impervious { l1_m: f64 },
+}
+
+/// Landside exit condition for blanket theory.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum LandsideCase {
+    Endless,
+    SeepageBlockAt { l3_m: f64 },
+    OpenExitAt { l3_m: f64 },
+    Impervious { l3_m: f64 },
+}
+
+/// A levee reach analysed with blanket theory (EM 1110-2-1913 App. B), compared with the
+/// measured head at the toe.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BlanketReach {
+    pub id: String,
+    pub site: String,
+    /// River stage gauge.
+    pub river_gauge: String,
+    /// Landside level (ground or ponded water) against which H and h_o are measured (m).
+    pub landside_level: Level,
+    /// Piezometer at the landside toe at the base of the top blanket (optional comparison).
+    pub toe_piezometer: Option<String>,
+    /// Base width of the levee L2 (m).
+    pub base_width_m: f64,
+    /// Pervious foundation thickness d (m).
+    pub foundation_thickness_m: f64,
+    pub k_foundation_m_s: f64,
+    pub k_blanket_m_s: f64,
+    /// Top blanket thickness z_bl (m).
+    pub blanket_thickness_m: f64,
+    pub riverside: RiversideCase,
+    pub landside: LandsideCase,
+    /// Distances landward of the toe (m) at which the expected head is reported.
+    pub distances_m: Vec<f64>,
+    pub tolerance_s: i64,
+}
+
+/// An instrumented cross-section: ground polyline, pool gauge upstream, tail water downstream,
+/// piezometers at (station, tip elevation) from their instrument locations.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Section {
+    pub id: String,
+    pub site: String,
+    /// Ground surface (station m, elevation m), stations increasing upstream → downstream.
+    pub ground: Vec<(f64, f64)>,
+    pub pool_gauge: String,
+    pub tail: Option<Level>,
+    /// Downstream toe station (m).
+    pub toe_station_m: f64,
+    /// Piezometer ids on this section (each has a station in its location).
+    pub piezometers: Vec<String>,
+    pub tolerance_s: i64,
+}
+
+/// All derived-quantity objects of the configuration.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Objects {
+    pub clusters: Vec<Cluster>,
+    pub toes: Vec<ToeCheck>,
+    pub blankets: Vec<BlanketReach>,
+    pub sections: Vec<Section>,
 }

@@ -262,6 +262,7 @@ fn writer_loop(
             }
         }
         let mut readings = Vec::with_capacity(batch.len());
+        let mut derived = Vec::new();
         let mut quarantined = Vec::new();
         for a in &batch {
             let msg = Message {
@@ -272,11 +273,12 @@ fn writer_loop(
             };
             let out = engine.process(&msg);
             readings.extend(out.readings);
+            derived.extend(out.derived);
             quarantined.extend(out.quarantined);
         }
         let mut wait = Duration::from_millis(100);
         let stats = loop {
-            match store.write_batch(&readings, &quarantined) {
+            match store.write_batch(&readings, &derived, &quarantined) {
                 Ok(s) => break s,
                 Err(e) => {
                     tracing::error!(error = %e, messages = batch.len(), "Commit failed; retrying (nothing acknowledged)");

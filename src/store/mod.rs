@@ -49,6 +49,21 @@ pub struct ReadingRow {
     pub flags: Flags,
 }
 
+/// One derived value: a quantity of an object (cluster, toe check, reach, section...) at a
+/// time, computed from the readings named in `inputs`. `value` is `None` when it could not be
+/// computed; `reason` says why (missing, stale or flagged input; not applicable).
+#[derive(Debug, Clone, PartialEq)]
+pub struct DerivedRow {
+    pub object: String,
+    pub quantity: String,
+    pub t_ms: i64,
+    pub value: Option<f64>,
+    pub unit: &'static str,
+    pub reason: Option<String>,
+    /// Instrument ids the value came from.
+    pub inputs: Vec<String>,
+}
+
 /// One quarantined input.
 #[derive(Debug, Clone, PartialEq)]
 pub struct QuarantineRow {
@@ -66,6 +81,8 @@ pub struct QuarantineRow {
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
 pub struct BatchStats {
     pub inserted: usize,
+    /// Derived values written (new or recomputed).
+    pub derived: usize,
     /// Readings already stored for (instrument, time): not inserted again.
     pub duplicates: usize,
     pub quarantined: usize,
@@ -156,13 +173,16 @@ impl Store {
         Ok(())
     }
 
-    /// Write readings and quarantine rows in one transaction and commit it.
+    /// Write readings, derived values and quarantine rows in one transaction and commit it.
+    /// Derived values replace an earlier value of the same (object, quantity, time): a
+    /// recomputation with newer inputs wins.
     ///
     /// # Errors
     /// SQLite errors; nothing of the batch is stored then.
     pub fn write_batch(
         &mut self,
         readings: &[ReadingRow],
+        derived: &[DerivedRow],
         quarantined: &[QuarantineRow],
     ) -> Result<BatchStats, StoreError> {
         let tx = self.conn.transaction()?;
@@ -194,6 +214,21 @@ impl Store {
                 } else {
                     stats.duplicates += 1;
                 }
+            }
+            let mut d = tx.prepare_cached(
+                "INSERT OR REPLACE INTO derived (object, quantity, t_ms, value, unit, reason, inputs)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+            )?;
+            for r in derived {
+                stats.derived += d.execute(params![
+                    r.object,
+                    r.quantity,
+                    r.t_ms,
+                    r.value,
+                    r.unit,
+                    r.reason,
+                    r.inputs.join(","),
+                ])?;
             }
             let mut q = tx.prepare_cached(
                 "INSERT INTO quarantine (received_ms, topic, reason, detail, payload)

@@ -45,6 +45,17 @@ const MIGRATIONS: &[&str] = &[
         payload BLOB NOT NULL
     );
     CREATE INDEX quarantine_received ON quarantine (received_ms);",
+    // 2: derived quantities (gradients, toe checks, blanket theory, sections, later trends).
+    "CREATE TABLE derived (
+        object TEXT NOT NULL,
+        quantity TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        value REAL,
+        unit TEXT NOT NULL,
+        reason TEXT,
+        inputs TEXT NOT NULL,
+        PRIMARY KEY (object, quantity, t_ms)
+    ) WITHOUT ROWID;",
 ];
 
 /// The schema version this build writes.

@@ -35,12 +35,12 @@ fn inserts_are_idempotent_on_instrument_and_time() {
     let dir = tempfile::tempdir().unwrap();
     let mut s = Store::open(&dir.path().join("a.sqlite")).unwrap();
     let st = s
-        .write_batch(&[row("P1", 1000, 10.0), row("P1", 2000, 11.0)], &[])
+        .write_batch(&[row("P1", 1000, 10.0), row("P1", 2000, 11.0)], &[], &[])
         .unwrap();
     assert_eq!((st.inserted, st.duplicates), (2, 0));
     // A redelivery of the first and one new reading.
     let st = s
-        .write_batch(&[row("P1", 1000, 99.0), row("P2", 1000, 12.0)], &[])
+        .write_batch(&[row("P1", 1000, 99.0), row("P2", 1000, 12.0)], &[], &[])
         .unwrap();
     assert_eq!((st.inserted, st.duplicates), (1, 1));
     assert_eq!(s.count_readings().unwrap(), 3);
@@ -54,7 +54,7 @@ fn reopen_keeps_data_and_schema_version() {
     let path = dir.path().join("b.sqlite");
     {
         let mut s = Store::open(&path).unwrap();
-        s.write_batch(&[row("P1", 1, 1.0)], &[bad("t", b"x", false)])
+        s.write_batch(&[row("P1", 1, 1.0)], &[], &[bad("t", b"x", false)])
             .unwrap();
     }
     let s = Store::open(&path).unwrap();
@@ -95,11 +95,11 @@ fn newer_schema_is_refused() {
 #[test]
 fn redelivered_quarantine_is_not_stored_twice() {
     let mut s = Store::open_in_memory().unwrap();
-    s.write_batch(&[], &[bad("t/1", b"{", false)]).unwrap();
-    let st = s.write_batch(&[], &[bad("t/1", b"{", true)]).unwrap();
+    s.write_batch(&[], &[], &[bad("t/1", b"{", false)]).unwrap();
+    let st = s.write_batch(&[], &[], &[bad("t/1", b"{", true)]).unwrap();
     assert_eq!(st.quarantined, 0);
     // A fresh (not redelivered) identical message is a new event and is stored.
-    let st = s.write_batch(&[], &[bad("t/1", b"{", false)]).unwrap();
+    let st = s.write_batch(&[], &[], &[bad("t/1", b"{", false)]).unwrap();
     assert_eq!(st.quarantined, 1);
 }
 
@@ -108,6 +108,7 @@ fn latest_per_instrument() {
     let mut s = Store::open_in_memory().unwrap();
     s.write_batch(
         &[row("P1", 1, 1.0), row("P1", 3, 3.0), row("P2", 2, 2.0)],
+        &[],
         &[],
     )
     .unwrap();
