@@ -48,13 +48,13 @@ pub fn levels(hour: u32) -> Levels {
     let f = flood(day);
     let lag = flood(day - 0.5);
     let river_m = 92.0 + 6.4 * f;
-    let deep = 95.2 + 0.62 * (92.0 + 6.4 * lag - 92.0);
+    let deep = 95.2 + 0.45 * 6.4 * lag;
     let pool_m = 214.0 + 6.5 * f;
     let daily = (day * std::f64::consts::TAU).sin();
     Levels {
         river_m,
         pool_m,
-        tail_m: 200.4 + 0.6 * f,
+        tail_m: 199.3 + 0.6 * f,
         pz1a_m: 96.1 + 0.18 * (deep - 95.2),
         pz1b_m: deep,
         pz2a_m: 96.0 + 0.15 * (deep - 95.2),
@@ -62,7 +62,7 @@ pub fn levels(hour: u32) -> Levels {
         sp3_m: 94.8 + 0.4 * (deep - 95.2),
         th1_m: 209.0 + 0.75 * (pool_m - 214.0),
         th2_m: 205.0 + 0.60 * (pool_m - 214.0),
-        th3_m: 202.2 + 0.40 * (pool_m - 214.0),
+        th3_m: 199.8 + 0.80 * (pool_m - 214.0),
         baro_kpa: 101.0 + 0.6 * (day / 3.0).sin(),
         temp_c: 12.0 + 0.5 * daily,
     }
@@ -121,10 +121,10 @@ pub fn messages(hour: u32, t: DateTime<Utc>) -> Vec<(String, Vec<u8>)> {
     let th_digits = |head: f64, tip: f64| 9100.0 - pz(head, tip) / 0.042;
     let senml = serde_json::json!([
         {"bn": "TH-", "bt": t.timestamp(), "n": "POOL", "u": "m", "v": round(l.pool_m, 3)},
-        {"n": "TAIL", "u": "m", "v": round(l.tail_m - 200.0, 3)},
+        {"n": "TAIL", "u": "m", "v": round(l.tail_m - 199.0, 3)},
         {"n": "PZ-1", "v": round(th_digits(l.th1_m, 201.0), 2)},
         {"n": "PZ-2", "v": round(th_digits(l.th2_m, 200.5), 2)},
-        {"n": "PZ-3", "u": "m", "v": round(l.th3_m - 200.0, 3)},
+        {"n": "PZ-3", "u": "m", "v": round(l.th3_m - 197.0, 3)},
     ]);
     out.push((
         "demo/TH-LOG1/senml".to_string(),
