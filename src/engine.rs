@@ -11,6 +11,7 @@ use std::sync::Arc;
 use chrono::{DateTime, Utc};
 
 use crate::config::{Config, Instrument, Subscription};
+use crate::derive::{Deriver, Head};
 use crate::domain::reduce::{reduce, Context};
 use crate::ingest::decode::{decode, Decoded};
 use crate::ingest::topic::{match_topic, TopicFields};
@@ -47,6 +48,8 @@ pub struct Engine {
     channels: HashMap<(String, String), String>,
     /// Recent barometric pressures by barometer id: time (ms) → kPa. Pruned to a window.
     baro: HashMap<String, BTreeMap<i64, f64>>,
+    /// Derived quantities recomputed as readings arrive.
+    deriver: Deriver,
 }
 
 impl Engine {
@@ -59,16 +62,29 @@ impl Engine {
                 _ => None,
             })
             .collect();
+        let deriver = Deriver::new(Arc::clone(&cfg));
         Engine {
             cfg,
             channels,
             baro: HashMap::new(),
+            deriver,
         }
     }
 
     /// The configuration the engine runs on.
     pub fn config(&self) -> &Config {
         &self.cfg
+    }
+
+    /// Remember an instrument's latest head (from the store at start) so derived quantities
+    /// have their inputs right after a restart.
+    pub fn seed_head(&mut self, instrument: &str, head: Head) {
+        self.deriver.seed(instrument, head);
+    }
+
+    /// The derived-quantity state (latest heads), e.g. to draw a section.
+    pub fn deriver(&self) -> &Deriver {
+        &self.deriver
     }
 
     /// Barometer ids that some instrument's reduction needs.
@@ -157,7 +173,10 @@ impl Engine {
         accepted.sort_by_key(|(i, ..)| i.kind.barometer().is_some());
         for (instrument, d, t_ms, flags) in accepted {
             match self.reduce_one(&cfg, instrument, &d, t_ms, flags, msg.arrival) {
-                Ok(row) => out.readings.push(row),
+                Ok(row) => {
+                    out.derived.extend(self.deriver.on_reading(&row));
+                    out.readings.push(row);
+                }
                 Err(reject) => quarantine(&mut out, reject),
             }
         }

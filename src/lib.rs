@@ -8,6 +8,7 @@ pub mod cli;
 pub mod config;
 #[cfg(feature = "demo-broker")]
 pub mod demo;
+pub mod derive;
 pub mod domain;
 pub mod engine;
 pub mod ingest;

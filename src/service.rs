@@ -30,6 +30,16 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
             engine.remember_barometer(&b, t, p);
         }
     }
+    for l in store.latest_all()? {
+        if let Some(head_m) = l.total_head_m {
+            let head = crate::derive::Head {
+                t_ms: l.t_ms,
+                head_m,
+                flags: l.flags,
+            };
+            engine.seed_head(&l.instrument, head);
+        }
+    }
     Ok((store, engine))
 }
 

@@ -1,0 +1,234 @@
+//! Derived quantities, computed live and in replay as readings arrive: vertical gradients of
+//! nested piezometers, toe checks, blanket-theory expectations and section phreatic lines.
+//!
+//! Owns input alignment (each input's latest head within the object's tolerance window; no
+//! value, with a reason, when an input is missing, stale or flagged) and the naming of derived
+//! quantities. The engineering is in `domain`; nothing here does I/O or reads the clock.
+
+mod objects;
+#[cfg(test)]
+mod tests;
+
+use std::collections::HashMap;
+use std::sync::Arc;
+
+use crate::config::{Config, Level};
+use crate::quality::Flags;
+use crate::store::{DerivedRow, ReadingRow};
+
+pub use objects::section_input;
+
+/// Reading flags that make a head unfit for derived quantities.
+pub const EXCLUDING_FLAGS: Flags = Flags(Flags::BARO_MISSING.0 | Flags::TEMP_MISSING.0);
+
+/// The latest usable state of one instrument.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Head {
+    pub t_ms: i64,
+    /// Total head (piezometric elevation) or water-surface elevation, m.
+    pub head_m: f64,
+    pub flags: Flags,
+}
+
+/// Which object an instrument feeds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum ObjRef {
+    Cluster(usize),
+    Toe(usize),
+    Blanket(usize),
+    Section(usize),
+}
+
+/// The derived-quantity state: latest heads and which objects depend on which instruments.
+pub struct Deriver {
+    cfg: Arc<Config>,
+    /// Latest head by instrument id (the newest by reading time).
+    latest: HashMap<String, Head>,
+    /// Instrument id → the objects it is an input of.
+    dependents: HashMap<String, Vec<ObjRef>>,
+}
+
+/// One computed quantity before it becomes a row.
+pub(crate) struct Quantity {
+    pub name: String,
+    pub value: Option<f64>,
+    pub unit: &'static str,
+    pub reason: Option<String>,
+}
+
+impl Quantity {
+    pub(crate) fn some(name: impl Into<String>, value: f64, unit: &'static str) -> Quantity {
+        Quantity {
+            name: name.into(),
+            value: Some(value),
+            unit,
+            reason: None,
+        }
+    }
+    pub(crate) fn none(
+        name: impl Into<String>,
+        unit: &'static str,
+        reason: impl Into<String>,
+    ) -> Quantity {
+        Quantity {
+            name: name.into(),
+            value: None,
+            unit,
+            reason: Some(reason.into()),
+        }
+    }
+}
+
+impl Deriver {
+    pub fn new(cfg: Arc<Config>) -> Deriver {
+        let mut dependents: HashMap<String, Vec<ObjRef>> = HashMap::new();
+        let mut add = |id: &str, o: ObjRef| dependents.entry(id.to_string()).or_default().push(o);
+        let level = |l: &Option<Level>| match l {
+            Some(Level::Gauge(g)) => Some(g.clone()),
+            _ => None,
+        };
+        let objs = &cfg.objects;
+        for (k, c) in objs.clusters.iter().enumerate() {
+            c.piezometers
+                .iter()
+                .for_each(|p| add(p, ObjRef::Cluster(k)));
+        }
+        for (k, t) in objs.toes.iter().enumerate() {
+            add(&t.piezometer, ObjRef::Toe(k));
+            if let Some(g) = level(&t.water) {
+                add(&g, ObjRef::Toe(k));
+            }
+        }
+        for (k, b) in objs.blankets.iter().enumerate() {
+            add(&b.river_gauge, ObjRef::Blanket(k));
+            if let Some(g) = level(&Some(b.landside_level.clone())) {
+                add(&g, ObjRef::Blanket(k));
+            }
+            if let Some(p) = &b.toe_piezometer {
+                add(p, ObjRef::Blanket(k));
+            }
+        }
+        for (k, s) in objs.sections.iter().enumerate() {
+            add(&s.pool_gauge, ObjRef::Section(k));
+            if let Some(g) = level(&s.tail) {
+                add(&g, ObjRef::Section(k));
+            }
+            s.piezometers
+                .iter()
+                .for_each(|p| add(p, ObjRef::Section(k)));
+        }
+        Deriver {
+            cfg,
+            latest: HashMap::new(),
+            dependents,
+        }
+    }
+
+    /// Whether any object uses this instrument.
+    pub fn is_input(&self, instrument: &str) -> bool {
+        self.dependents.contains_key(instrument)
+    }
+
+    /// Remember a head without computing anything (seeding from the store at start).
+    pub fn seed(&mut self, instrument: &str, head: Head) {
+        self.remember(instrument, head);
+    }
+
+    /// The latest head known for `instrument`.
+    pub fn latest(&self, instrument: &str) -> Option<Head> {
+        self.latest.get(instrument).copied()
+    }
+
+    fn remember(&mut self, instrument: &str, head: Head) {
+        match self.latest.get(instrument) {
+            Some(h) if h.t_ms > head.t_ms => {}
+            _ => {
+                self.latest.insert(instrument.to_string(), head);
+            }
+        }
+    }
+
+    /// A new reading: remember it and recompute every object it feeds, at its time.
+    pub fn on_reading(&mut self, row: &ReadingRow) -> Vec<DerivedRow> {
+        let Some(head_m) = row.total_head_m else {
+            return Vec::new();
+        };
+        let head = Head {
+            t_ms: row.t_ms,
+            head_m,
+            flags: row.flags,
+        };
+        self.remember(&row.instrument, head);
+        let Some(objs) = self.dependents.get(&row.instrument).cloned() else {
+            return Vec::new();
+        };
+        let inputs = Inputs {
+            deriver: self,
+            trigger: (&row.instrument, head),
+            t_ms: row.t_ms,
+        };
+        let mut out = Vec::new();
+        for o in objs {
+            let (id, names, qs) = match o {
+                ObjRef::Cluster(k) => objects::cluster(&self.cfg.objects.clusters[k], &inputs),
+                ObjRef::Toe(k) => objects::toe(&self.cfg, &self.cfg.objects.toes[k], &inputs),
+                ObjRef::Blanket(k) => objects::blanket(&self.cfg.objects.blankets[k], &inputs),
+                ObjRef::Section(k) => {
+                    objects::section(&self.cfg, &self.cfg.objects.sections[k], &inputs)
+                }
+            };
+            out.extend(qs.into_iter().map(|q| DerivedRow {
+                object: id.clone(),
+                quantity: q.name,
+                t_ms: row.t_ms,
+                value: q.value,
+                unit: q.unit,
+                reason: q.reason,
+                inputs: names.clone(),
+            }));
+        }
+        out
+    }
+}
+
+/// Input lookup for one recomputation at time `t_ms`.
+pub(crate) struct Inputs<'a> {
+    deriver: &'a Deriver,
+    /// The reading that triggered it (used as is, even if older than the latest).
+    trigger: (&'a str, Head),
+    t_ms: i64,
+}
+
+impl Inputs<'_> {
+    /// The head of `id` aligned to the computation time, or why there is none.
+    pub(crate) fn head(&self, id: &str, tolerance_s: i64) -> Result<f64, String> {
+        let h = if id == self.trigger.0 {
+            self.trigger.1
+        } else {
+            *self
+                .deriver
+                .latest
+                .get(id)
+                .ok_or_else(|| format!("input {id} has no reading yet"))?
+        };
+        let dt_s = (h.t_ms - self.t_ms).abs() / 1000;
+        if dt_s > tolerance_s {
+            return Err(format!(
+                "input {id} is stale ({dt_s} s from this time; tolerance {tolerance_s} s)"
+            ));
+        }
+        let bad = Flags(h.flags.0 & EXCLUDING_FLAGS.0);
+        if !bad.is_empty() {
+            return Err(format!("input {id} is flagged {}", bad.names().join(",")));
+        }
+        Ok(h.head_m)
+    }
+
+    /// A water level: a fixed elevation or a gauge's aligned elevation.
+    pub(crate) fn level(&self, level: &Level, tolerance_s: i64) -> Result<f64, String> {
+        match level {
+            Level::Fixed(m) => Ok(*m),
+            Level::Gauge(g) => self.head(g, tolerance_s),
+        }
+    }
+}
