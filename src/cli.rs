@@ -53,6 +53,23 @@ pub enum Command {
         #[arg(long, value_name = "FILE")]
         output: Option<PathBuf>,
     },
+    /// Draw a cross-section (phreatic line, exit point) as SVG from the stored heads.
+    Section {
+        #[arg(long, value_name = "DIR")]
+        config: PathBuf,
+        /// Section id.
+        #[arg(long)]
+        id: String,
+        /// Time (RFC 3339); default: now (the latest heads).
+        #[arg(long)]
+        at: Option<String>,
+        /// Database (default: the configured one).
+        #[arg(long, value_name = "FILE")]
+        db: Option<PathBuf>,
+        /// Output file (default: standard output).
+        #[arg(long, value_name = "FILE")]
+        out: Option<PathBuf>,
+    },
     /// Run a self-contained demo: embedded broker, the service and simulated loggers.
     Demo {
         /// Seconds of wall time per simulated day.
@@ -163,6 +180,33 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
                 "replay: {} lines, {} readings stored, {} duplicates, {} quarantined, {} records in {:.3} s",
                 t.lines, t.readings, t.duplicates, t.quarantined, t.records, secs
             );
+            Ok(0)
+        }
+        Command::Section {
+            config,
+            id,
+            at,
+            db,
+            out,
+        } => {
+            let cfg = match load(&config) {
+                Ok(c) => c,
+                Err(code) => return Ok(code),
+            };
+            let at = match at {
+                Some(t) => chrono::DateTime::parse_from_rfc3339(&t)
+                    .with_context(|| format!("--at {t:?} is not an RFC 3339 time"))?
+                    .with_timezone(&chrono::Utc),
+                None => chrono::Utc::now(),
+            };
+            let store = crate::store::Store::open(db.as_ref().unwrap_or(&cfg.service.database))?;
+            let svg = crate::section_cmd::render(&cfg, &store, &id, at)?;
+            match out {
+                Some(p) => {
+                    std::fs::write(&p, svg).with_context(|| format!("writing {}", p.display()))?
+                }
+                None => print!("{svg}"),
+            }
             Ok(0)
         }
         Command::Demo {

@@ -14,5 +14,6 @@ pub mod engine;
 pub mod ingest;
 pub mod quality;
 pub mod replay;
+pub mod section_cmd;
 pub mod service;
 pub mod store;

@@ -203,6 +203,35 @@ fn print_summary(db: &std::path::Path, counters: &Counters) {
             }
         }
     }
+    if let Ok(derived) = store.latest_derived() {
+        const SHOWN: [&str; 8] = [
+            "vertical_gradient",
+            "exit_gradient",
+            "factor_of_safety",
+            "expected_excess_head",
+            "measured_excess_head",
+            "effective_x3",
+            "exit_elevation",
+            "seepage_face_height",
+        ];
+        for d in derived
+            .iter()
+            .filter(|d| SHOWN.contains(&d.quantity.as_str()))
+        {
+            match d.value {
+                Some(v) => s.push_str(&format!(
+                    "  {:<10} {:<22} {v:9.3} {}\n",
+                    d.object, d.quantity, d.unit
+                )),
+                None => s.push_str(&format!(
+                    "  {:<10} {:<22}         — ({})\n",
+                    d.object,
+                    d.quantity,
+                    d.reason.as_deref().unwrap_or("no value")
+                )),
+            }
+        }
+    }
     if let Ok(q) = store.quarantine_counts() {
         if !q.is_empty() {
             let parts: Vec<String> = q.iter().map(|(r, n)| format!("{r}={n}")).collect();

@@ -98,6 +98,17 @@ pub struct Latest {
     pub flags: Flags,
 }
 
+/// The latest value of a derived quantity.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LatestDerived {
+    pub object: String,
+    pub quantity: String,
+    pub t_ms: i64,
+    pub value: Option<f64>,
+    pub unit: String,
+    pub reason: Option<String>,
+}
+
 /// The database.
 pub struct Store {
     /// The one connection; the store is used from one thread at a time.
@@ -313,6 +324,52 @@ impl Store {
              WHERE instrument = ?1 AND t_ms >= ?2 AND pressure_kpa IS NOT NULL ORDER BY t_ms",
         )?;
         let rows = st.query_map(params![barometer, since_ms], |r| Ok((r.get(0)?, r.get(1)?)))?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// The latest total head of `instrument` at or before `t_ms`: (time ms, head m, flags).
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn head_at(
+        &self,
+        instrument: &str,
+        t_ms: i64,
+    ) -> Result<Option<(i64, f64, Flags)>, StoreError> {
+        Ok(self
+            .conn
+            .query_row(
+                "SELECT t_ms, total_head_m, flags FROM readings
+                 WHERE instrument = ?1 AND t_ms <= ?2 AND total_head_m IS NOT NULL
+                 ORDER BY t_ms DESC LIMIT 1",
+                params![instrument, t_ms],
+                |r| Ok((r.get(0)?, r.get(1)?, Flags(r.get(2)?))),
+            )
+            .optional()?)
+    }
+
+    /// The latest value of every derived (object, quantity): (object, quantity, t_ms, value,
+    /// unit, reason).
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn latest_derived(&self) -> Result<Vec<LatestDerived>, StoreError> {
+        let mut st = self.conn.prepare(
+            "SELECT d.object, d.quantity, d.t_ms, d.value, d.unit, d.reason FROM derived d
+             JOIN (SELECT object, quantity, max(t_ms) AS t FROM derived GROUP BY object, quantity) m
+               ON m.object = d.object AND m.quantity = d.quantity AND m.t = d.t_ms
+             ORDER BY d.object, d.quantity",
+        )?;
+        let rows = st.query_map([], |r| {
+            Ok(LatestDerived {
+                object: r.get(0)?,
+                quantity: r.get(1)?,
+                t_ms: r.get(2)?,
+                value: r.get(3)?,
+                unit: r.get(4)?,
+                reason: r.get(5)?,
+            })
+        })?;
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
