@@ -18,4 +18,5 @@ if [ ${#need[@]} -gt 0 ]; then
   DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq "${need[@]}"
 fi
 
-cargo test --all-targets "$@"
+# Library, binary and integration tests (benches are run with `cargo bench`, not here).
+cargo test "$@"
