@@ -335,8 +335,8 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
     out
 }
 
-/// Human summary for `seepd check`: sites, instruments per site and kind, topic filters
-/// subscribed, database path.
+/// Human summary for `seepd check`: sites, instruments per site and kind, objects per site and
+/// table (with their ids), topic filters subscribed, database path.
 pub fn summary(cfg: &Config) -> String {
     let mut s = String::new();
     let m = &cfg.mqtt;
@@ -383,19 +383,41 @@ pub fn summary(cfg: &Config) -> String {
             .file
             .file_name()
             .map_or_else(String::new, |n| n.to_string_lossy().into_owned());
+        let objects = site_objects(&cfg.objects, &site.id);
         let _ = writeln!(
             s,
-            "  {}: {:?}, file {}, {} instruments",
+            "  {}: {:?}, file {}, {} instruments, {} objects",
             site.id,
             site.name,
             file,
-            kinds.values().sum::<usize>()
+            kinds.values().sum::<usize>(),
+            objects.iter().map(|(_, ids)| ids.len()).sum::<usize>()
         );
         for (kind, n) in kinds {
             let _ = writeln!(s, "    {kind}: {n}");
         }
+        for (table, ids) in objects.iter().filter(|(_, ids)| !ids.is_empty()) {
+            let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
+        }
     }
     s
+}
+
+/// A site's object ids per table name, in the order the tables are read.
+fn site_objects<'a>(o: &'a Objects, site: &str) -> [(&'static str, Vec<&'a str>); 4] {
+    fn ids<'a, T>(v: &'a [T], site: &str, f: fn(&T) -> (&str, &str)) -> Vec<&'a str> {
+        v.iter()
+            .map(f)
+            .filter(|(s, _)| *s == site)
+            .map(|(_, id)| id)
+            .collect()
+    }
+    [
+        ("cluster", ids(&o.clusters, site, |c| (&c.site, &c.id))),
+        ("toe", ids(&o.toes, site, |t| (&t.site, &t.id))),
+        ("blanket", ids(&o.blankets, site, |b| (&b.site, &b.id))),
+        ("section", ids(&o.sections, site, |x| (&x.site, &x.id))),
+    ]
 }
 
 #[cfg(test)]
