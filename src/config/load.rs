@@ -425,3 +425,9 @@ mod tests;
 
 #[cfg(test)]
 mod check_tests;
+
+#[cfg(test)]
+mod object_tests;
+
+#[cfg(test)]
+mod object_check_tests;

@@ -2,20 +2,21 @@
 //! `[[section]]` — into the `model` objects, lengths converted to metres.
 //!
 //! Owns each object's keys, the keys that exclude or need each other, the ranges of numbers and
-//! the shape of a section's ground line. It must not decide what a reference names: whether the
-//! instrument exists, belongs to the same site and is of the right kind, and the default
-//! tolerance (from the inputs' intervals) need every site file, so `read` records each reference
-//! and `refs::resolve` settles them for `load`.
+//! the shape of a section's ground line (`values` holds the typed reads they share, `blanket` the
+//! blanket table). It must not decide what a reference names: whether the instrument exists,
+//! belongs to the same site and is of the right kind, and the default tolerance (from the
+//! inputs' intervals) need every site file, so `read` records each reference and
+//! `refs::resolve` settles them for `load`.
 
+mod blanket;
 mod refs;
+mod values;
 
-use super::model::{
-    BlanketReach, Cluster, CriticalGradientFrom, LandsideCase, Level, RiversideCase, Section,
-    ToeCheck,
-};
+use super::model::{BlanketReach, Cluster, CriticalGradientFrom, Section, ToeCheck};
 use super::problem::Cx;
 use super::reader::{finite, Tbl};
 use super::site::Pos;
+use values::{Reader, Rule};
 
 pub(crate) use refs::{resolve, Known};
 
@@ -118,7 +119,7 @@ fn entry(
     let object = match table {
         "cluster" => cluster(cx, r, name, site).map(Object::Cluster),
         "toe" => toe(cx, r, name, site, gamma_w).map(Object::Toe),
-        "blanket" => blanket(cx, r, name, site).map(Object::Blanket),
+        "blanket" => blanket::blanket(cx, r, name, site).map(Object::Blanket),
         _ => section(cx, r, name, site).map(Object::Section),
     };
     let ok = id.is_some() && cx.problems.len() == before;
@@ -129,214 +130,6 @@ fn entry(
         refs: std::mem::take(&mut r.refs),
         tolerance_s,
         object: object.filter(|_| ok),
-    }
-}
-
-/// The spelling of a case, for messages.
-fn name<T: PartialEq>(options: &[(&'static str, T)], case: &T) -> &'static str {
-    options
-        .iter()
-        .find(|(_, o)| o == case)
-        .map_or("", |(n, _)| *n)
-}
-
-/// What a number must be.
-#[derive(Clone, Copy)]
-enum Rule {
-    Any,
-    Positive,
-    NonNegative,
-    Above(f64),
-}
-
-impl Rule {
-    fn admits(self, v: f64) -> bool {
-        match self {
-            Rule::Any => true,
-            Rule::Positive => v > 0.0,
-            Rule::NonNegative => v >= 0.0,
-            Rule::Above(lo) => v > lo,
-        }
-    }
-
-    fn text(self) -> String {
-        match self {
-            Rule::Any => "a number".into(),
-            Rule::Positive => "a number > 0".into(),
-            Rule::NonNegative => "a number >= 0".into(),
-            Rule::Above(lo) => format!("a number > {lo}"),
-        }
-    }
-}
-
-/// One object table being read, with the references found so far.
-struct Reader<'t> {
-    t: Tbl<'t>,
-    /// Metres per unit of the site's `length_unit`.
-    m: f64,
-    refs: Vec<Ref>,
-}
-
-impl Reader<'_> {
-    /// A finite number obeying `rule`, as written (no unit conversion).
-    fn number(&self, cx: &mut Cx<'_>, key: &str, req: bool, rule: Rule) -> Option<f64> {
-        let v = self.t.number(cx, key, req)?;
-        if !rule.admits(v) {
-            let expected = rule.text();
-            self.t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {v}, expected {expected}"),
-            );
-            return None;
-        }
-        Some(v)
-    }
-
-    /// A length in the site's unit obeying `rule`, in metres.
-    fn length(&self, cx: &mut Cx<'_>, key: &str, req: bool, rule: Rule) -> Option<f64> {
-        self.number(cx, key, req, rule).map(|v| v * self.m)
-    }
-
-    /// One instrument id under `key`, recorded as a reference.
-    fn reference(
-        &mut self,
-        cx: &mut Cx<'_>,
-        key: &'static str,
-        req: bool,
-        want: Want,
-    ) -> Option<String> {
-        if req && !self.t.has(key) {
-            self.t.missing(cx, key, "");
-            return None;
-        }
-        let id = self.t.nonempty(cx, key)?;
-        let pos = cx.pos(self.t.value_span(key));
-        self.refs.push(Ref {
-            key,
-            id: id.clone(),
-            pos,
-            want,
-        });
-        Some(id)
-    }
-
-    /// A list of at least `min` distinct instrument ids under `key` (`noun`: what each is, for
-    /// messages), each recorded as a reference.
-    fn references(
-        &mut self,
-        cx: &mut Cx<'_>,
-        key: &'static str,
-        min: usize,
-        noun: &str,
-        want: Want,
-    ) -> Option<Vec<String>> {
-        let ids = self.t.array(
-            cx,
-            key,
-            true,
-            (
-                "an array of instrument ids",
-                "an instrument id (a non-empty string)",
-            ),
-            |v| {
-                v.as_str()
-                    .filter(|s| !s.trim().is_empty())
-                    .map(String::from)
-            },
-        )?;
-        let before = cx.problems.len();
-        if ids.len() < min {
-            self.t.problem_at(
-                cx,
-                key,
-                format!(
-                    "key \"{key}\" lists {} {noun}(s), expected at least {min}",
-                    ids.len()
-                ),
-            );
-        }
-        for (i, (id, span)) in ids.iter().enumerate() {
-            if ids[..i].iter().any(|(earlier, _)| earlier == id) {
-                cx.at(
-                    span.clone(),
-                    format!(
-                        "{}: key \"{key}\" lists {id:?} twice; expected distinct {noun}s",
-                        self.t.what
-                    ),
-                );
-                continue;
-            }
-            let pos = cx.pos(span.clone().or_else(|| self.t.value_span(key)));
-            self.refs.push(Ref {
-                key,
-                id: id.clone(),
-                pos,
-                want,
-            });
-        }
-        let ids = ids.into_iter().map(|(id, _)| id).collect();
-        Some(ids).filter(|_| cx.problems.len() == before)
-    }
-
-    /// A level from a stage gauge (`gauge_key`) or a fixed elevation (`level_key`): never both;
-    /// one of them when `req`. `None` when neither is written (or after a problem).
-    fn level(
-        &mut self,
-        cx: &mut Cx<'_>,
-        gauge_key: &'static str,
-        level_key: &str,
-        req: bool,
-    ) -> Option<Level> {
-        let (g, l) = (self.t.has(gauge_key), self.t.has(level_key));
-        if g && l {
-            self.t.problem_at(
-                cx,
-                level_key,
-                format!(
-                    "both \"{gauge_key}\" and \"{level_key}\" are set; expected only one \
-                     (a stage gauge for a measured level, or a fixed elevation)"
-                ),
-            );
-        } else if req && !g && !l {
-            self.t.problem(
-                cx,
-                format!(
-                    "missing key \"{level_key}\" or \"{gauge_key}\" in {}; expected a fixed \
-                     elevation or a stage gauge",
-                    self.t.header
-                ),
-            );
-        }
-        let gauge = self.reference(cx, gauge_key, false, Want::StageGauge);
-        let fixed = self.length(cx, level_key, false, Rule::Any);
-        match (gauge, fixed) {
-            (Some(id), None) => Some(Level::Gauge(id)),
-            (None, Some(m)) => Some(Level::Fixed(m)),
-            _ => None,
-        }
-    }
-
-    /// A length that `case` needs (`needed`) or that does not apply to it.
-    fn case_length(
-        &self,
-        cx: &mut Cx<'_>,
-        key: &str,
-        case_key: &str,
-        case: &str,
-        needed: bool,
-    ) -> Option<f64> {
-        if needed && !self.t.has(key) {
-            self.t
-                .missing(cx, key, &format!(" (required for {case_key} = \"{case}\")"));
-        } else if !needed && self.t.has(key) {
-            self.t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" does not apply to {case_key} = \"{case}\"; remove it or change {case_key}"),
-            );
-        }
-        self.length(cx, key, false, Rule::Positive)
     }
 }
 
@@ -439,134 +232,6 @@ fn critical(cx: &mut Cx<'_>, r: &Reader<'_>, gamma_w: f64) -> Option<CriticalGra
     Some(CriticalGradientFrom::GsE {
         specific_gravity: gs?,
         void_ratio: e?,
-    })
-}
-
-const BLANKET_KEYS: [&str; 16] = [
-    "id",
-    "river_gauge",
-    "landside_level",
-    "landside_gauge",
-    "toe_piezometer",
-    "base_width",
-    "foundation_thickness",
-    "k_foundation_m_s",
-    "k_blanket_m_s",
-    "blanket_thickness",
-    "riverside",
-    "l1",
-    "landside",
-    "l3",
-    "distances",
-    "tolerance_s",
-];
-
-#[derive(Clone, Copy, PartialEq)]
-enum River {
-    Open,
-    NoBlanket,
-    Impervious,
-}
-
-#[derive(Clone, Copy, PartialEq)]
-enum Land {
-    Endless,
-    SeepageBlock,
-    OpenExit,
-    Impervious,
-}
-
-const RIVERSIDE: [(&str, River); 3] = [
-    ("open_entrance", River::Open),
-    ("no_blanket", River::NoBlanket),
-    ("impervious", River::Impervious),
-];
-
-const LANDSIDE: [(&str, Land); 4] = [
-    ("endless", Land::Endless),
-    ("seepage_block", Land::SeepageBlock),
-    ("open_exit", Land::OpenExit),
-    ("impervious", Land::Impervious),
-];
-
-fn blanket(cx: &mut Cx<'_>, r: &mut Reader<'_>, id: String, site: String) -> Option<BlanketReach> {
-    r.t.check_keys(cx, &BLANKET_KEYS);
-    let river_gauge = r.reference(cx, "river_gauge", true, Want::StageGauge);
-    let landside_level = r.level(cx, "landside_gauge", "landside_level", true);
-    let toe_piezometer = r.reference(cx, "toe_piezometer", false, Want::Piezometer);
-    let base_width = r.length(cx, "base_width", true, Rule::Positive);
-    let d = r.length(cx, "foundation_thickness", true, Rule::Positive);
-    let k_f = r.number(cx, "k_foundation_m_s", true, Rule::Positive);
-    let k_b = r.number(cx, "k_blanket_m_s", true, Rule::NonNegative);
-    let z_bl = r.length(cx, "blanket_thickness", true, Rule::Positive);
-    let river = r.t.choice(cx, "riverside", true, &RIVERSIDE);
-    let land = r.t.choice(cx, "landside", true, &LANDSIDE);
-    let riverside = river.and_then(|c| {
-        let l1 = r.case_length(
-            cx,
-            "l1",
-            "riverside",
-            name(&RIVERSIDE, &c),
-            c != River::NoBlanket,
-        );
-        match c {
-            River::Open => l1.map(|l1_m| RiversideCase::OpenEntranceAt { l1_m }),
-            River::NoBlanket => Some(RiversideCase::NoBlanket),
-            River::Impervious => l1.map(|l1_m| RiversideCase::Impervious { l1_m }),
-        }
-    });
-    let landside = land.and_then(|c| {
-        let l3 = r.case_length(
-            cx,
-            "l3",
-            "landside",
-            name(&LANDSIDE, &c),
-            c != Land::Endless,
-        );
-        match c {
-            Land::Endless => Some(LandsideCase::Endless),
-            Land::SeepageBlock => l3.map(|l3_m| LandsideCase::SeepageBlockAt { l3_m }),
-            Land::OpenExit => l3.map(|l3_m| LandsideCase::OpenExitAt { l3_m }),
-            Land::Impervious => l3.map(|l3_m| LandsideCase::Impervious { l3_m }),
-        }
-    });
-    let both_impervious = river == Some(River::Impervious) && land == Some(Land::Impervious);
-    if k_b == Some(0.0) && !both_impervious {
-        r.t.problem_at(
-            cx,
-            "k_blanket_m_s",
-            "key \"k_blanket_m_s\" is 0, expected a number > 0 unless riverside and landside are both \"impervious\" (the other cases need a leaky blanket)",
-        );
-    }
-    let distances = r.t.array(
-        cx,
-        "distances",
-        false,
-        (
-            "an array of distances",
-            "a distance >= 0 landward of the toe",
-        ),
-        |v| finite(v).filter(|d| *d >= 0.0),
-    );
-    Some(BlanketReach {
-        id,
-        site,
-        river_gauge: river_gauge?,
-        landside_level: landside_level?,
-        toe_piezometer,
-        base_width_m: base_width?,
-        foundation_thickness_m: d?,
-        k_foundation_m_s: k_f?,
-        k_blanket_m_s: k_b?,
-        blanket_thickness_m: z_bl?,
-        riverside: riverside?,
-        landside: landside?,
-        distances_m: distances
-            .unwrap_or_default()
-            .into_iter()
-            .map(|(d, _)| d * r.m)
-            .collect(),
-        tolerance_s: 0,
     })
 }
 
