@@ -3,8 +3,9 @@
 //! or return every problem found, located.
 //!
 //! Owns the directory layout (`seepd.toml` plus one `*.toml` per site, in file-name order), the
-//! cross-file checks (unique ids, barometer references, logger channels) and the `seepd check`
-//! summary. Per-table keys and checks live in `service`, `site` and `kinds`.
+//! cross-file checks (unique ids of instruments and objects, barometer references, logger
+//! channels, object references through `objects::resolve`) and the `seepd check` summary.
+//! Per-table keys and checks live in `service`, `site`, `kinds` and `objects`.
 
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
@@ -12,7 +13,8 @@ use std::path::{Path, PathBuf};
 
 use toml_edit::ImDocument;
 
-use super::model::{Config, PayloadFormat};
+use super::model::{Config, Objects, PayloadFormat};
+use super::objects::{self, Known, Object};
 use super::problem::{whole_file, Cx};
 use super::reader::Tbl;
 use super::service::{self, Env, ServiceFile};
@@ -87,7 +89,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             Some((p.clone(), sf))
         })
         .collect();
-    cross_checks(&sites, &mut problems);
+    let objects = cross_checks(&sites, &mut problems);
 
     if !problems.is_empty() {
         let order = |p: &Problem| {
@@ -114,7 +116,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         subscriptions,
         sites: Vec::new(),
         instruments: BTreeMap::new(),
-        objects: Default::default(),
+        objects,
     };
     for (_, sf) in sites {
         cfg.sites.extend(sf.site);
@@ -191,9 +193,10 @@ fn problem(file: &Path, pos: Pos, message: String) -> Problem {
     }
 }
 
-/// Checks across all site files: unique site ids, unique instrument ids, barometer references
-/// to barometers, unique (logger, channel) pairs.
-fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) {
+/// Checks across all site files: unique site ids, unique instrument and object ids, barometer
+/// references to barometers, unique (logger, channel) pairs, object references. Returns the
+/// objects that passed (all of them when there are no problems at all).
+fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> Objects {
     let mut site_ids: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
     for (file, sf) in sites {
         let Some((id, pos)) = &sf.id else { continue };
@@ -259,10 +262,81 @@ fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) {
             problems.push(problem(file, *pos, msg));
         }
     }
+    object_checks(sites, problems)
 }
 
-/// Human summary for `seepd check`: sites, instruments per site and kind, topic filters
-/// subscribed, database path.
+/// The site id of a site file ("" when unreadable).
+fn site_of(sf: &SiteFile) -> &str {
+    sf.id.as_ref().map_or("", |(s, _)| s.as_str())
+}
+
+/// Object ids unique among all instruments and objects; object references settled.
+fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> Objects {
+    let mut known: BTreeMap<&str, Known<'_>> = BTreeMap::new();
+    for (file, sf) in sites {
+        for e in &sf.entries {
+            let Some((id, pos)) = &e.id else { continue };
+            known.entry(id).or_insert_with(|| Known {
+                at: at(file, *pos),
+                site: site_of(sf),
+                kind: e.kind,
+                object: false,
+                has_tip: e.has_tip,
+                has_station: e.has_station,
+                interval_s: e.instrument.as_ref().map(|i| i.interval_s),
+            });
+        }
+    }
+    for (file, sf) in sites {
+        for o in &sf.objects {
+            let Some((id, pos)) = &o.id else { continue };
+            if let Some(k) = known.get(id.as_str()) {
+                let by = if k.object {
+                    format!("a [[{}]]", k.kind.unwrap_or_default())
+                } else {
+                    "an instrument".into()
+                };
+                let msg = format!(
+                    "{} id {id:?} is already used by {by} at {}; expected ids unique across all \
+                     instruments and objects of all sites",
+                    o.table, k.at
+                );
+                problems.push(problem(file, *pos, msg));
+                continue;
+            }
+            known.insert(
+                id,
+                Known {
+                    at: at(file, *pos),
+                    site: site_of(sf),
+                    kind: Some(o.table),
+                    object: true,
+                    has_tip: false,
+                    has_station: false,
+                    interval_s: None,
+                },
+            );
+        }
+    }
+    let mut out = Objects::default();
+    for (file, sf) in sites {
+        for o in &sf.objects {
+            let (found, object) = objects::resolve(o, site_of(sf), &known);
+            problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
+            match object {
+                Some(Object::Cluster(c)) => out.clusters.push(c),
+                Some(Object::Toe(t)) => out.toes.push(t),
+                Some(Object::Blanket(b)) => out.blankets.push(b),
+                Some(Object::Section(s)) => out.sections.push(s),
+                None => {}
+            }
+        }
+    }
+    out
+}
+
+/// Human summary for `seepd check`: sites, instruments per site and kind, objects per site and
+/// table (with their ids), topic filters subscribed, database path.
 pub fn summary(cfg: &Config) -> String {
     let mut s = String::new();
     let m = &cfg.mqtt;
@@ -309,19 +383,41 @@ pub fn summary(cfg: &Config) -> String {
             .file
             .file_name()
             .map_or_else(String::new, |n| n.to_string_lossy().into_owned());
+        let objects = site_objects(&cfg.objects, &site.id);
         let _ = writeln!(
             s,
-            "  {}: {:?}, file {}, {} instruments",
+            "  {}: {:?}, file {}, {} instruments, {} objects",
             site.id,
             site.name,
             file,
-            kinds.values().sum::<usize>()
+            kinds.values().sum::<usize>(),
+            objects.iter().map(|(_, ids)| ids.len()).sum::<usize>()
         );
         for (kind, n) in kinds {
             let _ = writeln!(s, "    {kind}: {n}");
         }
+        for (table, ids) in objects.iter().filter(|(_, ids)| !ids.is_empty()) {
+            let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
+        }
     }
     s
+}
+
+/// A site's object ids per table name, in the order the tables are read.
+fn site_objects<'a>(o: &'a Objects, site: &str) -> [(&'static str, Vec<&'a str>); 4] {
+    fn ids<'a, T>(v: &'a [T], site: &str, f: fn(&T) -> (&str, &str)) -> Vec<&'a str> {
+        v.iter()
+            .map(f)
+            .filter(|(s, _)| *s == site)
+            .map(|(_, id)| id)
+            .collect()
+    }
+    [
+        ("cluster", ids(&o.clusters, site, |c| (&c.site, &c.id))),
+        ("toe", ids(&o.toes, site, |t| (&t.site, &t.id))),
+        ("blanket", ids(&o.blankets, site, |b| (&b.site, &b.id))),
+        ("section", ids(&o.sections, site, |x| (&x.site, &x.id))),
+    ]
 }
 
 #[cfg(test)]
@@ -329,3 +425,9 @@ mod tests;
 
 #[cfg(test)]
 mod check_tests;
+
+#[cfg(test)]
+mod object_tests;
+
+#[cfg(test)]
+mod object_check_tests;

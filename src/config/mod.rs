@@ -1,9 +1,10 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
-//! (`load`, with `service`, `site` and `kinds` reading the tables through `reader`).
+//! (`load`, with `service`, `site`, `kinds` and `objects` reading the tables through `reader`).
 
 mod kinds;
 pub mod load;
 pub mod model;
+mod objects;
 mod problem;
 mod reader;
 mod service;

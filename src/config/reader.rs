@@ -33,6 +33,11 @@ pub(crate) fn found(v: &Value) -> String {
     }
 }
 
+/// A finite number (integers are accepted as numbers).
+pub(crate) fn finite(v: &Value) -> Option<f64> {
+    number(v).filter(|n| n.is_finite())
+}
+
 fn found_item(item: &Item) -> String {
     match item {
         Item::Value(v) => found(v),
@@ -42,7 +47,7 @@ fn found_item(item: &Item) -> String {
     }
 }
 
-/// A finite number (integers are accepted as numbers).
+/// A number (integers are accepted as numbers), finite or not.
 fn number(v: &Value) -> Option<f64> {
     match v {
         Value::Float(f) => Some(*f.value()),
@@ -310,6 +315,37 @@ impl<'t> Tbl<'t> {
             return None;
         }
         Some(pair)
+    }
+
+    /// An array (`expected` describes it) whose every element `conv` accepts, each element with
+    /// its span (`req`: required). A problem names the first element `conv` rejects and what
+    /// each `element` should be.
+    pub fn array<T>(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        req: bool,
+        (expected, element): (&str, &str),
+        conv: impl Fn(&Value) -> Option<T>,
+    ) -> Option<Vec<(T, Option<Range<usize>>)>> {
+        let array = self.get(cx, key, req, expected, |v| v.as_array().cloned())?;
+        let mut out = Vec::with_capacity(array.len());
+        for (i, v) in array.iter().enumerate() {
+            let Some(t) = conv(v) else {
+                cx.at(
+                    v.span().or_else(|| self.value_span(key)),
+                    format!(
+                        "{}: key \"{key}\" element {} is {}, expected {element}",
+                        self.what,
+                        i + 1,
+                        found(v)
+                    ),
+                );
+                return None;
+            };
+            out.push((t, v.span()));
+        }
+        Some(out)
     }
 
     /// One of a fixed set of strings; the problem lists the accepted spellings.

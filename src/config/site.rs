@@ -1,8 +1,9 @@
-//! Reading one site file: the `[site]` table and its `[[instrument]]` tables.
+//! Reading one site file: the `[site]` table and its `[[instrument]]` tables (the object tables
+//! are read by `objects`).
 //!
 //! Owns the site keys, the keys every instrument has, the kind/sub-table agreement and the
-//! conversion of lengths to metres. Checks that span files (unique ids, barometer references,
-//! logger channels) belong to `load`, which gets what it needs in `Entry`.
+//! conversion of lengths to metres. Checks that span files (unique ids, barometer and object
+//! references, logger channels) belong to `load`, which gets what it needs in `Entry`.
 
 use std::path::Path;
 
@@ -12,6 +13,7 @@ use crate::domain::units::GAMMA_W_62_4_PCF_KN_M3;
 
 use super::kinds::{self, KINDS, LENGTH_UNITS, M_PER_FT};
 use super::model::{DisplayUnits, Instrument, LengthUnit, Location, Site};
+use super::objects::{self, ObjEntry};
 use super::problem::Cx;
 use super::reader::Tbl;
 
@@ -43,6 +45,10 @@ pub(crate) struct Entry {
     pub barometer: Option<(String, Pos)>,
     /// Logger and channel, and where the channel is written.
     pub logger_channel: Option<(String, String, Pos)>,
+    /// A `tip_elevation` is written (a standpipe counts as a piezometer only with one).
+    pub has_tip: bool,
+    /// A `station` is written (section piezometers need one).
+    pub has_station: bool,
     /// The validated instrument; `None` if it had problems (already reported).
     pub instrument: Option<Instrument>,
 }
@@ -53,12 +59,17 @@ pub(crate) struct SiteFile {
     pub id: Option<(String, Pos)>,
     pub site: Option<Site>,
     pub entries: Vec<Entry>,
+    /// The `[[cluster]]`, `[[toe]]`, `[[blanket]]` and `[[section]]` tables, in that order.
+    pub objects: Vec<ObjEntry>,
 }
 
 /// Read a site file's root table.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
-    root.check_keys(cx, &["site", "instrument"]);
+    let mut keys = vec!["site", "instrument"];
+    keys.extend(objects::TABLES);
+    root.check_keys(cx, &keys);
     let mut m_per_unit = 1.0;
+    let mut gamma_w = 9.81;
     let mut id = None;
     let site = match root.sub(cx, "site", "[site]") {
         Some(mut t) => {
@@ -107,11 +118,12 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
             if t.choice(cx, "length_unit", false, &LENGTH_UNITS) == Some(LengthUnit::Ft) {
                 m_per_unit = M_PER_FT;
             }
+            gamma_w = gamma.and_then(accepted_gamma_w).unwrap_or(gamma_w);
             let site = sid.map(|sid| Site {
                 name: name.unwrap_or_else(|| sid.clone()),
                 id: sid,
                 time_zone,
-                gamma_w_kn_m3: gamma.and_then(accepted_gamma_w).unwrap_or(9.81),
+                gamma_w_kn_m3: gamma_w,
                 display_units,
                 file: file.to_path_buf(),
             });
@@ -130,7 +142,13 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         .into_iter()
         .map(|mut t| instrument(cx, &mut t, &site_id, m_per_unit))
         .collect();
-    SiteFile { id, site, entries }
+    let objects = objects::read(cx, root, &site_id, m_per_unit, gamma_w);
+    SiteFile {
+        id,
+        site,
+        entries,
+        objects,
+    }
 }
 
 const COMMON_KEYS: [&str; 12] = [
@@ -213,6 +231,7 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
             );
         }
     }
+    let (has_tip, has_station) = (t.has("tip_elevation"), t.has("station"));
     let tip = t.number(cx, "tip_elevation", false).map(|v| v * m_per_unit);
     let location = Location {
         reach: t.nonempty(cx, "reach"),
@@ -274,6 +293,8 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
         kind: kind_name,
         barometer,
         logger_channel,
+        has_tip,
+        has_station,
         instrument,
     }
 }
