@@ -202,72 +202,78 @@ pub(super) fn blanket(b: &BlanketReach, inp: &Inputs<'_>) -> Computed {
     .collect();
     all.extend(b.distances_m.iter().map(|x| (at_distance(*x), "m")));
     if b.toe_piezometer.is_some() {
-        all.extend([
-            ("measured_excess_head".to_string(), "m"),
-            ("measured_residual_ratio".to_string(), "-"),
-            ("effective_x3".to_string(), "m"),
-        ]);
+        all.extend(MEASURED.iter().map(|(n, u)| (n.to_string(), *u)));
     }
-    let compute =
-        || -> Result<Vec<Quantity>, String> {
-            let river = inp.head(&b.river_gauge, b.tolerance_s)?;
-            let land = inp.level(&b.landside_level, b.tolerance_s)?;
-            let measured = match &b.toe_piezometer {
-                Some(p) => Some(inp.head(p, b.tolerance_s)? - land),
-                None => None,
-            };
-            let h = river - land;
-            if h <= 0.0 {
-                return Err(format!(
-                    "no net head: river {river:.3} m is not above the landside level {land:.3} m"
-                ));
-            }
-            let sol = blanket::solve(&BlanketConfig {
-                net_head_m: h,
-                base_width_m: b.base_width_m,
-                foundation_thickness_m: b.foundation_thickness_m,
-                k_foundation_m_s: b.k_foundation_m_s,
-                k_blanket_m_s: b.k_blanket_m_s,
-                blanket_thickness_m: b.blanket_thickness_m,
-                riverside: riverside(b.riverside),
-                landside: landside(b.landside),
-            })
-            .map_err(|e| e.to_string())?;
-            let note = sol
-                .outside_validity
-                .then(|| "k_f/k_b < 10: outside the theory's stated range".to_string());
-            let mut qs = vec![
-                Quantity::some("net_head", h, "m"),
-                Quantity::some("expected_excess_head", sol.toe_head_m, "m"),
-                Quantity::some("expected_exit_gradient", sol.exit_gradient, "-"),
-                Quantity::some("expected_residual_ratio", sol.residual_head_ratio, "-"),
-                Quantity::some("expected_flow", sol.flow_m2_s, "m2/s"),
-            ];
-            for x in &b.distances_m {
-                qs.push(match sol.head_landward_m(*x) {
-                    Some(v) => Quantity::some(at_distance(*x), v, "m"),
-                    None => Quantity::none(at_distance(*x), "m", "beyond the landside blanket"),
-                });
-            }
-            if let Some(h_o) = measured {
+    let compute = || -> Result<Vec<Quantity>, String> {
+        let river = inp.head(&b.river_gauge, b.tolerance_s)?;
+        let land = inp.level(&b.landside_level, b.tolerance_s)?;
+        // The expectation needs only the stages; an unusable toe piezometer leaves just
+        // the measured quantities without a value.
+        let measured = b
+            .toe_piezometer
+            .as_ref()
+            .map(|p| inp.head(p, b.tolerance_s).map(|h| h - land));
+        let h = river - land;
+        if h <= 0.0 {
+            return Err(format!(
+                "no net head: river {river:.3} m is not above the landside level {land:.3} m"
+            ));
+        }
+        let sol = blanket::solve(&BlanketConfig {
+            net_head_m: h,
+            base_width_m: b.base_width_m,
+            foundation_thickness_m: b.foundation_thickness_m,
+            k_foundation_m_s: b.k_foundation_m_s,
+            k_blanket_m_s: b.k_blanket_m_s,
+            blanket_thickness_m: b.blanket_thickness_m,
+            riverside: riverside(b.riverside),
+            landside: landside(b.landside),
+        })
+        .map_err(|e| e.to_string())?;
+        let note = sol
+            .outside_validity
+            .then(|| "k_f/k_b < 10: outside the theory's stated range".to_string());
+        let mut qs = vec![
+            Quantity::some("net_head", h, "m"),
+            Quantity::some("expected_excess_head", sol.toe_head_m, "m"),
+            Quantity::some("expected_exit_gradient", sol.exit_gradient, "-"),
+            Quantity::some("expected_residual_ratio", sol.residual_head_ratio, "-"),
+            Quantity::some("expected_flow", sol.flow_m2_s, "m2/s"),
+        ];
+        for x in &b.distances_m {
+            qs.push(match sol.head_landward_m(*x) {
+                Some(v) => Quantity::some(at_distance(*x), v, "m"),
+                None => Quantity::none(at_distance(*x), "m", "beyond the landside blanket"),
+            });
+        }
+        match measured {
+            Some(Ok(h_o)) => {
                 qs.push(Quantity::some("measured_excess_head", h_o, "m"));
                 qs.push(Quantity::some("measured_residual_ratio", h_o / h, "-"));
-                qs.push(match blanket::back_calculated_x3_m(h_o, h, sol.x1_m, b.base_width_m) {
-                Some(x3) => Quantity::some("effective_x3", x3, "m"),
-                None => Quantity::none(
-                    "effective_x3",
-                    "m",
-                    "measured excess head outside (0, H): no effective length reproduces it",
-                ),
-            });
+                let x3 = blanket::back_calculated_x3_m(h_o, h, sol.x1_m, b.base_width_m);
+                qs.push(match x3 {
+                    Some(x3) => Quantity::some("effective_x3", x3, "m"),
+                    None => Quantity::none(
+                        "effective_x3",
+                        "m",
+                        "measured excess head outside (0, H): no effective length reproduces it",
+                    ),
+                });
             }
-            if let Some(n) = note {
-                qs.iter_mut()
-                    .filter(|q| q.reason.is_none())
-                    .for_each(|q| q.reason = Some(n.clone()));
+            Some(Err(reason)) => {
+                for (q, u) in MEASURED {
+                    qs.push(Quantity::none(q, u, reason.clone()));
+                }
             }
-            Ok(qs)
-        };
+            None => {}
+        }
+        if let Some(n) = note {
+            qs.iter_mut()
+                .filter(|q| q.reason.is_none())
+                .for_each(|q| q.reason = Some(n.clone()));
+        }
+        Ok(qs)
+    };
     let qs = compute().unwrap_or_else(|reason| {
         all.iter()
             .map(|(n, u)| Quantity::none(n.clone(), u, &reason))
@@ -275,6 +281,13 @@ pub(super) fn blanket(b: &BlanketReach, inp: &Inputs<'_>) -> Computed {
     });
     (b.id.clone(), names, qs)
 }
+
+/// Quantities of a blanket reach that need the toe piezometer.
+const MEASURED: [(&str, &str); 3] = [
+    ("measured_excess_head", "m"),
+    ("measured_residual_ratio", "-"),
+    ("effective_x3", "m"),
+];
 
 const SECTION_QUANTITIES: [(&str, &str); 5] = [
     ("exit_station", "m"),
