@@ -17,3 +17,4 @@ pub mod replay;
 pub mod section_cmd;
 pub mod service;
 pub mod store;
+pub mod xml_check;

@@ -97,6 +97,15 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
             );
             let name = t.nonempty(cx, "name");
             let time_zone = t.nonempty(cx, "time_zone").unwrap_or_else(|| "UTC".into());
+            if time_zone.parse::<chrono_tz::Tz>().is_err() {
+                t.problem_at(
+                    cx,
+                    "time_zone",
+                    format!(
+                        "key \"time_zone\" is {time_zone:?}, expected an IANA time zone name such as \"UTC\" or \"America/Chicago\""
+                    ),
+                );
+            }
             let gamma = t.number(cx, "unit_weight_water_kn_m3", false);
             if let Some(g) = gamma.filter(|g| accepted_gamma_w(*g).is_none()) {
                 t.problem_at(
