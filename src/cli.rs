@@ -70,6 +70,25 @@ pub enum Command {
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
+    /// Write an instrumentation report (HTML with plots, CSV tables) for a site and period.
+    Report {
+        #[arg(long, value_name = "DIR")]
+        config: PathBuf,
+        #[arg(long)]
+        site: String,
+        /// Start (RFC 3339 or YYYY-MM-DD, UTC).
+        #[arg(long)]
+        from: String,
+        /// End, exclusive (RFC 3339 or YYYY-MM-DD, UTC).
+        #[arg(long)]
+        to: String,
+        /// Output directory.
+        #[arg(long, value_name = "DIR")]
+        out: PathBuf,
+        /// Database (default: the configured one).
+        #[arg(long, value_name = "FILE")]
+        db: Option<PathBuf>,
+    },
     /// Run a self-contained demo: embedded broker, the service and simulated loggers.
     Demo {
         /// Seconds of wall time per simulated day.
@@ -109,6 +128,18 @@ fn load(dir: &std::path::Path) -> Result<Config, i32> {
         );
         EXIT_CONFIG
     })
+}
+
+/// A time from the command line: RFC 3339, or a date (midnight UTC).
+fn parse_time(text: &str, what: &str) -> anyhow::Result<chrono::DateTime<chrono::Utc>> {
+    if let Ok(t) = chrono::DateTime::parse_from_rfc3339(text) {
+        return Ok(t.with_timezone(&chrono::Utc));
+    }
+    chrono::NaiveDate::parse_from_str(text, "%Y-%m-%d")
+        .ok()
+        .and_then(|d| d.and_hms_opt(0, 0, 0))
+        .map(|d| d.and_utc())
+        .ok_or_else(|| anyhow::anyhow!("{what} {text:?} is neither RFC 3339 nor YYYY-MM-DD"))
 }
 
 /// Run the parsed command; returns the process exit code.
@@ -194,9 +225,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
                 Err(code) => return Ok(code),
             };
             let at = match at {
-                Some(t) => chrono::DateTime::parse_from_rfc3339(&t)
-                    .with_context(|| format!("--at {t:?} is not an RFC 3339 time"))?
-                    .with_timezone(&chrono::Utc),
+                Some(t) => parse_time(&t, "--at")?,
                 None => chrono::Utc::now(),
             };
             let store = crate::store::Store::open(db.as_ref().unwrap_or(&cfg.service.database))?;
@@ -206,6 +235,28 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
                     std::fs::write(&p, svg).with_context(|| format!("writing {}", p.display()))?
                 }
                 None => print!("{svg}"),
+            }
+            Ok(0)
+        }
+        Command::Report {
+            config,
+            site,
+            from,
+            to,
+            out,
+            db,
+        } => {
+            let cfg = match load(&config) {
+                Ok(c) => c,
+                Err(code) => return Ok(code),
+            };
+            let (from, to) = (parse_time(&from, "--from")?, parse_time(&to, "--to")?);
+            let store = crate::store::Store::open(db.as_ref().unwrap_or(&cfg.service.database))?;
+            let files =
+                crate::report::generate(&cfg, &store, &site, from, to, chrono::Utc::now(), &out)?;
+            println!("{}", files.html.display());
+            for c in files.csv {
+                println!("{}", c.display());
             }
             Ok(0)
         }

@@ -18,3 +18,10 @@ pub mod section_cmd;
 pub mod service;
 pub mod store;
 pub mod xml_check;
+
+/// The caution every alert email and report carries.
+pub const CAUTION: &str =
+    "Automated screening only. Verify conditions in the field before acting; \
+follow the emergency action plan, local regulations and the direction of the engineer of record. \
+A quiet report is not evidence of a safe structure.";
+pub mod report;

@@ -119,7 +119,7 @@ fn tick_step(span: f64, target: f64) -> f64 {
 }
 
 /// Tick values within [lo, hi].
-fn ticks(lo: f64, hi: f64, target: f64) -> Vec<f64> {
+pub(crate) fn ticks(lo: f64, hi: f64, target: f64) -> Vec<f64> {
     let step = tick_step(hi - lo, target);
     let mut v = (lo / step).ceil() * step;
     let mut out = Vec::new();

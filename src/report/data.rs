@@ -1,0 +1,299 @@
+//! The report's content, gathered from the database for one site and period: per-instrument
+//! statistics, stage summary, toe checks, sections, quarantine and health flags. No formatting
+//! here (see `html`, `csv`, `chart`).
+
+use chrono::{DateTime, Utc};
+use rusqlite::{params, Connection, OptionalExtension};
+
+use crate::config::{Config, Instrument, Kind};
+use crate::quality::Flags;
+
+/// Statistics of one instrument's main quantity over the period.
+#[derive(Debug, Clone, PartialEq)]
+pub struct InstrumentStats {
+    pub id: String,
+    pub kind: &'static str,
+    /// `total_head` (piezometers, standpipes), `water_elevation` (gauges) or `pressure`.
+    pub quantity: &'static str,
+    pub unit: &'static str,
+    pub readings: i64,
+    /// Readings expected in the period from the instrument's interval.
+    pub expected: i64,
+    /// (time ms, value)
+    pub first: Option<(i64, f64)>,
+    pub latest: Option<(i64, f64)>,
+    pub min: Option<(i64, f64)>,
+    pub max: Option<(i64, f64)>,
+    /// Readings carrying any quality flag.
+    pub flagged: i64,
+    /// Flag name → count.
+    pub flag_counts: Vec<(&'static str, i64)>,
+}
+
+impl InstrumentStats {
+    /// Completeness, % of expected readings (capped at 100), or None when none were expected.
+    pub fn completeness_pct(&self) -> Option<f64> {
+        (self.expected > 0)
+            .then(|| (100.0 * self.readings as f64 / self.expected as f64).min(100.0))
+    }
+    /// Change over the period: latest − first.
+    pub fn change(&self) -> Option<f64> {
+        Some(self.latest?.1 - self.first?.1)
+    }
+    /// A one-word status for the summary table.
+    pub fn status(&self) -> &'static str {
+        match (self.readings, self.completeness_pct()) {
+            (0, _) => "no data",
+            (_, Some(c)) if c < 90.0 => "gaps",
+            _ if self.flagged > 0 => "flagged",
+            _ => "ok",
+        }
+    }
+}
+
+/// One derived quantity's summary over the period.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DerivedStats {
+    pub object: String,
+    pub quantity: String,
+    pub unit: String,
+    pub latest: Option<(i64, f64)>,
+    pub min: Option<(i64, f64)>,
+    pub max: Option<(i64, f64)>,
+}
+
+/// Everything a report shows.
+#[derive(Debug, Clone)]
+pub struct ReportData {
+    pub site_id: String,
+    pub site_name: String,
+    pub time_zone: String,
+    pub from: DateTime<Utc>,
+    pub to: DateTime<Utc>,
+    pub generated: DateTime<Utc>,
+    /// Piezometers and standpipes.
+    pub piezometers: Vec<InstrumentStats>,
+    /// Stage gauges.
+    pub stages: Vec<InstrumentStats>,
+    /// Barometers.
+    pub others: Vec<InstrumentStats>,
+    /// Toe-check quantities (exit gradient, factor of safety) per toe.
+    pub toes: Vec<DerivedStats>,
+    /// Section quantities (exit elevation, seepage-face height) per section.
+    pub sections: Vec<DerivedStats>,
+    /// Cluster gradients.
+    pub gradients: Vec<DerivedStats>,
+    /// Quarantine in the period (whole service): reason → count.
+    pub quarantine: Vec<(String, i64)>,
+}
+
+impl ReportData {
+    /// Overall completeness of the site's instruments, %.
+    pub fn completeness_pct(&self) -> Option<f64> {
+        let all = self
+            .piezometers
+            .iter()
+            .chain(&self.stages)
+            .chain(&self.others);
+        let (got, want) = all.fold((0i64, 0i64), |(g, w), s| {
+            (g + s.readings.min(s.expected), w + s.expected)
+        });
+        (want > 0).then(|| 100.0 * got as f64 / want as f64)
+    }
+
+    /// Whether the period holds no reading at all.
+    pub fn is_empty(&self) -> bool {
+        self.piezometers
+            .iter()
+            .chain(&self.stages)
+            .chain(&self.others)
+            .all(|s| s.readings == 0)
+    }
+}
+
+fn main_quantity(i: &Instrument) -> (&'static str, &'static str, &'static str) {
+    match i.kind {
+        Kind::StageGauge(_) => ("water_elevation", "m", "total_head_m"),
+        Kind::Barometer(_) => ("pressure", "kPa", "pressure_kpa"),
+        _ => ("total_head", "m", "total_head_m"),
+    }
+}
+
+/// Statistics of one instrument's main quantity in [from, to).
+///
+/// # Errors
+/// SQLite errors.
+pub fn instrument_stats(
+    conn: &Connection,
+    i: &Instrument,
+    from_ms: i64,
+    to_ms: i64,
+) -> rusqlite::Result<InstrumentStats> {
+    let (quantity, unit, column) = main_quantity(i);
+    let mut st = conn.prepare_cached(&format!(
+        "SELECT t_ms, {column}, flags FROM readings
+         WHERE instrument = ?1 AND t_ms >= ?2 AND t_ms < ?3 AND {column} IS NOT NULL ORDER BY t_ms"
+    ))?;
+    let mut rows = st.query(params![i.id, from_ms, to_ms])?;
+    let mut s = InstrumentStats {
+        id: i.id.clone(),
+        kind: i.kind.name(),
+        quantity,
+        unit,
+        readings: 0,
+        expected: (to_ms - from_ms).max(0) / 1000 / (i.interval_s.max(1) as i64),
+        first: None,
+        latest: None,
+        min: None,
+        max: None,
+        flagged: 0,
+        flag_counts: Flags::NAMES.iter().map(|(_, n)| (*n, 0)).collect(),
+    };
+    while let Some(r) = rows.next()? {
+        let (t, v, flags): (i64, f64, u32) = (r.get(0)?, r.get(1)?, r.get(2)?);
+        s.readings += 1;
+        s.first.get_or_insert((t, v));
+        s.latest = Some((t, v));
+        if s.min.is_none_or(|(_, m)| v < m) {
+            s.min = Some((t, v));
+        }
+        if s.max.is_none_or(|(_, m)| v > m) {
+            s.max = Some((t, v));
+        }
+        let f = Flags(flags);
+        if !f.is_empty() {
+            s.flagged += 1;
+            for (k, (flag, _)) in Flags::NAMES.iter().enumerate() {
+                if f.contains(*flag) {
+                    s.flag_counts[k].1 += 1;
+                }
+            }
+        }
+    }
+    s.flag_counts.retain(|(_, n)| *n > 0);
+    Ok(s)
+}
+
+/// Summary of one derived quantity in [from, to).
+///
+/// # Errors
+/// SQLite errors.
+pub fn derived_stats(
+    conn: &Connection,
+    object: &str,
+    quantity: &str,
+    from_ms: i64,
+    to_ms: i64,
+) -> rusqlite::Result<DerivedStats> {
+    let q = |order: &str| -> rusqlite::Result<Option<(i64, f64, String)>> {
+        conn.query_row(
+            &format!(
+                "SELECT t_ms, value, unit FROM derived WHERE object = ?1 AND quantity = ?2
+                 AND t_ms >= ?3 AND t_ms < ?4 AND value IS NOT NULL ORDER BY {order} LIMIT 1"
+            ),
+            params![object, quantity, from_ms, to_ms],
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+        )
+        .optional()
+    };
+    let latest = q("t_ms DESC")?;
+    let min = q("value ASC, t_ms ASC")?;
+    let max = q("value DESC, t_ms ASC")?;
+    let unit = latest.as_ref().map(|l| l.2.clone()).unwrap_or_default();
+    let strip = |o: Option<(i64, f64, String)>| o.map(|(t, v, _)| (t, v));
+    Ok(DerivedStats {
+        object: object.to_string(),
+        quantity: quantity.to_string(),
+        unit,
+        latest: strip(latest),
+        min: strip(min),
+        max: strip(max),
+    })
+}
+
+/// Gather a site's report data for [from, to).
+///
+/// # Errors
+/// Unknown site; SQLite errors.
+pub fn gather(
+    cfg: &Config,
+    conn: &Connection,
+    site: &str,
+    from: DateTime<Utc>,
+    to: DateTime<Utc>,
+    now: DateTime<Utc>,
+) -> anyhow::Result<ReportData> {
+    let s = cfg
+        .sites
+        .iter()
+        .find(|s| s.id == site)
+        .ok_or_else(|| anyhow::anyhow!("no site {site:?} in the configuration"))?;
+    let (f, t) = (from.timestamp_millis(), to.timestamp_millis());
+    let mut data = ReportData {
+        site_id: s.id.clone(),
+        site_name: s.name.clone(),
+        time_zone: s.time_zone.clone(),
+        from,
+        to,
+        generated: now,
+        piezometers: Vec::new(),
+        stages: Vec::new(),
+        others: Vec::new(),
+        toes: Vec::new(),
+        sections: Vec::new(),
+        gradients: Vec::new(),
+        quarantine: Vec::new(),
+    };
+    for i in cfg.instruments.values().filter(|i| i.site == site) {
+        let stats = instrument_stats(conn, i, f, t)?;
+        match i.kind {
+            Kind::StageGauge(_) => data.stages.push(stats),
+            Kind::Barometer(_) => data.others.push(stats),
+            _ => data.piezometers.push(stats),
+        }
+    }
+    let o = &cfg.objects;
+    for toe in o.toes.iter().filter(|x| x.site == site) {
+        for q in ["exit_gradient", "factor_of_safety", "excess_head"] {
+            data.toes.push(derived_stats(conn, &toe.id, q, f, t)?);
+        }
+    }
+    for sec in o.sections.iter().filter(|x| x.site == site) {
+        for q in ["exit_elevation", "seepage_face_height", "min_cover"] {
+            data.sections.push(derived_stats(conn, &sec.id, q, f, t)?);
+        }
+    }
+    for c in o.clusters.iter().filter(|x| x.site == site) {
+        data.gradients
+            .push(derived_stats(conn, &c.id, "vertical_gradient", f, t)?);
+    }
+    let mut st = conn.prepare(
+        "SELECT reason, count(*) FROM quarantine WHERE received_ms >= ?1 AND received_ms < ?2
+         GROUP BY reason ORDER BY reason",
+    )?;
+    data.quarantine = st
+        .query_map(params![f, t], |r| Ok((r.get(0)?, r.get(1)?)))?
+        .collect::<Result<_, _>>()?;
+    Ok(data)
+}
+
+/// Readings of `instrument`'s main quantity in [from, to), time ms and value, for plots.
+///
+/// # Errors
+/// SQLite errors.
+pub fn series(
+    conn: &Connection,
+    i: &Instrument,
+    from_ms: i64,
+    to_ms: i64,
+) -> rusqlite::Result<Vec<(i64, f64)>> {
+    let (_, _, column) = main_quantity(i);
+    let mut st = conn.prepare_cached(&format!(
+        "SELECT t_ms, {column} FROM readings WHERE instrument = ?1 AND t_ms >= ?2 AND t_ms < ?3
+         AND {column} IS NOT NULL ORDER BY t_ms"
+    ))?;
+    let rows = st.query_map(params![i.id, from_ms, to_ms], |r| {
+        Ok((r.get(0)?, r.get(1)?))
+    })?;
+    rows.collect()
+}

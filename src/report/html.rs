@@ -1,0 +1,218 @@
+//! The report as one self-contained HTML file: inline SVG, print-friendly CSS, no external
+//! assets. Written XHTML-style (every element closed) so it can be checked for well-formedness.
+
+use std::fmt::Write as _;
+
+use chrono::{TimeZone, Utc};
+use chrono_tz::Tz;
+
+use super::data::{DerivedStats, InstrumentStats, ReportData};
+use crate::domain::section_svg::xml_escape as esc;
+
+const CSS: &str = "body{font-family:'DejaVu Sans',Arial,sans-serif;font-size:12px;color:#111;margin:24px;max-width:1000px}\
+h1{font-size:20px;margin:0 0 4px 0}h2{font-size:15px;margin:22px 0 6px 0;border-bottom:1px solid #999}\
+table{border-collapse:collapse;margin:6px 0;width:100%}th,td{border:1px solid #bbb;padding:3px 6px;text-align:right}\
+th{background:#eee}td.l,th.l{text-align:left}.caution{border:2px solid #b00;padding:6px 10px;margin:10px 0;background:#fff6f6}\
+.meta td{border:none;text-align:left;padding:1px 8px 1px 0}.note{color:#555}.sign td{border:none;padding:18px 12px 2px 0;text-align:left}\
+svg{max-width:100%;height:auto}@media print{body{margin:10mm}h2{break-after:avoid}svg,table{break-inside:avoid}}";
+
+/// Format a UTC millisecond time in the report's time zone.
+pub fn local(t_ms: i64, tz: Tz) -> String {
+    Utc.timestamp_millis_opt(t_ms)
+        .single()
+        .map(|t| t.with_timezone(&tz).format("%Y-%m-%d %H:%M").to_string())
+        .unwrap_or_default()
+}
+
+fn num(v: Option<f64>, digits: usize) -> String {
+    v.map(|v| format!("{v:.digits$}"))
+        .unwrap_or_else(|| "—".into())
+}
+
+fn when(v: Option<(i64, f64)>, tz: Tz) -> String {
+    v.map(|(t, _)| local(t, tz)).unwrap_or_else(|| "—".into())
+}
+
+/// The pieces the HTML needs besides the data.
+pub struct Extras {
+    /// (title, inline SVG) time-history charts.
+    pub charts: Vec<(String, String)>,
+    /// (caption, inline SVG or an explanation) section drawings.
+    pub sections: Vec<(String, Result<String, String>)>,
+    /// Alerts, acknowledgements and silences in the period, as table rows (already text).
+    pub alerts: Option<Vec<[String; 5]>>,
+    pub caution: &'static str,
+    pub version: &'static str,
+}
+
+fn stats_table(s: &mut String, rows: &[InstrumentStats], tz: Tz) {
+    s.push_str("<table><tr><th class=\"l\">Instrument</th><th class=\"l\">Kind</th><th>Latest</th><th>at</th><th>Minimum</th><th>at</th><th>Maximum</th><th>at</th><th>Change</th><th>Readings</th><th>Complete %</th><th class=\"l\">Status</th></tr>\n");
+    for i in rows {
+        let _ = writeln!(
+            s,
+            "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
+            esc(&i.id),
+            i.kind,
+            num(i.latest.map(|x| x.1), 3),
+            when(i.latest, tz),
+            num(i.min.map(|x| x.1), 3),
+            when(i.min, tz),
+            num(i.max.map(|x| x.1), 3),
+            when(i.max, tz),
+            num(i.change(), 3),
+            i.readings,
+            num(i.completeness_pct(), 1),
+            i.status()
+        );
+    }
+    s.push_str("</table>\n");
+}
+
+fn derived_table(s: &mut String, rows: &[DerivedStats], tz: Tz) {
+    s.push_str("<table><tr><th class=\"l\">Object</th><th class=\"l\">Quantity</th><th>Latest</th><th>at</th><th>Minimum</th><th>at</th><th>Maximum</th><th>at</th></tr>\n");
+    for d in rows {
+        let _ = writeln!(
+            s,
+            "<tr><td class=\"l\">{}</td><td class=\"l\">{}{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            esc(&d.object),
+            esc(&d.quantity),
+            if d.unit.is_empty() || d.unit == "-" { String::new() } else { format!(" ({})", esc(&d.unit)) },
+            num(d.latest.map(|x| x.1), 3),
+            when(d.latest, tz),
+            num(d.min.map(|x| x.1), 3),
+            when(d.min, tz),
+            num(d.max.map(|x| x.1), 3),
+            when(d.max, tz),
+        );
+    }
+    s.push_str("</table>\n");
+}
+
+/// Render the whole document.
+pub fn render(d: &ReportData, x: &Extras) -> String {
+    let tz: Tz = d.time_zone.parse().unwrap_or(chrono_tz::UTC);
+    let mut s = String::with_capacity(64 * 1024);
+    let title = format!("Instrumentation report: {}", d.site_name);
+    let _ = writeln!(s, "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"/><title>{}</title><style>{CSS}</style></head><body>", esc(&title));
+    let _ = writeln!(s, "<h1>{}</h1>", esc(&title));
+    let _ = writeln!(
+        s,
+        "<table class=\"meta\"><tr><td>Site</td><td>{} ({})</td></tr><tr><td>Period</td><td>{} to {}</td></tr><tr><td>Time zone</td><td>{}</td></tr><tr><td>Generated</td><td>{}</td></tr><tr><td>Data completeness</td><td>{}</td></tr></table>",
+        esc(&d.site_name),
+        esc(&d.site_id),
+        local(d.from.timestamp_millis(), tz),
+        local(d.to.timestamp_millis(), tz),
+        esc(&d.time_zone),
+        local(d.generated.timestamp_millis(), tz),
+        d.completeness_pct().map(|c| format!("{c:.1} % of expected readings")).unwrap_or_else(|| "no readings expected".into())
+    );
+    let _ = writeln!(
+        s,
+        "<div class=\"caution\"><b>Caution.</b> {}</div>",
+        esc(x.caution)
+    );
+    if d.is_empty() {
+        s.push_str("<p><b>No readings were stored for this site in this period.</b> The tables below are empty; check the loggers, the broker and the quarantine summary.</p>\n");
+    }
+    s.push_str("<h2>Piezometers</h2>\n");
+    stats_table(&mut s, &d.piezometers, tz);
+    s.push_str("<p class=\"note\">Values are total heads (piezometric elevations), m. Change = last − first reading in the period.</p>\n");
+    s.push_str("<h2>Pool and river stage</h2>\n");
+    stats_table(&mut s, &d.stages, tz);
+    if !d.others.is_empty() {
+        s.push_str("<h2>Other instruments</h2>\n");
+        stats_table(&mut s, &d.others, tz);
+    }
+    s.push_str("<h2>Time histories</h2>\n");
+    for (t, svg) in &x.charts {
+        let _ = writeln!(s, "<div title=\"{}\">{svg}</div>", esc(t));
+    }
+    if !d.toes.is_empty() {
+        s.push_str("<h2>Toe checks</h2>\n");
+        derived_table(&mut s, &d.toes, tz);
+        s.push_str("<p class=\"note\">Exit gradient i = h_o/z_t (positive upward); FS = i_c/i, not applicable (—) while i ≤ 0. The minimum factor of safety in the period and its time are in the Minimum columns.</p>\n");
+    }
+    if !d.gradients.is_empty() {
+        s.push_str("<h2>Vertical gradients</h2>\n");
+        derived_table(&mut s, &d.gradients, tz);
+    }
+    if !d.sections.is_empty() {
+        s.push_str("<h2>Sections</h2>\n");
+        derived_table(&mut s, &d.sections, tz);
+        for (caption, svg) in &x.sections {
+            let _ = writeln!(s, "<h3>{}</h3>", esc(caption));
+            match svg {
+                Ok(svg) => s.push_str(svg),
+                Err(why) => {
+                    let _ = writeln!(s, "<p class=\"note\">Not drawn: {}</p>", esc(why));
+                }
+            }
+        }
+    }
+    s.push_str("<h2>Alerts, acknowledgements and silences</h2>\n");
+    match &x.alerts {
+        None => s.push_str("<p class=\"note\">This database holds no alert records.</p>\n"),
+        Some(rows) if rows.is_empty() => s.push_str("<p>None in this period.</p>\n"),
+        Some(rows) => {
+            s.push_str("<table><tr><th class=\"l\">Time</th><th class=\"l\">Event</th><th class=\"l\">Object / rule</th><th class=\"l\">Level</th><th class=\"l\">Detail</th></tr>\n");
+            for r in rows {
+                let _ = writeln!(
+                    s,
+                    "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td></tr>",
+                    esc(&r[0]), esc(&r[1]), esc(&r[2]), esc(&r[3]), esc(&r[4])
+                );
+            }
+            s.push_str("</table>\n");
+        }
+    }
+    s.push_str("<h2>Data quality</h2>\n<h3>Quarantined input (whole service)</h3>\n");
+    if d.quarantine.is_empty() {
+        s.push_str("<p>None in this period.</p>\n");
+    } else {
+        s.push_str("<table><tr><th class=\"l\">Reason</th><th>Count</th></tr>\n");
+        for (r, n) in &d.quarantine {
+            let _ = writeln!(s, "<tr><td class=\"l\">{}</td><td>{n}</td></tr>", esc(r));
+        }
+        s.push_str("</table>\n");
+    }
+    s.push_str("<h3>Instruments with health flags</h3>\n");
+    let flagged: Vec<&InstrumentStats> = d
+        .piezometers
+        .iter()
+        .chain(&d.stages)
+        .chain(&d.others)
+        .filter(|i| i.flagged > 0)
+        .collect();
+    if flagged.is_empty() {
+        s.push_str("<p>None in this period.</p>\n");
+    } else {
+        s.push_str("<table><tr><th class=\"l\">Instrument</th><th>Flagged readings</th><th class=\"l\">Flags</th></tr>\n");
+        for i in flagged {
+            let flags: Vec<String> = i
+                .flag_counts
+                .iter()
+                .map(|(n, c)| format!("{n} {c}"))
+                .collect();
+            let _ = writeln!(
+                s,
+                "<tr><td class=\"l\">{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
+                esc(&i.id),
+                i.flagged,
+                esc(&flags.join(", "))
+            );
+        }
+        s.push_str("</table>\n");
+    }
+    let _ = writeln!(
+        s,
+        "<div class=\"caution\"><b>Caution.</b> {}</div>",
+        esc(x.caution)
+    );
+    s.push_str("<table class=\"sign\"><tr><td>Reviewed by: ______________________</td><td>Signature: ______________________</td><td>Date: ____________</td></tr></table>\n");
+    let _ = writeln!(
+        s,
+        "<p class=\"note\">Prepared automatically by seepd {}.</p>\n</body></html>",
+        esc(x.version)
+    );
+    s
+}
