@@ -51,7 +51,7 @@ fn scenario(dir: &Path) -> String {
     db.display().to_string()
 }
 
-fn cell_after<'a>(row: &'a str, n: usize) -> &'a str {
+fn cell_after(row: &str, n: usize) -> &str {
     row.split(',').nth(n).unwrap()
 }
 
