@@ -1,0 +1,2 @@
+//! Alert latency benchmark (placeholder until written).
+fn main() {}
