@@ -4,6 +4,7 @@
 //! an incoming message into stored rows by calling the domain and is shared by `run` and
 //! `replay`; `ingest`, `store` and `demo` are adapters; `cli` parses arguments.
 
+pub mod alerts;
 pub mod cli;
 pub mod config;
 #[cfg(feature = "demo-broker")]
@@ -11,6 +12,7 @@ pub mod demo;
 pub mod domain;
 pub mod engine;
 pub mod ingest;
+pub mod notify;
 pub mod quality;
 pub mod replay;
 pub mod service;

@@ -6,13 +6,15 @@
 //! cross-file checks (unique ids, barometer references, logger channels) and the `seepd check`
 //! summary. Per-table keys and checks live in `service`, `site` and `kinds`.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, BTreeSet};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use toml_edit::ImDocument;
 
+use super::alerting::Alerting;
 use super::model::{Config, PayloadFormat};
+use super::rules;
 use super::problem::{whole_file, Cx};
 use super::reader::Tbl;
 use super::service::{self, Env, ServiceFile};
@@ -88,6 +90,16 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         })
         .collect();
     cross_checks(&sites, &mut problems);
+    {
+        let instruments: BTreeSet<String> = sites
+            .iter()
+            .flat_map(|(_, sf)| sf.entries.iter().filter_map(|e| e.id.as_ref()))
+            .map(|(id, _)| id.clone())
+            .collect();
+        let files: Vec<_> = sites.iter().map(|(p, sf)| (p.clone(), &sf.alerting)).collect();
+        // TODO(integration): pass the derived-object ids once `config::objects` reads them.
+        rules::cross_check(&files, &instruments, &BTreeSet::new(), &mut problems);
+    }
 
     if !problems.is_empty() {
         let order = |p: &Problem| {
@@ -103,6 +115,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         service: Some(service),
         mqtt: Some(mqtt),
         subscriptions,
+        smtp,
     }) = service
     else {
         return Err(one(&service_path, "service file could not be read"));
@@ -115,12 +128,21 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         sites: Vec::new(),
         instruments: BTreeMap::new(),
         objects: Default::default(),
+        alerting: Alerting {
+            smtp,
+            ..Alerting::default()
+        },
     };
+    let mut alerting = Vec::new();
     for (_, sf) in sites {
         cfg.sites.extend(sf.site);
         for i in sf.entries.into_iter().filter_map(|e| e.instrument) {
             cfg.instruments.insert(i.id.clone(), i);
         }
+        alerting.push((sf.id.map(|(id, _)| id).unwrap_or_default(), sf.alerting));
+    }
+    for (site, sr) in alerting {
+        rules::finish(&mut cfg, &site, sr);
     }
     Ok(cfg)
 }

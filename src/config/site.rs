@@ -53,11 +53,15 @@ pub(crate) struct SiteFile {
     pub id: Option<(String, Pos)>,
     pub site: Option<Site>,
     pub entries: Vec<Entry>,
+    /// `[alerting]`, `[[contacts]]` and `[[rule]]` (see `config::rules`).
+    pub alerting: super::rules::SiteRules,
 }
 
 /// Read a site file's root table.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
-    root.check_keys(cx, &["site", "instrument"]);
+    let mut keys = vec!["site", "instrument"];
+    keys.extend(super::rules::KEYS);
+    root.check_keys(cx, &keys);
     let mut m_per_unit = 1.0;
     let mut id = None;
     let site = match root.sub(cx, "site", "[site]") {
@@ -130,7 +134,13 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         .into_iter()
         .map(|mut t| instrument(cx, &mut t, &site_id, m_per_unit))
         .collect();
-    SiteFile { id, site, entries }
+    let alerting = super::rules::read(cx, root, &site_id);
+    SiteFile {
+        id,
+        site,
+        entries,
+        alerting,
+    }
 }
 
 const COMMON_KEYS: [&str; 12] = [
