@@ -53,9 +53,15 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
     }
     let mut pending = Vec::new();
     for (rule_id, json) in store.rule_states()? {
-        let Ok(state) = serde_json::from_str::<State>(&json) else { continue };
-        let Phase::Pending { level, since_ms } = state.phase else { continue };
-        let Some(rule) = cfg.alerting.rules.iter().find(|r| r.id == rule_id) else { continue };
+        let Ok(state) = serde_json::from_str::<State>(&json) else {
+            continue;
+        };
+        let Phase::Pending { level, since_ms } = state.phase else {
+            continue;
+        };
+        let Some(rule) = cfg.alerting.rules.iter().find(|r| r.id == rule_id) else {
+            continue;
+        };
         let name = rule.spec.levels.get(level).map_or("?", |l| l.name.as_str());
         pending.push(format!(
             "  rule {rule_id}: {} {} beyond the {name} bound since {} (persistence not met yet)",
@@ -76,7 +82,13 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
             (None, Some(o)) => format!("instrument {o}"),
             _ => "?".into(),
         };
-        let _ = writeln!(s, "  {what} until {} by {}: {}", time(x.until_ms), x.who, x.reason);
+        let _ = writeln!(
+            s,
+            "  {what} until {} by {}: {}",
+            time(x.until_ms),
+            x.who,
+            x.reason
+        );
     }
     let dead = store.messages("dead")?;
     let _ = writeln!(s, "Undeliverable ({}):", dead.len());
@@ -101,7 +113,10 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
             time(m.created_ms),
             m.subject,
             m.attempts,
-            m.last_error.as_deref().map(|e| format!(", last error: {e}")).unwrap_or_default()
+            m.last_error
+                .as_deref()
+                .map(|e| format!(", last error: {e}"))
+                .unwrap_or_default()
         );
     }
     Ok(s)
@@ -111,11 +126,22 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
 ///
 /// # Errors
 /// Database errors; an unknown or resolved alert.
-pub fn ack(cfg: &Config, alert: i64, by: &str, note: Option<&str>, now: DateTime<Utc>) -> anyhow::Result<String> {
+pub fn ack(
+    cfg: &Config,
+    alert: i64,
+    by: &str,
+    note: Option<&str>,
+    now: DateTime<Utc>,
+) -> anyhow::Result<String> {
     let mut store = open(cfg)?;
     match store.acknowledge(alert, by, note, now.timestamp_millis())? {
-        AckOutcome::Recorded => Ok(format!("Alert {alert} acknowledged by {by}: no more reminders or escalation for it.\n")),
-        AckOutcome::Already(who, t) => Ok(format!("Alert {alert} was already acknowledged by {who} at {}.\n", time(t))),
+        AckOutcome::Recorded => Ok(format!(
+            "Alert {alert} acknowledged by {by}: no more reminders or escalation for it.\n"
+        )),
+        AckOutcome::Already(who, t) => Ok(format!(
+            "Alert {alert} was already acknowledged by {who} at {}.\n",
+            time(t)
+        )),
         AckOutcome::Resolved => bail!("alert {alert} is already resolved"),
         AckOutcome::NotFound => bail!("there is no alert {alert} (see `seepd alerts`)"),
     }
@@ -128,7 +154,9 @@ pub fn ack(cfg: &Config, alert: i64, by: &str, note: Option<&str>, now: DateTime
 pub fn parse_until(s: &str, now: DateTime<Utc>) -> anyhow::Result<DateTime<Utc>> {
     if let Some(rel) = s.strip_prefix('+') {
         let (n, unit) = rel.split_at(rel.len().saturating_sub(1));
-        let n: i64 = n.parse().with_context(|| format!("--until {s:?}: expected e.g. +30m, +4h, +2d"))?;
+        let n: i64 = n
+            .parse()
+            .with_context(|| format!("--until {s:?}: expected e.g. +30m, +4h, +2d"))?;
         let secs = match unit {
             "m" => 60,
             "h" => 3600,
@@ -144,7 +172,11 @@ pub fn parse_until(s: &str, now: DateTime<Utc>) -> anyhow::Result<DateTime<Utc>>
     }
     DateTime::parse_from_rfc3339(s)
         .map(|t| t.with_timezone(&Utc))
-        .with_context(|| format!("--until {s:?}: expected an RFC 3339 time (2026-03-02T08:00:00Z), a date, or +4h"))
+        .with_context(|| {
+            format!(
+                "--until {s:?}: expected an RFC 3339 time (2026-03-02T08:00:00Z), a date, or +4h"
+            )
+        })
 }
 
 /// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT`.
@@ -173,14 +205,25 @@ pub fn silence(
         }
     }
     if let Some(o) = object {
-        let known = cfg.instruments.contains_key(o) || cfg.alerting.rules.iter().any(|x| x.object == o);
+        let known =
+            cfg.instruments.contains_key(o) || cfg.alerting.rules.iter().any(|x| x.object == o);
         if !known {
             bail!("{o:?} is not an instrument or the object of any rule");
         }
     }
     let store = open(cfg)?;
-    let id = store.add_silence(rule, object, until.timestamp_millis(), reason, by, now.timestamp_millis())?;
-    let what = rule.map_or_else(|| format!("instrument {}", object.unwrap_or("?")), |r| format!("rule {r}"));
+    let id = store.add_silence(
+        rule,
+        object,
+        until.timestamp_millis(),
+        reason,
+        by,
+        now.timestamp_millis(),
+    )?;
+    let what = rule.map_or_else(
+        || format!("instrument {}", object.unwrap_or("?")),
+        |r| format!("rule {r}"),
+    );
     Ok(format!(
         "Silence {id}: {what} until {}; alerts still change state and are listed, but no messages are sent for them.\n",
         time(until.timestamp_millis())

@@ -7,6 +7,7 @@
 //! No I/O apart from `load` (which reads the store at start); the time is a parameter.
 
 pub mod commands;
+pub mod live;
 pub mod render;
 
 use std::collections::{BTreeMap, HashMap, VecDeque};
@@ -15,7 +16,9 @@ use std::sync::Arc;
 use crate::config::{Config, Rule};
 use crate::domain::rules::{self, Action, Check, Obs, State};
 use crate::engine::Outcome;
-use crate::store::{AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow, Store, StoreError};
+use crate::store::{
+    AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
+};
 
 use render::Item;
 
@@ -113,7 +116,11 @@ impl Evaluator {
                     .entry((r.object.clone(), r.quantity.clone()))
                     .or_default()
                     .push(i);
-                let unit = if r.spec.check == Check::NoData { "s" } else { "" };
+                let unit = if r.spec.check == Check::NoData {
+                    "s"
+                } else {
+                    ""
+                };
                 Watched {
                     rule: r.clone(),
                     state: State::default(),
@@ -144,12 +151,19 @@ impl Evaluator {
         let mut e = Evaluator::new(cfg);
         let stored: BTreeMap<String, String> = store.rule_states()?.into_iter().collect();
         for w in &mut e.rules {
-            let Some(json) = stored.get(&w.rule.id) else { continue };
+            let Some(json) = stored.get(&w.rule.id) else {
+                continue;
+            };
             match serde_json::from_str::<State>(json) {
-                Ok(s) if s.active_level().is_none_or(|l| l < w.rule.spec.levels.len()) => {
+                Ok(s)
+                    if s.active_level()
+                        .is_none_or(|l| l < w.rule.spec.levels.len()) =>
+                {
                     w.state = s;
                 }
-                _ => tracing::warn!(rule = %w.rule.id, "Stored rule state does not fit the rule any more; starting from normal"),
+                _ => {
+                    tracing::warn!(rule = %w.rule.id, "Stored rule state does not fit the rule any more; starting from normal")
+                }
             }
             if w.rule.spec.check == Check::Threshold {
                 let key = (w.rule.object.clone(), w.rule.quantity.clone());
@@ -227,7 +241,14 @@ impl Evaluator {
         for i in 0..self.rules.len() {
             self.step_rule(i, None, now_ms);
         }
-        self.compose(now_ms);
+        self.compose(now_ms, false);
+        self.out.now_ms = now_ms;
+        std::mem::take(&mut self.out)
+    }
+
+    /// Send every waiting notice now, whatever its group wait (end of a replay).
+    pub fn flush(&mut self, now_ms: i64) -> AlertWrites {
+        self.compose(now_ms, true);
         self.out.now_ms = now_ms;
         std::mem::take(&mut self.out)
     }
@@ -252,7 +273,10 @@ impl Evaluator {
         let w = &self.rules[i];
         let rule = &w.rule;
         let level = a.level();
-        let (t_ms, value) = next.last.or(old.last).map_or((now_ms, None), |(t, v)| (t, Some(v)));
+        let (t_ms, value) = next
+            .last
+            .or(old.last)
+            .map_or((now_ms, None), |(t, v)| (t, Some(v)));
         let alert_id = match a {
             Action::Raise { .. } => {
                 let id = self.next_alert;
@@ -291,7 +315,6 @@ impl Evaluator {
             }
             _ => None,
         };
-        tracing::info!(rule = %rule.id, alert = alert_id, action = a.name(), level = %level_spec.name, value = ?value, "Alert transition");
         self.transitions.push(Transition {
             alert: alert_id,
             rule: rule.id.clone(),
@@ -317,7 +340,8 @@ impl Evaluator {
         };
         let silenced = self.silences.iter().any(|s| {
             s.until_ms > now_ms
-                && (s.rule.as_deref() == Some(&rule.id) || s.object.as_deref() == Some(&rule.object))
+                && (s.rule.as_deref() == Some(&rule.id)
+                    || s.object.as_deref() == Some(&rule.object))
         });
         let status = if silenced {
             "silenced"
@@ -349,8 +373,9 @@ impl Evaluator {
     }
 
     /// Turn groups of waiting notices (same site and recipients) whose oldest member has
-    /// waited the site's group wait into one rendered outbox message each.
-    fn compose(&mut self, now_ms: i64) {
+    /// waited the site's group wait (or every group, with `force`) into one rendered outbox
+    /// message each.
+    fn compose(&mut self, now_ms: i64, force: bool) {
         if self.waiting.is_empty() {
             return;
         }
@@ -364,7 +389,7 @@ impl Evaluator {
         for ((site, _), group) in groups {
             let policy = self.cfg.alerting.site(&site).policy;
             let oldest = group.iter().map(|n| n.created_ms).min().unwrap_or(now_ms);
-            if now_ms - oldest < policy.group_wait_ms {
+            if !force && now_ms - oldest < policy.group_wait_ms {
                 self.waiting.extend(group);
                 continue;
             }
@@ -386,7 +411,14 @@ impl Evaluator {
         }
     }
 
-    fn message(&self, id: i64, site: &str, group: &[NoticeRow], now_ms: i64, status_url: &str) -> OutboxRow {
+    fn message(
+        &self,
+        id: i64,
+        site: &str,
+        group: &[NoticeRow],
+        now_ms: i64,
+        status_url: &str,
+    ) -> OutboxRow {
         let site_name = self
             .cfg
             .sites
@@ -399,7 +431,11 @@ impl Evaluator {
             .map(|n| {
                 let r = self.rules.iter().find(|w| w.rule.id == n.rule);
                 let key = r.map(|w| (w.rule.object.clone(), w.rule.quantity.clone()));
-                key.and_then(|k| self.recent.get(&k)).unwrap_or(&empty).iter().copied().collect()
+                key.and_then(|k| self.recent.get(&k))
+                    .unwrap_or(&empty)
+                    .iter()
+                    .copied()
+                    .collect()
             })
             .collect();
         let mut items: Vec<Item<'_>> = group
@@ -438,7 +474,10 @@ impl Evaluator {
             id,
             created_ms: now_ms,
             site: site.to_string(),
-            recipients: group.first().map(|n| n.recipients.clone()).unwrap_or_default(),
+            recipients: group
+                .first()
+                .map(|n| n.recipients.clone())
+                .unwrap_or_default(),
             subject,
             text,
             html,

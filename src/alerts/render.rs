@@ -50,9 +50,10 @@ pub fn num(v: f64) -> String {
 
 /// RFC 3339-like UTC time to the minute.
 pub fn time(t_ms: i64) -> String {
-    Utc.timestamp_millis_opt(t_ms)
-        .single()
-        .map_or_else(|| t_ms.to_string(), |t| t.format("%Y-%m-%d %H:%M UTC").to_string())
+    Utc.timestamp_millis_opt(t_ms).single().map_or_else(
+        || t_ms.to_string(),
+        |t| t.format("%Y-%m-%d %H:%M UTC").to_string(),
+    )
 }
 
 fn with_unit(v: f64, unit: &str) -> String {
@@ -127,7 +128,11 @@ impl Item<'_> {
         match (self.recent.first(), self.recent.last()) {
             (Some(&(t0, v0)), Some(&(t1, v1))) if t1 > t0 => {
                 let per_h = (v1 - v0) / ((t1 - t0) as f64 / 3_600_000.0);
-                let unit = if self.unit.is_empty() { String::new() } else { format!(" {}", self.unit) };
+                let unit = if self.unit.is_empty() {
+                    String::new()
+                } else {
+                    format!(" {}", self.unit)
+                };
                 format!(
                     "{}{unit} per hour over the last {} values ({} to {})",
                     num(per_h),
@@ -151,19 +156,24 @@ fn escape(s: &str) -> String {
 /// Subject, text and HTML of one message. `items` is sorted most severe first.
 pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, String) {
     items.sort_by(|a, b| b.severity.cmp(&a.severity).then(a.alert.cmp(&b.alert)));
-    let mut subject = format!("[seepd] {}", items.first().map(Item::subject_part).unwrap_or_default());
+    let mut subject = format!(
+        "[seepd] {}",
+        items.first().map(Item::subject_part).unwrap_or_default()
+    );
     if items.len() > 1 {
         let _ = write!(subject, " (+{} more)", items.len() - 1);
     }
     let mut text = String::new();
-    let mut html = String::from(
-        "<!DOCTYPE html><html><body style=\"font-family:sans-serif\">",
-    );
+    let mut html = String::from("<!DOCTYPE html><html><body style=\"font-family:sans-serif\">");
     for it in items.iter() {
         let head = headline(it.kind, &it.level.name);
         let _ = writeln!(text, "== Alert {} — {head} ==", it.alert);
         let _ = writeln!(text, "Site:        {} ({})", it.site_name, it.site_id);
-        let _ = writeln!(text, "Watching:    {} {} (rule {})", it.object, it.quantity, it.rule);
+        let _ = writeln!(
+            text,
+            "Watching:    {} {} (rule {})",
+            it.object, it.quantity, it.rule
+        );
         let _ = writeln!(text, "Value:       {}", it.against_bound());
         if *it.check == Check::Threshold {
             let _ = writeln!(text, "Recent rate: {}", it.rate());
@@ -174,7 +184,11 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
         }
         let _ = writeln!(text, "Response:    {}", it.level.response);
         if it.kind != "resolve" {
-            let _ = writeln!(text, "Acknowledge: seepd ack {} --config DIR --by NAME", it.alert);
+            let _ = writeln!(
+                text,
+                "Acknowledge: seepd ack {} --config DIR --by NAME",
+                it.alert
+            );
         }
         let _ = writeln!(text);
 
@@ -206,7 +220,9 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
             escape(&it.level.response)
         );
         if *it.check == Check::Threshold && !it.recent.is_empty() {
-            html.push_str("<table border=\"1\" cellpadding=\"3\"><tr><th>time</th><th>value</th></tr>");
+            html.push_str(
+                "<table border=\"1\" cellpadding=\"3\"><tr><th>time</th><th>value</th></tr>",
+            );
             for &(t, v) in it.recent.iter().rev() {
                 let _ = write!(
                     html,

@@ -96,7 +96,9 @@ impl SiteAlerting {
         let mut out: Vec<String> = self
             .contacts
             .iter()
-            .filter(|c| c.receives(level) && ((c.escalation && escalation) || (!c.escalation && first_line)))
+            .filter(|c| {
+                c.receives(level) && ((c.escalation && escalation) || (!c.escalation && first_line))
+            })
             .flat_map(|c| c.emails.iter().cloned())
             .collect();
         out.sort();

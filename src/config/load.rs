@@ -14,9 +14,9 @@ use toml_edit::ImDocument;
 
 use super::alerting::Alerting;
 use super::model::{Config, PayloadFormat};
-use super::rules;
 use super::problem::{whole_file, Cx};
 use super::reader::Tbl;
+use super::rules;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
 
@@ -96,7 +96,10 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             .flat_map(|(_, sf)| sf.entries.iter().filter_map(|e| e.id.as_ref()))
             .map(|(id, _)| id.clone())
             .collect();
-        let files: Vec<_> = sites.iter().map(|(p, sf)| (p.clone(), &sf.alerting)).collect();
+        let files: Vec<_> = sites
+            .iter()
+            .map(|(p, sf)| (p.clone(), &sf.alerting))
+            .collect();
         // TODO(integration): pass the derived-object ids once `config::objects` reads them.
         rules::cross_check(&files, &instruments, &BTreeSet::new(), &mut problems);
     }
@@ -303,6 +306,15 @@ pub fn summary(cfg: &Config) -> String {
             "clean"
         }
     );
+    let _ = match &cfg.alerting.smtp {
+        Some(m) => writeln!(
+            s,
+            "Mail relay: {}:{} ({:?}) from {}",
+            m.host, m.port, m.security, m.from
+        ),
+        None => writeln!(s, "Mail relay: none (alert messages stay in the outbox)"),
+    };
+    let _ = writeln!(s, "Alert rules: {}", cfg.alerting.rules.len());
     let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
     for sub in &cfg.subscriptions {
         let format = match sub.format {

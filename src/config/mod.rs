@@ -13,7 +13,7 @@ mod service;
 mod site;
 mod smtp;
 
-pub use load::{load_dir, summary, Problem, Problems};
 pub use alerting::{Alerting, Contacts, Policy, Rule, SiteAlerting, Smtp, SmtpSecurity};
+pub use load::{load_dir, summary, Problem, Problems};
 pub use model::*;
 pub use smtp::is_loopback;

@@ -22,8 +22,12 @@ use super::smtp::plain_address;
 pub(crate) const KEYS: [&str; 3] = ["alerting", "contacts", "rule"];
 
 /// Quantities every reading has (see `replay::quantities`).
-pub const READING_QUANTITIES: [&str; 4] =
-    ["engineering_value", "pressure", "pressure_head", "total_head"];
+pub const READING_QUANTITIES: [&str; 4] = [
+    "engineering_value",
+    "pressure",
+    "pressure_head",
+    "total_head",
+];
 
 /// TODO(integration): set to true once `config::objects` fills `Config.objects`, so that a
 /// rule on an id that is neither an instrument nor an object is a configuration problem.
@@ -78,7 +82,12 @@ fn millis(s: Option<i64>) -> Option<i64> {
 fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
     t.check_keys(
         cx,
-        &["group_wait_s", "repeat_interval_s", "escalate_after_s", "status_url"],
+        &[
+            "group_wait_s",
+            "repeat_interval_s",
+            "escalate_after_s",
+            "status_url",
+        ],
     );
     let d = Policy::default();
     let max = i64::MAX / 1000;
@@ -165,7 +174,12 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
     }
     let id_pos = cx.pos(t.value_span("id"));
     t.check_keys(cx, &RULE_KEYS);
-    let no_data = t.choice(cx, "kind", false, &[("threshold", false), ("no_data", true)]) == Some(true);
+    let no_data = t.choice(
+        cx,
+        "kind",
+        false,
+        &[("threshold", false), ("no_data", true)],
+    ) == Some(true);
     let object = t.nonempty(cx, "object");
     if !t.has("object") {
         t.missing(cx, "object", " (an instrument or derived-object id)");
@@ -175,7 +189,11 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
     let (quantity, levels, factor) = if no_data {
         for key in ["quantity", "deadband", "persist_readings", "persist_s"] {
             if t.has(key) {
-                t.problem_at(cx, key, format!("key \"{key}\" does not apply to kind = \"no_data\""));
+                t.problem_at(
+                    cx,
+                    key,
+                    format!("key \"{key}\" does not apply to kind = \"no_data\""),
+                );
             }
         }
         let factor = t.number(cx, "factor", true);
@@ -202,11 +220,19 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
         (Some("no_data".to_string()), level.map(|l| vec![l]), factor)
     } else {
         if t.has("factor") {
-            t.problem_at(cx, "factor", "key \"factor\" applies only to kind = \"no_data\"");
+            t.problem_at(
+                cx,
+                "factor",
+                "key \"factor\" applies only to kind = \"no_data\"",
+            );
         }
         let quantity = t.nonempty(cx, "quantity");
         if !t.has("quantity") {
-            t.missing(cx, "quantity", " (e.g. \"total_head\", \"factor_of_safety\")");
+            t.missing(
+                cx,
+                "quantity",
+                " (e.g. \"total_head\", \"factor_of_safety\")",
+            );
         }
         (quantity, read_levels(cx, t, &defaults), None)
     };
@@ -218,7 +244,11 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
                 object: object.clone(),
                 quantity: quantity.clone(),
                 spec: Spec {
-                    check: if no_data { Check::NoData } else { Check::Threshold },
+                    check: if no_data {
+                        Check::NoData
+                    } else {
+                        Check::Threshold
+                    },
                     levels,
                     repeat_ms: policy.repeat_ms,
                     escalate_after_ms: policy.escalate_after_ms,
@@ -240,7 +270,10 @@ fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<Le
     let tables = t.tables(cx, "level");
     if tables.is_empty() {
         if !t.has("level") {
-            t.problem(cx, "no [[rule.level]] tables; expected one per level, least severe first");
+            t.problem(
+                cx,
+                "no [[rule.level]] tables; expected one per level, least severe first",
+            );
         }
         return None;
     }
@@ -252,42 +285,76 @@ fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<Le
         l.header = "[[rule.level]]".into();
         l.check_keys(
             cx,
-            &["name", "above", "below", "deadband", "persist_readings", "persist_s", "keep_active_s", "response"],
+            &[
+                "name",
+                "above",
+                "below",
+                "deadband",
+                "persist_readings",
+                "persist_s",
+                "keep_active_s",
+                "response",
+            ],
         );
         let name = l.nonempty(cx, "name");
         if !l.has("name") {
             l.missing(cx, "name", " (your name for the level, e.g. \"watch\")");
         }
         if let Some(n) = name.as_ref().filter(|n| !names.insert(n.to_string())) {
-            l.problem_at(cx, "name", format!("level name {n:?} is used twice in this rule"));
+            l.problem_at(
+                cx,
+                "name",
+                format!("level name {n:?} is used twice in this rule"),
+            );
         }
         let bound = match (l.number(cx, "above", false), l.number(cx, "below", false)) {
             (Some(b), None) => Some((Direction::Above, b)),
             (None, Some(b)) => Some((Direction::Below, b)),
             (Some(_), Some(_)) => {
-                l.problem(cx, "both \"above\" and \"below\" are set; expected one bound per level");
+                l.problem(
+                    cx,
+                    "both \"above\" and \"below\" are set; expected one bound per level",
+                );
                 None
             }
             (None, None) => {
                 if !l.has("above") && !l.has("below") {
-                    l.problem(cx, "no bound; expected \"above = <value>\" or \"below = <value>\"");
+                    l.problem(
+                        cx,
+                        "no bound; expected \"above = <value>\" or \"below = <value>\"",
+                    );
                 }
                 None
             }
         };
-        let deadband = l.number(cx, "deadband", false).or(d.deadband).unwrap_or(0.0);
+        let deadband = l
+            .number(cx, "deadband", false)
+            .or(d.deadband)
+            .unwrap_or(0.0);
         if deadband < 0.0 {
-            l.problem_at(cx, "deadband", format!("deadband is {deadband}, expected 0 or more"));
+            l.problem_at(
+                cx,
+                "deadband",
+                format!("deadband is {deadband}, expected 0 or more"),
+            );
         }
         let persist = l
             .opt_int_in(cx, "persist_readings", 1, u32::MAX.into(), false)
             .or(d.persist_readings)
             .unwrap_or(1);
-        let persist_s = l.opt_int_in(cx, "persist_s", 0, i64::MAX / 1000, false).or(d.persist_s);
-        let keep_s = l.opt_int_in(cx, "keep_active_s", 0, i64::MAX / 1000, false).or(d.keep_active_s);
+        let persist_s = l
+            .opt_int_in(cx, "persist_s", 0, i64::MAX / 1000, false)
+            .or(d.persist_s);
+        let keep_s = l
+            .opt_int_in(cx, "keep_active_s", 0, i64::MAX / 1000, false)
+            .or(d.keep_active_s);
         let response = l.nonempty(cx, "response").or_else(|| d.response.clone());
         if response.is_none() {
-            l.missing(cx, "response", " (or in the [[rule]]: what the on-call should do)");
+            l.missing(
+                cx,
+                "response",
+                " (or in the [[rule]]: what the on-call should do)",
+            );
         }
         if let (Some((dir, b)), Some(prev)) = (bound, levels.last()) {
             let ordered = match dir {
@@ -295,7 +362,14 @@ fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<Le
                 Direction::Below => b < prev.bound,
             };
             if dir != prev.direction {
-                l.problem(cx, format!("bound is {} but the level before is {}; expected one direction per rule", dir.name(), prev.direction.name()));
+                l.problem(
+                    cx,
+                    format!(
+                        "bound is {} but the level before is {}; expected one direction per rule",
+                        dir.name(),
+                        prev.direction.name()
+                    ),
+                );
             } else if !ordered {
                 l.problem(cx, format!("{} {b} is not beyond the level before ({}); expected levels least severe first", dir.name(), prev.bound));
             }

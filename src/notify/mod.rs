@@ -36,7 +36,9 @@ pub struct Pass {
 /// Backoff before attempt `attempts + 1`: min · 2^(attempts − 1), capped at max (seconds).
 pub fn backoff_s(smtp: &Smtp, attempts: i64) -> u64 {
     let exp = (attempts.max(1) - 1).min(20) as u32;
-    smtp.retry_min_s.saturating_mul(1 << exp).min(smtp.retry_max_s)
+    smtp.retry_min_s
+        .saturating_mul(1 << exp)
+        .min(smtp.retry_max_s)
 }
 
 /// Send every due message once. Stops early (returns) at the first connection failure, since
@@ -44,7 +46,11 @@ pub fn backoff_s(smtp: &Smtp, attempts: i64) -> u64 {
 ///
 /// # Errors
 /// Database errors.
-pub fn deliver_due(store: &Store, mailer: &Mailer, smtp: &Smtp) -> Result<Pass, crate::store::StoreError> {
+pub fn deliver_due(
+    store: &Store,
+    mailer: &Mailer,
+    smtp: &Smtp,
+) -> Result<Pass, crate::store::StoreError> {
     let mut pass = Pass::default();
     let now_ms = Utc::now().timestamp_millis();
     for m in store.due_messages(now_ms, 100)? {

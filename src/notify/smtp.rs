@@ -79,8 +79,11 @@ impl Mailer {
                 .map_err(|e| SendError::Permanent(format!("recipient {r:?}: {e}")))?;
             b = b.to(to);
         }
-        b.multipart(MultiPart::alternative_plain_html(m.text.clone(), m.html.clone()))
-            .map_err(|e| SendError::Permanent(format!("building the message: {e}")))
+        b.multipart(MultiPart::alternative_plain_html(
+            m.text.clone(),
+            m.html.clone(),
+        ))
+        .map_err(|e| SendError::Permanent(format!("building the message: {e}")))
     }
 
     /// Send one outbox message.

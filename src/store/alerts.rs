@@ -143,7 +143,15 @@ pub(super) fn write(tx: &Transaction<'_>, w: &AlertWrites) -> Result<(), StoreEr
     )?;
     for a in &w.new_alerts {
         st.execute(params![
-            a.id, a.rule, a.site, a.object, a.quantity, a.level, a.raised_ms, a.value, a.unit
+            a.id,
+            a.rule,
+            a.site,
+            a.object,
+            a.quantity,
+            a.level,
+            a.raised_ms,
+            a.value,
+            a.unit
         ])?;
     }
     let mut st = tx.prepare_cached("UPDATE alerts SET level = ?2 WHERE id = ?1")?;
