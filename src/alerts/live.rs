@@ -13,6 +13,21 @@ use crate::store::{AlertWrites, Store};
 
 use super::{Evaluator, Observation};
 
+/// Crash-test hook: when the environment variable `SEEPD_TEST_PAUSE_AT` names `step`, log
+/// "Test pause at STEP" and stop here for good (the test then kills the process with SIGKILL).
+/// Steps: `before_commit`, `after_commit` (a commit that queued messages), `after_send` (the
+/// relay accepted a message, not yet marked sent). Unset in production: one env lookup.
+pub fn pause_point(step: &str) {
+    static AT: std::sync::OnceLock<Option<String>> = std::sync::OnceLock::new();
+    let at = AT.get_or_init(|| std::env::var("SEEPD_TEST_PAUSE_AT").ok());
+    if at.as_deref() == Some(step) {
+        tracing::warn!(step, "Test pause at {step}");
+        loop {
+            std::thread::sleep(Duration::from_secs(3600));
+        }
+    }
+}
+
 /// How often rules are stepped without an observation.
 pub const TICK: Duration = Duration::from_secs(1);
 
@@ -55,9 +70,17 @@ impl Live {
         }
     }
 
+    /// Before committing a batch whose evaluation queued messages (crash tests).
+    pub fn before_commit(&self, w: &AlertWrites) {
+        if !w.messages.is_empty() {
+            pause_point("before_commit");
+        }
+    }
+
     /// After a commit: wake the mail worker if messages were queued.
     pub fn committed(&self, w: &AlertWrites) {
         if !w.messages.is_empty() {
+            pause_point("after_commit");
             if let Some(k) = &self.waker {
                 k.wake();
             }
@@ -91,6 +114,7 @@ impl Live {
         if w.is_empty() {
             return;
         }
+        self.before_commit(&w);
         let mut wait = Duration::from_millis(100);
         while let Err(e) = store.write_alerts(&w) {
             tracing::error!(error = %e, "Commit of alert state failed; retrying");

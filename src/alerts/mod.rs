@@ -106,6 +106,7 @@ impl Evaluator {
     /// Fresh states (replay, tests).
     pub fn new(cfg: Arc<Config>) -> Evaluator {
         let mut index: HashMap<(String, String), Vec<usize>> = HashMap::new();
+        let mut recent = HashMap::new();
         let rules: Vec<Watched> = cfg
             .alerting
             .rules
@@ -119,6 +120,7 @@ impl Evaluator {
                 let unit = if r.spec.check == Check::NoData {
                     "s"
                 } else {
+                    recent.insert((r.object.clone(), r.quantity.clone()), VecDeque::new());
                     ""
                 };
                 Watched {
@@ -132,7 +134,7 @@ impl Evaluator {
             cfg,
             rules,
             index,
-            recent: HashMap::new(),
+            recent,
             waiting: Vec::new(),
             silences: Vec::new(),
             next_alert: 1,

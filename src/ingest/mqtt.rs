@@ -294,6 +294,7 @@ fn writer_loop(
             derived,
             quarantined,
         } = out;
+        alerts.before_commit(&aw);
         let mut wait = Duration::from_millis(100);
         let stats = loop {
             match store.write_batch_with(&readings, &derived, &quarantined, &aw) {

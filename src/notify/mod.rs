@@ -56,6 +56,7 @@ pub fn deliver_due(
     for m in store.due_messages(now_ms, 100)? {
         match mailer.send(&m) {
             Ok(()) => {
+                crate::alerts::live::pause_point("after_send");
                 store.mark_sent(m.id, Utc::now().timestamp_millis())?;
                 tracing::info!(message_id = %m.message_id, to = %m.recipients.join(","), "Alert message accepted by the mail relay");
                 pass.sent += 1;

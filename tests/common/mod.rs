@@ -2,6 +2,8 @@
 //! test in its own temp directory. Polls until ready instead of sleeping blindly.
 #![allow(dead_code)]
 
+pub mod smtp;
+
 use std::io::Write;
 use std::net::{TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
