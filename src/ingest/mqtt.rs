@@ -259,7 +259,8 @@ fn writer_loop(
     let mut qlog = QuarantineLog::new(Duration::from_secs(60));
     let mut ack_failed = false;
     loop {
-        let first = match rt.block_on(tokio::time::timeout(TICK, rx.recv())) {
+        // The timer must be created inside the runtime: build it in the async block.
+        let first = match rt.block_on(async { tokio::time::timeout(TICK, rx.recv()).await }) {
             Ok(Some(a)) => a,
             Ok(None) => break,
             Err(_) => {
