@@ -363,3 +363,6 @@ mod tests;
 
 #[cfg(test)]
 mod check_tests;
+
+#[cfg(test)]
+mod rules_tests;

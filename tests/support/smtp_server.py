@@ -9,7 +9,7 @@ Run with /usr/bin/python3 (Debian python3-aiosmtpd). Listens on 127.0.0.1 only.
   --auth USER:PASS      require AUTH (PLAIN/LOGIN) with this one test user (needs --cert)
   --implicit-tls        TLS from the first byte instead of STARTTLS (with --cert/--key)
   --reject              answer every DATA with 550 (a permanent refusal)
-  --log FILE            append one line per accepted message: time, Message-ID
+  --log FILE            append one line per accepted message: time, Message-ID, Subject
 """
 import argparse
 import email
@@ -37,7 +37,10 @@ class Logging(Mailbox):
         super().handle_message(message)
         if self.log:
             with open(self.log, "a") as f:
-                f.write("%.6f %s\n" % (time.time(), message.get("Message-ID", "")))
+                f.write(
+                    "%.6f\t%s\t%s\n"
+                    % (time.time(), message.get("Message-ID", ""), message.get("Subject", ""))
+                )
 
 
 def main():
