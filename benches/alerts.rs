@@ -3,7 +3,7 @@
 //! commit with the rule transition and its outbox row, mail worker, SMTP). No group wait.
 //!
 //! Run: `cargo bench --bench alerts` (env SEEPD_BENCH_ALERTS sets the number of alerts,
-//! default 1000). Each alert is a river reading above the rule's bound (raise), followed by
+//! default 1000; under `cargo test`, which runs it without `--bench`, a 20-alert smoke run). Each alert is a river reading above the rule's bound (raise), followed by
 //! one back inside (all clear), one at a time. Figures go to the README.
 
 #[path = "../tests/common/mod.rs"]
@@ -65,7 +65,11 @@ fn main() {
     let n: usize = std::env::var("SEEPD_BENCH_ALERTS")
         .ok()
         .and_then(|s| s.parse().ok())
-        .unwrap_or(1000);
+        .unwrap_or(if std::env::args().any(|a| a == "--bench") {
+            1000
+        } else {
+            20
+        });
     let dir = tempfile::tempdir().unwrap();
     let broker = Broker::start(dir.path());
     let smtp = SmtpServer::start(dir.path(), Opts::default());
