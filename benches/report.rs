@@ -14,7 +14,11 @@ fn main() {
     let dir = tempfile::tempdir().unwrap();
     let cfg_dir = dir.path().join("config");
     std::fs::create_dir_all(&cfg_dir).unwrap();
-    std::fs::write(cfg_dir.join("seepd.toml"), "[service]\ndatabase = \"bench.sqlite\"\n").unwrap();
+    std::fs::write(
+        cfg_dir.join("seepd.toml"),
+        "[service]\ndatabase = \"bench.sqlite\"\n",
+    )
+    .unwrap();
     let mut site = String::from("[site]\nid = \"big\"\nname = \"Bench site (invented)\"\n\n[[instrument]]\nid = \"RIVER\"\nkind = \"stage_gauge\"\ninstalled = \"2025-01-01\"\ninterval_s = 3600\nrange = [0.0, 200.0]\n[instrument.stage_gauge]\nwater_body = \"river\"\nmode = \"elevation\"\nunit = \"m\"\n");
     for k in 0..N {
         let _ = write!(
@@ -26,7 +30,12 @@ fn main() {
         );
     }
     for c in 0..N / 2 {
-        let _ = write!(site, "\n[[cluster]]\nid = \"C{c:03}\"\npiezometers = [\"P{:03}\", \"P{:03}\"]\n", 2 * c, 2 * c + 1);
+        let _ = write!(
+            site,
+            "\n[[cluster]]\nid = \"C{c:03}\"\npiezometers = [\"P{:03}\", \"P{:03}\"]\n",
+            2 * c,
+            2 * c + 1
+        );
     }
     std::fs::write(cfg_dir.join("big.toml"), site).unwrap();
     let cfg = seepd::config::load_dir(&cfg_dir).expect("bench config");
@@ -39,7 +48,11 @@ fn main() {
         let stage = 90.0 + 3.0 * (h as f64 / 100.0).sin();
         rows.push(row("RIVER", t_ms, stage));
         for k in 0..N {
-            rows.push(row(&format!("P{k:03}"), t_ms, 85.0 + (k % 10) as f64 + 0.3 * stage - 27.0));
+            rows.push(row(
+                &format!("P{k:03}"),
+                t_ms,
+                85.0 + (k % 10) as f64 + 0.3 * stage - 27.0,
+            ));
         }
     }
     store.write_batch(&rows, &[], &[]).unwrap();

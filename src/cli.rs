@@ -9,6 +9,7 @@ use std::sync::Arc;
 use anyhow::Context as _;
 use clap::{Parser, Subcommand, ValueEnum};
 
+use crate::alerts;
 use crate::config::{self, Config, PayloadFormat};
 use crate::ingest::progress::Counters;
 
@@ -52,6 +53,49 @@ pub enum Command {
         /// Write records here (default: standard output).
         #[arg(long, value_name = "FILE")]
         output: Option<PathBuf>,
+        /// Also send the alert messages through [smtp] (default: alert records only).
+        #[arg(long)]
+        send_email: bool,
+    },
+    /// List active, pending and silenced alerts and undeliverable messages.
+    Alerts {
+        #[arg(long, value_name = "DIR")]
+        config: PathBuf,
+    },
+    /// Acknowledge an alert: no more reminders or escalation for it.
+    Ack {
+        /// The alert number (see `seepd alerts`).
+        alert: i64,
+        #[arg(long, value_name = "DIR")]
+        config: PathBuf,
+        /// Who acknowledges (default: $USER).
+        #[arg(long, value_name = "NAME")]
+        by: Option<String>,
+        #[arg(long, value_name = "TEXT")]
+        note: Option<String>,
+    },
+    /// Silence the messages of a rule or of an instrument until a time (mandatory).
+    Silence {
+        #[arg(long, value_name = "DIR")]
+        config: PathBuf,
+        #[arg(
+            long,
+            value_name = "ID",
+            conflicts_with = "instrument",
+            required_unless_present = "instrument"
+        )]
+        rule: Option<String>,
+        /// An instrument or derived-object id (silences every rule on it).
+        #[arg(long, value_name = "ID")]
+        instrument: Option<String>,
+        /// RFC 3339 time, a date, or +30m / +4h / +2d.
+        #[arg(long, value_name = "TIME")]
+        until: String,
+        #[arg(long, value_name = "TEXT")]
+        reason: String,
+        /// Who silences (default: $USER).
+        #[arg(long, value_name = "NAME")]
+        by: Option<String>,
     },
     /// Draw a cross-section (phreatic line, exit point) as SVG from the stored heads.
     Section {
@@ -142,6 +186,14 @@ fn parse_time(text: &str, what: &str) -> anyhow::Result<chrono::DateTime<chrono:
         .ok_or_else(|| anyhow::anyhow!("{what} {text:?} is neither RFC 3339 nor YYYY-MM-DD"))
 }
 
+/// Who runs the command ($USER, else "operator").
+fn who() -> String {
+    std::env::var("USER")
+        .ok()
+        .filter(|u| !u.is_empty())
+        .unwrap_or_else(|| "operator".into())
+}
+
 /// Run the parsed command; returns the process exit code.
 pub fn main_with(cli: Cli) -> i32 {
     match dispatch(cli) {
@@ -178,6 +230,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             format,
             db,
             output,
+            send_email,
         } => {
             let cfg = match load(&config) {
                 Ok(c) => c,
@@ -198,13 +251,14 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
                 None => Box::new(BufWriter::new(std::io::stdout().lock())),
             };
             let started = std::time::Instant::now();
-            let t = crate::replay::run(
+            let t = crate::replay::run_with(
                 &cfg,
                 format.into(),
                 reader,
                 &mut store,
                 &mut out,
                 chrono::Utc::now(),
+                send_email,
             )?;
             let secs = started.elapsed().as_secs_f64();
             eprintln!(
@@ -258,6 +312,58 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             for c in files.csv {
                 println!("{}", c.display());
             }
+            Ok(0)
+        }
+        Command::Alerts { config } => {
+            let cfg = match load(&config) {
+                Ok(c) => c,
+                Err(code) => return Ok(code),
+            };
+            print!("{}", alerts::commands::report(&cfg, chrono::Utc::now())?);
+            Ok(0)
+        }
+        Command::Ack {
+            alert,
+            config,
+            by,
+            note,
+        } => {
+            let cfg = match load(&config) {
+                Ok(c) => c,
+                Err(code) => return Ok(code),
+            };
+            let by = by.unwrap_or_else(who);
+            print!(
+                "{}",
+                alerts::commands::ack(&cfg, alert, &by, note.as_deref(), chrono::Utc::now())?
+            );
+            Ok(0)
+        }
+        Command::Silence {
+            config,
+            rule,
+            instrument,
+            until,
+            reason,
+            by,
+        } => {
+            let cfg = match load(&config) {
+                Ok(c) => c,
+                Err(code) => return Ok(code),
+            };
+            let by = by.unwrap_or_else(who);
+            print!(
+                "{}",
+                alerts::commands::silence(
+                    &cfg,
+                    rule.as_deref(),
+                    instrument.as_deref(),
+                    &until,
+                    &reason,
+                    &by,
+                    chrono::Utc::now()
+                )?
+            );
             Ok(0)
         }
         Command::Demo {

@@ -4,6 +4,7 @@
 //! an incoming message into stored rows by calling the domain and is shared by `run` and
 //! `replay`; `ingest`, `store` and `demo` are adapters; `cli` parses arguments.
 
+pub mod alerts;
 pub mod cli;
 pub mod config;
 #[cfg(feature = "demo-broker")]
@@ -12,6 +13,7 @@ pub mod derive;
 pub mod domain;
 pub mod engine;
 pub mod ingest;
+pub mod notify;
 pub mod quality;
 pub mod replay;
 pub mod section_cmd;

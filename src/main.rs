@@ -10,6 +10,8 @@ fn main() {
                 .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,rumqttd=warn")),
         )
         .with_writer(std::io::stderr)
+        // Colour only on a terminal: journald and log files get plain key=value lines.
+        .with_ansi(std::io::IsTerminal::is_terminal(&std::io::stderr()))
         .init();
     std::process::exit(seepd::cli::main_with(cli));
 }

@@ -1,5 +1,6 @@
 //! `seepd replay`: push a file of historical readings through the same engine and store as the
-//! live service, and write one NDJSON record per computed value.
+//! live service, and write one NDJSON record per computed value and per alert transition (the
+//! rules evaluated in the readings' time; email only with `--send-email`).
 //!
 //! Input formats: `ndjson` (one JSON reading object per line, the same shape the JSON payload
 //! decoder takes, with the instrument id in the `instrument` field), `csv`
@@ -11,9 +12,10 @@ use std::sync::Arc;
 use chrono::{DateTime, SecondsFormat, TimeZone, Utc};
 use serde::Serialize;
 
+use crate::alerts::{observations, Evaluator, Transition};
 use crate::config::{Config, EpochUnit, JsonFields, PayloadFormat, Subscription};
-use crate::engine::{Engine, Message};
-use crate::store::{DerivedRow, QuarantineRow, ReadingRow, Store};
+use crate::engine::{Engine, Message, Outcome};
+use crate::store::{AlertWrites, DerivedRow, QuarantineRow, ReadingRow, Store};
 
 /// The pseudo-topic replayed messages carry.
 pub const REPLAY_TOPIC: &str = "replay";
@@ -54,6 +56,22 @@ pub enum Record<'a> {
         #[serde(skip_serializing_if = "Option::is_none")]
         reason: Option<&'a str>,
         inputs: &'a [String],
+    },
+    /// An alert transition (see README "Replay output").
+    Alert {
+        alert: i64,
+        rule: &'a str,
+        action: &'static str,
+        level: &'a str,
+        #[serde(skip_serializing_if = "Option::is_none")]
+        previous_level: Option<&'a str>,
+        id: &'a str,
+        quantity: &'a str,
+        time: String,
+        value: Option<f64>,
+        unit: &'a str,
+        bound: f64,
+        direction: &'static str,
     },
     /// An input that went to quarantine.
     Quarantine {
@@ -111,7 +129,8 @@ pub fn quantities(r: &ReadingRow) -> Vec<(&'static str, f64, &'static str)> {
     v
 }
 
-/// Replay `input` into `store`, writing NDJSON records to `out`.
+/// Replay `input` into `store`, writing NDJSON records to `out` (alert transitions included;
+/// no email).
 ///
 /// # Errors
 /// Read/write errors and database errors. Bad lines are not errors: they are quarantined.
@@ -123,7 +142,39 @@ pub fn run(
     out: &mut impl Write,
     now: DateTime<Utc>,
 ) -> anyhow::Result<Totals> {
+    run_with(cfg, format, input, store, out, now, false)
+}
+
+/// `run`, and with `send_email` also the alerting rows written to `store` and the messages
+/// sent through `[smtp]` at the end. Rules are evaluated in the readings' time.
+///
+/// # Errors
+/// As `run`; a missing `[smtp]` when `send_email`.
+pub fn run_with(
+    cfg: &Config,
+    format: PayloadFormat,
+    input: impl BufRead,
+    store: &mut Store,
+    out: &mut impl Write,
+    now: DateTime<Utc>,
+    send_email: bool,
+) -> anyhow::Result<Totals> {
+    let smtp = match (&cfg.alerting.smtp, send_email) {
+        (None, true) => anyhow::bail!("--send-email needs [smtp] in seepd.toml"),
+        (s, _) => s.clone(),
+    };
     let mut engine = Engine::new(Arc::new(replay_config(cfg, format)));
+    let mut alerts = Alerts {
+        evaluator: if send_email {
+            Evaluator::load(Arc::new(cfg.clone()), store)?
+        } else {
+            Evaluator::new(Arc::new(cfg.clone()))
+        },
+        writes: AlertWrites::default(),
+        transitions: Vec::new(),
+        send_email,
+        clock_ms: i64::MIN,
+    };
     let mut totals = Totals::default();
     let mut readings: Vec<ReadingRow> = Vec::with_capacity(BATCH);
     let mut derived: Vec<DerivedRow> = Vec::new();
@@ -142,6 +193,7 @@ pub fn run(
             redelivered: false,
         };
         let o = engine.process(&msg);
+        alerts.observe(&o);
         readings.extend(o.readings);
         derived.extend(o.derived);
         quarantined.extend(o.quarantined.into_iter().map(|q| (totals.lines, q)));
@@ -152,22 +204,83 @@ pub fn run(
                 &mut readings,
                 &mut derived,
                 &mut quarantined,
+                &mut alerts,
                 out,
                 &mut totals,
             )?;
             pending = 0;
         }
     }
+    if alerts.send_email {
+        let w = alerts.evaluator.flush(alerts.clock_ms.max(0));
+        alerts.writes.extend(w);
+    }
     flush(
         store,
         &mut readings,
         &mut derived,
         &mut quarantined,
+        &mut alerts,
         out,
         &mut totals,
     )?;
     out.flush()?;
+    if let Some(smtp) = smtp.filter(|_| send_email) {
+        send_all(store, &smtp)?;
+    }
     Ok(totals)
+}
+
+/// Replay's alerting: the evaluator run in the readings' time, its transitions (records) and,
+/// with `--send-email`, its rows for the store.
+struct Alerts {
+    evaluator: Evaluator,
+    writes: AlertWrites,
+    transitions: Vec<Transition>,
+    send_email: bool,
+    /// The newest reading time seen: replay's clock.
+    clock_ms: i64,
+}
+
+impl Alerts {
+    fn observe(&mut self, o: &Outcome) {
+        let obs = observations(o);
+        let Some(t) = obs.iter().map(|o| o.t_ms).max() else {
+            return;
+        };
+        self.clock_ms = self.clock_ms.max(t);
+        let w = self.evaluator.evaluate(&obs, self.clock_ms);
+        self.transitions.extend(self.evaluator.take_transitions());
+        if self.send_email {
+            self.writes.extend(w);
+        }
+    }
+}
+
+/// Deliver the outbox through the relay: retry transient failures a few times, then report
+/// what is left (`seepd alerts --config` lists it).
+fn send_all(store: &Store, smtp: &crate::config::Smtp) -> anyhow::Result<()> {
+    let mailer = crate::notify::Mailer::new(smtp)?;
+    for attempt in 0..5 {
+        let pass = crate::notify::deliver_due(store, &mailer, smtp)?;
+        let left = store.messages("pending")?.len();
+        eprintln!(
+            "replay: email pass {}: {} sent, {} dead-lettered, {} waiting",
+            attempt + 1,
+            pass.sent,
+            pass.dead,
+            left
+        );
+        if left == 0 {
+            break;
+        }
+        std::thread::sleep(std::time::Duration::from_secs(smtp.retry_min_s.min(10)));
+        store.conn().execute(
+            "UPDATE outbox SET next_attempt_ms = 0 WHERE status = 'pending'",
+            [],
+        )?;
+    }
+    Ok(())
 }
 
 fn flush(
@@ -175,11 +288,13 @@ fn flush(
     readings: &mut Vec<ReadingRow>,
     derived: &mut Vec<DerivedRow>,
     quarantined: &mut Vec<(u64, QuarantineRow)>,
+    alerts: &mut Alerts,
     out: &mut impl Write,
     totals: &mut Totals,
 ) -> anyhow::Result<()> {
     let q: Vec<QuarantineRow> = quarantined.iter().map(|(_, q)| q.clone()).collect();
-    let stats = store.write_batch(readings, derived, &q)?;
+    let aw = std::mem::take(&mut alerts.writes);
+    let stats = store.write_batch_with(readings, derived, &q, &aw)?;
     totals.readings += stats.inserted as u64;
     totals.duplicates += stats.duplicates as u64;
     totals.quarantined += q.len() as u64;
@@ -218,6 +333,25 @@ fn flush(
             line: *line,
             reason: q.reason.code(),
             detail: &q.detail,
+        };
+        serde_json::to_writer(&mut *out, &rec)?;
+        out.write_all(b"\n")?;
+        totals.records += 1;
+    }
+    for t in alerts.transitions.drain(..) {
+        let rec = Record::Alert {
+            alert: t.alert,
+            rule: &t.rule,
+            action: t.action.name(),
+            level: &t.level,
+            previous_level: t.previous.as_deref(),
+            id: &t.object,
+            quantity: &t.quantity,
+            time: rfc3339(t.t_ms),
+            value: t.value,
+            unit: &t.unit,
+            bound: t.bound,
+            direction: t.direction,
         };
         serde_json::to_writer(&mut *out, &rec)?;
         out.write_all(b"\n")?;

@@ -1,6 +1,7 @@
 //! `seepd run`: load configuration, open the store, and run live ingestion until a signal.
 //!
-//! Owns start-up order and the shutdown signal; the work itself is in `ingest::mqtt`.
+//! Owns start-up order (store, rule states, mail worker, ingestion) and the shutdown signal;
+//! the work itself is in `ingest::mqtt`, `alerts` and `notify`.
 
 use std::future::Future;
 use std::sync::Arc;
@@ -8,9 +9,14 @@ use std::sync::Arc;
 use anyhow::Context as _;
 use chrono::Utc;
 
+use std::time::Duration;
+
+use crate::alerts::live::Live;
+use crate::alerts::Evaluator;
 use crate::config::Config;
 use crate::engine::Engine;
 use crate::ingest::progress::Counters;
+use crate::notify::Worker;
 use crate::store::Store;
 
 /// Open the store for `cfg`, record the instruments and build an engine with its barometer
@@ -57,9 +63,26 @@ pub async fn run(
         database = %cfg.service.database.display(),
         instruments = cfg.instruments.len(),
         subscriptions = cfg.subscriptions.len(),
+        rules = cfg.alerting.rules.len(),
         "seepd starting"
     );
-    crate::ingest::mqtt::run(cfg, store, engine, counters, shutdown).await
+    let evaluator = Evaluator::load(Arc::clone(&cfg), &store)?;
+    let worker = match &cfg.alerting.smtp {
+        Some(smtp) => Some(Worker::spawn(&cfg.service.database, smtp.clone())?),
+        None => {
+            if !cfg.alerting.rules.is_empty() {
+                tracing::warn!("Rules are configured but [smtp] is not: alert messages stay in the outbox (see `seepd alerts`)");
+            }
+            None
+        }
+    };
+    let live = Live::new(evaluator, worker.as_ref().map(Worker::waker));
+    let r =
+        crate::ingest::mqtt::run(Arc::clone(&cfg), store, engine, live, counters, shutdown).await;
+    if let Some(w) = worker {
+        w.stop(Duration::from_secs(cfg.service.shutdown_deadline_s.min(5)));
+    }
+    r
 }
 
 /// Resolves on SIGINT or SIGTERM.

@@ -130,3 +130,45 @@ fn replay_gives_the_expected_heads_and_quarantines_bad_lines() {
         .unwrap();
     assert_eq!(n, 3);
 }
+
+#[test]
+fn replay_writes_alert_transitions_without_email() {
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = Path::new(env!("CARGO_MANIFEST_DIR")).join("config");
+    let input = dir.path().join("river.ndjson");
+    // Hourly river stage: 92 m, then 98.2 m for 6 h (act), then back to 92 m for 4 h.
+    let mut text = String::new();
+    for h in 0..16 {
+        let depth = if (2..8).contains(&h) { 8.2 } else { 2.0 };
+        text.push_str(&format!(
+            "{{\"time\": {}, \"instrument\": \"AB-RIVER\", \"value\": {depth}}}\n",
+            1_772_366_400 + h * 3600
+        ));
+    }
+    std::fs::write(&input, text).unwrap();
+    let (code, out, err) = seepd(&[
+        "replay",
+        "--config",
+        cfg.to_str().unwrap(),
+        "--input",
+        input.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let river: Vec<serde_json::Value> = out
+        .lines()
+        .filter_map(|l| serde_json::from_str(l).ok())
+        .filter(|v: &serde_json::Value| v["type"] == "alert" && v["rule"] == "ash-bend-river-stage")
+        .collect();
+    let actions: Vec<&str> = river.iter().filter_map(|v| v["action"].as_str()).collect();
+    // Raise on the 2nd reading beyond (persist_readings = 2), reminders every 4 h, escalation
+    // to the second list after 1 h, resolve 2 h (keep_active_s) after the value came back.
+    assert_eq!(actions.first(), Some(&"raise"), "{actions:?}");
+    assert_eq!(actions.last(), Some(&"resolve"), "{actions:?}");
+    assert!(actions.contains(&"notify_escalation"), "{actions:?}");
+    assert_eq!(river[0]["level"], "act");
+    assert_eq!(river[0]["time"], "2026-03-01T15:00:00.000Z");
+    assert_eq!(river[0]["bound"], 97.8);
+    assert_eq!(river[0]["direction"], "above");
+    let resolve = river.last().unwrap();
+    assert_eq!(resolve["time"], "2026-03-01T22:00:00.000Z");
+}

@@ -8,6 +8,7 @@ need=()
 command -v mosquitto >/dev/null 2>&1 || [ -x /usr/sbin/mosquitto ] || need+=(mosquitto)
 command -v mosquitto_sub >/dev/null 2>&1 || need+=(mosquitto-clients)
 /usr/bin/python3 -c 'import aiosmtpd' >/dev/null 2>&1 || need+=(python3-aiosmtpd)
+command -v openssl >/dev/null 2>&1 || need+=(openssl)
 /usr/bin/python3 -c 'import scipy' >/dev/null 2>&1 || need+=(python3-scipy)
 command -v victoria-metrics >/dev/null 2>&1 || [ -x /usr/bin/victoria-metrics ] || need+=(victoria-metrics)
 if [ ${#need[@]} -gt 0 ]; then

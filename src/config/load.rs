@@ -7,16 +7,18 @@
 //! channels, object references through `objects::resolve`) and the `seepd check` summary.
 //! Per-table keys and checks live in `service`, `site`, `kinds` and `objects`.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, BTreeSet};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use toml_edit::ImDocument;
 
+use super::alerting::Alerting;
 use super::model::{Config, Objects, PayloadFormat};
 use super::objects::{self, Known, Object};
 use super::problem::{whole_file, Cx};
 use super::reader::Tbl;
+use super::rules;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
 
@@ -90,6 +92,26 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         })
         .collect();
     let objects = cross_checks(&sites, &mut problems);
+    {
+        let instruments: BTreeSet<String> = sites
+            .iter()
+            .flat_map(|(_, sf)| sf.entries.iter().filter_map(|e| e.id.as_ref()))
+            .map(|(id, _)| id.clone())
+            .collect();
+        let files: Vec<_> = sites
+            .iter()
+            .map(|(p, sf)| (p.clone(), &sf.alerting))
+            .collect();
+        let object_ids: BTreeSet<String> = objects
+            .clusters
+            .iter()
+            .map(|o| o.id.clone())
+            .chain(objects.toes.iter().map(|o| o.id.clone()))
+            .chain(objects.blankets.iter().map(|o| o.id.clone()))
+            .chain(objects.sections.iter().map(|o| o.id.clone()))
+            .collect();
+        rules::cross_check(&files, &instruments, &object_ids, &mut problems);
+    }
 
     if !problems.is_empty() {
         let order = |p: &Problem| {
@@ -105,6 +127,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         service: Some(service),
         mqtt: Some(mqtt),
         subscriptions,
+        smtp,
     }) = service
     else {
         return Err(one(&service_path, "service file could not be read"));
@@ -117,12 +140,21 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         sites: Vec::new(),
         instruments: BTreeMap::new(),
         objects,
+        alerting: Alerting {
+            smtp,
+            ..Alerting::default()
+        },
     };
+    let mut alerting = Vec::new();
     for (_, sf) in sites {
         cfg.sites.extend(sf.site);
         for i in sf.entries.into_iter().filter_map(|e| e.instrument) {
             cfg.instruments.insert(i.id.clone(), i);
         }
+        alerting.push((sf.id.map(|(id, _)| id).unwrap_or_default(), sf.alerting));
+    }
+    for (site, sr) in alerting {
+        rules::finish(&mut cfg, &site, sr);
     }
     Ok(cfg)
 }
@@ -355,6 +387,15 @@ pub fn summary(cfg: &Config) -> String {
             "clean"
         }
     );
+    let _ = match &cfg.alerting.smtp {
+        Some(m) => writeln!(
+            s,
+            "Mail relay: {}:{} ({:?}) from {}",
+            m.host, m.port, m.security, m.from
+        ),
+        None => writeln!(s, "Mail relay: none (alert messages stay in the outbox)"),
+    };
+    let _ = writeln!(s, "Alert rules: {}", cfg.alerting.rules.len());
     let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
     for sub in &cfg.subscriptions {
         let format = match sub.format {
@@ -431,3 +472,6 @@ mod object_tests;
 
 #[cfg(test)]
 mod object_check_tests;
+
+#[cfg(test)]
+mod rules_tests;

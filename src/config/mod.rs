@@ -1,14 +1,20 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
-//! (`load`, with `service`, `site`, `kinds` and `objects` reading the tables through `reader`).
+//! (`load`, with `service`, `site`, `kinds`, `objects`, `rules` and `smtp` reading the tables
+//! through `reader`); the alerting model is in `alerting`.
 
+pub mod alerting;
 mod kinds;
 pub mod load;
 pub mod model;
 mod objects;
 mod problem;
 mod reader;
+pub mod rules;
 mod service;
 mod site;
+mod smtp;
 
+pub use alerting::{Alerting, Contacts, Policy, Rule, SiteAlerting, Smtp, SmtpSecurity};
 pub use load::{load_dir, summary, Problem, Problems};
 pub use model::*;
+pub use smtp::is_loopback;

@@ -34,6 +34,8 @@ pub struct Config {
     pub instruments: BTreeMap<String, Instrument>,
     /// Derived-quantity objects (clusters, toe checks, blanket reaches, sections) of all sites.
     pub objects: Objects,
+    /// Rules, contact lists, notification policy and the mail relay.
+    pub alerting: super::alerting::Alerting,
 }
 
 impl Config {

@@ -287,6 +287,25 @@ impl<'t> Tbl<'t> {
         Some(n)
     }
 
+    /// An array of non-empty strings (`req`: required; a required array must not be empty).
+    pub fn strings(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<Vec<String>> {
+        let v = self.get(cx, key, req, "an array of strings", |v| {
+            v.as_array()?
+                .iter()
+                .map(|x| x.as_str().map(str::to_string))
+                .collect::<Option<Vec<String>>>()
+        })?;
+        if v.iter().any(|s| s.trim().is_empty()) || (req && v.is_empty()) {
+            self.problem_at(
+                cx,
+                key,
+                format!("key \"{key}\" has an empty entry or is empty; expected non-empty strings"),
+            );
+            return None;
+        }
+        Some(v)
+    }
+
     /// A boolean, or `default` when absent.
     pub fn boolean(&self, cx: &mut Cx<'_>, key: &str, default: bool) -> bool {
         self.get(cx, key, false, "true or false", Value::as_bool)

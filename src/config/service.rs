@@ -20,6 +20,8 @@ pub(crate) struct ServiceFile {
     pub service: Option<Service>,
     pub mqtt: Option<Mqtt>,
     pub subscriptions: Vec<Subscription>,
+    /// The mail relay, if configured (and valid).
+    pub smtp: Option<super::alerting::Smtp>,
 }
 
 /// Where the loader looks up environment variables (the process environment, or a test's map).
@@ -37,7 +39,7 @@ pub(crate) fn resolve(dir: &Path, p: &str) -> PathBuf {
 
 /// Read the service file's root table.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) -> ServiceFile {
-    root.check_keys(cx, &["service", "mqtt", "subscription"]);
+    root.check_keys(cx, &["service", "mqtt", "subscription", "smtp"]);
     let service = match root.sub(cx, "service", "[service]") {
         Some(mut t) => {
             t.what = "[service]".into();
@@ -72,10 +74,15 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
             subscriptions.push(s);
         }
     }
+    let smtp = root.sub(cx, "smtp", "[smtp]").and_then(|mut t| {
+        t.what = "[smtp]".into();
+        super::smtp::read(cx, &t, dir, env)
+    });
     ServiceFile {
         service,
         mqtt,
         subscriptions,
+        smtp,
     }
 }
 
@@ -160,7 +167,7 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
     let before = cx.problems.len();
     let max = i64::MAX;
     let username = t.nonempty(cx, "username");
-    let password = read_password(cx, t, dir, env);
+    let password = read_password(cx, t, dir, env, "MQTT");
     if password.is_some() && username.is_none() {
         t.problem(
             cx,
@@ -197,8 +204,14 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
     (cx.problems.len() == before).then_some(m)
 }
 
-/// The broker password from `password_env` or `password_file` (not both).
-fn read_password(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Secret> {
+/// A password from `password_env` or `password_file` (not both); `what` names whose (MQTT, SMTP).
+pub(crate) fn read_password(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    dir: &Path,
+    env: Env<'_>,
+    what: &str,
+) -> Option<Secret> {
     let var = t.nonempty(cx, "password_env");
     let file = t.nonempty(cx, "password_file");
     match (var, file) {
@@ -216,7 +229,7 @@ fn read_password(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Opti
                 t.problem_at(
                     cx,
                     "password_env",
-                    format!("environment variable {var} (password_env) is unset or empty; expected the MQTT password"),
+                    format!("environment variable {var} (password_env) is unset or empty; expected the {what} password"),
                 );
                 None
             }
@@ -230,7 +243,7 @@ fn read_password(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Opti
                         cx,
                         "password_file",
                         format!(
-                            "password_file {} is empty; expected the MQTT password",
+                            "password_file {} is empty; expected the {what} password",
                             path.display()
                         ),
                     );

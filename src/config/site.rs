@@ -61,12 +61,15 @@ pub(crate) struct SiteFile {
     pub entries: Vec<Entry>,
     /// The `[[cluster]]`, `[[toe]]`, `[[blanket]]` and `[[section]]` tables, in that order.
     pub objects: Vec<ObjEntry>,
+    /// `[alerting]`, `[[contacts]]` and `[[rule]]` (see `config::rules`).
+    pub alerting: super::rules::SiteRules,
 }
 
 /// Read a site file's root table.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     let mut keys = vec!["site", "instrument"];
     keys.extend(objects::TABLES);
+    keys.extend(super::rules::KEYS);
     root.check_keys(cx, &keys);
     let mut m_per_unit = 1.0;
     let mut gamma_w = 9.81;
@@ -152,11 +155,13 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         .map(|mut t| instrument(cx, &mut t, &site_id, m_per_unit))
         .collect();
     let objects = objects::read(cx, root, &site_id, m_per_unit, gamma_w);
+    let alerting = super::rules::read(cx, root, &site_id);
     SiteFile {
         id,
         site,
         entries,
         objects,
+        alerting,
     }
 }
 

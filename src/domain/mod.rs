@@ -10,6 +10,7 @@ pub mod hst;
 pub mod lsq;
 pub mod reduce;
 pub mod response;
+pub mod rules;
 pub mod section;
 pub mod section_svg;
 pub mod toe;

@@ -14,8 +14,9 @@ use chrono::{DateTime, Utc};
 use rumqttc::{AsyncClient, Event, MqttOptions, Packet, Publish, QoS, TlsConfiguration, Transport};
 use tokio::sync::{mpsc, oneshot};
 
+use crate::alerts::live::{Live, TICK};
 use crate::config::{Config, Mqtt};
-use crate::engine::{Engine, Message};
+use crate::engine::{Engine, Message, Outcome};
 use crate::ingest::progress::{Counters, QuarantineLog};
 use crate::store::Store;
 
@@ -74,6 +75,7 @@ pub async fn run(
     cfg: Arc<Config>,
     store: Store,
     engine: Engine,
+    alerts: Live,
     counters: Arc<Counters>,
     shutdown: impl Future<Output = ()>,
 ) -> anyhow::Result<()> {
@@ -89,7 +91,7 @@ pub async fn run(
         std::thread::Builder::new()
             .name("seepd-writer".into())
             .spawn(move || {
-                writer_loop(rx, store, engine, &client, &rt, &cfg, &counters);
+                writer_loop(rx, store, engine, alerts, &client, &rt, &cfg, &counters);
                 let _ = done_tx.send(());
             })?
     };
@@ -238,11 +240,15 @@ impl Link {
     }
 }
 
-/// The writer: batch, process, commit (retrying until it succeeds), then acknowledge in order.
+/// The writer: batch, process, evaluate the alert rules, commit readings and alert rows in one
+/// transaction (retrying until it succeeds), then acknowledge in order. Between batches (and
+/// at least every `TICK` during a stream) it ticks the rules' timers.
+#[allow(clippy::too_many_arguments)]
 fn writer_loop(
     mut rx: mpsc::Receiver<Arrived>,
     mut store: Store,
     mut engine: Engine,
+    mut alerts: Live,
     client: &AsyncClient,
     rt: &tokio::runtime::Handle,
     cfg: &Config,
@@ -252,7 +258,16 @@ fn writer_loop(
     let max_t = Duration::from_millis(cfg.service.commit_max_ms);
     let mut qlog = QuarantineLog::new(Duration::from_secs(60));
     let mut ack_failed = false;
-    while let Some(first) = rx.blocking_recv() {
+    loop {
+        // The timer must be created inside the runtime: build it in the async block.
+        let first = match rt.block_on(async { tokio::time::timeout(TICK, rx.recv()).await }) {
+            Ok(Some(a)) => a,
+            Ok(None) => break,
+            Err(_) => {
+                alerts.tick(&mut store);
+                continue;
+            }
+        };
         let started = Instant::now();
         let mut batch = vec![first];
         while batch.len() < max_n && started.elapsed() < max_t {
@@ -261,9 +276,7 @@ fn writer_loop(
                 Err(_) => break,
             }
         }
-        let mut readings = Vec::with_capacity(batch.len());
-        let mut derived = Vec::new();
-        let mut quarantined = Vec::new();
+        let mut out = Outcome::default();
         for a in &batch {
             let msg = Message {
                 topic: a.publish.topic.clone(),
@@ -271,14 +284,21 @@ fn writer_loop(
                 arrival: a.arrival,
                 redelivered: a.publish.dup,
             };
-            let out = engine.process(&msg);
-            readings.extend(out.readings);
-            derived.extend(out.derived);
-            quarantined.extend(out.quarantined);
+            let o = engine.process(&msg);
+            out.readings.extend(o.readings);
+            out.derived.extend(o.derived);
+            out.quarantined.extend(o.quarantined);
         }
+        let aw = alerts.evaluate(&crate::alerts::observations(&out));
+        let Outcome {
+            readings,
+            derived,
+            quarantined,
+        } = out;
+        alerts.before_commit(&aw);
         let mut wait = Duration::from_millis(100);
         let stats = loop {
-            match store.write_batch(&readings, &derived, &quarantined) {
+            match store.write_batch_with(&readings, &derived, &quarantined, &aw) {
                 Ok(s) => break s,
                 Err(e) => {
                     tracing::error!(error = %e, messages = batch.len(), "Commit failed; retrying (nothing acknowledged)");
@@ -287,6 +307,7 @@ fn writer_loop(
                 }
             }
         };
+        alerts.committed(&aw);
         counters.add(batch.len(), &stats);
         for q in &quarantined {
             qlog.note(q);
@@ -298,6 +319,9 @@ fn writer_loop(
                     ack_failed = true;
                 }
             }
+        }
+        if alerts.tick_due() {
+            alerts.tick(&mut store);
         }
     }
     qlog.flush();

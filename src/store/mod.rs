@@ -1,9 +1,12 @@
-//! SQLite storage: schema migrations, instruments, readings and quarantine.
+//! SQLite storage: schema migrations, instruments, readings, derived values and quarantine;
+//! alerting tables in `alerts` (service side) and `outbox` (mail worker and CLI side).
 //!
 //! Owns the database connection and every SQL statement. WAL mode with `synchronous=FULL`: a
 //! committed batch survives a process crash and, on storage that honours fsync, a power loss.
 //! Reading inserts are idempotent on (instrument, time) because QoS 1 redelivers.
 
+pub mod alerts;
+pub mod outbox;
 mod schema;
 
 use std::path::Path;
@@ -14,6 +17,7 @@ use rusqlite::{params, Connection, OptionalExtension};
 use crate::config::Config;
 use crate::quality::{Flags, Reason};
 
+pub use alerts::{AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow};
 pub use schema::SCHEMA_VERSION;
 
 /// Errors from the store.
@@ -196,6 +200,22 @@ impl Store {
         derived: &[DerivedRow],
         quarantined: &[QuarantineRow],
     ) -> Result<BatchStats, StoreError> {
+        self.write_batch_with(readings, derived, quarantined, &AlertWrites::default())
+    }
+
+    /// `write_batch` plus the alerting rows the batch caused (rule states, alerts, notices,
+    /// outbox messages), all in the same transaction: a transition is committed together with
+    /// its message, and with the readings that caused it.
+    ///
+    /// # Errors
+    /// SQLite errors; nothing of the batch is stored then.
+    pub fn write_batch_with(
+        &mut self,
+        readings: &[ReadingRow],
+        derived: &[DerivedRow],
+        quarantined: &[QuarantineRow],
+        alerts: &AlertWrites,
+    ) -> Result<BatchStats, StoreError> {
         let tx = self.conn.transaction()?;
         let mut stats = BatchStats::default();
         {
@@ -259,6 +279,7 @@ impl Store {
                 ])?;
             }
         }
+        alerts::write(&tx, alerts)?;
         tx.commit()?;
         Ok(stats)
     }

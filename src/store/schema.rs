@@ -56,6 +56,80 @@ const MIGRATIONS: &[&str] = &[
         inputs TEXT NOT NULL,
         PRIMARY KEY (object, quantity, t_ms)
     ) WITHOUT ROWID;",
+    // 3: alerting. Rule states (phase, runs, pending/clearing timers, notice timers) as JSON;
+    // alerts; acknowledgements and silences (written by the CLI, applied by the service);
+    // notices (one per rule action, waiting out the group wait) and the mail outbox.
+    "CREATE TABLE rule_states (
+        rule TEXT PRIMARY KEY,
+        state TEXT NOT NULL,
+        updated_ms INTEGER NOT NULL
+    );
+    CREATE TABLE alerts (
+        id INTEGER PRIMARY KEY,
+        rule TEXT NOT NULL,
+        site TEXT NOT NULL,
+        object TEXT NOT NULL,
+        quantity TEXT NOT NULL,
+        level TEXT NOT NULL,
+        raised_ms INTEGER NOT NULL,
+        value REAL,
+        unit TEXT NOT NULL,
+        resolved_ms INTEGER,
+        acked_ms INTEGER,
+        acked_by TEXT,
+        ack_note TEXT
+    );
+    CREATE INDEX alerts_open ON alerts (resolved_ms);
+    CREATE TABLE acks (
+        id INTEGER PRIMARY KEY,
+        alert INTEGER NOT NULL REFERENCES alerts (id),
+        who TEXT NOT NULL,
+        note TEXT,
+        t_ms INTEGER NOT NULL,
+        applied_ms INTEGER
+    );
+    CREATE TABLE silences (
+        id INTEGER PRIMARY KEY,
+        rule TEXT,
+        object TEXT,
+        until_ms INTEGER NOT NULL,
+        reason TEXT NOT NULL,
+        who TEXT NOT NULL,
+        created_ms INTEGER NOT NULL,
+        CHECK ((rule IS NULL) != (object IS NULL))
+    );
+    CREATE TABLE notices (
+        id INTEGER PRIMARY KEY,
+        alert INTEGER NOT NULL,
+        rule TEXT NOT NULL,
+        site TEXT NOT NULL,
+        kind TEXT NOT NULL,
+        level TEXT NOT NULL,
+        value REAL,
+        unit TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        created_ms INTEGER NOT NULL,
+        recipients TEXT NOT NULL,
+        status TEXT NOT NULL,
+        outbox INTEGER
+    );
+    CREATE INDEX notices_status ON notices (status);
+    CREATE TABLE outbox (
+        id INTEGER PRIMARY KEY,
+        created_ms INTEGER NOT NULL,
+        site TEXT NOT NULL,
+        recipients TEXT NOT NULL,
+        subject TEXT NOT NULL,
+        body_text TEXT NOT NULL,
+        body_html TEXT NOT NULL,
+        message_id TEXT NOT NULL UNIQUE,
+        status TEXT NOT NULL,
+        attempts INTEGER NOT NULL DEFAULT 0,
+        next_attempt_ms INTEGER NOT NULL,
+        last_error TEXT,
+        sent_ms INTEGER
+    );
+    CREATE INDEX outbox_due ON outbox (status, next_attempt_ms);",
 ];
 
 /// The schema version this build writes.

@@ -2,6 +2,8 @@
 //! test in its own temp directory. Polls until ready instead of sleeping blindly.
 #![allow(dead_code)]
 
+pub mod smtp;
+
 use std::io::Write;
 use std::net::{TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
@@ -56,10 +58,14 @@ impl Broker {
         writeln!(
             f,
             "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\n\
+             user {user}\n\
              persistence_location {dir}/\nautosave_interval 1\nmax_queued_messages 0\n\
              max_inflight_messages 100\nmessage_size_limit 0\nlog_dest file {dir}/mosquitto.log\n",
             port = self.port,
-            dir = self.dir.display()
+            dir = self.dir.display(),
+            // Started as root, Mosquitto drops to the `mosquitto` user and could then not write
+            // its persistence file in our temp dir; run it as the user we are.
+            user = current_user()
         )
         .unwrap();
         let child = Command::new(mosquitto_path())
@@ -107,6 +113,18 @@ impl Drop for Broker {
             let _ = c.wait();
         }
     }
+}
+
+/// The name of the user running the tests (for Mosquitto's `user` option).
+fn current_user() -> String {
+    Command::new("id")
+        .arg("-un")
+        .output()
+        .ok()
+        .and_then(|o| String::from_utf8(o.stdout).ok())
+        .map(|s| s.trim().to_string())
+        .filter(|s| !s.is_empty())
+        .unwrap_or_else(|| "root".into())
 }
 
 fn mosquitto_path() -> &'static str {

@@ -1,0 +1,231 @@
+//! The operator commands `seepd alerts`, `seepd ack` and `seepd silence`: they open the
+//! database of a (possibly running) service, do one short transaction each and print a plain
+//! report. The service applies acknowledgements and silences on its next tick (≤ 1 s).
+
+use std::fmt::Write as _;
+
+use anyhow::{bail, Context as _};
+use chrono::{DateTime, NaiveDate, Utc};
+
+use crate::config::Config;
+use crate::domain::rules::{Phase, State};
+use crate::store::outbox::AckOutcome;
+use crate::store::Store;
+
+use super::render::{num, time};
+
+fn open(cfg: &Config) -> anyhow::Result<Store> {
+    Store::open(&cfg.service.database)
+        .with_context(|| format!("opening database {}", cfg.service.database.display()))
+}
+
+/// The `seepd alerts` report: active, pending, silenced, undeliverable, queued.
+///
+/// # Errors
+/// Database errors.
+pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
+    let store = open(cfg)?;
+    let now_ms = now.timestamp_millis();
+    let mut s = String::new();
+    let open = store.open_alerts()?;
+    let _ = writeln!(s, "Active alerts ({}):", open.len());
+    for a in &open {
+        let value = a.value.map_or_else(|| "no value".into(), num);
+        let _ = write!(
+            s,
+            "  #{}  {}  {}  {} {} = {} {}  since {}  rule {}",
+            a.id,
+            a.level,
+            a.site,
+            a.object,
+            a.quantity,
+            value,
+            a.unit,
+            time(a.raised_ms),
+            a.rule
+        );
+        match (&a.acked_by, a.acked_ms) {
+            (Some(by), Some(t)) => {
+                let _ = writeln!(s, "  acknowledged by {by} at {}", time(t));
+            }
+            _ => s.push_str("  NOT acknowledged\n"),
+        }
+    }
+    let mut pending = Vec::new();
+    for (rule_id, json) in store.rule_states()? {
+        let Ok(state) = serde_json::from_str::<State>(&json) else {
+            continue;
+        };
+        let Phase::Pending { level, since_ms } = state.phase else {
+            continue;
+        };
+        let Some(rule) = cfg.alerting.rules.iter().find(|r| r.id == rule_id) else {
+            continue;
+        };
+        let name = rule.spec.levels.get(level).map_or("?", |l| l.name.as_str());
+        pending.push(format!(
+            "  rule {rule_id}: {} {} beyond the {name} bound since {} (persistence not met yet)",
+            rule.object,
+            rule.quantity,
+            time(since_ms)
+        ));
+    }
+    let _ = writeln!(s, "Pending ({}):", pending.len());
+    for p in pending {
+        let _ = writeln!(s, "{p}");
+    }
+    let silences = store.active_silences(now_ms)?;
+    let _ = writeln!(s, "Silenced ({}):", silences.len());
+    for x in &silences {
+        let what = match (&x.rule, &x.object) {
+            (Some(r), _) => format!("rule {r}"),
+            (None, Some(o)) => format!("instrument {o}"),
+            _ => "?".into(),
+        };
+        let _ = writeln!(
+            s,
+            "  {what} until {} by {}: {}",
+            time(x.until_ms),
+            x.who,
+            x.reason
+        );
+    }
+    let dead = store.messages("dead")?;
+    let _ = writeln!(s, "Undeliverable ({}):", dead.len());
+    for m in &dead {
+        let _ = writeln!(
+            s,
+            "  message {} of {} to {}: {:?}\n    server reply: {}",
+            m.message_id,
+            time(m.created_ms),
+            m.recipients.join(", "),
+            m.subject,
+            m.last_error.as_deref().unwrap_or("?")
+        );
+    }
+    let queued = store.messages("pending")?;
+    let _ = writeln!(s, "Queued for sending ({}):", queued.len());
+    for m in &queued {
+        let _ = writeln!(
+            s,
+            "  message {} of {}: {:?}, {} attempt(s){}",
+            m.message_id,
+            time(m.created_ms),
+            m.subject,
+            m.attempts,
+            m.last_error
+                .as_deref()
+                .map(|e| format!(", last error: {e}"))
+                .unwrap_or_default()
+        );
+    }
+    Ok(s)
+}
+
+/// `seepd ack ALERT`.
+///
+/// # Errors
+/// Database errors; an unknown or resolved alert.
+pub fn ack(
+    cfg: &Config,
+    alert: i64,
+    by: &str,
+    note: Option<&str>,
+    now: DateTime<Utc>,
+) -> anyhow::Result<String> {
+    let mut store = open(cfg)?;
+    match store.acknowledge(alert, by, note, now.timestamp_millis())? {
+        AckOutcome::Recorded => Ok(format!(
+            "Alert {alert} acknowledged by {by}: no more reminders or escalation for it.\n"
+        )),
+        AckOutcome::Already(who, t) => Ok(format!(
+            "Alert {alert} was already acknowledged by {who} at {}.\n",
+            time(t)
+        )),
+        AckOutcome::Resolved => bail!("alert {alert} is already resolved"),
+        AckOutcome::NotFound => bail!("there is no alert {alert} (see `seepd alerts`)"),
+    }
+}
+
+/// Parse `--until`: RFC 3339 date-time, a date (midnight UTC), or `+N` with `m`, `h` or `d`.
+///
+/// # Errors
+/// Unreadable text.
+pub fn parse_until(s: &str, now: DateTime<Utc>) -> anyhow::Result<DateTime<Utc>> {
+    if let Some(rel) = s.strip_prefix('+') {
+        let (n, unit) = rel.split_at(rel.len().saturating_sub(1));
+        let n: i64 = n
+            .parse()
+            .with_context(|| format!("--until {s:?}: expected e.g. +30m, +4h, +2d"))?;
+        let secs = match unit {
+            "m" => 60,
+            "h" => 3600,
+            "d" => 86_400,
+            _ => bail!("--until {s:?}: expected a unit m, h or d (e.g. +4h)"),
+        };
+        return Ok(now + chrono::Duration::seconds(n.saturating_mul(secs)));
+    }
+    if let Ok(d) = NaiveDate::parse_from_str(s, "%Y-%m-%d") {
+        if let Some(t) = d.and_hms_opt(0, 0, 0) {
+            return Ok(t.and_utc());
+        }
+    }
+    DateTime::parse_from_rfc3339(s)
+        .map(|t| t.with_timezone(&Utc))
+        .with_context(|| {
+            format!(
+                "--until {s:?}: expected an RFC 3339 time (2026-03-02T08:00:00Z), a date, or +4h"
+            )
+        })
+}
+
+/// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT`.
+///
+/// # Errors
+/// Database errors; an unknown rule or instrument; an expiry in the past.
+pub fn silence(
+    cfg: &Config,
+    rule: Option<&str>,
+    object: Option<&str>,
+    until: &str,
+    reason: &str,
+    by: &str,
+    now: DateTime<Utc>,
+) -> anyhow::Result<String> {
+    let until = parse_until(until, now)?;
+    if until <= now {
+        bail!("--until {} is not in the future", until.to_rfc3339());
+    }
+    if reason.trim().is_empty() {
+        bail!("--reason must say why");
+    }
+    if let Some(r) = rule {
+        if !cfg.alerting.rules.iter().any(|x| x.id == r) {
+            bail!("there is no rule {r:?} in the configuration");
+        }
+    }
+    if let Some(o) = object {
+        let known =
+            cfg.instruments.contains_key(o) || cfg.alerting.rules.iter().any(|x| x.object == o);
+        if !known {
+            bail!("{o:?} is not an instrument or the object of any rule");
+        }
+    }
+    let store = open(cfg)?;
+    let id = store.add_silence(
+        rule,
+        object,
+        until.timestamp_millis(),
+        reason,
+        by,
+        now.timestamp_millis(),
+    )?;
+    let what = rule.map_or_else(
+        || format!("instrument {}", object.unwrap_or("?")),
+        |r| format!("rule {r}"),
+    );
+    Ok(format!(
+        "Silence {id}: {what} until {}; alerts still change state and are listed, but no messages are sent for them.\n",
+        time(until.timestamp_millis())
+    ))
+}

@@ -1,0 +1,489 @@
+//! Alert evaluation between the engine and the store: observations from an `Outcome`, each
+//! rule stepped through `domain::rules`, actions turned into alert rows and notices, notices
+//! grouped into rendered outbox messages after the site's group wait, silences and
+//! acknowledgements applied. Everything it decides comes back as `AlertWrites`, which the
+//! caller commits in the same transaction as the readings that caused it.
+//!
+//! No I/O apart from `load` (which reads the store at start); the time is a parameter.
+
+pub mod commands;
+pub mod live;
+pub mod render;
+
+use std::collections::{BTreeMap, HashMap, VecDeque};
+use std::sync::Arc;
+
+use crate::config::{Config, Rule};
+use crate::domain::rules::{self, Action, Check, Obs, State};
+use crate::engine::Outcome;
+use crate::store::{
+    AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
+};
+
+use render::Item;
+
+/// Values kept per watched quantity for messages (last readings, rate).
+const RECENT: usize = 6;
+
+/// One value of one quantity of an instrument or derived object.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Observation {
+    pub object: String,
+    pub quantity: String,
+    pub t_ms: i64,
+    /// `None`: the quantity could not be computed (never a crossing).
+    pub value: Option<f64>,
+    pub unit: String,
+}
+
+/// Every observation an engine outcome holds: each reading's quantities, each derived value.
+pub fn observations(out: &Outcome) -> Vec<Observation> {
+    let mut v = Vec::new();
+    for r in &out.readings {
+        for (quantity, value, unit) in crate::replay::quantities(r) {
+            v.push(Observation {
+                object: r.instrument.clone(),
+                quantity: quantity.into(),
+                t_ms: r.t_ms,
+                value: Some(value),
+                unit: unit.into(),
+            });
+        }
+    }
+    for d in &out.derived {
+        v.push(Observation {
+            object: d.object.clone(),
+            quantity: d.quantity.clone(),
+            t_ms: d.t_ms,
+            value: d.value,
+            unit: d.unit.into(),
+        });
+    }
+    v
+}
+
+/// One rule action, as replay reports it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Transition {
+    pub alert: i64,
+    pub rule: String,
+    pub action: Action,
+    pub level: String,
+    pub previous: Option<String>,
+    pub object: String,
+    pub quantity: String,
+    pub t_ms: i64,
+    pub value: Option<f64>,
+    pub unit: String,
+    pub bound: f64,
+    pub direction: &'static str,
+}
+
+struct Watched {
+    rule: Rule,
+    state: State,
+    unit: String,
+}
+
+/// The rules of a configuration with their states.
+pub struct Evaluator {
+    cfg: Arc<Config>,
+    rules: Vec<Watched>,
+    /// (object, quantity) → rule indexes; no-data rules under (object, "no_data").
+    index: HashMap<(String, String), Vec<usize>>,
+    recent: HashMap<(String, String), VecDeque<(i64, f64)>>,
+    /// Notices waiting out the group wait.
+    waiting: Vec<NoticeRow>,
+    silences: Vec<SilenceRow>,
+    next_alert: i64,
+    next_notice: i64,
+    next_message: i64,
+    out: AlertWrites,
+    transitions: Vec<Transition>,
+}
+
+impl Evaluator {
+    /// Fresh states (replay, tests).
+    pub fn new(cfg: Arc<Config>) -> Evaluator {
+        let mut index: HashMap<(String, String), Vec<usize>> = HashMap::new();
+        let mut recent = HashMap::new();
+        let rules: Vec<Watched> = cfg
+            .alerting
+            .rules
+            .iter()
+            .enumerate()
+            .map(|(i, r)| {
+                index
+                    .entry((r.object.clone(), r.quantity.clone()))
+                    .or_default()
+                    .push(i);
+                let unit = if r.spec.check == Check::NoData {
+                    "s"
+                } else {
+                    recent.insert((r.object.clone(), r.quantity.clone()), VecDeque::new());
+                    ""
+                };
+                Watched {
+                    rule: r.clone(),
+                    state: State::default(),
+                    unit: unit.into(),
+                }
+            })
+            .collect();
+        Evaluator {
+            cfg,
+            rules,
+            index,
+            recent,
+            waiting: Vec::new(),
+            silences: Vec::new(),
+            next_alert: 1,
+            next_notice: 1,
+            next_message: 1,
+            out: AlertWrites::default(),
+            transitions: Vec::new(),
+        }
+    }
+
+    /// Resume from the store: rule states, waiting notices, next ids, recent values.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn load(cfg: Arc<Config>, store: &Store) -> Result<Evaluator, StoreError> {
+        let mut e = Evaluator::new(cfg);
+        let stored: BTreeMap<String, String> = store.rule_states()?.into_iter().collect();
+        for w in &mut e.rules {
+            let Some(json) = stored.get(&w.rule.id) else {
+                continue;
+            };
+            match serde_json::from_str::<State>(json) {
+                Ok(s)
+                    if s.active_level()
+                        .is_none_or(|l| l < w.rule.spec.levels.len()) =>
+                {
+                    w.state = s;
+                }
+                _ => {
+                    tracing::warn!(rule = %w.rule.id, "Stored rule state does not fit the rule any more; starting from normal")
+                }
+            }
+            if w.rule.spec.check == Check::Threshold {
+                let key = (w.rule.object.clone(), w.rule.quantity.clone());
+                let values = store.recent_values(&key.0, &key.1, RECENT)?;
+                e.recent.insert(key, values.into_iter().collect());
+            }
+        }
+        e.waiting = store.waiting_notices()?;
+        let (a, n, m) = store.alert_max_ids()?;
+        (e.next_alert, e.next_notice, e.next_message) = (a + 1, n + 1, m + 1);
+        Ok(e)
+    }
+
+    /// Whether any rule is configured.
+    pub fn is_empty(&self) -> bool {
+        self.rules.is_empty()
+    }
+
+    /// Replace the silences in force.
+    pub fn set_silences(&mut self, s: Vec<SilenceRow>) {
+        self.silences = s;
+    }
+
+    /// Apply acknowledgements written by `seepd ack`.
+    pub fn apply_acks(&mut self, acks: &[AckRow]) {
+        for a in acks {
+            if let Some(w) = self
+                .rules
+                .iter_mut()
+                .find(|w| w.state.alert.is_some_and(|al| al.id == a.alert))
+            {
+                w.state = rules::acknowledge(&w.state);
+                let json = serde_json::to_string(&w.state).unwrap_or_default();
+                self.out.states.push((w.rule.id.clone(), json));
+                tracing::info!(alert = a.alert, by = %a.who, rule = %w.rule.id, "Alert acknowledged");
+            }
+            self.out.acks_applied.push(a.id);
+        }
+    }
+
+    /// Transitions since the last call (replay's records).
+    pub fn take_transitions(&mut self) -> Vec<Transition> {
+        std::mem::take(&mut self.transitions)
+    }
+
+    /// Step the rules watching these observations, then every rule's timers at `now_ms`, then
+    /// send the notices whose group wait is over. Returns what to commit.
+    pub fn evaluate(&mut self, obs: &[Observation], now_ms: i64) -> AlertWrites {
+        for o in obs {
+            let key = (o.object.clone(), o.quantity.clone());
+            if let (Some(v), Some(q)) = (o.value, self.recent.get_mut(&key)) {
+                if q.back().is_none_or(|&(t, _)| o.t_ms > t) {
+                    q.push_back((o.t_ms, v));
+                    while q.len() > RECENT {
+                        q.pop_front();
+                    }
+                }
+            }
+            let mut targets = self.index.get(&key).cloned().unwrap_or_default();
+            if o.quantity == "engineering_value" {
+                let nd = (o.object.clone(), "no_data".to_string());
+                targets.extend(self.index.get(&nd).into_iter().flatten());
+            }
+            for i in targets {
+                if self.rules[i].rule.spec.check == Check::Threshold {
+                    self.rules[i].unit.clone_from(&o.unit);
+                }
+                let ob = Obs {
+                    t_ms: o.t_ms,
+                    value: o.value,
+                };
+                self.step_rule(i, Some(ob), now_ms);
+            }
+        }
+        for i in 0..self.rules.len() {
+            self.step_rule(i, None, now_ms);
+        }
+        self.compose(now_ms, false);
+        self.out.now_ms = now_ms;
+        std::mem::take(&mut self.out)
+    }
+
+    /// Send every waiting notice now, whatever its group wait (end of a replay).
+    pub fn flush(&mut self, now_ms: i64) -> AlertWrites {
+        self.compose(now_ms, true);
+        self.out.now_ms = now_ms;
+        std::mem::take(&mut self.out)
+    }
+
+    fn step_rule(&mut self, i: usize, obs: Option<Obs>, now_ms: i64) {
+        let w = &self.rules[i];
+        let (mut next, actions) = rules::step(&w.rule.spec, &w.state, obs, now_ms);
+        let old = w.state.clone();
+        for a in actions {
+            self.act(i, a, &old, &mut next, now_ms);
+        }
+        let w = &mut self.rules[i];
+        if next != w.state {
+            w.state = next;
+            let json = serde_json::to_string(&w.state).unwrap_or_default();
+            self.out.states.retain(|(r, _)| *r != w.rule.id);
+            self.out.states.push((w.rule.id.clone(), json));
+        }
+    }
+
+    fn act(&mut self, i: usize, a: Action, old: &State, next: &mut State, now_ms: i64) {
+        let w = &self.rules[i];
+        let rule = &w.rule;
+        let level = a.level();
+        let (t_ms, value) = next
+            .last
+            .or(old.last)
+            .map_or((now_ms, None), |(t, v)| (t, Some(v)));
+        let alert_id = match a {
+            Action::Raise { .. } => {
+                let id = self.next_alert;
+                self.next_alert += 1;
+                if let Some(al) = next.alert.as_mut() {
+                    al.id = id;
+                }
+                self.out.new_alerts.push(AlertRow {
+                    id,
+                    rule: rule.id.clone(),
+                    site: rule.site.clone(),
+                    object: rule.object.clone(),
+                    quantity: rule.quantity.clone(),
+                    level: rule.spec.levels[level].name.clone(),
+                    raised_ms: t_ms,
+                    value,
+                    unit: w.unit.clone(),
+                });
+                id
+            }
+            Action::Resolve { .. } => old.alert.map_or(0, |al| al.id),
+            _ => next.alert.map_or(0, |al| al.id),
+        };
+        match a {
+            Action::Escalate { to, .. } | Action::DeEscalate { to, .. } => self
+                .out
+                .level_changes
+                .push((alert_id, rule.spec.levels[to].name.clone())),
+            Action::Resolve { .. } => self.out.resolved.push((alert_id, t_ms)),
+            _ => {}
+        }
+        let level_spec = &rule.spec.levels[level];
+        let previous = match a {
+            Action::Escalate { from, .. } | Action::DeEscalate { from, .. } => {
+                Some(rule.spec.levels[from].name.clone())
+            }
+            _ => None,
+        };
+        self.transitions.push(Transition {
+            alert: alert_id,
+            rule: rule.id.clone(),
+            action: a,
+            level: level_spec.name.clone(),
+            previous,
+            object: rule.object.clone(),
+            quantity: rule.quantity.clone(),
+            t_ms,
+            value,
+            unit: w.unit.clone(),
+            bound: level_spec.bound,
+            direction: level_spec.direction.name(),
+        });
+        let site = self.cfg.alerting.site(&rule.site);
+        let escalated = match a {
+            Action::Resolve { .. } => old.alert.is_some_and(|al| al.escalated),
+            _ => next.alert.is_some_and(|al| al.escalated),
+        };
+        let recipients = match a {
+            Action::NotifyEscalation { .. } => site.recipients(&level_spec.name, false, true),
+            _ => site.recipients(&level_spec.name, true, escalated),
+        };
+        let silenced = self.silences.iter().any(|s| {
+            s.until_ms > now_ms
+                && (s.rule.as_deref() == Some(&rule.id)
+                    || s.object.as_deref() == Some(&rule.object))
+        });
+        let status = if silenced {
+            "silenced"
+        } else if recipients.is_empty() {
+            "no_recipients"
+        } else {
+            "waiting"
+        };
+        let notice = NoticeRow {
+            id: self.next_notice,
+            alert: alert_id,
+            rule: rule.id.clone(),
+            site: rule.site.clone(),
+            kind: a.name().into(),
+            level: level_spec.name.clone(),
+            value,
+            unit: w.unit.clone(),
+            t_ms,
+            created_ms: now_ms,
+            recipients,
+            status: status.into(),
+            outbox: None,
+        };
+        self.next_notice += 1;
+        if status == "waiting" {
+            self.waiting.push(notice.clone());
+        }
+        self.out.notices.push(notice);
+    }
+
+    /// Turn groups of waiting notices (same site and recipients) whose oldest member has
+    /// waited the site's group wait (or every group, with `force`) into one rendered outbox
+    /// message each.
+    fn compose(&mut self, now_ms: i64, force: bool) {
+        if self.waiting.is_empty() {
+            return;
+        }
+        let mut groups: BTreeMap<(String, String), Vec<NoticeRow>> = BTreeMap::new();
+        for n in std::mem::take(&mut self.waiting) {
+            groups
+                .entry((n.site.clone(), n.recipients.join(",")))
+                .or_default()
+                .push(n);
+        }
+        for ((site, _), group) in groups {
+            let policy = self.cfg.alerting.site(&site).policy;
+            let oldest = group.iter().map(|n| n.created_ms).min().unwrap_or(now_ms);
+            if !force && now_ms - oldest < policy.group_wait_ms {
+                self.waiting.extend(group);
+                continue;
+            }
+            let id = self.next_message;
+            self.next_message += 1;
+            let message = self.message(id, &site, &group, now_ms, &policy.status_url);
+            for n in group {
+                match self.out.notices.iter_mut().find(|m| m.id == n.id) {
+                    // Created in this evaluation: written once, already queued.
+                    Some(m) => {
+                        m.status = "queued".into();
+                        m.outbox = Some(id);
+                    }
+                    // Written earlier as waiting.
+                    None => self.out.composed.push((n.id, id)),
+                }
+            }
+            self.out.messages.push(message);
+        }
+    }
+
+    fn message(
+        &self,
+        id: i64,
+        site: &str,
+        group: &[NoticeRow],
+        now_ms: i64,
+        status_url: &str,
+    ) -> OutboxRow {
+        let site_name = self
+            .cfg
+            .sites
+            .iter()
+            .find(|s| s.id == site)
+            .map_or(site, |s| s.name.as_str());
+        let empty = VecDeque::new();
+        let recent: Vec<Vec<(i64, f64)>> = group
+            .iter()
+            .map(|n| {
+                let r = self.rules.iter().find(|w| w.rule.id == n.rule);
+                let key = r.map(|w| (w.rule.object.clone(), w.rule.quantity.clone()));
+                key.and_then(|k| self.recent.get(&k))
+                    .unwrap_or(&empty)
+                    .iter()
+                    .copied()
+                    .collect()
+            })
+            .collect();
+        let mut items: Vec<Item<'_>> = group
+            .iter()
+            .zip(&recent)
+            .filter_map(|(n, recent)| {
+                let w = self.rules.iter().find(|w| w.rule.id == n.rule)?;
+                let severity = w.rule.spec.levels.iter().position(|l| l.name == n.level)?;
+                Some(Item {
+                    kind: &n.kind,
+                    alert: n.alert,
+                    rule: &n.rule,
+                    site_id: site,
+                    site_name,
+                    object: &w.rule.object,
+                    quantity: &w.rule.quantity,
+                    check: &w.rule.spec.check,
+                    level: &w.rule.spec.levels[severity],
+                    severity,
+                    value: n.value,
+                    unit: &n.unit,
+                    t_ms: n.t_ms,
+                    recent,
+                })
+            })
+            .collect();
+        let (subject, text, html) = render::render(&mut items, status_url);
+        let domain = self
+            .cfg
+            .alerting
+            .smtp
+            .as_ref()
+            .and_then(|s| s.from.split('@').nth(1).map(str::to_string))
+            .unwrap_or_else(|| "seepd.invalid".into());
+        OutboxRow {
+            id,
+            created_ms: now_ms,
+            site: site.to_string(),
+            recipients: group
+                .first()
+                .map(|n| n.recipients.clone())
+                .unwrap_or_default(),
+            subject,
+            text,
+            html,
+            message_id: format!("<seepd.alert-{id}.{now_ms}@{domain}>"),
+        }
+    }
+}

@@ -1,0 +1,138 @@
+//! The validated alerting configuration: rules, per-site notification policy and contact
+//! lists, and the SMTP relay. Read by `config::rules` and `config::smtp`; nothing here parses
+//! or does I/O.
+
+use std::collections::BTreeMap;
+use std::path::PathBuf;
+
+use crate::domain::rules::Spec;
+
+use super::model::Secret;
+
+/// Everything about alerts and email.
+#[derive(Debug, Clone, Default)]
+pub struct Alerting {
+    /// The mail relay (`[smtp]` in seepd.toml); `None`: messages stay in the outbox.
+    pub smtp: Option<Smtp>,
+    /// Every rule of every site (ids unique across sites).
+    pub rules: Vec<Rule>,
+    /// Per site id: policy and contact lists.
+    pub sites: BTreeMap<String, SiteAlerting>,
+}
+
+impl Alerting {
+    /// The policy and contacts of a site (defaults when the site configures none).
+    pub fn site(&self, site: &str) -> SiteAlerting {
+        self.sites.get(site).cloned().unwrap_or_default()
+    }
+}
+
+/// One rule: a quantity of an instrument or derived object, watched with a state machine.
+#[derive(Debug, Clone)]
+pub struct Rule {
+    /// Unique across sites; named in messages, `seepd silence --rule` and the database.
+    pub id: String,
+    pub site: String,
+    /// Instrument id or derived-object id.
+    pub object: String,
+    /// Quantity name (`total_head`, `factor_of_safety`...); `no_data` for a no-data rule.
+    pub quantity: String,
+    pub spec: Spec,
+}
+
+/// How a site's alerts are sent.
+#[derive(Debug, Clone)]
+pub struct Policy {
+    /// Notices waiting this long are sent together in one message (ms; 0: at once).
+    pub group_wait_ms: i64,
+    /// Reminder interval while active and unacknowledged (ms); `None`: no reminders.
+    pub repeat_ms: Option<i64>,
+    /// The escalation lists are told when an alert is not acknowledged within this (ms).
+    pub escalate_after_ms: Option<i64>,
+    /// Link printed in every message (a placeholder until a status page exists).
+    pub status_url: String,
+}
+
+impl Default for Policy {
+    fn default() -> Self {
+        Policy {
+            group_wait_ms: 30_000,
+            repeat_ms: Some(4 * 3_600_000),
+            escalate_after_ms: Some(3_600_000),
+            status_url: "https://status.example.invalid/seepd".into(),
+        }
+    }
+}
+
+/// A named list of addresses that receives some levels.
+#[derive(Debug, Clone)]
+pub struct Contacts {
+    pub name: String,
+    pub emails: Vec<String>,
+    /// Level names this list receives; empty: every level.
+    pub levels: Vec<String>,
+    /// An escalation list: told only when an alert is not acknowledged in time.
+    pub escalation: bool,
+}
+
+impl Contacts {
+    /// Whether this list receives `level`.
+    pub fn receives(&self, level: &str) -> bool {
+        self.levels.is_empty() || self.levels.iter().any(|l| l == level)
+    }
+}
+
+/// A site's notification settings.
+#[derive(Debug, Clone, Default)]
+pub struct SiteAlerting {
+    pub policy: Policy,
+    pub contacts: Vec<Contacts>,
+}
+
+impl SiteAlerting {
+    /// Addresses for a notice at `level`: the first-line lists, plus the escalation lists when
+    /// `escalation` (sorted, without duplicates).
+    pub fn recipients(&self, level: &str, first_line: bool, escalation: bool) -> Vec<String> {
+        let mut out: Vec<String> = self
+            .contacts
+            .iter()
+            .filter(|c| {
+                c.receives(level) && ((c.escalation && escalation) || (!c.escalation && first_line))
+            })
+            .flat_map(|c| c.emails.iter().cloned())
+            .collect();
+        out.sort();
+        out.dedup();
+        out
+    }
+}
+
+/// Transport security to the mail relay.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SmtpSecurity {
+    /// Plain connection upgraded with STARTTLS (required).
+    Starttls,
+    /// TLS from the first byte (port 465).
+    Tls,
+    /// No encryption: only for a relay on loopback.
+    Plain,
+}
+
+/// The mail relay.
+#[derive(Debug, Clone)]
+pub struct Smtp {
+    pub host: String,
+    pub port: u16,
+    pub security: SmtpSecurity,
+    pub username: Option<String>,
+    pub password: Option<Secret>,
+    /// Extra trusted CA (PEM) for the relay's certificate; the built-in roots otherwise.
+    pub ca_file: Option<PathBuf>,
+    /// Sender address (`From`, envelope sender, Message-ID domain).
+    pub from: String,
+    /// Connection and command timeout (s).
+    pub timeout_s: u64,
+    /// Retry backoff after a connection failure or a 4xx reply: first delay and cap (s).
+    pub retry_min_s: u64,
+    pub retry_max_s: u64,
+}

@@ -1,0 +1,450 @@
+//! Reading a site file's alerting tables: `[alerting]` (notification policy), `[[contacts]]`
+//! (who receives which levels; escalation lists) and `[[rule]]` (with `[[rule.level]]`).
+//!
+//! Owns those keys, their defaults and the checks within one rule (level order, directions,
+//! deadbands, persistence). Checks across files (unique rule ids, the watched object exists,
+//! no-data bounds from the instrument's interval) are in `cross_check` and `finish`, called by
+//! `load`.
+
+use std::collections::{BTreeMap, BTreeSet};
+use std::path::{Path, PathBuf};
+
+use crate::domain::rules::{Check, Direction, LevelSpec, Spec};
+
+use super::alerting::{Contacts, Policy, Rule, SiteAlerting};
+use super::model::{Config, Instrument};
+use super::problem::{Cx, Problem};
+use super::reader::Tbl;
+use super::site::Pos;
+use super::smtp::plain_address;
+
+/// Top-level keys of a site file that this module reads.
+pub(crate) const KEYS: [&str; 3] = ["alerting", "contacts", "rule"];
+
+/// Quantities every reading has (see `replay::quantities`).
+pub const READING_QUANTITIES: [&str; 4] = [
+    "engineering_value",
+    "pressure",
+    "pressure_head",
+    "total_head",
+];
+
+/// A rule on an id that is neither an instrument nor a configured object is a problem.
+const CHECK_OBJECT_IDS: bool = true;
+
+/// One `[[rule]]` as read, with what the cross-file checks need.
+pub(crate) struct RuleEntry {
+    pub rule: Option<Rule>,
+    pub id: Option<(String, Pos)>,
+    pub object: Option<(String, Pos)>,
+    /// Quantity as written (instrument quantities are checked across files).
+    pub quantity: Option<String>,
+    /// No-data rules: k, the bound being k × the instrument's interval.
+    pub no_data_factor: Option<f64>,
+}
+
+/// The alerting part of one site file.
+pub(crate) struct SiteRules {
+    pub rules: Vec<RuleEntry>,
+    pub alerting: SiteAlerting,
+}
+
+/// Read `[alerting]`, `[[contacts]]` and `[[rule]]` of a site file.
+pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
+    let policy = match root.sub(cx, "alerting", "[alerting]") {
+        Some(mut t) => {
+            t.what = "[alerting]".into();
+            read_policy(cx, &t)
+        }
+        None => Policy::default(),
+    };
+    let mut contacts = Vec::new();
+    for mut t in root.tables(cx, "contacts") {
+        contacts.extend(read_contacts(cx, &mut t));
+    }
+    let rules = root
+        .tables(cx, "rule")
+        .into_iter()
+        .map(|mut t| read_rule(cx, &mut t, site, &policy))
+        .collect();
+    SiteRules {
+        rules,
+        alerting: SiteAlerting { policy, contacts },
+    }
+}
+
+fn millis(s: Option<i64>) -> Option<i64> {
+    s.filter(|s| *s > 0).map(|s| s * 1000)
+}
+
+fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
+    t.check_keys(
+        cx,
+        &[
+            "group_wait_s",
+            "repeat_interval_s",
+            "escalate_after_s",
+            "status_url",
+        ],
+    );
+    let d = Policy::default();
+    let max = i64::MAX / 1000;
+    Policy {
+        group_wait_ms: t.int_in(cx, "group_wait_s", 0, 3600, d.group_wait_ms / 1000) * 1000,
+        repeat_ms: match t.opt_int_in(cx, "repeat_interval_s", 0, max, false) {
+            Some(s) => millis(Some(s)),
+            None => d.repeat_ms,
+        },
+        escalate_after_ms: match t.opt_int_in(cx, "escalate_after_s", 0, max, false) {
+            Some(s) => millis(Some(s)),
+            None => d.escalate_after_ms,
+        },
+        status_url: t.nonempty(cx, "status_url").unwrap_or(d.status_url),
+    }
+}
+
+fn read_contacts(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Contacts> {
+    t.check_keys(cx, &["name", "emails", "levels", "escalation"]);
+    let before = cx.problems.len();
+    let name = t.req_string(cx, "name");
+    if let Some(n) = &name {
+        t.what = format!("contacts {n:?}");
+    }
+    let emails = t.strings(cx, "emails", true);
+    for e in emails.iter().flatten().filter(|e| !plain_address(e)) {
+        t.problem_at(
+            cx,
+            "emails",
+            format!("address {e:?} is not a plain address; expected e.g. oncall@example.org"),
+        );
+    }
+    let levels = t.strings(cx, "levels", false).unwrap_or_default();
+    let escalation = t.boolean(cx, "escalation", false);
+    let c = Contacts {
+        name: name?,
+        emails: emails?,
+        levels,
+        escalation,
+    };
+    (cx.problems.len() == before).then_some(c)
+}
+
+/// Settings a level takes from its rule unless it sets them itself.
+struct LevelDefaults {
+    deadband: Option<f64>,
+    persist_readings: Option<i64>,
+    persist_s: Option<i64>,
+    keep_active_s: Option<i64>,
+    response: Option<String>,
+}
+
+fn read_defaults(cx: &mut Cx<'_>, t: &Tbl<'_>) -> LevelDefaults {
+    LevelDefaults {
+        deadband: t.number(cx, "deadband", false),
+        persist_readings: t.opt_int_in(cx, "persist_readings", 1, u32::MAX.into(), false),
+        persist_s: t.opt_int_in(cx, "persist_s", 0, i64::MAX / 1000, false),
+        keep_active_s: t.opt_int_in(cx, "keep_active_s", 0, i64::MAX / 1000, false),
+        response: t.nonempty(cx, "response"),
+    }
+}
+
+const RULE_KEYS: [&str; 11] = [
+    "id",
+    "kind",
+    "object",
+    "quantity",
+    "level",
+    "factor",
+    "deadband",
+    "persist_readings",
+    "persist_s",
+    "keep_active_s",
+    "response",
+];
+
+fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> RuleEntry {
+    let before = cx.problems.len();
+    let id = t.nonempty(cx, "id");
+    if let Some(id) = &id {
+        t.what = format!("rule {id:?}");
+    } else if !t.has("id") {
+        t.missing(cx, "id", "");
+    }
+    let id_pos = cx.pos(t.value_span("id"));
+    t.check_keys(cx, &RULE_KEYS);
+    let no_data = t.choice(
+        cx,
+        "kind",
+        false,
+        &[("threshold", false), ("no_data", true)],
+    ) == Some(true);
+    let object = t.nonempty(cx, "object");
+    if !t.has("object") {
+        t.missing(cx, "object", " (an instrument or derived-object id)");
+    }
+    let object_pos = cx.pos(t.value_span("object"));
+    let defaults = read_defaults(cx, t);
+    let (quantity, levels, factor) = if no_data {
+        for key in ["quantity", "deadband", "persist_readings", "persist_s"] {
+            if t.has(key) {
+                t.problem_at(
+                    cx,
+                    key,
+                    format!("key \"{key}\" does not apply to kind = \"no_data\""),
+                );
+            }
+        }
+        let factor = t.number(cx, "factor", true);
+        if let Some(f) = factor.filter(|f| *f <= 1.0) {
+            t.problem_at(cx, "factor", format!("key \"factor\" is {f}, expected more than 1 (silent for more than factor × interval_s)"));
+        }
+        let name = t.nonempty(cx, "level");
+        if !t.has("level") {
+            t.missing(cx, "level", " (the level name of the no-data alert)");
+        }
+        let level = name.map(|name| LevelSpec {
+            name,
+            direction: Direction::Above,
+            bound: f64::INFINITY, // set from the instrument's interval in `finish`
+            deadband: 0.0,
+            persist_readings: 1,
+            persist_ms: 0,
+            keep_active_ms: defaults.keep_active_s.unwrap_or(0) * 1000,
+            response: defaults.response.clone().unwrap_or_default(),
+        });
+        if defaults.response.is_none() {
+            t.missing(cx, "response", " (what the on-call should do)");
+        }
+        (Some("no_data".to_string()), level.map(|l| vec![l]), factor)
+    } else {
+        if t.has("factor") {
+            t.problem_at(
+                cx,
+                "factor",
+                "key \"factor\" applies only to kind = \"no_data\"",
+            );
+        }
+        let quantity = t.nonempty(cx, "quantity");
+        if !t.has("quantity") {
+            t.missing(
+                cx,
+                "quantity",
+                " (e.g. \"total_head\", \"factor_of_safety\")",
+            );
+        }
+        (quantity, read_levels(cx, t, &defaults), None)
+    };
+    let rule = match (&id, &object, &quantity, levels) {
+        (Some(id), Some(object), Some(quantity), Some(levels)) if cx.problems.len() == before => {
+            Some(Rule {
+                id: id.clone(),
+                site: site.to_string(),
+                object: object.clone(),
+                quantity: quantity.clone(),
+                spec: Spec {
+                    check: if no_data {
+                        Check::NoData
+                    } else {
+                        Check::Threshold
+                    },
+                    levels,
+                    repeat_ms: policy.repeat_ms,
+                    escalate_after_ms: policy.escalate_after_ms,
+                },
+            })
+        }
+        _ => None,
+    };
+    RuleEntry {
+        rule,
+        id: id.map(|s| (s, id_pos)),
+        object: object.map(|s| (s, object_pos)),
+        quantity,
+        no_data_factor: factor,
+    }
+}
+
+fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<LevelSpec>> {
+    let tables = t.tables(cx, "level");
+    if tables.is_empty() {
+        if !t.has("level") {
+            t.problem(
+                cx,
+                "no [[rule.level]] tables; expected one per level, least severe first",
+            );
+        }
+        return None;
+    }
+    let before = cx.problems.len();
+    let mut levels: Vec<LevelSpec> = Vec::new();
+    let mut names = BTreeSet::new();
+    for (i, mut l) in tables.into_iter().enumerate() {
+        l.what = format!("{} level #{}", t.what, i + 1);
+        l.header = "[[rule.level]]".into();
+        l.check_keys(
+            cx,
+            &[
+                "name",
+                "above",
+                "below",
+                "deadband",
+                "persist_readings",
+                "persist_s",
+                "keep_active_s",
+                "response",
+            ],
+        );
+        let name = l.nonempty(cx, "name");
+        if !l.has("name") {
+            l.missing(cx, "name", " (your name for the level, e.g. \"watch\")");
+        }
+        if let Some(n) = name.as_ref().filter(|n| !names.insert(n.to_string())) {
+            l.problem_at(
+                cx,
+                "name",
+                format!("level name {n:?} is used twice in this rule"),
+            );
+        }
+        let bound = match (l.number(cx, "above", false), l.number(cx, "below", false)) {
+            (Some(b), None) => Some((Direction::Above, b)),
+            (None, Some(b)) => Some((Direction::Below, b)),
+            (Some(_), Some(_)) => {
+                l.problem(
+                    cx,
+                    "both \"above\" and \"below\" are set; expected one bound per level",
+                );
+                None
+            }
+            (None, None) => {
+                if !l.has("above") && !l.has("below") {
+                    l.problem(
+                        cx,
+                        "no bound; expected \"above = <value>\" or \"below = <value>\"",
+                    );
+                }
+                None
+            }
+        };
+        let deadband = l
+            .number(cx, "deadband", false)
+            .or(d.deadband)
+            .unwrap_or(0.0);
+        if deadband < 0.0 {
+            l.problem_at(
+                cx,
+                "deadband",
+                format!("deadband is {deadband}, expected 0 or more"),
+            );
+        }
+        let persist = l
+            .opt_int_in(cx, "persist_readings", 1, u32::MAX.into(), false)
+            .or(d.persist_readings)
+            .unwrap_or(1);
+        let persist_s = l
+            .opt_int_in(cx, "persist_s", 0, i64::MAX / 1000, false)
+            .or(d.persist_s);
+        let keep_s = l
+            .opt_int_in(cx, "keep_active_s", 0, i64::MAX / 1000, false)
+            .or(d.keep_active_s);
+        let response = l.nonempty(cx, "response").or_else(|| d.response.clone());
+        if response.is_none() {
+            l.missing(
+                cx,
+                "response",
+                " (or in the [[rule]]: what the on-call should do)",
+            );
+        }
+        if let (Some((dir, b)), Some(prev)) = (bound, levels.last()) {
+            let ordered = match dir {
+                Direction::Above => b > prev.bound,
+                Direction::Below => b < prev.bound,
+            };
+            if dir != prev.direction {
+                l.problem(
+                    cx,
+                    format!(
+                        "bound is {} but the level before is {}; expected one direction per rule",
+                        dir.name(),
+                        prev.direction.name()
+                    ),
+                );
+            } else if !ordered {
+                l.problem(cx, format!("{} {b} is not beyond the level before ({}); expected levels least severe first", dir.name(), prev.bound));
+            }
+        }
+        if let (Some(name), Some((direction, bound)), Some(response)) = (name, bound, response) {
+            levels.push(LevelSpec {
+                name,
+                direction,
+                bound,
+                deadband,
+                persist_readings: persist as u32,
+                persist_ms: persist_s.unwrap_or(0) * 1000,
+                keep_active_ms: keep_s.unwrap_or(0) * 1000,
+                response,
+            });
+        }
+    }
+    (cx.problems.len() == before).then_some(levels)
+}
+
+/// Checks across site files: rule ids unique; the object of a rule exists (an instrument, or
+/// — once objects are loaded, see `CHECK_OBJECT_IDS` — a derived object); an instrument rule
+/// names a reading quantity; a no-data rule watches an instrument.
+pub(crate) fn cross_check(
+    files: &[(PathBuf, &SiteRules)],
+    instruments: &BTreeSet<String>,
+    objects: &BTreeSet<String>,
+    problems: &mut Vec<Problem>,
+) {
+    let mut ids: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
+    let problem = |file: &Path, pos: Pos, message: String| Problem {
+        file: file.to_path_buf(),
+        line: pos.0,
+        column: pos.1,
+        message,
+    };
+    for (file, sr) in files {
+        for e in &sr.rules {
+            if let Some((id, pos)) = &e.id {
+                if let Some((f0, p0)) = ids.get(id.as_str()) {
+                    problems.push(problem(file, *pos, format!("rule id {id:?} is already used at {}:{}; expected rule ids unique across all sites", f0.display(), p0.0)));
+                } else {
+                    ids.insert(id, (file, *pos));
+                }
+            }
+            let (Some((object, pos)), Some(q)) = (&e.object, &e.quantity) else {
+                continue;
+            };
+            let is_instrument = instruments.contains(object);
+            let message = if e.no_data_factor.is_some() || q == "no_data" {
+                (!is_instrument).then(|| format!("rule object {object:?} is not an instrument; expected the id of the instrument a no-data rule watches"))
+            } else if is_instrument {
+                (!READING_QUANTITIES.contains(&q.as_str())).then(|| format!("rule on instrument {object:?}: quantity {q:?} is not a reading quantity; expected one of: {}", READING_QUANTITIES.join(", ")))
+            } else if CHECK_OBJECT_IDS && !objects.contains(object) {
+                Some(format!("rule object {object:?} is neither an instrument nor a configured object (cluster, toe, blanket, section)"))
+            } else {
+                None
+            };
+            if let Some(m) = message {
+                problems.push(problem(file, *pos, m));
+            }
+        }
+    }
+}
+
+/// Put a site file's alerting into the configuration: no-data bounds from the instrument's
+/// interval (k × interval_s), then the rules and the site's policy and contacts.
+pub(crate) fn finish(cfg: &mut Config, site: &str, sr: SiteRules) {
+    for e in sr.rules {
+        let Some(mut rule) = e.rule else { continue };
+        if let (Some(k), Some(i)) = (e.no_data_factor, cfg.instruments.get(&rule.object)) {
+            let i: &Instrument = i;
+            if let Some(l) = rule.spec.levels.first_mut() {
+                l.bound = k * i.interval_s as f64;
+            }
+        }
+        cfg.alerting.rules.push(rule);
+    }
+    cfg.alerting.sites.insert(site.to_string(), sr.alerting);
+}

@@ -1,0 +1,239 @@
+//! SQL of the mail outbox (the worker's side: due messages, sent / retry / dead-letter) and of
+//! the operator commands (`seepd alerts`, `ack`, `silence`), which run against the database of
+//! a running service: every statement is a short transaction under the busy timeout.
+
+use rusqlite::{params, OptionalExtension};
+
+use super::{Store, StoreError};
+
+/// An outbox message as the worker sends it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Queued {
+    pub id: i64,
+    pub created_ms: i64,
+    pub recipients: Vec<String>,
+    pub subject: String,
+    pub text: String,
+    pub html: String,
+    pub message_id: String,
+    pub attempts: i64,
+    pub next_attempt_ms: i64,
+    pub last_error: Option<String>,
+}
+
+/// An alert not yet resolved, for `seepd alerts`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OpenAlert {
+    pub id: i64,
+    pub rule: String,
+    pub site: String,
+    pub object: String,
+    pub quantity: String,
+    pub level: String,
+    pub raised_ms: i64,
+    pub value: Option<f64>,
+    pub unit: String,
+    pub acked_by: Option<String>,
+    pub acked_ms: Option<i64>,
+}
+
+/// What `seepd ack` did.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum AckOutcome {
+    Recorded,
+    /// Already acknowledged (by, at): nothing changed.
+    Already(String, i64),
+    Resolved,
+    NotFound,
+}
+
+const QUEUED_COLUMNS: &str = "id, created_ms, recipients, subject, body_text, body_html,
+    message_id, attempts, next_attempt_ms, last_error";
+
+fn queued(r: &rusqlite::Row<'_>) -> rusqlite::Result<Queued> {
+    let recipients: String = r.get(2)?;
+    Ok(Queued {
+        id: r.get(0)?,
+        created_ms: r.get(1)?,
+        recipients: recipients
+            .split(',')
+            .filter(|s| !s.is_empty())
+            .map(str::to_string)
+            .collect(),
+        subject: r.get(3)?,
+        text: r.get(4)?,
+        html: r.get(5)?,
+        message_id: r.get(6)?,
+        attempts: r.get(7)?,
+        next_attempt_ms: r.get(8)?,
+        last_error: r.get(9)?,
+    })
+}
+
+impl Store {
+    /// Pending messages due at `now_ms`, oldest first.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn due_messages(&self, now_ms: i64, limit: usize) -> Result<Vec<Queued>, StoreError> {
+        let mut st = self.conn.prepare_cached(&format!(
+            "SELECT {QUEUED_COLUMNS} FROM outbox
+             WHERE status = 'pending' AND next_attempt_ms <= ?1 ORDER BY id LIMIT ?2"
+        ))?;
+        let rows = st.query_map(params![now_ms, limit as i64], queued)?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// When the next pending message is due, if any.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn next_due_ms(&self) -> Result<Option<i64>, StoreError> {
+        Ok(self.conn.query_row(
+            "SELECT min(next_attempt_ms) FROM outbox WHERE status = 'pending'",
+            [],
+            |r| r.get(0),
+        )?)
+    }
+
+    /// The server accepted the message.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn mark_sent(&self, id: i64, now_ms: i64) -> Result<(), StoreError> {
+        self.conn.execute(
+            "UPDATE outbox SET status = 'sent', sent_ms = ?2, attempts = attempts + 1,
+                last_error = NULL WHERE id = ?1",
+            params![id, now_ms],
+        )?;
+        Ok(())
+    }
+
+    /// A transient failure: try again at `next_ms`.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn mark_retry(&self, id: i64, next_ms: i64, error: &str) -> Result<(), StoreError> {
+        self.conn.execute(
+            "UPDATE outbox SET attempts = attempts + 1, next_attempt_ms = ?2, last_error = ?3
+             WHERE id = ?1",
+            params![id, next_ms, error],
+        )?;
+        Ok(())
+    }
+
+    /// A permanent refusal (5xx): dead-letter with the server's reply.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn mark_dead(&self, id: i64, error: &str) -> Result<(), StoreError> {
+        self.conn.execute(
+            "UPDATE outbox SET status = 'dead', attempts = attempts + 1, last_error = ?2
+             WHERE id = ?1",
+            params![id, error],
+        )?;
+        Ok(())
+    }
+
+    /// Messages with `status` (`pending`, `sent`, `dead`), oldest first.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn messages(&self, status: &str) -> Result<Vec<Queued>, StoreError> {
+        let mut st = self.conn.prepare(&format!(
+            "SELECT {QUEUED_COLUMNS} FROM outbox WHERE status = ?1 ORDER BY id"
+        ))?;
+        let rows = st.query_map([status], queued)?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// Alerts not resolved, oldest first.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn open_alerts(&self) -> Result<Vec<OpenAlert>, StoreError> {
+        let mut st = self.conn.prepare(
+            "SELECT id, rule, site, object, quantity, level, raised_ms, value, unit, acked_by,
+                acked_ms FROM alerts WHERE resolved_ms IS NULL ORDER BY id",
+        )?;
+        let rows = st.query_map([], |r| {
+            Ok(OpenAlert {
+                id: r.get(0)?,
+                rule: r.get(1)?,
+                site: r.get(2)?,
+                object: r.get(3)?,
+                quantity: r.get(4)?,
+                level: r.get(5)?,
+                raised_ms: r.get(6)?,
+                value: r.get(7)?,
+                unit: r.get(8)?,
+                acked_by: r.get(9)?,
+                acked_ms: r.get(10)?,
+            })
+        })?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// Acknowledge alert `id` (one short transaction); the service applies it to the rule
+    /// state within a second, which stops reminders and escalation.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn acknowledge(
+        &mut self,
+        id: i64,
+        who: &str,
+        note: Option<&str>,
+        now_ms: i64,
+    ) -> Result<AckOutcome, StoreError> {
+        let tx = self
+            .conn
+            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
+        let row: Option<(Option<i64>, Option<String>, Option<i64>)> = tx
+            .query_row(
+                "SELECT resolved_ms, acked_by, acked_ms FROM alerts WHERE id = ?1",
+                [id],
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+            )
+            .optional()?;
+        let outcome = match row {
+            None => AckOutcome::NotFound,
+            Some((Some(_), ..)) => AckOutcome::Resolved,
+            Some((None, Some(by), Some(at))) => AckOutcome::Already(by, at),
+            Some(_) => {
+                tx.execute(
+                    "INSERT INTO acks (alert, who, note, t_ms) VALUES (?1, ?2, ?3, ?4)",
+                    params![id, who, note, now_ms],
+                )?;
+                tx.execute(
+                    "UPDATE alerts SET acked_ms = ?2, acked_by = ?3, ack_note = ?4 WHERE id = ?1",
+                    params![id, now_ms, who, note],
+                )?;
+                AckOutcome::Recorded
+            }
+        };
+        tx.commit()?;
+        Ok(outcome)
+    }
+
+    /// Record a silence of a rule or of an instrument/object until `until_ms`; returns its id.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn add_silence(
+        &self,
+        rule: Option<&str>,
+        object: Option<&str>,
+        until_ms: i64,
+        reason: &str,
+        who: &str,
+        now_ms: i64,
+    ) -> Result<i64, StoreError> {
+        self.conn.execute(
+            "INSERT INTO silences (rule, object, until_ms, reason, who, created_ms)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+            params![rule, object, until_ms, reason, who, now_ms],
+        )?;
+        Ok(self.conn.last_insert_rowid())
+    }
+}
