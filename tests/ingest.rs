@@ -284,6 +284,10 @@ fn broker_restart_mid_stream_loses_nothing() {
         std::fs::read_to_string(&log).unwrap()
     );
     d.wait_connected(2);
+    // The broker kept seepd's session across its restart (persistence), so the reconnect found
+    // it and the queued readings were delivered.
+    let text = std::fs::read_to_string(&log).unwrap();
+    assert!(text.contains("session_present=true"), "{text}");
 }
 
 #[test]
