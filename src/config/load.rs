@@ -103,6 +103,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         service: Some(service),
         mqtt: Some(mqtt),
         subscriptions,
+        export,
     }) = service
     else {
         return Err(one(&service_path, "service file could not be read"));
@@ -115,6 +116,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         sites: Vec::new(),
         instruments: BTreeMap::new(),
         objects: Default::default(),
+        export,
     };
     for (_, sf) in sites {
         cfg.sites.extend(sf.site);
@@ -281,6 +283,16 @@ pub fn summary(cfg: &Config) -> String {
             "clean"
         }
     );
+    if let Some(e) = &cfg.export {
+        let _ = writeln!(
+            s,
+            "Export: InfluxDB v2 at {} (org {:?}, bucket {:?}){}",
+            e.url,
+            e.org,
+            e.bucket,
+            if e.enabled { "" } else { ", disabled" }
+        );
+    }
     let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
     for sub in &cfg.subscriptions {
         let format = match sub.format {

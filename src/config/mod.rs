@@ -1,6 +1,7 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
-//! (`load`, with `service`, `site` and `kinds` reading the tables through `reader`).
+//! (`load`, with `service`, `export`, `site` and `kinds` reading the tables through `reader`).
 
+mod export;
 mod kinds;
 pub mod load;
 pub mod model;

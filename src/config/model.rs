@@ -34,6 +34,8 @@ pub struct Config {
     pub instruments: BTreeMap<String, Instrument>,
     /// Derived-quantity objects (clusters, toe checks, blanket reaches, sections) of all sites.
     pub objects: Objects,
+    /// InfluxDB v2 export (`[export]`), when configured.
+    pub export: Option<Export>,
 }
 
 impl Config {
@@ -79,6 +81,34 @@ pub struct Mqtt {
     /// Reconnect backoff: first delay and cap (ms).
     pub reconnect_min_ms: u64,
     pub reconnect_max_ms: u64,
+}
+
+/// InfluxDB v2 export settings (`[export]`): where to write and what.
+#[derive(Debug, Clone)]
+pub struct Export {
+    /// Server root, `http://` or `https://` with host and optional port, no path.
+    pub url: String,
+    pub org: String,
+    pub bucket: String,
+    /// API token (`Authorization: Token ...`), from `token_env` or `token_file`.
+    pub token: Secret,
+    /// Extra CA certificate (PEM) trusted for `https://`.
+    pub ca_file: Option<PathBuf>,
+    /// Queue entries per write request (a reading gives up to five points).
+    pub batch_size: usize,
+    /// How often a partial batch is sent (full batches go at once).
+    pub flush_interval_ms: u64,
+    /// Readings (`seepd_reading`, `seepd_input`) are exported.
+    pub readings: bool,
+    /// Derived values (`seepd_derived`) are exported.
+    pub derived: bool,
+    /// `enabled = false` keeps the section but neither queues nor sends.
+    pub enabled: bool,
+    /// Retry backoff after a failed write: first delay and cap.
+    pub retry_min_ms: u64,
+    pub retry_max_ms: u64,
+    /// Whole-request timeout of one write.
+    pub timeout_ms: u64,
 }
 
 /// TLS to the broker.

@@ -56,6 +56,35 @@ const MIGRATIONS: &[&str] = &[
         inputs TEXT NOT NULL,
         PRIMARY KEY (object, quantity, t_ms)
     ) WITHOUT ROWID;",
+    // 3: InfluxDB export: the queue of committed rows in commit order (filled in the same
+    // transaction as the rows), the cursor of what the server has acknowledged, and the points
+    // the server refused.
+    "CREATE TABLE export_queue (
+        seq INTEGER PRIMARY KEY AUTOINCREMENT,
+        series INTEGER NOT NULL,
+        key TEXT NOT NULL,
+        quantity TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        queued_ms INTEGER NOT NULL
+    );
+    CREATE TABLE export_cursor (
+        name TEXT PRIMARY KEY,
+        seq INTEGER NOT NULL,
+        points INTEGER NOT NULL,
+        rejected INTEGER NOT NULL,
+        updated_ms INTEGER NOT NULL
+    );
+    CREATE TABLE export_rejects (
+        id INTEGER PRIMARY KEY,
+        rejected_ms INTEGER NOT NULL,
+        series TEXT NOT NULL,
+        key TEXT NOT NULL,
+        quantity TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        status INTEGER NOT NULL,
+        reply TEXT NOT NULL,
+        lines TEXT NOT NULL
+    );",
 ];
 
 /// The schema version this build writes.
