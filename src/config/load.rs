@@ -341,3 +341,6 @@ mod tests;
 
 #[cfg(test)]
 mod check_tests;
+
+#[cfg(test)]
+mod export_tests;
