@@ -102,10 +102,29 @@ pub(super) fn migrate(conn: &Connection, name: &str) -> Result<(), StoreError> {
     }
     for (i, sql) in MIGRATIONS.iter().enumerate().skip(found as usize) {
         let version = i as i64 + 1;
-        conn.execute_batch(&format!(
-            "BEGIN IMMEDIATE; {sql}; PRAGMA user_version = {version}; COMMIT;"
-        ))?;
-        tracing::info!(version, "Database schema migrated");
+        // Another process may be migrating the same file: take the write lock, then look again.
+        conn.execute_batch("BEGIN IMMEDIATE")?;
+        let step = conn
+            .pragma_query_value(None, "user_version", |r| r.get::<_, i64>(0))
+            .and_then(|now| {
+                if now >= version {
+                    return Ok(false);
+                }
+                conn.execute_batch(&format!("{sql}; PRAGMA user_version = {version};"))?;
+                Ok(true)
+            });
+        match step {
+            Ok(migrated) => {
+                conn.execute_batch("COMMIT")?;
+                if migrated {
+                    tracing::info!(version, "Database schema migrated");
+                }
+            }
+            Err(e) => {
+                let _ = conn.execute_batch("ROLLBACK");
+                return Err(e.into());
+            }
+        }
     }
     Ok(())
 }

@@ -12,7 +12,8 @@ pub(super) fn write(dir: &Path, name: &str, text: &str) {
 }
 
 /// A minimal valid service file.
-pub(super) const SERVICE: &str = "[[subscription]]\npattern = \"t/{logger}/json\"\nformat = \"json\"\n";
+pub(super) const SERVICE: &str =
+    "[[subscription]]\npattern = \"t/{logger}/json\"\nformat = \"json\"\n";
 
 pub(super) fn no_env(_: &str) -> Option<String> {
     None
