@@ -4,7 +4,8 @@
 //! queue is empty, then checks that every sample arrived.
 //!
 //! Run: `cargo bench --bench export` (env SEEPD_BENCH_EXPORT_N sets the readings, default
-//! 500000). Figures go to the README.
+//! 500000). Figures go to the README. Under `cargo test --all-targets` (no `--bench` argument)
+//! it runs as a quick smoke check on 2000 readings.
 
 #[path = "../tests/common/mod.rs"]
 mod common;
@@ -15,10 +16,11 @@ use std::time::{Duration, Instant};
 use common::*;
 
 fn main() {
+    let benching = std::env::args().any(|a| a == "--bench");
     let n: usize = std::env::var("SEEPD_BENCH_EXPORT_N")
         .ok()
         .and_then(|s| s.parse().ok())
-        .unwrap_or(500_000);
+        .unwrap_or(if benching { 500_000 } else { 2000 });
     let dir = tempfile::tempdir().unwrap();
     let vm = Victoria::start(dir.path());
     // Default batch size and flush interval; only the retry timings come from the test helper.
