@@ -94,7 +94,7 @@ pub struct Export {
     pub token: Secret,
     /// Extra CA certificate (PEM) trusted for `https://`.
     pub ca_file: Option<PathBuf>,
-    /// Queue entries per write request (a reading gives up to five points).
+    /// Most points per write request; the queue is read this many entries at a time.
     pub batch_size: usize,
     /// How often a partial batch is sent (full batches go at once).
     pub flush_interval_ms: u64,
