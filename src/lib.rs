@@ -12,12 +12,14 @@ pub mod demo;
 pub mod derive;
 pub mod domain;
 pub mod engine;
+pub mod export;
 pub mod ingest;
 pub mod notify;
 pub mod quality;
 pub mod replay;
 pub mod section_cmd;
 pub mod service;
+pub mod status;
 pub mod store;
 pub mod xml_check;
 

@@ -1,7 +1,8 @@
-//! `seepd run`: load configuration, open the store, and run live ingestion until a signal.
+//! `seepd run`: load configuration, open the store, and run live ingestion and the export worker
+//! until a signal.
 //!
-//! Owns start-up order (store, rule states, mail worker, ingestion) and the shutdown signal;
-//! the work itself is in `ingest::mqtt`, `alerts` and `notify`.
+//! Owns start-up order (store, rule states, mail worker, export worker, ingestion) and the
+//! shutdown signal; the work itself is in `ingest::mqtt`, `alerts`, `notify` and `export`.
 
 use std::future::Future;
 use std::sync::Arc;
@@ -17,6 +18,7 @@ use crate::config::Config;
 use crate::engine::Engine;
 use crate::ingest::progress::Counters;
 use crate::notify::Worker;
+use crate::store::export::QueueMode;
 use crate::store::Store;
 
 /// Open the store for `cfg`, record the instruments and build an engine with its barometer
@@ -29,6 +31,12 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
         .with_context(|| format!("opening database {}", cfg.service.database.display()))?;
     let now = Utc::now();
     store.sync_instruments(cfg, now)?;
+    if let Some(e) = cfg.export.as_ref().filter(|e| e.enabled) {
+        store.set_export_queue(QueueMode {
+            readings: e.readings,
+            derived: e.derived,
+        });
+    }
     let mut engine = Engine::new(Arc::clone(cfg));
     let since = now.timestamp_millis() - cfg.service.barometer_max_age_s * 1000 * 2;
     for b in engine.barometers() {
@@ -77,12 +85,49 @@ pub async fn run(
         }
     };
     let live = Live::new(evaluator, worker.as_ref().map(Worker::waker));
-    let r =
-        crate::ingest::mqtt::run(Arc::clone(&cfg), store, engine, live, counters, shutdown).await;
+    let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
+    let exporter = start_export(&cfg, stop_rx);
+    let stop_sent = std::sync::OnceLock::new();
+    let forward = async {
+        shutdown.await;
+        let _ = stop_sent.set(tokio::time::Instant::now());
+        let _ = stop_tx.send(true);
+    };
+    let result =
+        crate::ingest::mqtt::run(Arc::clone(&cfg), store, engine, live, counters, forward).await;
+    let _ = stop_sent.set(tokio::time::Instant::now());
+    let _ = stop_tx.send(true);
     if let Some(w) = worker {
         w.stop(Duration::from_secs(cfg.service.shutdown_deadline_s.min(5)));
     }
-    r
+    if let (Some(task), Some(sent)) = (exporter, stop_sent.get()) {
+        let deadline = *sent + std::time::Duration::from_secs(cfg.service.shutdown_deadline_s);
+        match tokio::time::timeout_at(deadline, task).await {
+            Ok(Ok(Ok(()))) => {}
+            Ok(Ok(Err(e))) => tracing::error!(error = %format!("{e:#}"), "Export worker failed"),
+            Ok(Err(e)) => tracing::error!(error = %e, "Export worker panicked"),
+            Err(_) => tracing::error!("Export worker did not stop before the shutdown deadline; unsent points stay queued"),
+        }
+    }
+    result
+}
+
+/// Spawn the export worker when `[export]` is configured and enabled.
+fn start_export(
+    cfg: &Arc<Config>,
+    stop: tokio::sync::watch::Receiver<bool>,
+) -> Option<tokio::task::JoinHandle<anyhow::Result<()>>> {
+    cfg.export.as_ref().filter(|e| e.enabled)?;
+    #[cfg(feature = "influx")]
+    {
+        Some(tokio::spawn(crate::export::run(Arc::clone(cfg), stop)))
+    }
+    #[cfg(not(feature = "influx"))]
+    {
+        let _ = stop;
+        tracing::warn!("[export] is configured but this build has no InfluxDB client (feature `influx`); points are queued, not sent");
+        None
+    }
 }
 
 /// Resolves on SIGINT or SIGTERM.

@@ -128,6 +128,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         mqtt: Some(mqtt),
         subscriptions,
         smtp,
+        export,
     }) = service
     else {
         return Err(one(&service_path, "service file could not be read"));
@@ -144,6 +145,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             smtp,
             ..Alerting::default()
         },
+        export,
     };
     let mut alerting = Vec::new();
     for (_, sf) in sites {
@@ -396,6 +398,16 @@ pub fn summary(cfg: &Config) -> String {
         None => writeln!(s, "Mail relay: none (alert messages stay in the outbox)"),
     };
     let _ = writeln!(s, "Alert rules: {}", cfg.alerting.rules.len());
+    if let Some(e) = &cfg.export {
+        let _ = writeln!(
+            s,
+            "Export: InfluxDB v2 at {} (org {:?}, bucket {:?}){}",
+            e.url,
+            e.org,
+            e.bucket,
+            if e.enabled { "" } else { ", disabled" }
+        );
+    }
     let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
     for sub in &cfg.subscriptions {
         let format = match sub.format {
@@ -475,3 +487,6 @@ mod object_check_tests;
 
 #[cfg(test)]
 mod rules_tests;
+
+#[cfg(test)]
+mod export_tests;

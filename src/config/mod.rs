@@ -1,8 +1,9 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
-//! (`load`, with `service`, `site`, `kinds`, `objects`, `rules` and `smtp` reading the tables
-//! through `reader`); the alerting model is in `alerting`.
+//! (`load`, with `service`, `export`, `site`, `kinds`, `objects`, `rules` and `smtp` reading the
+//! tables through `reader`); the alerting model is in `alerting`.
 
 pub mod alerting;
+mod export;
 mod kinds;
 pub mod load;
 pub mod model;

@@ -36,6 +36,8 @@ pub struct Config {
     pub objects: Objects,
     /// Rules, contact lists, notification policy and the mail relay.
     pub alerting: super::alerting::Alerting,
+    /// InfluxDB v2 export (`[export]`), when configured.
+    pub export: Option<Export>,
 }
 
 impl Config {
@@ -81,6 +83,34 @@ pub struct Mqtt {
     /// Reconnect backoff: first delay and cap (ms).
     pub reconnect_min_ms: u64,
     pub reconnect_max_ms: u64,
+}
+
+/// InfluxDB v2 export settings (`[export]`): where to write and what.
+#[derive(Debug, Clone)]
+pub struct Export {
+    /// Server root, `http://` or `https://` with host and optional port, no path.
+    pub url: String,
+    pub org: String,
+    pub bucket: String,
+    /// API token (`Authorization: Token ...`), from `token_env` or `token_file`.
+    pub token: Secret,
+    /// Extra CA certificate (PEM) trusted for `https://`.
+    pub ca_file: Option<PathBuf>,
+    /// Most points per write request; the queue is read this many entries at a time.
+    pub batch_size: usize,
+    /// How often a partial batch is sent (full batches go at once).
+    pub flush_interval_ms: u64,
+    /// Readings (`seepd_reading`, `seepd_input`) are exported.
+    pub readings: bool,
+    /// Derived values (`seepd_derived`) are exported.
+    pub derived: bool,
+    /// `enabled = false` keeps the section but neither queues nor sends.
+    pub enabled: bool,
+    /// Retry backoff after a failed write: first delay and cap.
+    pub retry_min_ms: u64,
+    pub retry_max_ms: u64,
+    /// Whole-request timeout of one write.
+    pub timeout_ms: u64,
 }
 
 /// TLS to the broker.

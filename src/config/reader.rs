@@ -306,6 +306,16 @@ impl<'t> Tbl<'t> {
         Some(v)
     }
 
+    /// An array of strings; `expected` describes it in the problem when it is something else.
+    pub fn string_array(&self, cx: &mut Cx<'_>, key: &str, expected: &str) -> Option<Vec<String>> {
+        self.get(cx, key, false, expected, |v| {
+            v.as_array()?
+                .iter()
+                .map(|x| x.as_str().map(String::from))
+                .collect()
+        })
+    }
+
     /// A boolean, or `default` when absent.
     pub fn boolean(&self, cx: &mut Cx<'_>, key: &str, default: bool) -> bool {
         self.get(cx, key, false, "true or false", Value::as_bool)

@@ -1,5 +1,5 @@
 //! Reading the service file (`seepd.toml`): `[service]`, `[mqtt]` (with TLS and the password
-//! secret) and the `[[subscription]]` topic patterns.
+//! secret) and the `[[subscription]]` topic patterns; `[export]` is read by `config::export`.
 //!
 //! Owns the keys, defaults and checks of those tables. Reads only the files the configuration
 //! names (password, TLS); never connects to anything.
@@ -7,7 +7,7 @@
 use std::path::{Path, PathBuf};
 
 use super::model::{
-    EpochUnit, JsonFields, Mqtt, PayloadFormat, Secret, Service, Subscription, Tls,
+    EpochUnit, Export, JsonFields, Mqtt, PayloadFormat, Secret, Service, Subscription, Tls,
 };
 use super::problem::Cx;
 use super::reader::Tbl;
@@ -18,6 +18,8 @@ pub(crate) const PLACEHOLDERS: [&str; 4] = ["{logger}", "{channel}", "{instrumen
 /// Everything the service file holds; `None` parts had problems (already reported).
 pub(crate) struct ServiceFile {
     pub service: Option<Service>,
+    /// `[export]`, when present and valid.
+    pub export: Option<Export>,
     pub mqtt: Option<Mqtt>,
     pub subscriptions: Vec<Subscription>,
     /// The mail relay, if configured (and valid).
@@ -39,7 +41,7 @@ pub(crate) fn resolve(dir: &Path, p: &str) -> PathBuf {
 
 /// Read the service file's root table.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) -> ServiceFile {
-    root.check_keys(cx, &["service", "mqtt", "subscription", "smtp"]);
+    root.check_keys(cx, &["service", "mqtt", "subscription", "smtp", "export"]);
     let service = match root.sub(cx, "service", "[service]") {
         Some(mut t) => {
             t.what = "[service]".into();
@@ -56,6 +58,10 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
         None if root.has("mqtt") => None,
         None => Some(default_mqtt()),
     };
+    let export = root.sub(cx, "export", "[export]").and_then(|mut t| {
+        t.what = "[export]".into();
+        super::export::read(cx, &t, dir, env)
+    });
     let mut subscriptions: Vec<Subscription> = Vec::new();
     for mut t in root.tables(cx, "subscription") {
         if let Some(s) = read_subscription(cx, &mut t) {
@@ -80,6 +86,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
     });
     ServiceFile {
         service,
+        export,
         mqtt,
         subscriptions,
         smtp,
@@ -204,36 +211,60 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
     (cx.problems.len() == before).then_some(m)
 }
 
-/// A password from `password_env` or `password_file` (not both); `what` names whose (MQTT, SMTP).
+/// A password from `password_env` or `password_file` (not both); `whose` names it (MQTT, SMTP).
 pub(crate) fn read_password(
     cx: &mut Cx<'_>,
     t: &Tbl<'_>,
     dir: &Path,
     env: Env<'_>,
+    whose: &str,
+) -> Option<Secret> {
+    read_secret(
+        cx,
+        t,
+        dir,
+        env,
+        "password",
+        &format!("the {whose} password"),
+    )
+}
+
+/// A secret from `{name}_env` (an environment variable) or `{name}_file` (a file, trimmed), not
+/// both; `what` names it in messages. `None` when neither key is set or on a problem.
+pub(crate) fn read_secret(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    dir: &Path,
+    env: Env<'_>,
+    name: &str,
     what: &str,
 ) -> Option<Secret> {
-    let var = t.nonempty(cx, "password_env");
-    let file = t.nonempty(cx, "password_file");
+    let env_key = format!("{name}_env");
+    let file_key = format!("{name}_file");
+    let var = t.nonempty(cx, &env_key);
+    let file = t.nonempty(cx, &file_key);
     match (var, file) {
         (Some(_), Some(_)) => {
             t.problem_at(
                 cx,
-                "password_file",
-                "both \"password_env\" and \"password_file\" are set; expected only one",
+                &file_key,
+                format!("both \"{env_key}\" and \"{file_key}\" are set; expected only one"),
             );
             None
         }
-        (Some(var), None) => match env(&var) {
-            Some(v) if !v.is_empty() => Some(Secret(v)),
-            _ => {
-                t.problem_at(
+        (Some(var), None) => {
+            match env(&var) {
+                Some(v) if !v.is_empty() => Some(Secret(v)),
+                _ => {
+                    t.problem_at(
                     cx,
-                    "password_env",
-                    format!("environment variable {var} (password_env) is unset or empty; expected the {what} password"),
+                    &env_key,
+                    format!("environment variable {var} ({env_key}) is unset or empty; expected {what}"),
                 );
-                None
+                    None
+                }
             }
-        },
+        }
         (None, Some(file)) => {
             let path = resolve(dir, &file);
             match std::fs::read_to_string(&path) {
@@ -241,19 +272,16 @@ pub(crate) fn read_password(
                 Ok(_) => {
                     t.problem_at(
                         cx,
-                        "password_file",
-                        format!(
-                            "password_file {} is empty; expected the {what} password",
-                            path.display()
-                        ),
+                        &file_key,
+                        format!("{file_key} {} is empty; expected {what}", path.display()),
                     );
                     None
                 }
                 Err(e) => {
                     t.problem_at(
                         cx,
-                        "password_file",
-                        format!("password_file {} cannot be read: {e}", path.display()),
+                        &file_key,
+                        format!("{file_key} {} cannot be read: {e}", path.display()),
                     );
                     None
                 }

@@ -3,9 +3,11 @@
 //!
 //! Owns the database connection and every SQL statement. WAL mode with `synchronous=FULL`: a
 //! committed batch survives a process crash and, on storage that honours fsync, a power loss.
-//! Reading inserts are idempotent on (instrument, time) because QoS 1 redelivers.
+//! Reading inserts are idempotent on (instrument, time) because QoS 1 redelivers. When export is
+//! on, each new row is also queued for export in the same transaction (`export` reads the queue).
 
 pub mod alerts;
+pub mod export;
 pub mod outbox;
 mod schema;
 
@@ -117,6 +119,8 @@ pub struct LatestDerived {
 pub struct Store {
     /// The one connection; the store is used from one thread at a time.
     conn: Connection,
+    /// Which new rows `write_batch` queues for export (none unless export is configured).
+    queue: export::QueueMode,
 }
 
 impl Store {
@@ -143,7 +147,15 @@ impl Store {
         conn.pragma_update(None, "synchronous", "FULL")?;
         conn.pragma_update(None, "foreign_keys", "ON")?;
         schema::migrate(&conn, name)?;
-        Ok(Store { conn })
+        Ok(Store {
+            conn,
+            queue: export::QueueMode::default(),
+        })
+    }
+
+    /// Queue newly written readings and/or derived values for export from now on.
+    pub fn set_export_queue(&mut self, mode: export::QueueMode) {
+        self.queue = mode;
     }
 
     /// The connection, for modules that own further tables (later issues) and tests.
@@ -242,6 +254,9 @@ impl Store {
                 ])?;
                 if n == 1 {
                     stats.inserted += 1;
+                    if self.queue.readings {
+                        export::enqueue(&tx, export::Series::Reading, &r.instrument, "", r.t_ms)?;
+                    }
                 } else {
                     stats.duplicates += 1;
                 }
@@ -260,6 +275,9 @@ impl Store {
                     r.reason,
                     r.inputs.join(","),
                 ])?;
+                if self.queue.derived {
+                    export::enqueue(&tx, export::Series::Derived, &r.object, &r.quantity, r.t_ms)?;
+                }
             }
             let mut q = tx.prepare_cached(
                 "INSERT INTO quarantine (received_ms, topic, reason, detail, payload)

@@ -130,6 +130,35 @@ const MIGRATIONS: &[&str] = &[
         sent_ms INTEGER
     );
     CREATE INDEX outbox_due ON outbox (status, next_attempt_ms);",
+    // 4: InfluxDB export: the queue of committed rows in commit order (filled in the same
+    // transaction as the rows), the cursor of what the server has acknowledged, and the points
+    // the server refused.
+    "CREATE TABLE export_queue (
+        seq INTEGER PRIMARY KEY AUTOINCREMENT,
+        series INTEGER NOT NULL,
+        key TEXT NOT NULL,
+        quantity TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        queued_ms INTEGER NOT NULL
+    );
+    CREATE TABLE export_cursor (
+        name TEXT PRIMARY KEY,
+        seq INTEGER NOT NULL,
+        points INTEGER NOT NULL,
+        rejected INTEGER NOT NULL,
+        updated_ms INTEGER NOT NULL
+    );
+    CREATE TABLE export_rejects (
+        id INTEGER PRIMARY KEY,
+        rejected_ms INTEGER NOT NULL,
+        series TEXT NOT NULL,
+        key TEXT NOT NULL,
+        quantity TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        status INTEGER NOT NULL,
+        reply TEXT NOT NULL,
+        lines TEXT NOT NULL
+    );",
 ];
 
 /// The schema version this build writes.
@@ -147,10 +176,29 @@ pub(super) fn migrate(conn: &Connection, name: &str) -> Result<(), StoreError> {
     }
     for (i, sql) in MIGRATIONS.iter().enumerate().skip(found as usize) {
         let version = i as i64 + 1;
-        conn.execute_batch(&format!(
-            "BEGIN IMMEDIATE; {sql}; PRAGMA user_version = {version}; COMMIT;"
-        ))?;
-        tracing::info!(version, "Database schema migrated");
+        // Another process may be migrating the same file: take the write lock, then look again.
+        conn.execute_batch("BEGIN IMMEDIATE")?;
+        let step = conn
+            .pragma_query_value(None, "user_version", |r| r.get::<_, i64>(0))
+            .and_then(|now| {
+                if now >= version {
+                    return Ok(false);
+                }
+                conn.execute_batch(&format!("{sql}; PRAGMA user_version = {version};"))?;
+                Ok(true)
+            });
+        match step {
+            Ok(migrated) => {
+                conn.execute_batch("COMMIT")?;
+                if migrated {
+                    tracing::info!(version, "Database schema migrated");
+                }
+            }
+            Err(e) => {
+                let _ = conn.execute_batch("ROLLBACK");
+                return Err(e.into());
+            }
+        }
     }
     Ok(())
 }

@@ -117,3 +117,19 @@ fn latest_per_instrument() {
     assert_eq!((l[0].instrument.as_str(), l[0].t_ms), ("P1", 3));
     assert_eq!(s.barometer_since("P1", 2).unwrap(), vec![(3, 3.0)]);
 }
+
+#[test]
+fn concurrent_opens_of_a_fresh_database_both_succeed() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("race.sqlite");
+    let handles: Vec<_> = (0..4)
+        .map(|_| {
+            let p = path.clone();
+            std::thread::spawn(move || Store::open(&p).map(|_| ()))
+        })
+        .collect();
+    for h in handles {
+        let r = h.join().unwrap();
+        assert!(r.is_ok(), "{r:?}");
+    }
+}

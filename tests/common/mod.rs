@@ -321,3 +321,180 @@ pub fn count(dir: &Path, table: &str, where_: &str) -> i64 {
 pub fn river_json(t_s: i64, depth_m: f64) -> String {
     format!(r#"{{"time": {t_s}, "channel": "river", "value": {depth_m}}}"#)
 }
+
+/// A VictoriaMetrics server started for one test (it accepts the InfluxDB v2 write API).
+pub struct Victoria {
+    pub port: u16,
+    data: PathBuf,
+    child: Option<Child>,
+}
+
+impl Victoria {
+    /// Start on a free port with its data in `dir/vm`.
+    pub fn start(dir: &Path) -> Victoria {
+        Victoria::start_on(dir, free_port())
+    }
+
+    /// Start on `port` (e.g. one a seepd is already configured for).
+    pub fn start_on(dir: &Path, port: u16) -> Victoria {
+        let mut v = Victoria {
+            port,
+            data: dir.join("vm"),
+            child: None,
+        };
+        v.spawn();
+        v
+    }
+
+    fn spawn(&mut self) {
+        let bin = if Path::new("/usr/bin/victoria-metrics").exists() {
+            "/usr/bin/victoria-metrics"
+        } else {
+            "victoria-metrics"
+        };
+        let child = Command::new(bin)
+            .arg(format!("-httpListenAddr=127.0.0.1:{}", self.port))
+            .arg(format!("-storageDataPath={}", self.data.display()))
+            .arg("-retentionPeriod=100y")
+            .arg("-loggerLevel=ERROR")
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .expect("victoria-metrics must be installed (tests/run.sh installs it)");
+        self.child = Some(child);
+        let port = self.port;
+        wait_for(Duration::from_secs(30), || {
+            let (status, _) = http_get(port, "/health").ok()?;
+            (status == 200).then_some(())
+        })
+        .expect("victoria-metrics did not become healthy");
+    }
+
+    /// Base URL for seepd's `[export] url`.
+    pub fn url(&self) -> String {
+        format!("http://127.0.0.1:{}", self.port)
+    }
+
+    /// Stop it (SIGTERM: it flushes) and wait.
+    pub fn stop(&mut self) {
+        if let Some(mut c) = self.child.take() {
+            let _ = Command::new("kill")
+                .arg("-TERM")
+                .arg(c.id().to_string())
+                .status();
+            let _ = c.wait();
+        }
+    }
+
+    /// Start again on the same port with the same data.
+    pub fn restart(&mut self) {
+        self.stop();
+        self.spawn();
+    }
+
+    /// Every stored series: flush, then read `/api/v1/export` (JSON lines).
+    pub fn series(&self) -> Vec<VmSeries> {
+        let (status, _) = http_get(self.port, "/internal/force_flush").expect("force_flush");
+        assert_eq!(status, 200, "force_flush");
+        let q = "/api/v1/export?match%5B%5D=%7B__name__%3D~%22.%2B%22%7D";
+        let (status, body) = http_get(self.port, q).expect("export");
+        assert_eq!(status, 200, "export: {body}");
+        body.lines()
+            .filter(|l| !l.trim().is_empty())
+            .map(|l| serde_json::from_str(l).expect("export line is JSON"))
+            .collect()
+    }
+
+    /// Number of samples stored across all series.
+    pub fn samples(&self) -> usize {
+        self.series().iter().map(|s| s.timestamps.len()).sum()
+    }
+}
+
+impl Drop for Victoria {
+    fn drop(&mut self) {
+        if let Some(mut c) = self.child.take() {
+            let _ = c.kill();
+            let _ = c.wait();
+        }
+    }
+}
+
+/// One series from VictoriaMetrics' export.
+#[derive(Debug, serde::Deserialize)]
+pub struct VmSeries {
+    pub metric: std::collections::BTreeMap<String, String>,
+    pub values: Vec<f64>,
+    pub timestamps: Vec<i64>,
+}
+
+/// A plain HTTP/1.0 GET to 127.0.0.1:`port` (no client library): (status, body).
+pub fn http_get(port: u16, path: &str) -> std::io::Result<(u16, String)> {
+    use std::io::Read;
+    let mut s = TcpStream::connect(("127.0.0.1", port))?;
+    s.set_read_timeout(Some(Duration::from_secs(30)))?;
+    write!(s, "GET {path} HTTP/1.0\r\nHost: 127.0.0.1\r\n\r\n")?;
+    let mut raw = Vec::new();
+    s.read_to_end(&mut raw)?;
+    let text = String::from_utf8_lossy(&raw).into_owned();
+    let (head, body) = text.split_once("\r\n\r\n").unwrap_or((&text, ""));
+    let status = head
+        .split_whitespace()
+        .nth(1)
+        .and_then(|c| c.parse().ok())
+        .unwrap_or(0);
+    Ok((status, body.to_string()))
+}
+
+/// `example_config` plus an `[export]` section to `url` (token from a file) and `extra` keys.
+pub fn export_config(dir: &Path, mqtt_port: u16, url: &str, extra: &str) -> PathBuf {
+    let cfg = example_config(dir, mqtt_port);
+    std::fs::write(cfg.join("influx-token"), "test-token\n").unwrap();
+    let mut text = std::fs::read_to_string(cfg.join("seepd.toml")).unwrap();
+    text.push_str(&format!(
+        "\n[export]\nurl = \"{url}\"\norg = \"seepd-test\"\nbucket = \"seepd\"\n\
+         token_file = \"influx-token\"\nflush_interval_ms = 100\nretry_min_ms = 50\n\
+         retry_max_ms = 400\ntimeout_ms = 5000\n{extra}\n"
+    ));
+    std::fs::write(cfg.join("seepd.toml"), text).unwrap();
+    cfg
+}
+
+/// Store `n` readings of the river gauge (one every `step_ms` from `t0_ms`, distinct values)
+/// straight into the database of `cfg`, queued for export when `queue` is set. Returns the
+/// reading times.
+pub fn prefill(cfg: &Path, n: usize, t0_ms: i64, step_ms: i64, queue: bool) -> Vec<i64> {
+    use seepd::store::{export::QueueMode, ReadingRow, Store};
+    let config = seepd::config::load_dir(cfg).unwrap_or_else(|p| panic!("{p}"));
+    let mut store = Store::open(&config.service.database).unwrap();
+    store.sync_instruments(&config, chrono::Utc::now()).unwrap();
+    store.set_export_queue(QueueMode {
+        readings: queue,
+        derived: queue,
+    });
+    let times: Vec<i64> = (0..n as i64).map(|i| t0_ms + i * step_ms).collect();
+    for chunk in times.chunks(5000) {
+        let rows: Vec<ReadingRow> = chunk
+            .iter()
+            .map(|&t| {
+                let depth = (2000 + (t - t0_ms) / step_ms % 1000) as f64 / 1000.0;
+                ReadingRow {
+                    instrument: "AB-RIVER".into(),
+                    t_ms: t,
+                    arrival_ms: t,
+                    raw: depth,
+                    temperature_c: None,
+                    baro_kpa: None,
+                    eng_value: 90.0 + depth,
+                    eng_unit: "m",
+                    pressure_kpa: None,
+                    pressure_head_m: None,
+                    total_head_m: Some(90.0 + depth),
+                    flags: Default::default(),
+                }
+            })
+            .collect();
+        store.write_batch(&rows, &[], &[]).unwrap();
+    }
+    times
+}

@@ -7,19 +7,20 @@ use super::*;
 use crate::config::model::{BaroCorrection, Kind, StageMode, VwCalibration, VwSign};
 
 /// Write `text` to `dir/name`.
-fn write(dir: &Path, name: &str, text: &str) {
+pub(super) fn write(dir: &Path, name: &str, text: &str) {
     std::fs::write(dir.join(name), text).expect("write test file");
 }
 
 /// A minimal valid service file.
-const SERVICE: &str = "[[subscription]]\npattern = \"t/{logger}/json\"\nformat = \"json\"\n";
+pub(super) const SERVICE: &str =
+    "[[subscription]]\npattern = \"t/{logger}/json\"\nformat = \"json\"\n";
 
-fn no_env(_: &str) -> Option<String> {
+pub(super) fn no_env(_: &str) -> Option<String> {
     None
 }
 
 /// Load and expect failure; (file name, line, column, message) of each problem.
-fn problems_of(dir: &Path) -> Vec<(String, usize, usize, String)> {
+pub(super) fn problems_of(dir: &Path) -> Vec<(String, usize, usize, String)> {
     match load_dir_with(dir, &no_env) {
         Ok(_) => panic!("expected problems in {}", dir.display()),
         Err(Problems(ps)) => ps

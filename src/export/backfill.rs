@@ -1,0 +1,174 @@
+//! `seepd export --from --to`: send the stored rows of a time range straight to the server,
+//! without the queue or its cursor (history from before export was configured, replays, or a
+//! second server).
+//!
+//! Owns the range walk: per instrument (and per derived object and quantity) in time order, in
+//! pages of `batch_size` rows, through the same delivery (bisect on refusal, refused points
+//! recorded in `export_rejects`) as the live worker. Failures are retried with backoff a few
+//! times, then it gives up and says how far it got; running it again is harmless.
+
+use anyhow::bail;
+use tokio::sync::watch;
+
+use super::line::{self, ObjectTags};
+use super::{deliver, reject_row, Backoff, Encoded, Sink};
+use crate::config::{Config, Export};
+use crate::store::export::{ExportQueue, ExportRow, Queued, Series};
+
+/// Consecutive failed attempts after which the backfill gives up.
+const MAX_ATTEMPTS: u32 = 8;
+
+/// What a backfill sent.
+#[derive(Debug, Default, Clone, Copy, PartialEq, Eq)]
+pub struct Totals {
+    pub readings: usize,
+    pub derived: usize,
+    /// Points the server accepted.
+    pub points: usize,
+    /// Entries the server refused (recorded in `export_rejects`).
+    pub rejected: usize,
+}
+
+/// Send every selected row with `from_ms <= t_ms < to_ms`.
+///
+/// # Errors
+/// Database errors, or the server failing `MAX_ATTEMPTS` times in a row.
+pub async fn run<S: Sink>(
+    cfg: &Config,
+    e: &Export,
+    sink: &S,
+    from_ms: i64,
+    to_ms: i64,
+) -> anyhow::Result<Totals> {
+    let mut q = ExportQueue::open(&cfg.service.database)?;
+    let objects = ObjectTags::from_config(cfg);
+    let mut totals = Totals::default();
+    let (_keep, mut stop) = watch::channel(false);
+    let mut w = Walk {
+        sink,
+        e,
+        objects: &objects,
+        stop: &mut stop,
+        totals: &mut totals,
+    };
+    if e.readings {
+        for instrument in q.reading_instruments()? {
+            let mut after = from_ms.saturating_sub(1);
+            loop {
+                let rows = q.readings_between(&instrument, after, to_ms, e.batch_size)?;
+                let Some(last) = rows.last().map(t_of) else {
+                    break;
+                };
+                w.totals.readings += rows.len();
+                w.send(&mut q, rows).await?;
+                after = last;
+            }
+        }
+    }
+    if e.derived {
+        for (object, quantity) in q.derived_series()? {
+            let mut after = from_ms.saturating_sub(1);
+            loop {
+                let rows = q.derived_between(&object, &quantity, after, to_ms, e.batch_size)?;
+                let Some(last) = rows.last().map(t_of) else {
+                    break;
+                };
+                w.totals.derived += rows.len();
+                w.send(&mut q, rows).await?;
+                after = last;
+            }
+        }
+    }
+    Ok(totals)
+}
+
+fn t_of(r: &ExportRow) -> i64 {
+    match r {
+        ExportRow::Reading(p) => p.t_ms,
+        ExportRow::Derived(d) => d.t_ms,
+    }
+}
+
+/// State of one backfill run.
+struct Walk<'a, S> {
+    sink: &'a S,
+    e: &'a Export,
+    objects: &'a ObjectTags,
+    stop: &'a mut watch::Receiver<bool>,
+    totals: &'a mut Totals,
+}
+
+impl<S: Sink> Walk<'_, S> {
+    /// Deliver one page, retrying failures with backoff.
+    async fn send(&mut self, q: &mut ExportQueue, rows: Vec<ExportRow>) -> anyhow::Result<()> {
+        let entries: Vec<Queued> = rows.into_iter().map(as_entry).collect();
+        let encoded: Vec<Encoded> = entries
+            .iter()
+            .map(|en| {
+                let mut e = Encoded::default();
+                if let Some(row) = &en.row {
+                    e.points = line::encode(row, self.objects, &mut e.lines);
+                }
+                e
+            })
+            .collect();
+        let mut backoff = Backoff::new(self.e);
+        let mut start = 0;
+        while start < encoded.len() {
+            let out = deliver(
+                self.sink,
+                &encoded[start..],
+                self.e.batch_size,
+                &mut *self.stop,
+            )
+            .await;
+            let rejects: Vec<_> = out
+                .rejected
+                .iter()
+                .map(|(i, status, reply)| {
+                    reject_row(&entries[start + i], &encoded[start + i], *status, reply)
+                })
+                .collect();
+            if !rejects.is_empty() {
+                q.record_rejects(&rejects, chrono::Utc::now().timestamp_millis())?;
+            }
+            self.totals.points += out.points;
+            self.totals.rejected += rejects.len();
+            start += out.done;
+            if let Some(err) = out.error {
+                if backoff.failures + 1 >= MAX_ATTEMPTS {
+                    bail!(
+                        "export server failing ({err}); gave up after {MAX_ATTEMPTS} attempts \
+                         with {} points sent — run the same command again to resume",
+                        self.totals.points
+                    );
+                }
+                let wait = backoff.fail();
+                tracing::warn!(error = %err, attempt = backoff.failures, "Export write failed; retrying");
+                tokio::time::sleep(wait).await;
+            }
+        }
+        Ok(())
+    }
+}
+
+/// A row as a (sequence-less) queue entry, for delivery and reject records.
+fn as_entry(row: ExportRow) -> Queued {
+    let (series, key, quantity, t_ms) = match &row {
+        ExportRow::Reading(p) => (Series::Reading, p.instrument.clone(), String::new(), p.t_ms),
+        ExportRow::Derived(d) => (
+            Series::Derived,
+            d.object.clone(),
+            d.quantity.clone(),
+            d.t_ms,
+        ),
+    };
+    Queued {
+        seq: 0,
+        series,
+        key,
+        quantity,
+        t_ms,
+        row: Some(row),
+    }
+}

@@ -1,0 +1,84 @@
+//! `seepd status`: what the database says — readings stored and the latest reading time,
+//! quarantine counts by reason, and the export backlog, lag and refused points.
+//!
+//! Owns the report's wording. Reads the database only (through the store); safe to run beside
+//! a running service (WAL).
+
+use std::fmt::Write as _;
+
+use chrono::{DateTime, Utc};
+use rusqlite::OptionalExtension;
+
+use crate::config::Config;
+use crate::store::{export, Store, StoreError};
+
+fn time(ms: i64) -> String {
+    DateTime::<Utc>::from_timestamp_millis(ms).map_or_else(
+        || ms.to_string(),
+        |t| t.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string(),
+    )
+}
+
+/// The status report of the database `cfg` names, as of `now`.
+///
+/// # Errors
+/// SQLite errors (including a database from a newer seepd).
+pub fn report(cfg: &Config, now: DateTime<Utc>) -> Result<String, StoreError> {
+    let store = Store::open(&cfg.service.database)?;
+    let conn = store.conn();
+    let mut s = String::new();
+    let _ = writeln!(s, "Database: {}", cfg.service.database.display());
+    let readings = store.count_readings()?;
+    // The latest time per instrument uses the primary key; the overall latest is their max.
+    let latest: Option<(String, i64)> = conn
+        .query_row(
+            "SELECT instrument, t FROM
+                (SELECT instrument, max(t_ms) AS t FROM readings GROUP BY instrument)
+             ORDER BY t DESC LIMIT 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .optional()?;
+    match latest {
+        Some((instrument, t)) => {
+            let _ = writeln!(
+                s,
+                "Readings: {readings} (latest {} from {instrument})",
+                time(t)
+            );
+        }
+        None => {
+            let _ = writeln!(s, "Readings: 0");
+        }
+    }
+    let quarantine = store.quarantine_counts()?;
+    let total: i64 = quarantine.iter().map(|(_, n)| n).sum();
+    let _ = writeln!(s, "Quarantined: {total}");
+    for (reason, n) in quarantine {
+        let _ = writeln!(s, "  {reason}: {n}");
+    }
+    let b = export::backlog(conn)?;
+    let state = match &cfg.export {
+        None => "not configured".to_string(),
+        Some(e) if !e.enabled => format!("disabled ({})", e.url),
+        Some(e) => format!("to {} bucket {:?}", e.url, e.bucket),
+    };
+    let _ = writeln!(s, "Export: {state}");
+    let lag_s = b
+        .oldest_queued_ms
+        .map_or(0, |t| (now.timestamp_millis() - t).max(0) / 1000);
+    let _ = writeln!(s, "  backlog: {} entries, lag {lag_s} s", b.entries);
+    let _ = writeln!(
+        s,
+        "  exported: {} points{}",
+        b.points,
+        b.last_ok_ms
+            .map_or_else(String::new, |t| format!(", last at {}", time(t)))
+    );
+    let _ = writeln!(
+        s,
+        "  refused by the server: {} (table export_rejects)",
+        b.rejected
+    );
+    Ok(s)
+}
