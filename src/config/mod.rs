@@ -1,5 +1,6 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
-//! (`load`, with `service`, `site`, `kinds` and `objects` reading the tables through `reader`).
+//! (`load`, with `service`, `site`, `kinds`, `objects` and `trends` reading the tables through
+//! `reader`).
 
 mod kinds;
 pub mod load;
@@ -9,6 +10,7 @@ mod problem;
 mod reader;
 mod service;
 mod site;
+mod trends;
 
 pub use load::{load_dir, summary, Problem, Problems};
 pub use model::*;

@@ -34,6 +34,8 @@ pub struct Config {
     pub instruments: BTreeMap<String, Instrument>,
     /// Derived-quantity objects (clusters, toe checks, blanket reaches, sections) of all sites.
     pub objects: Objects,
+    /// Rate windows, sensor health and stage-response/HST models.
+    pub trends: Trends,
 }
 
 impl Config {
@@ -365,6 +367,10 @@ pub struct Instrument {
     pub logger: Option<String>,
     pub channel: Option<String>,
 }
+
+// Trends, stage-response and HST models, sensor health (per-site settings and model tables).
+mod trends;
+pub use trends::*;
 
 /// Nested piezometers at one location: vertical gradients between adjacent tips and overall.
 #[derive(Debug, Clone, PartialEq)]

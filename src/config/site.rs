@@ -16,6 +16,7 @@ use super::model::{DisplayUnits, Instrument, LengthUnit, Location, Site};
 use super::objects::{self, ObjEntry};
 use super::problem::Cx;
 use super::reader::Tbl;
+use super::trends::{self, SiteTrendsEntry};
 
 /// A 1-based (line, column) position in a file.
 pub(crate) type Pos = (usize, usize);
@@ -61,12 +62,15 @@ pub(crate) struct SiteFile {
     pub entries: Vec<Entry>,
     /// The `[[cluster]]`, `[[toe]]`, `[[blanket]]` and `[[section]]` tables, in that order.
     pub objects: Vec<ObjEntry>,
+    /// `[trends]`, `[health]`, `[[response]]` and `[[hst]]`.
+    pub trends: SiteTrendsEntry,
 }
 
 /// Read a site file's root table.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     let mut keys = vec!["site", "instrument"];
     keys.extend(objects::TABLES);
+    keys.extend(trends::TABLES);
     root.check_keys(cx, &keys);
     let mut m_per_unit = 1.0;
     let mut gamma_w = 9.81;
@@ -143,11 +147,13 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         .map(|mut t| instrument(cx, &mut t, &site_id, m_per_unit))
         .collect();
     let objects = objects::read(cx, root, &site_id, m_per_unit, gamma_w);
+    let trends = trends::read(cx, root, &site_id, m_per_unit);
     SiteFile {
         id,
         site,
         entries,
         objects,
+        trends,
     }
 }
 

@@ -4,6 +4,7 @@
 //! committed batch survives a process crash and, on storage that honours fsync, a power loss.
 //! Reading inserts are idempotent on (instrument, time) because QoS 1 redelivers.
 
+mod models;
 mod schema;
 
 use std::path::Path;
@@ -14,6 +15,7 @@ use rusqlite::{params, Connection, OptionalExtension};
 use crate::config::Config;
 use crate::quality::{Flags, Reason};
 
+pub use models::{InstrumentSpan, ModelRow, SeedReading};
 pub use schema::SCHEMA_VERSION;
 
 /// Errors from the store.

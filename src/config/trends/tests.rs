@@ -1,0 +1,1 @@
+//! Tests of the trend, health and model tables.
