@@ -123,7 +123,15 @@ pub fn run(
     out: &mut impl Write,
     now: DateTime<Utc>,
 ) -> anyhow::Result<Totals> {
-    let mut engine = Engine::new(Arc::new(replay_config(cfg, format)));
+    let replay_cfg = Arc::new(replay_config(cfg, format));
+    let mut engine = Engine::new(Arc::clone(&replay_cfg));
+    // Continue the trends, health state and models already in the database (if any).
+    crate::watch::seed::from_store(
+        engine.watch_mut(),
+        &replay_cfg,
+        store,
+        now.timestamp_millis(),
+    )?;
     let mut totals = Totals::default();
     let mut readings: Vec<ReadingRow> = Vec::with_capacity(BATCH);
     let mut derived: Vec<DerivedRow> = Vec::new();

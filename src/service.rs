@@ -40,6 +40,7 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
             engine.seed_head(&l.instrument, head);
         }
     }
+    crate::watch::seed::from_store(engine.watch_mut(), cfg, &store, now.timestamp_millis())?;
     Ok((store, engine))
 }
 
@@ -52,14 +53,19 @@ pub async fn run(
     counters: Arc<Counters>,
     shutdown: impl Future<Output = ()>,
 ) -> anyhow::Result<()> {
-    let (store, engine) = open(&cfg)?;
+    let (store, mut engine) = open(&cfg)?;
+    let (fits_tx, fits_rx) = std::sync::mpsc::channel();
+    engine.watch_mut().receive_fits(fits_rx);
+    let refits = tokio::spawn(crate::watch::schedule::run(Arc::clone(&cfg), fits_tx));
     tracing::info!(
         database = %cfg.service.database.display(),
         instruments = cfg.instruments.len(),
         subscriptions = cfg.subscriptions.len(),
         "seepd starting"
     );
-    crate::ingest::mqtt::run(cfg, store, engine, counters, shutdown).await
+    let result = crate::ingest::mqtt::run(cfg, store, engine, counters, shutdown).await;
+    refits.abort();
+    result
 }
 
 /// Resolves on SIGINT or SIGTERM.
