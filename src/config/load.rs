@@ -416,6 +416,28 @@ pub fn summary(cfg: &Config) -> String {
         for (table, ids) in objects.iter().filter(|(_, ids)| !ids.is_empty()) {
             let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
         }
+        let t = &cfg.trends;
+        let models = [
+            (
+                "response",
+                t.responses
+                    .iter()
+                    .filter(|r| r.site == site.id)
+                    .map(|r| r.id.as_str())
+                    .collect::<Vec<_>>(),
+            ),
+            (
+                "hst",
+                t.hst
+                    .iter()
+                    .filter(|h| h.site == site.id)
+                    .map(|h| h.id.as_str())
+                    .collect(),
+            ),
+        ];
+        for (table, ids) in models.iter().filter(|(_, ids)| !ids.is_empty()) {
+            let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
+        }
     }
     s
 }
