@@ -80,6 +80,11 @@ impl StageMemory {
 pub struct ModelSlots {
     responses: Vec<(ResponseSpec, Result<StageResponse, String>)>,
     hst: Vec<(HstSpec, Result<HstModel, String>)>,
+    /// Modelled instrument → indices into `responses` and `hst` (so a reading costs a lookup,
+    /// not a scan of every model).
+    by_instrument: HashMap<String, (Vec<usize>, Vec<usize>)>,
+    /// Model id → (is HST, index).
+    by_id: HashMap<String, (bool, usize)>,
 }
 
 fn not_fitted(id: &str) -> String {
@@ -90,7 +95,28 @@ fn not_fitted(id: &str) -> String {
 
 impl ModelSlots {
     pub fn new(cfg: &Arc<Config>) -> ModelSlots {
+        let t = &cfg.trends;
+        let mut by_instrument: HashMap<String, (Vec<usize>, Vec<usize>)> = HashMap::new();
+        let mut by_id = HashMap::new();
+        for (k, r) in t.responses.iter().enumerate() {
+            by_instrument
+                .entry(r.piezometer.clone())
+                .or_default()
+                .0
+                .push(k);
+            by_id.insert(r.id.clone(), (false, k));
+        }
+        for (k, h) in t.hst.iter().enumerate() {
+            by_instrument
+                .entry(h.instrument.clone())
+                .or_default()
+                .1
+                .push(k);
+            by_id.insert(h.id.clone(), (true, k));
+        }
         ModelSlots {
+            by_instrument,
+            by_id,
             responses: cfg
                 .trends
                 .responses
@@ -129,23 +155,24 @@ impl ModelSlots {
     }
 
     pub fn install(&mut self, f: Fitted) {
-        for (spec, slot) in &mut self.responses {
-            if spec.id == f.id {
-                *slot = match &f.model {
+        let wrong = |kind: &str| format!("model {} is not {kind} model", f.id);
+        let failed = |e: &String| format!("model {} not fitted: {e}", f.id);
+        match self.by_id.get(&f.id) {
+            Some(&(false, k)) => {
+                self.responses[k].1 = match &f.model {
                     Ok(LiveModel::Response(m)) => Ok(m.clone()),
-                    Ok(_) => Err(format!("model {} is not a stage-response model", f.id)),
-                    Err(e) => Err(format!("model {} not fitted: {e}", f.id)),
-                };
+                    Ok(_) => Err(wrong("a stage-response")),
+                    Err(e) => Err(failed(e)),
+                }
             }
-        }
-        for (spec, slot) in &mut self.hst {
-            if spec.id == f.id {
-                *slot = match &f.model {
+            Some(&(true, k)) => {
+                self.hst[k].1 = match &f.model {
                     Ok(LiveModel::Hst(m)) => Ok(m.clone()),
-                    Ok(_) => Err(format!("model {} is not an HST model", f.id)),
-                    Err(e) => Err(format!("model {} not fitted: {e}", f.id)),
-                };
+                    Ok(_) => Err(wrong("an HST")),
+                    Err(e) => Err(failed(e)),
+                }
             }
+            None => {}
         }
     }
 
@@ -165,11 +192,10 @@ impl ModelSlots {
         let t = row.t_ms;
         let flagged = (!excluded.is_empty())
             .then(|| format!("reading flagged {}: left out", excluded.names().join(",")));
-        for (spec, slot) in self
-            .responses
-            .iter()
-            .filter(|(s, _)| s.piezometer == row.instrument)
-        {
+        let Some((resp, hst)) = self.by_instrument.get(&row.instrument) else {
+            return out;
+        };
+        for (spec, slot) in resp.iter().map(|&k| &self.responses[k]) {
             let residual = flagged.clone().map_or(Ok(()), Err).and_then(|()| {
                 let m = slot.as_ref().map_err(Clone::clone)?;
                 let at = t - m.lag_ms;
@@ -195,11 +221,7 @@ impl ModelSlots {
                 &inputs,
             );
         }
-        for (spec, slot) in self
-            .hst
-            .iter()
-            .filter(|(s, _)| s.instrument == row.instrument)
-        {
+        for (spec, slot) in hst.iter().map(|&k| &self.hst[k]) {
             let residual = flagged.clone().map_or(Ok(()), Err).and_then(|()| {
                 let m = slot.as_ref().map_err(|e| {
                     let days = first_ms.map_or(0.0, |f| (t - f) as f64 / DAY_MS);
