@@ -225,7 +225,7 @@ impl ModelSlots {
             let residual = flagged.clone().map_or(Ok(()), Err).and_then(|()| {
                 let m = slot.as_ref().map_err(|e| {
                     let days = first_ms.map_or(0.0, |f| (t - f) as f64 / DAY_MS);
-                    if days < MIN_RECORD_DAYS {
+                    if days < MIN_RECORD_DAYS && !e.contains("needs a year of data") {
                         format!("needs a year of data ({days:.1} days of record so far); {e}")
                     } else {
                         e.clone()
