@@ -55,6 +55,9 @@ struct InstrumentState {
     /// First and newest reading time seen (including the store, at start).
     first_ms: Option<i64>,
     last_ms: Option<i64>,
+    /// Reading time the rates were last computed at: readings closer together than the
+    /// interval update the windows, but the rates are recomputed at most once per interval.
+    last_rate_ms: Option<i64>,
 }
 
 /// The watch state of the whole configuration.
@@ -167,6 +170,7 @@ impl Watcher {
                     no_data_factor: st.health.no_data_factor,
                     first_ms: None,
                     last_ms: None,
+                    last_rate_ms: None,
                 },
             );
         }
@@ -293,8 +297,14 @@ impl Watcher {
             row.flags,
         );
         let mut out = Vec::new();
-        if row.total_head_m.is_some() {
+        let due = st
+            .last_rate_ms
+            .is_none_or(|l| row.t_ms - l >= st.interval_ms || row.t_ms < l);
+        if row.total_head_m.is_some() && due {
             let flagged = Flags(row.flags.0 & st.exclude.0);
+            if flagged.is_empty() && !late && pushed.is_none() {
+                st.last_rate_ms = Some(row.t_ms);
+            }
             for (name, w) in &st.windows {
                 let v = if !flagged.is_empty() {
                     Err(format!(
@@ -314,10 +324,7 @@ impl Watcher {
                 out.push(row_of(id, name.clone(), row.t_ms, v, "m/day"));
             }
         }
-        let start = (row.t_ms - COMPLETENESS_MS + 1).max(st.installed_ms);
-        let times: Vec<i64> = st.recent_times.iter().copied().collect();
-        let pct = health::completeness_pct(&times, start, row.t_ms + 1, st.interval_ms)
-            .ok_or_else(|| "less than one reading interval since installation".to_string());
+        let pct = completeness(st, row.t_ms);
         out.push(row_of(id, "completeness_24h".into(), row.t_ms, pct, "%"));
         let first_ms = st.first_ms;
         let excluded = Flags(row.flags.0 & st.exclude.0);
@@ -353,6 +360,21 @@ fn row_of(
     unit: &'static str,
 ) -> DerivedRow {
     row(id, quantity, t_ms, v, unit, &[id])
+}
+
+/// `completeness_24h` at `t_ms`: distinct readings in (t − 24 h, t] (from the install date at
+/// the earliest) over those expected at one per interval, capped at 100 % — as
+/// `health::completeness_pct`, counted by binary search in the sorted times (O(log n) a reading,
+/// however dense the data).
+fn completeness(st: &InstrumentState, t_ms: i64) -> Result<f64, String> {
+    let (start, end) = ((t_ms - COMPLETENESS_MS + 1).max(st.installed_ms), t_ms + 1);
+    let expected = (end - start) / st.interval_ms;
+    if expected <= 0 {
+        return Err("less than one reading interval since installation".into());
+    }
+    let t = &st.recent_times;
+    let count = t.partition_point(|&x| x < end) - t.partition_point(|&x| x < start);
+    Ok((100.0 * count as f64 / expected as f64).min(100.0))
 }
 
 /// The Theil–Sen rate of a window in m/day, once its readings span a quarter of it.
