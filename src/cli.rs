@@ -149,6 +149,17 @@ pub enum Command {
         #[arg(long, value_name = "TIME", value_parser = rfc3339)]
         to: chrono::DateTime<chrono::Utc>,
     },
+    /// Refit the stage-response and HST models now and keep them in the model history.
+    Fit {
+        #[arg(long, value_name = "DIR")]
+        config: PathBuf,
+        /// Database (default: the configured one); a replay database works too.
+        #[arg(long, value_name = "FILE")]
+        db: Option<PathBuf>,
+        /// Fit only this model (default: every configured model).
+        #[arg(long, value_name = "MODEL")]
+        id: Option<String>,
+    },
     /// Run a self-contained demo: embedded broker, the service and simulated loggers.
     Demo {
         /// Seconds of wall time per simulated day.
@@ -402,6 +413,17 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
                 )?
             );
             Ok(0)
+        }
+        Command::Fit { config, db, id } => {
+            let cfg = match load(&config) {
+                Ok(c) => c,
+                Err(code) => return Ok(code),
+            };
+            let store = crate::store::Store::open(db.as_ref().unwrap_or(&cfg.service.database))?;
+            let mut out = String::new();
+            let code = crate::fit_cmd::run(&cfg, &store, id.as_deref(), &mut out)?;
+            print!("{out}");
+            Ok(code)
         }
         Command::Demo {
             seconds_per_day,

@@ -17,6 +17,7 @@ use crate::ingest::decode::{decode, Decoded};
 use crate::ingest::topic::{match_topic, TopicFields};
 use crate::quality::{Flags, Reason, Reject};
 use crate::store::{DerivedRow, QuarantineRow, ReadingRow};
+use crate::watch::Watcher;
 
 /// Quarantined payloads are stored up to this many bytes.
 const QUARANTINE_PAYLOAD_MAX: usize = 4096;
@@ -50,6 +51,8 @@ pub struct Engine {
     baro: HashMap<String, BTreeMap<i64, f64>>,
     /// Derived quantities recomputed as readings arrive.
     deriver: Deriver,
+    /// Sensor health, rates, model residuals and completeness per reading.
+    watch: Watcher,
 }
 
 impl Engine {
@@ -63,11 +66,13 @@ impl Engine {
             })
             .collect();
         let deriver = Deriver::new(Arc::clone(&cfg));
+        let watch = Watcher::new(&cfg);
         Engine {
             cfg,
             channels,
             baro: HashMap::new(),
             deriver,
+            watch,
         }
     }
 
@@ -85,6 +90,16 @@ impl Engine {
     /// The derived-quantity state (latest heads), e.g. to draw a section.
     pub fn deriver(&self) -> &Deriver {
         &self.deriver
+    }
+
+    /// The trend and health state (e.g. `silent_instruments` for the no-data check).
+    pub fn watch(&self) -> &Watcher {
+        &self.watch
+    }
+
+    /// The trend and health state, to seed it or install models.
+    pub fn watch_mut(&mut self) -> &mut Watcher {
+        &mut self.watch
     }
 
     /// Barometer ids that some instrument's reduction needs.
@@ -173,8 +188,10 @@ impl Engine {
         accepted.sort_by_key(|(i, ..)| i.kind.barometer().is_some());
         for (instrument, d, t_ms, flags) in accepted {
             match self.reduce_one(&cfg, instrument, &d, t_ms, flags, msg.arrival) {
-                Ok(row) => {
+                Ok(mut row) => {
+                    self.watch.check(&mut row);
                     out.derived.extend(self.deriver.on_reading(&row));
+                    out.derived.extend(self.watch.derive(&row));
                     out.readings.push(row);
                 }
                 Err(reject) => quarantine(&mut out, reject),

@@ -13,6 +13,7 @@ pub mod derive;
 pub mod domain;
 pub mod engine;
 pub mod export;
+pub mod fit_cmd;
 pub mod ingest;
 pub mod notify;
 pub mod quality;
@@ -29,3 +30,4 @@ pub const CAUTION: &str =
 follow the emergency action plan, local regulations and the direction of the engineer of record. \
 A quiet report is not evidence of a safe structure.";
 pub mod report;
+pub mod watch;

@@ -103,12 +103,21 @@ impl Flags {
     pub const BARO_MISSING: Flags = Flags(1 << 1);
     /// A thermal correction was configured but the reading had no temperature; uncorrected.
     pub const TEMP_MISSING: Flags = Flags(1 << 2);
+    /// Sensor health: the head is far from the trailing median (Hampel identifier).
+    pub const SPIKE: Flags = Flags(1 << 3);
+    /// Sensor health: the last `flatline_count` heads are identical within the tolerance.
+    pub const FLATLINE: Flags = Flags(1 << 4);
+    /// Sensor health: thermistor temperature implausible or jumped since the last reading.
+    pub const THERMISTOR: Flags = Flags(1 << 5);
 
     /// Names of the flags, for output and docs.
-    pub const NAMES: [(Flags, &'static str); 3] = [
+    pub const NAMES: [(Flags, &'static str); 6] = [
         (Flags::TIME_FROM_ARRIVAL, "time_from_arrival"),
         (Flags::BARO_MISSING, "baro_missing"),
         (Flags::TEMP_MISSING, "temp_missing"),
+        (Flags::SPIKE, "spike"),
+        (Flags::FLATLINE, "flatline"),
+        (Flags::THERMISTOR, "thermistor"),
     ];
 
     pub fn empty() -> Self {

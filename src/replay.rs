@@ -163,7 +163,15 @@ pub fn run_with(
         (None, true) => anyhow::bail!("--send-email needs [smtp] in seepd.toml"),
         (s, _) => s.clone(),
     };
-    let mut engine = Engine::new(Arc::new(replay_config(cfg, format)));
+    let replay_cfg = Arc::new(replay_config(cfg, format));
+    let mut engine = Engine::new(Arc::clone(&replay_cfg));
+    // Continue the trends, health state and models already in the database (if any).
+    crate::watch::seed::from_store(
+        engine.watch_mut(),
+        &replay_cfg,
+        store,
+        now.timestamp_millis(),
+    )?;
     let mut alerts = Alerts {
         evaluator: if send_email {
             Evaluator::load(Arc::new(cfg.clone()), store)?

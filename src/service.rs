@@ -54,6 +54,7 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
             engine.seed_head(&l.instrument, head);
         }
     }
+    crate::watch::seed::from_store(engine.watch_mut(), cfg, &store, now.timestamp_millis())?;
     Ok((store, engine))
 }
 
@@ -66,7 +67,10 @@ pub async fn run(
     counters: Arc<Counters>,
     shutdown: impl Future<Output = ()>,
 ) -> anyhow::Result<()> {
-    let (store, engine) = open(&cfg)?;
+    let (store, mut engine) = open(&cfg)?;
+    let (fits_tx, fits_rx) = std::sync::mpsc::channel();
+    engine.watch_mut().receive_fits(fits_rx);
+    let refits = tokio::spawn(crate::watch::schedule::run(Arc::clone(&cfg), fits_tx));
     tracing::info!(
         database = %cfg.service.database.display(),
         instruments = cfg.instruments.len(),
@@ -97,6 +101,7 @@ pub async fn run(
         crate::ingest::mqtt::run(Arc::clone(&cfg), store, engine, live, counters, forward).await;
     let _ = stop_sent.set(tokio::time::Instant::now());
     let _ = stop_tx.send(true);
+    refits.abort();
     if let Some(w) = worker {
         w.stop(Duration::from_secs(cfg.service.shutdown_deadline_s.min(5)));
     }

@@ -14,13 +14,14 @@ use std::path::{Path, PathBuf};
 use toml_edit::ImDocument;
 
 use super::alerting::Alerting;
-use super::model::{Config, Objects, PayloadFormat};
+use super::model::{Config, Objects, PayloadFormat, Trends};
 use super::objects::{self, Known, Object};
 use super::problem::{whole_file, Cx};
 use super::reader::Tbl;
 use super::rules;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
+use super::trends::{self, Model};
 
 pub use super::problem::{Problem, Problems};
 
@@ -91,7 +92,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             Some((p.clone(), sf))
         })
         .collect();
-    let objects = cross_checks(&sites, &mut problems);
+    let (objects, trends) = cross_checks(&sites, &mut problems);
     {
         let instruments: BTreeSet<String> = sites
             .iter()
@@ -109,6 +110,8 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             .chain(objects.toes.iter().map(|o| o.id.clone()))
             .chain(objects.blankets.iter().map(|o| o.id.clone()))
             .chain(objects.sections.iter().map(|o| o.id.clone()))
+            .chain(trends.responses.iter().map(|m| m.id.clone()))
+            .chain(trends.hst.iter().map(|m| m.id.clone()))
             .collect();
         rules::cross_check(&files, &instruments, &object_ids, &mut problems);
     }
@@ -146,6 +149,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             ..Alerting::default()
         },
         export,
+        trends,
     };
     let mut alerting = Vec::new();
     for (_, sf) in sites {
@@ -230,7 +234,7 @@ fn problem(file: &Path, pos: Pos, message: String) -> Problem {
 /// Checks across all site files: unique site ids, unique instrument and object ids, barometer
 /// references to barometers, unique (logger, channel) pairs, object references. Returns the
 /// objects that passed (all of them when there are no problems at all).
-fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> Objects {
+fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> (Objects, Trends) {
     let mut site_ids: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
     for (file, sf) in sites {
         let Some((id, pos)) = &sf.id else { continue };
@@ -304,8 +308,9 @@ fn site_of(sf: &SiteFile) -> &str {
     sf.id.as_ref().map_or("", |(s, _)| s.as_str())
 }
 
-/// Object ids unique among all instruments and objects; object references settled.
-fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> Objects {
+/// Object and model ids unique among all instruments, objects and models; object and model
+/// references settled.
+fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> (Objects, Trends) {
     let mut known: BTreeMap<&str, Known<'_>> = BTreeMap::new();
     for (file, sf) in sites {
         for e in &sf.entries {
@@ -322,8 +327,9 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
         }
     }
     for (file, sf) in sites {
-        for o in &sf.objects {
-            let Some((id, pos)) = &o.id else { continue };
+        let models = sf.trends.models.iter().map(|m| (m.table, &m.id));
+        for (table, id) in sf.objects.iter().map(|o| (o.table, &o.id)).chain(models) {
+            let Some((id, pos)) = id else { continue };
             if let Some(k) = known.get(id.as_str()) {
                 let by = if k.object {
                     format!("a [[{}]]", k.kind.unwrap_or_default())
@@ -333,7 +339,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
                 let msg = format!(
                     "{} id {id:?} is already used by {by} at {}; expected ids unique across all \
                      instruments and objects of all sites",
-                    o.table, k.at
+                    table, k.at
                 );
                 problems.push(problem(file, *pos, msg));
                 continue;
@@ -343,7 +349,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
                 Known {
                     at: at(file, *pos),
                     site: site_of(sf),
-                    kind: Some(o.table),
+                    kind: Some(table),
                     object: true,
                     has_tip: false,
                     has_station: false,
@@ -366,7 +372,20 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
             }
         }
     }
-    out
+    let mut trends = Trends::default();
+    for (file, sf) in sites {
+        trends.sites.extend(sf.trends.settings.clone());
+        for m in &sf.trends.models {
+            let (found, model) = trends::resolve(m, site_of(sf), &known);
+            problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
+            match model {
+                Some(Model::Response(r)) => trends.responses.push(r),
+                Some(Model::Hst(h)) => trends.hst.push(h),
+                None => {}
+            }
+        }
+    }
+    (out, trends)
 }
 
 /// Human summary for `seepd check`: sites, instruments per site and kind, objects per site and
@@ -450,6 +469,28 @@ pub fn summary(cfg: &Config) -> String {
             let _ = writeln!(s, "    {kind}: {n}");
         }
         for (table, ids) in objects.iter().filter(|(_, ids)| !ids.is_empty()) {
+            let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
+        }
+        let t = &cfg.trends;
+        let models = [
+            (
+                "response",
+                t.responses
+                    .iter()
+                    .filter(|r| r.site == site.id)
+                    .map(|r| r.id.as_str())
+                    .collect::<Vec<_>>(),
+            ),
+            (
+                "hst",
+                t.hst
+                    .iter()
+                    .filter(|h| h.site == site.id)
+                    .map(|h| h.id.as_str())
+                    .collect(),
+            ),
+        ];
+        for (table, ids) in models.iter().filter(|(_, ids)| !ids.is_empty()) {
             let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
         }
     }

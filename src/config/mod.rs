@@ -1,6 +1,6 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
-//! (`load`, with `service`, `export`, `site`, `kinds`, `objects`, `rules` and `smtp` reading the
-//! tables through `reader`); the alerting model is in `alerting`.
+//! (`load`, with `service`, `export`, `site`, `kinds`, `objects`, `rules`, `smtp` and `trends`
+//! reading the tables through `reader`); the alerting model is in `alerting`.
 
 pub mod alerting;
 mod export;
@@ -14,6 +14,7 @@ pub mod rules;
 mod service;
 mod site;
 mod smtp;
+mod trends;
 
 pub use alerting::{Alerting, Contacts, Policy, Rule, SiteAlerting, Smtp, SmtpSecurity};
 pub use load::{load_dir, summary, Problem, Problems};

@@ -38,6 +38,8 @@ pub struct Config {
     pub alerting: super::alerting::Alerting,
     /// InfluxDB v2 export (`[export]`), when configured.
     pub export: Option<Export>,
+    /// Rate windows, sensor health and stage-response/HST models.
+    pub trends: Trends,
 }
 
 impl Config {
@@ -397,6 +399,10 @@ pub struct Instrument {
     pub logger: Option<String>,
     pub channel: Option<String>,
 }
+
+// Trends, stage-response and HST models, sensor health (per-site settings and model tables).
+mod trends;
+pub use trends::*;
 
 /// Nested piezometers at one location: vertical gradients between adjacent tips and overall.
 #[derive(Debug, Clone, PartialEq)]

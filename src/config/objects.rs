@@ -18,7 +18,7 @@ use super::reader::{finite, Tbl};
 use super::site::Pos;
 use values::{Reader, Rule};
 
-pub(crate) use refs::{resolve, Known};
+pub(crate) use refs::{problem as reference_problem, resolve, Known};
 
 /// The object tables of a site file, as written (`[[cluster]]` ...).
 pub(crate) const TABLES: [&str; 4] = ["cluster", "toe", "blanket", "section"];

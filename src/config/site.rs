@@ -16,6 +16,7 @@ use super::model::{DisplayUnits, Instrument, LengthUnit, Location, Site};
 use super::objects::{self, ObjEntry};
 use super::problem::Cx;
 use super::reader::Tbl;
+use super::trends::{self, SiteTrendsEntry};
 
 /// A 1-based (line, column) position in a file.
 pub(crate) type Pos = (usize, usize);
@@ -63,6 +64,8 @@ pub(crate) struct SiteFile {
     pub objects: Vec<ObjEntry>,
     /// `[alerting]`, `[[contacts]]` and `[[rule]]` (see `config::rules`).
     pub alerting: super::rules::SiteRules,
+    /// `[trends]`, `[health]`, `[[response]]` and `[[hst]]`.
+    pub trends: SiteTrendsEntry,
 }
 
 /// Read a site file's root table.
@@ -70,6 +73,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     let mut keys = vec!["site", "instrument"];
     keys.extend(objects::TABLES);
     keys.extend(super::rules::KEYS);
+    keys.extend(trends::TABLES);
     root.check_keys(cx, &keys);
     let mut m_per_unit = 1.0;
     let mut gamma_w = 9.81;
@@ -156,12 +160,14 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         .collect();
     let objects = objects::read(cx, root, &site_id, m_per_unit, gamma_w);
     let alerting = super::rules::read(cx, root, &site_id);
+    let trends = trends::read(cx, root, &site_id, m_per_unit);
     SiteFile {
         id,
         site,
         entries,
         objects,
         alerting,
+        trends,
     }
 }
 

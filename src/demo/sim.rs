@@ -42,6 +42,14 @@ fn flood(day: f64) -> f64 {
     x * x * (3.0 - 2.0 * x)
 }
 
+/// A few millimetres of deterministic reading noise for instrument `k` at `hour`, so the
+/// simulated sensors do not read exactly the same value for days (a flatline, to the sensor
+/// health checks).
+fn jitter(hour: u32, k: u32) -> f64 {
+    let step = (hour.wrapping_mul(7).wrapping_add(k.wrapping_mul(13))) % 11;
+    0.003 * (f64::from(step) - 5.0) / 5.0
+}
+
 /// The invented scenario at `hour` since the start.
 pub fn levels(hour: u32) -> Levels {
     let day = f64::from(hour) / 24.0;
@@ -51,18 +59,19 @@ pub fn levels(hour: u32) -> Levels {
     let deep = 95.2 + 0.45 * 6.4 * lag;
     let pool_m = 214.0 + 6.5 * f;
     let daily = (day * std::f64::consts::TAU).sin();
+    let j = |k| jitter(hour, k);
     Levels {
-        river_m,
-        pool_m,
-        tail_m: 199.3 + 0.6 * f,
-        pz1a_m: 96.1 + 0.18 * (deep - 95.2),
-        pz1b_m: deep,
-        pz2a_m: 96.0 + 0.15 * (deep - 95.2),
-        pz2b_m: deep - 0.3,
-        sp3_m: 94.8 + 0.4 * (deep - 95.2),
-        th1_m: 209.0 + 0.75 * (pool_m - 214.0),
-        th2_m: 205.0 + 0.60 * (pool_m - 214.0),
-        th3_m: 199.8 + 0.80 * (pool_m - 214.0),
+        river_m: river_m + j(1),
+        pool_m: pool_m + j(2),
+        tail_m: 199.3 + 0.6 * f + j(3),
+        pz1a_m: 96.1 + 0.18 * (deep - 95.2) + j(4),
+        pz1b_m: deep + j(5),
+        pz2a_m: 96.0 + 0.15 * (deep - 95.2) + j(6),
+        pz2b_m: deep - 0.3 + j(7),
+        sp3_m: 94.8 + 0.4 * (deep - 95.2) + j(8),
+        th1_m: 209.0 + 0.75 * (pool_m - 214.0) + j(9),
+        th2_m: 205.0 + 0.60 * (pool_m - 214.0) + j(10),
+        th3_m: 199.8 + 0.80 * (pool_m - 214.0) + j(11),
         baro_kpa: 101.0 + 0.6 * (day / 3.0).sin(),
         temp_c: 12.0 + 0.5 * daily,
     }

@@ -18,8 +18,31 @@ use crate::store::{DerivedRow, ReadingRow};
 
 pub use objects::section_input;
 
-/// Reading flags that make a head unfit for derived quantities.
-pub const EXCLUDING_FLAGS: Flags = Flags(Flags::BARO_MISSING.0 | Flags::TEMP_MISSING.0);
+/// Reading flags that make a head unfit for derived quantities (unless the site's `[health]`
+/// says `use_flagged = true`).
+pub const EXCLUDING_FLAGS: Flags = Flags(
+    Flags::BARO_MISSING.0
+        | Flags::TEMP_MISSING.0
+        | Flags::SPIKE.0
+        | Flags::FLATLINE.0
+        | Flags::THERMISTOR.0,
+);
+
+/// The flags that keep `instrument`'s readings out of derived quantities under `cfg`: none when
+/// its site sets `use_flagged = true`, else [`EXCLUDING_FLAGS`].
+pub fn excluding_flags(cfg: &Config, instrument: &str) -> Flags {
+    let site = cfg.instruments.get(instrument).map(|i| i.site.as_str());
+    let use_flagged = cfg
+        .trends
+        .sites
+        .iter()
+        .any(|s| Some(s.site.as_str()) == site && s.health.use_flagged);
+    if use_flagged {
+        Flags::empty()
+    } else {
+        EXCLUDING_FLAGS
+    }
+}
 
 /// The latest usable state of one instrument.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -217,7 +240,7 @@ impl Inputs<'_> {
                 "input {id} is stale ({dt_s} s from this time; tolerance {tolerance_s} s)"
             ));
         }
-        let bad = Flags(h.flags.0 & EXCLUDING_FLAGS.0);
+        let bad = Flags(h.flags.0 & excluding_flags(&self.deriver.cfg, id).0);
         if !bad.is_empty() {
             return Err(format!("input {id} is flagged {}", bad.names().join(",")));
         }

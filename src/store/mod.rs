@@ -8,6 +8,7 @@
 
 pub mod alerts;
 pub mod export;
+mod models;
 pub mod outbox;
 mod schema;
 
@@ -20,6 +21,7 @@ use crate::config::Config;
 use crate::quality::{Flags, Reason};
 
 pub use alerts::{AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow};
+pub use models::{InstrumentSpan, ModelRow, SeedReading};
 pub use schema::SCHEMA_VERSION;
 
 /// Errors from the store.

@@ -159,6 +159,22 @@ const MIGRATIONS: &[&str] = &[
         reply TEXT NOT NULL,
         lines TEXT NOT NULL
     );",
+    // 5: fitted stage-response and HST models, every fit kept (model history).
+    "CREATE TABLE models (
+        id TEXT NOT NULL,
+        kind TEXT NOT NULL,
+        fitted_ms INTEGER NOT NULL,
+        train_start_ms INTEGER NOT NULL,
+        train_end_ms INTEGER NOT NULL,
+        a REAL,
+        b REAL,
+        lag_ms INTEGER,
+        r_squared REAL NOT NULL,
+        sigma REAL NOT NULL,
+        n INTEGER NOT NULL,
+        params TEXT NOT NULL,
+        PRIMARY KEY (id, fitted_ms)
+    ) WITHOUT ROWID;",
 ];
 
 /// The schema version this build writes.

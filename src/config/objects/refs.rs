@@ -86,7 +86,12 @@ fn expected(want: Want) -> &'static str {
 }
 
 /// The problem with one reference, if any.
-fn problem(what: &str, site: &str, r: &Ref, known: Option<&Known<'_>>) -> Option<String> {
+pub(crate) fn problem(
+    what: &str,
+    site: &str,
+    r: &Ref,
+    known: Option<&Known<'_>>,
+) -> Option<String> {
     let head = format!("{what}: key \"{}\" names {:?}", r.key, r.id);
     let want = expected(r.want);
     let Some(k) = known else {

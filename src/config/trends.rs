@@ -1,0 +1,348 @@
+//! Reading a site file's trend, health and model tables — `[trends]`, `[health]`,
+//! `[[response]]` and `[[hst]]` — into the `model` settings (durations in seconds, lengths in
+//! metres).
+//!
+//! Owns those keys, their defaults and ranges. Like `objects`, it must not decide what a
+//! reference names: each model's instrument references are recorded and settled by `resolve`
+//! once every site file is read (through `objects`' reference checks), and `load` checks that
+//! model ids are unique among instruments and objects.
+
+use std::collections::BTreeMap;
+
+use super::model::{HealthSettings, HstSpec, RateSpan, ResponseSpec, SiteTrends};
+use super::objects::{reference_problem, Known, Ref, Want};
+use super::problem::Cx;
+use super::reader::Tbl;
+use super::site::Pos;
+
+/// The tables of a site file read here, as written.
+pub(crate) const TABLES: [&str; 4] = ["trends", "health", "response", "hst"];
+
+const TRENDS_KEYS: [&str; 2] = ["rate_windows", "max_points"];
+const HEALTH_KEYS: [&str; 9] = [
+    "spike_window",
+    "spike_k",
+    "spike_floor",
+    "flatline_count",
+    "flatline_tolerance",
+    "no_data_factor",
+    "thermistor_range",
+    "thermistor_max_jump",
+    "use_flagged",
+];
+const RESPONSE_KEYS: [&str; 7] = [
+    "id",
+    "piezometer",
+    "stage_gauge",
+    "training_days",
+    "lag_range_h",
+    "lag_step_h",
+    "refit_interval_h",
+];
+const HST_KEYS: [&str; 5] = [
+    "id",
+    "instrument",
+    "reservoir_gauge",
+    "degree",
+    "refit_interval_h",
+];
+
+/// Defaults of a `[[response]]` table.
+const DEFAULT_TRAINING_DAYS: f64 = 30.0;
+const DEFAULT_LAG_RANGE_H: (f64, f64) = (0.0, 48.0);
+const DEFAULT_LAG_STEP_H: f64 = 1.0;
+const DEFAULT_RESPONSE_REFIT_H: f64 = 24.0;
+/// Defaults of an `[[hst]]` table.
+const DEFAULT_HST_DEGREE: i64 = 4;
+const DEFAULT_HST_REFIT_H: f64 = 168.0;
+/// Most lags one search may try (each costs a pass over the training readings).
+const MAX_LAGS: f64 = 2000.0;
+
+/// A validated model table.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum Model {
+    Response(ResponseSpec),
+    Hst(HstSpec),
+}
+
+/// What `load` needs of one `[[response]]` or `[[hst]]` table.
+pub(crate) struct ModelEntry {
+    /// `response` or `hst`.
+    pub table: &'static str,
+    /// How messages name it, e.g. `response "AB-RESP-1B"`.
+    pub what: String,
+    pub id: Option<(String, Pos)>,
+    pub refs: Vec<Ref>,
+    /// The model, if its own table had no problems (already reported).
+    pub model: Option<Model>,
+}
+
+/// The trend tables of one site file.
+pub(crate) struct SiteTrendsEntry {
+    /// The site's settings; `None` after a problem (already reported).
+    pub settings: Option<SiteTrends>,
+    pub models: Vec<ModelEntry>,
+}
+
+/// Read the trend tables of a site file's root. `m_per_unit` converts the site's length unit.
+pub(crate) fn read(
+    cx: &mut Cx<'_>,
+    root: &Tbl<'_>,
+    site: &str,
+    m_per_unit: f64,
+) -> SiteTrendsEntry {
+    let before = cx.problems.len();
+    let mut s = SiteTrends::defaults(site);
+    if let Some(mut t) = root.sub(cx, "trends", "[trends]") {
+        t.what = "[trends]".into();
+        t.check_keys(cx, &TRENDS_KEYS);
+        if let Some(w) = rate_windows(cx, &t) {
+            s.rate_windows = w;
+        }
+        s.max_points = t.int_in(cx, "max_points", 2, 5000, 96) as usize;
+    }
+    if let Some(mut t) = root.sub(cx, "health", "[health]") {
+        t.what = "[health]".into();
+        t.check_keys(cx, &HEALTH_KEYS);
+        s.health = health(cx, &t, m_per_unit);
+    }
+    let settings = Some(s).filter(|_| cx.problems.len() == before);
+    let mut models = Vec::new();
+    for table in ["response", "hst"] {
+        for t in root.tables(cx, table) {
+            models.push(model(cx, t, table, site));
+        }
+    }
+    SiteTrendsEntry { settings, models }
+}
+
+/// `rate_windows`: durations written `<n>h` or `<n>d`, distinct, shortest first.
+fn rate_windows(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Vec<RateSpan>> {
+    let items = t.array(
+        cx,
+        "rate_windows",
+        false,
+        (
+            "an array of durations",
+            "a duration such as \"24h\" or \"7d\"",
+        ),
+        |v| {
+            let text = v.as_str()?;
+            let span_s = duration_s(text)?;
+            Some(RateSpan {
+                label: text.to_string(),
+                span_s,
+            })
+        },
+    )?;
+    let mut spans: Vec<RateSpan> = Vec::new();
+    for (span, pos) in items {
+        if spans.iter().any(|s| s.span_s == span.span_s) {
+            cx.at(
+                pos.or_else(|| t.value_span("rate_windows")),
+                format!(
+                    "[trends]: key \"rate_windows\" lists {:?} twice (as the same duration); expected distinct windows",
+                    span.label
+                ),
+            );
+            return None;
+        }
+        spans.push(span);
+    }
+    if spans.is_empty() {
+        t.problem_at(
+            cx,
+            "rate_windows",
+            "key \"rate_windows\" is empty; expected at least one duration such as \"24h\"",
+        );
+        return None;
+    }
+    spans.sort_by_key(|s| s.span_s);
+    Some(spans)
+}
+
+/// `24h` → 86 400, `7d` → 604 800; a positive whole number of hours or days.
+pub(crate) fn duration_s(text: &str) -> Option<i64> {
+    let (n, unit) = text.split_at(text.len().checked_sub(1)?);
+    let per = match unit {
+        "h" => 3600,
+        "d" => 86_400,
+        _ => return None,
+    };
+    let n: i64 = n.parse().ok().filter(|n| *n > 0 && *n <= 3660)?;
+    Some(n * per)
+}
+
+/// A number > `lo` under `key`, or `default`.
+fn above(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, default: f64) -> f64 {
+    match t.number(cx, key, false) {
+        Some(v) if v > lo => v,
+        Some(v) => {
+            t.problem_at(
+                cx,
+                key,
+                format!("key \"{key}\" is {v}, expected a number > {lo}"),
+            );
+            default
+        }
+        None => default,
+    }
+}
+
+fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
+    let d = HealthSettings::default();
+    let nonneg = |cx: &mut Cx<'_>, key: &str, default: f64| match t.number(cx, key, false) {
+        Some(v) if v >= 0.0 => v * m,
+        Some(v) => {
+            t.problem_at(
+                cx,
+                key,
+                format!("key \"{key}\" is {v}, expected a number >= 0"),
+            );
+            default
+        }
+        None => default,
+    };
+    let spike_floor_m = nonneg(cx, "spike_floor", d.spike_floor_m);
+    let flatline_tolerance_m = nonneg(cx, "flatline_tolerance", d.flatline_tolerance_m);
+    let no_data_factor = match t.number(cx, "no_data_factor", false) {
+        Some(v) if v >= 1.0 => v,
+        Some(v) => {
+            t.problem_at(
+                cx,
+                "no_data_factor",
+                format!("key \"no_data_factor\" is {v}, expected a number >= 1 (a multiple of the instrument's interval_s)"),
+            );
+            d.no_data_factor
+        }
+        None => d.no_data_factor,
+    };
+    HealthSettings {
+        spike_window: t.int_in(cx, "spike_window", 3, 10_000, d.spike_window as i64) as usize,
+        spike_k: above(cx, t, "spike_k", 0.0, d.spike_k),
+        spike_floor_m,
+        flatline_count: t.int_in(cx, "flatline_count", 2, 10_000, d.flatline_count as i64) as usize,
+        flatline_tolerance_m,
+        no_data_factor,
+        thermistor_range_c: t
+            .pair(cx, "thermistor_range", false)
+            .unwrap_or(d.thermistor_range_c),
+        thermistor_max_jump_c: above(cx, t, "thermistor_max_jump", 0.0, d.thermistor_max_jump_c),
+        use_flagged: t.boolean(cx, "use_flagged", d.use_flagged),
+    }
+}
+
+/// Hours (a number, as written) to whole seconds.
+fn hours_s(h: f64) -> i64 {
+    (h * 3600.0).round() as i64
+}
+
+fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> ModelEntry {
+    let before = cx.problems.len();
+    let id = t.nonempty(cx, "id");
+    if let Some(id) = &id {
+        t.what = format!("{table} {id:?}");
+    } else if !t.has("id") {
+        t.missing(cx, "id", "");
+    }
+    let id_pos = cx.pos(t.value_span("id"));
+    let mut refs = Vec::new();
+    let mut reference = |cx: &mut Cx<'_>, key: &'static str, want: Want| {
+        if !t.has(key) {
+            t.missing(cx, key, "");
+            return None;
+        }
+        let found = t.nonempty(cx, key)?;
+        refs.push(Ref {
+            key,
+            id: found.clone(),
+            pos: cx.pos(t.value_span(key)),
+            want,
+        });
+        Some(found)
+    };
+    let name = id.clone().unwrap_or_default();
+    let model = if table == "response" {
+        t.check_keys(cx, &RESPONSE_KEYS);
+        let piezometer = reference(cx, "piezometer", Want::Piezometer);
+        let gauge = reference(cx, "stage_gauge", Want::StageGauge);
+        let training = above(cx, &t, "training_days", 0.0, DEFAULT_TRAINING_DAYS);
+        let (lo, hi) = t
+            .pair(cx, "lag_range_h", false)
+            .unwrap_or(DEFAULT_LAG_RANGE_H);
+        if lo < 0.0 {
+            t.problem_at(
+                cx,
+                "lag_range_h",
+                format!(
+                    "key \"lag_range_h\" starts at {lo}, expected [low, high] hours with low >= 0"
+                ),
+            );
+        }
+        let step = above(cx, &t, "lag_step_h", 0.0, DEFAULT_LAG_STEP_H);
+        if (hi - lo) / step > MAX_LAGS {
+            t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
+        }
+        let refit = above(cx, &t, "refit_interval_h", 0.0, DEFAULT_RESPONSE_REFIT_H);
+        match (piezometer, gauge) {
+            (Some(piezometer), Some(stage_gauge)) => Some(Model::Response(ResponseSpec {
+                id: name,
+                site: site.into(),
+                piezometer,
+                stage_gauge,
+                training_s: (training * 86_400.0).round() as i64,
+                lag_min_s: hours_s(lo),
+                lag_max_s: hours_s(hi),
+                lag_step_s: hours_s(step).max(1),
+                refit_s: hours_s(refit).max(1),
+            })),
+            _ => None,
+        }
+    } else {
+        t.check_keys(cx, &HST_KEYS);
+        let instrument = reference(cx, "instrument", Want::Piezometer);
+        let gauge = reference(cx, "reservoir_gauge", Want::StageGauge);
+        let degree = t.int_in(cx, "degree", 1, 4, DEFAULT_HST_DEGREE) as usize;
+        let refit = above(cx, &t, "refit_interval_h", 0.0, DEFAULT_HST_REFIT_H);
+        match (instrument, gauge) {
+            (Some(instrument), Some(reservoir_gauge)) => Some(Model::Hst(HstSpec {
+                id: name,
+                site: site.into(),
+                instrument,
+                reservoir_gauge,
+                degree,
+                refit_s: hours_s(refit).max(1),
+            })),
+            _ => None,
+        }
+    };
+    let ok = id.is_some() && cx.problems.len() == before;
+    ModelEntry {
+        table,
+        what: t.what.clone(),
+        id: id.map(|s| (s, id_pos)),
+        refs,
+        model: model.filter(|_| ok),
+    }
+}
+
+/// Check a model's references against every known id (`site`: the model's site). Returns the
+/// problems (position, message) and the model when there were none.
+pub(crate) fn resolve(
+    e: &ModelEntry,
+    site: &str,
+    ids: &BTreeMap<&str, Known<'_>>,
+) -> (Vec<(Pos, String)>, Option<Model>) {
+    let problems: Vec<(Pos, String)> = e
+        .refs
+        .iter()
+        .filter_map(|r| {
+            reference_problem(&e.what, site, r, ids.get(r.id.as_str())).map(|m| (r.pos, m))
+        })
+        .collect();
+    let model = e.model.clone().filter(|_| problems.is_empty());
+    (problems, model)
+}
+
+#[cfg(test)]
+mod tests;
