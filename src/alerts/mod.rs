@@ -16,6 +16,7 @@ use std::sync::Arc;
 use crate::config::{Config, Rule};
 use crate::domain::rules::{self, Action, Check, Obs, State};
 use crate::engine::Outcome;
+use crate::quality::Flags;
 use crate::store::{
     AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
 };
@@ -37,6 +38,9 @@ pub struct Observation {
 }
 
 /// Every observation an engine outcome holds: each reading's quantities, each derived value.
+/// The observation quantity counting a reading's sensor-health flags.
+pub const HEALTH_FLAGS: &str = "health_flags";
+
 pub fn observations(out: &Outcome) -> Vec<Observation> {
     let mut v = Vec::new();
     for r in &out.readings {
@@ -49,6 +53,19 @@ pub fn observations(out: &Outcome) -> Vec<Observation> {
                 unit: unit.into(),
             });
         }
+        // Sensor health as a quantity rules can watch: how many health flags (spike, flatline,
+        // thermistor) this reading carries; 0 for a clean reading, so an alert on it clears.
+        let health = [Flags::SPIKE, Flags::FLATLINE, Flags::THERMISTOR]
+            .iter()
+            .filter(|f| r.flags.contains(**f))
+            .count();
+        v.push(Observation {
+            object: r.instrument.clone(),
+            quantity: HEALTH_FLAGS.into(),
+            t_ms: r.t_ms,
+            value: Some(health as f64),
+            unit: "-".into(),
+        });
     }
     for d in &out.derived {
         v.push(Observation {
@@ -485,5 +502,49 @@ impl Evaluator {
             html,
             message_id: format!("<seepd.alert-{id}.{now_ms}@{domain}>"),
         }
+    }
+}
+
+#[cfg(test)]
+mod observation_tests {
+    use super::*;
+    use crate::store::ReadingRow;
+
+    fn reading(flags: Flags) -> ReadingRow {
+        ReadingRow {
+            instrument: "P1".into(),
+            t_ms: 1000,
+            arrival_ms: 1000,
+            raw: 1.0,
+            temperature_c: None,
+            baro_kpa: None,
+            eng_value: 1.0,
+            eng_unit: "kPa",
+            pressure_kpa: Some(1.0),
+            pressure_head_m: Some(0.1),
+            total_head_m: Some(100.1),
+            flags,
+        }
+    }
+
+    fn health(flags: Flags) -> Option<f64> {
+        let out = Outcome {
+            readings: vec![reading(flags)],
+            ..Outcome::default()
+        };
+        observations(&out)
+            .into_iter()
+            .find(|o| o.quantity == HEALTH_FLAGS)
+            .and_then(|o| o.value)
+    }
+
+    #[test]
+    fn health_flags_count_only_sensor_health() {
+        assert_eq!(health(Flags::empty()), Some(0.0));
+        assert_eq!(health(Flags::SPIKE), Some(1.0));
+        let mut two = Flags::FLATLINE;
+        two.insert(Flags::THERMISTOR);
+        two.insert(Flags::TIME_FROM_ARRIVAL);
+        assert_eq!(health(two), Some(2.0));
     }
 }

@@ -29,6 +29,15 @@ pub const READING_QUANTITIES: [&str; 4] = [
     "total_head",
 ];
 
+/// Derived quantities every instrument has (its own id is the object): data completeness and
+/// the count of sensor-health flags on the latest reading; rates are `rate_<window>`.
+pub const INSTRUMENT_DERIVED: [&str; 2] = ["completeness_24h", "health_flags"];
+
+/// Whether `q` is a quantity a rule on an instrument may watch.
+fn is_instrument_quantity(q: &str) -> bool {
+    READING_QUANTITIES.contains(&q) || INSTRUMENT_DERIVED.contains(&q) || q.starts_with("rate_")
+}
+
 /// A rule on an id that is neither an instrument nor a configured object is a problem.
 const CHECK_OBJECT_IDS: bool = true;
 
@@ -420,7 +429,7 @@ pub(crate) fn cross_check(
             let message = if e.no_data_factor.is_some() || q == "no_data" {
                 (!is_instrument).then(|| format!("rule object {object:?} is not an instrument; expected the id of the instrument a no-data rule watches"))
             } else if is_instrument {
-                (!READING_QUANTITIES.contains(&q.as_str())).then(|| format!("rule on instrument {object:?}: quantity {q:?} is not a reading quantity; expected one of: {}", READING_QUANTITIES.join(", ")))
+                (!is_instrument_quantity(q)).then(|| format!("rule on instrument {object:?}: quantity {q:?} is not a quantity of an instrument; expected one of: {}, {}, rate_<window> (e.g. rate_24h)", READING_QUANTITIES.join(", "), INSTRUMENT_DERIVED.join(", ")))
             } else if CHECK_OBJECT_IDS && !objects.contains(object) {
                 Some(format!("rule object {object:?} is neither an instrument nor a configured object (cluster, toe, blanket, section)"))
             } else {

@@ -112,7 +112,12 @@ fn mixed_directions_and_two_bounds_are_problems() {
 fn instrument_rules_need_a_reading_quantity_and_no_data_an_instrument() {
     let site = format!("{SITE}{}", RULE.replace("total_head", "exit_gradient"));
     let p = problems("", &site);
-    assert!(p[0].1.contains("not a reading quantity"), "{p:?}");
+    assert!(p[0].1.contains("not a quantity of an instrument"), "{p:?}");
+    // Rates, completeness and the health-flag count are instrument quantities too.
+    for q in ["rate_24h", "rate_7d", "completeness_24h", "health_flags"] {
+        let site = format!("{SITE}{}", RULE.replace("total_head", q));
+        assert!(load("", &site).is_ok(), "{q}: {:?}", problems("", &site));
+    }
     let nd = "[[rule]]\nid = \"n\"\nkind = \"no_data\"\nobject = \"X9\"\nfactor = 3\n\
               level = \"watch\"\nresponse = \"check the logger\"\n";
     let p = problems("", &format!("{SITE}{nd}"));
