@@ -7,7 +7,7 @@ fn main() {
     tracing_subscriber::fmt()
         .with_env_filter(
             tracing_subscriber::EnvFilter::try_from_env("SEEPD_LOG")
-                .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,rumqttd=warn")),
+                .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info,rumqttd=off")),
         )
         .with_writer(std::io::stderr)
         // Colour only on a terminal: journald and log files get plain key=value lines.
