@@ -12,7 +12,7 @@ use std::sync::Arc;
 use chrono::{DateTime, SecondsFormat, TimeZone, Utc};
 use serde::Serialize;
 
-use crate::alerts::{observations, Evaluator, Transition};
+use crate::alerts::{Evaluator, Transition};
 use crate::config::{Config, EpochUnit, JsonFields, PayloadFormat, Subscription};
 use crate::engine::{Engine, Message, Outcome};
 use crate::store::{AlertWrites, DerivedRow, QuarantineRow, ReadingRow, Store};
@@ -40,17 +40,17 @@ pub enum Record<'a> {
     Value {
         id: &'a str,
         quantity: &'static str,
-        time: String,
+        time: &'a str,
         value: f64,
         unit: &'static str,
-        #[serde(skip_serializing_if = "Vec::is_empty")]
-        flags: Vec<&'static str>,
+        #[serde(skip_serializing_if = "<[_]>::is_empty")]
+        flags: &'a [&'static str],
     },
     /// A derived quantity of an object (cluster, toe check, blanket reach, section).
     Derived {
         id: &'a str,
         quantity: &'a str,
-        time: String,
+        time: &'a str,
         value: Option<f64>,
         unit: &'static str,
         #[serde(skip_serializing_if = "Option::is_none")]
@@ -67,7 +67,7 @@ pub enum Record<'a> {
         previous_level: Option<&'a str>,
         id: &'a str,
         quantity: &'a str,
-        time: String,
+        time: &'a str,
         value: Option<f64>,
         unit: &'a str,
         bound: f64,
@@ -252,8 +252,13 @@ struct Alerts {
 
 impl Alerts {
     fn observe(&mut self, o: &Outcome) {
-        let obs = observations(o);
-        let Some(t) = obs.iter().map(|o| o.t_ms).max() else {
+        let obs = self.evaluator.observations(o);
+        let times = o
+            .readings
+            .iter()
+            .map(|r| r.t_ms)
+            .chain(o.derived.iter().map(|d| d.t_ms));
+        let Some(t) = times.max() else {
             return;
         };
         self.clock_ms = self.clock_ms.max(t);
@@ -306,48 +311,54 @@ fn flush(
     totals.readings += stats.inserted as u64;
     totals.duplicates += stats.duplicates as u64;
     totals.quarantined += q.len() as u64;
+    // Records are serialised into one buffer and written once: far fewer calls through `out`.
+    let mut buf: Vec<u8> = Vec::with_capacity(256 * (readings.len() * 4 + derived.len()));
+    let mut emit = |rec: &Record<'_>| -> anyhow::Result<()> {
+        serde_json::to_writer(&mut buf, rec)?;
+        buf.push(b'\n');
+        totals.records += 1;
+        Ok(())
+    };
     for r in readings.iter() {
         let time = rfc3339(r.t_ms);
+        let flags = r.flags.names();
         for (quantity, value, unit) in quantities(r) {
-            let rec = Record::Value {
+            emit(&Record::Value {
                 id: &r.instrument,
                 quantity,
-                time: time.clone(),
+                time: &time,
                 value,
                 unit,
-                flags: r.flags.names(),
-            };
-            serde_json::to_writer(&mut *out, &rec)?;
-            out.write_all(b"\n")?;
-            totals.records += 1;
+                flags: &flags,
+            })?;
         }
     }
+    // Derived rows come in runs with the same time: format it once per run.
+    let mut time_of: (i64, String) = (i64::MIN, String::new());
     for d in derived.iter() {
-        let rec = Record::Derived {
+        if time_of.0 != d.t_ms {
+            time_of = (d.t_ms, rfc3339(d.t_ms));
+        }
+        emit(&Record::Derived {
             id: &d.object,
             quantity: &d.quantity,
-            time: rfc3339(d.t_ms),
+            time: &time_of.1,
             value: d.value,
             unit: d.unit,
             reason: d.reason.as_deref(),
             inputs: &d.inputs,
-        };
-        serde_json::to_writer(&mut *out, &rec)?;
-        out.write_all(b"\n")?;
-        totals.records += 1;
+        })?;
     }
     for (line, q) in quarantined.iter() {
-        let rec = Record::Quarantine {
+        emit(&Record::Quarantine {
             line: *line,
             reason: q.reason.code(),
             detail: &q.detail,
-        };
-        serde_json::to_writer(&mut *out, &rec)?;
-        out.write_all(b"\n")?;
-        totals.records += 1;
+        })?;
     }
     for t in alerts.transitions.drain(..) {
-        let rec = Record::Alert {
+        let time = rfc3339(t.t_ms);
+        emit(&Record::Alert {
             alert: t.alert,
             rule: &t.rule,
             action: t.action.name(),
@@ -355,16 +366,14 @@ fn flush(
             previous_level: t.previous.as_deref(),
             id: &t.object,
             quantity: &t.quantity,
-            time: rfc3339(t.t_ms),
+            time: &time,
             value: t.value,
             unit: &t.unit,
             bound: t.bound,
             direction: t.direction,
-        };
-        serde_json::to_writer(&mut *out, &rec)?;
-        out.write_all(b"\n")?;
-        totals.records += 1;
+        })?;
     }
+    out.write_all(&buf)?;
     readings.clear();
     derived.clear();
     quarantined.clear();

@@ -55,6 +55,14 @@ impl Live {
         w
     }
 
+    /// Evaluate what a batch produced: only the observations some rule watches are built.
+    pub fn evaluate_outcome(&mut self, out: &crate::engine::Outcome) -> AlertWrites {
+        let obs = self.evaluator.observations(out);
+        let w = self.evaluator.evaluate(&obs, Utc::now().timestamp_millis());
+        self.log_transitions();
+        w
+    }
+
     fn log_transitions(&mut self) {
         for t in self.evaluator.take_transitions() {
             tracing::info!(

@@ -42,8 +42,13 @@ pub struct Observation {
 pub const HEALTH_FLAGS: &str = "health_flags";
 
 pub fn observations(out: &Outcome) -> Vec<Observation> {
+    observations_of(out, |_| true)
+}
+
+/// The observations of the objects `keep` accepts (the others cost nothing).
+pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observation> {
     let mut v = Vec::new();
-    for r in &out.readings {
+    for r in out.readings.iter().filter(|r| keep(&r.instrument)) {
         for (quantity, value, unit) in crate::replay::quantities(r) {
             v.push(Observation {
                 object: r.instrument.clone(),
@@ -67,7 +72,7 @@ pub fn observations(out: &Outcome) -> Vec<Observation> {
             unit: "-".into(),
         });
     }
-    for d in &out.derived {
+    for d in out.derived.iter().filter(|d| keep(&d.object)) {
         v.push(Observation {
             object: d.object.clone(),
             quantity: d.quantity.clone(),
@@ -108,6 +113,8 @@ pub struct Evaluator {
     rules: Vec<Watched>,
     /// (object, quantity) → rule indexes; no-data rules under (object, "no_data").
     index: HashMap<(String, String), Vec<usize>>,
+    /// Objects some rule watches: observations of other objects are not built at all.
+    watched: std::collections::HashSet<String>,
     recent: HashMap<(String, String), VecDeque<(i64, f64)>>,
     /// Notices waiting out the group wait.
     waiting: Vec<NoticeRow>,
@@ -150,6 +157,7 @@ impl Evaluator {
         Evaluator {
             cfg,
             rules,
+            watched: index.keys().map(|(o, _)| o.clone()).collect(),
             index,
             recent,
             waiting: Vec::new(),
@@ -226,6 +234,16 @@ impl Evaluator {
     /// Transitions since the last call (replay's records).
     pub fn take_transitions(&mut self) -> Vec<Transition> {
         std::mem::take(&mut self.transitions)
+    }
+
+    /// Whether some rule watches `object`.
+    pub fn watches(&self, object: &str) -> bool {
+        self.watched.contains(object)
+    }
+
+    /// The observations of `out` that some rule watches.
+    pub fn observations(&self, out: &Outcome) -> Vec<Observation> {
+        observations_of(out, |o| self.watches(o))
     }
 
     /// Step the rules watching these observations, then every rule's timers at `now_ms`, then

@@ -289,7 +289,7 @@ fn writer_loop(
             out.derived.extend(o.derived);
             out.quarantined.extend(o.quarantined);
         }
-        let aw = alerts.evaluate(&crate::alerts::observations(&out));
+        let aw = alerts.evaluate_outcome(&out);
         let Outcome {
             readings,
             derived,

@@ -297,35 +297,28 @@ impl Watcher {
             row.flags,
         );
         let mut out = Vec::new();
-        let due = st
-            .last_rate_ms
-            .is_none_or(|l| row.t_ms - l >= st.interval_ms || row.t_ms < l);
-        if row.total_head_m.is_some() && due {
+        // Rates and completeness are reported at most once per interval (dense bursts such as
+        // a replay or a catch-up do not pay for them on every reading). A flagged reading moves
+        // the clock but reports no rate: the last rate stands and the reading carries its flag.
+        let due = !late
+            && st
+                .last_rate_ms
+                .is_none_or(|l| row.t_ms - l >= st.interval_ms || row.t_ms < l);
+        if due {
+            st.last_rate_ms = Some(row.t_ms);
             let flagged = Flags(row.flags.0 & st.exclude.0);
-            if flagged.is_empty() && !late && pushed.is_none() {
-                st.last_rate_ms = Some(row.t_ms);
+            if row.total_head_m.is_some() && flagged.is_empty() {
+                for (name, w) in &st.windows {
+                    let v = match &pushed {
+                        Some(e) => Err(e.to_string()),
+                        None => rate(w),
+                    };
+                    out.push(row_of(id, name.clone(), row.t_ms, v, "m/day"));
+                }
             }
-            for (name, w) in &st.windows {
-                let v = if !flagged.is_empty() {
-                    Err(format!(
-                        "reading flagged {}: left out of the rate",
-                        flagged.names().join(",")
-                    ))
-                } else if late {
-                    Err(
-                        "late reading (older than the newest): rates are reported at the newest"
-                            .into(),
-                    )
-                } else if let Some(e) = &pushed {
-                    Err(e.to_string())
-                } else {
-                    rate(w)
-                };
-                out.push(row_of(id, name.clone(), row.t_ms, v, "m/day"));
-            }
+            let pct = completeness(st, row.t_ms);
+            out.push(row_of(id, "completeness_24h".into(), row.t_ms, pct, "%"));
         }
-        let pct = completeness(st, row.t_ms);
-        out.push(row_of(id, "completeness_24h".into(), row.t_ms, pct, "%"));
         let first_ms = st.first_ms;
         let excluded = Flags(row.flags.0 & st.exclude.0);
         out.extend(self.models.residuals(row, excluded, first_ms, &self.stages));
