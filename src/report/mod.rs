@@ -6,6 +6,7 @@ pub mod chart;
 pub mod csv;
 pub mod data;
 pub mod html;
+pub mod schedule;
 
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
