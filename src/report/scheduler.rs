@@ -184,12 +184,17 @@ fn run(cfg: &Config, mail: Option<&Waker>, wake: &Receiver<()>, stop: &AtomicBoo
             }
         }
     };
+    let mut first = true;
     while !stop.load(Ordering::SeqCst) {
         let now = Utc::now();
         if !pass(cfg, &mut store, now).is_empty() {
             if let Some(w) = mail {
                 w.wake();
             }
+        }
+        if std::mem::take(&mut first) {
+            let next = next_wake(cfg, now).map(|t| t.to_rfc3339());
+            tracing::info!(schedules = cfg.reports.len(), next_due = ?next, "Report scheduler caught up");
         }
         let d = next_wake(cfg, now)
             .and_then(|t| (t - Utc::now()).to_std().ok())
