@@ -550,3 +550,6 @@ mod rules_tests;
 
 #[cfg(test)]
 mod export_tests;
+
+#[cfg(test)]
+mod report_tests;
