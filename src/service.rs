@@ -1,8 +1,9 @@
-//! `seepd run`: load configuration, open the store, and run live ingestion and the export worker
-//! until a signal.
+//! `seepd run`: load configuration, open the store, and run live ingestion, the mail worker, the
+//! report scheduler and the export worker until a signal.
 //!
-//! Owns start-up order (store, rule states, mail worker, export worker, ingestion) and the
-//! shutdown signal; the work itself is in `ingest::mqtt`, `alerts`, `notify` and `export`.
+//! Owns start-up order (store, rule states, mail worker, report scheduler, export worker,
+//! ingestion) and the shutdown signal; the work itself is in `ingest::mqtt`, `alerts`,
+//! `notify`, `report::scheduler` and `export`.
 
 use std::future::Future;
 use std::sync::Arc;
@@ -18,6 +19,7 @@ use crate::config::Config;
 use crate::engine::Engine;
 use crate::ingest::progress::Counters;
 use crate::notify::Worker;
+use crate::report::scheduler::Scheduler;
 use crate::store::export::QueueMode;
 use crate::store::Store;
 
@@ -88,6 +90,14 @@ pub async fn run(
             None
         }
     };
+    let reports = if cfg.reports.is_empty() {
+        None
+    } else {
+        Some(Scheduler::spawn(
+            Arc::clone(&cfg),
+            worker.as_ref().map(Worker::waker),
+        )?)
+    };
     let live = Live::new(evaluator, worker.as_ref().map(Worker::waker));
     let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
     let exporter = start_export(&cfg, stop_rx);
@@ -102,6 +112,9 @@ pub async fn run(
     let _ = stop_sent.set(tokio::time::Instant::now());
     let _ = stop_tx.send(true);
     refits.abort();
+    if let Some(r) = reports {
+        r.stop(Duration::from_secs(cfg.service.shutdown_deadline_s.min(5)));
+    }
     if let Some(w) = worker {
         w.stop(Duration::from_secs(cfg.service.shutdown_deadline_s.min(5)));
     }

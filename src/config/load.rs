@@ -18,6 +18,7 @@ use super::model::{Config, Objects, PayloadFormat, Trends};
 use super::objects::{self, Known, Object};
 use super::problem::{whole_file, Cx};
 use super::reader::Tbl;
+use super::reports;
 use super::rules;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
@@ -114,6 +115,21 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             .chain(trends.hst.iter().map(|m| m.id.clone()))
             .collect();
         rules::cross_check(&files, &instruments, &object_ids, &mut problems);
+        let report_files: Vec<_> = sites
+            .iter()
+            .map(|(p, sf)| reports::SiteReports {
+                file: p,
+                entries: &sf.reports,
+                contact_lists: sf
+                    .alerting
+                    .alerting
+                    .contacts
+                    .iter()
+                    .map(|c| c.name.clone())
+                    .collect(),
+            })
+            .collect();
+        reports::cross_check(&report_files, &mut problems);
     }
 
     if !problems.is_empty() {
@@ -150,6 +166,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         },
         export,
         trends,
+        reports: Vec::new(),
     };
     let mut alerting = Vec::new();
     for (_, sf) in sites {
@@ -158,6 +175,8 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             cfg.instruments.insert(i.id.clone(), i);
         }
         alerting.push((sf.id.map(|(id, _)| id).unwrap_or_default(), sf.alerting));
+        let schedules = reports::finish(&cfg.dir, sf.reports);
+        cfg.reports.extend(schedules);
     }
     for (site, sr) in alerting {
         rules::finish(&mut cfg, &site, sr);
@@ -531,3 +550,6 @@ mod rules_tests;
 
 #[cfg(test)]
 mod export_tests;
+
+#[cfg(test)]
+mod report_tests;

@@ -10,6 +10,7 @@ pub mod model;
 mod objects;
 mod problem;
 mod reader;
+mod reports;
 pub mod rules;
 mod service;
 mod site;

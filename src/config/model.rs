@@ -40,6 +40,8 @@ pub struct Config {
     pub export: Option<Export>,
     /// Rate windows, sensor health and stage-response/HST models.
     pub trends: Trends,
+    /// Scheduled reports of all sites (`[[report]]`).
+    pub reports: Vec<ReportSchedule>,
 }
 
 impl Config {
@@ -403,6 +405,10 @@ pub struct Instrument {
 // Trends, stage-response and HST models, sensor health (per-site settings and model tables).
 mod trends;
 pub use trends::*;
+
+// Report schedules (`[[report]]`).
+mod report;
+pub use report::*;
 
 /// Nested piezometers at one location: vertical gradients between adjacent tips and overall.
 #[derive(Debug, Clone, PartialEq)]

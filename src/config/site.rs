@@ -66,6 +66,8 @@ pub(crate) struct SiteFile {
     pub alerting: super::rules::SiteRules,
     /// `[trends]`, `[health]`, `[[response]]` and `[[hst]]`.
     pub trends: SiteTrendsEntry,
+    /// `[[report]]` schedules (see `config::reports`).
+    pub reports: Vec<super::reports::ReportEntry>,
 }
 
 /// Read a site file's root table.
@@ -74,6 +76,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     keys.extend(objects::TABLES);
     keys.extend(super::rules::KEYS);
     keys.extend(trends::TABLES);
+    keys.extend(super::reports::KEYS);
     root.check_keys(cx, &keys);
     let mut m_per_unit = 1.0;
     let mut gamma_w = 9.81;
@@ -161,6 +164,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     let objects = objects::read(cx, root, &site_id, m_per_unit, gamma_w);
     let alerting = super::rules::read(cx, root, &site_id);
     let trends = trends::read(cx, root, &site_id, m_per_unit);
+    let reports = super::reports::read(cx, root, &site_id);
     SiteFile {
         id,
         site,
@@ -168,6 +172,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         objects,
         alerting,
         trends,
+        reports,
     }
 }
 

@@ -1,10 +1,12 @@
 //! The SMTP side of the outbox worker (lettre, rustls): build the transport from `[smtp]`,
 //! build each message (text and HTML alternatives, stable Message-ID, Date from the outbox
-//! row) and classify failures as transient (retry) or permanent (dead-letter).
+//! row; with the row's attachments, a multipart/mixed message whose first part is that body and
+//! whose other parts are the attached files) and classify failures as transient (retry) or permanent (dead-letter).
 
 use std::time::{Duration, UNIX_EPOCH};
 
-use lettre::message::{Mailbox, MultiPart};
+use lettre::message::header::ContentType;
+use lettre::message::{Attachment, Mailbox, MultiPart};
 use lettre::transport::smtp::authentication::Credentials;
 use lettre::transport::smtp::client::{Certificate, CertificateStore, Tls, TlsParameters};
 use lettre::{Message, SmtpTransport, Transport};
@@ -79,11 +81,21 @@ impl Mailer {
                 .map_err(|e| SendError::Permanent(format!("recipient {r:?}: {e}")))?;
             b = b.to(to);
         }
-        b.multipart(MultiPart::alternative_plain_html(
-            m.text.clone(),
-            m.html.clone(),
-        ))
-        .map_err(|e| SendError::Permanent(format!("building the message: {e}")))
+        let body = MultiPart::alternative_plain_html(m.text.clone(), m.html.clone());
+        let body = if m.attachments.is_empty() {
+            body
+        } else {
+            let mut mixed = MultiPart::mixed().multipart(body);
+            for a in &m.attachments {
+                let ct = ContentType::parse(&a.content_type).map_err(|e| {
+                    SendError::Permanent(format!("attachment {:?} content type: {e}", a.name))
+                })?;
+                mixed = mixed.singlepart(Attachment::new(a.name.clone()).body(a.data.clone(), ct));
+            }
+            mixed
+        };
+        b.multipart(body)
+            .map_err(|e| SendError::Permanent(format!("building the message: {e}")))
     }
 
     /// Send one outbox message.

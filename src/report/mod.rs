@@ -2,10 +2,13 @@
 //! (tables, inline SVG time histories and section drawings, caution, sign-off lines) and CSV
 //! tables. Used by `seepd report` on demand; the schedule runs the same code.
 
+pub mod alerts;
 pub mod chart;
 pub mod csv;
 pub mod data;
 pub mod html;
+pub mod schedule;
+pub mod scheduler;
 
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
@@ -15,9 +18,10 @@ use chrono::{DateTime, Utc};
 use chrono_tz::Tz;
 
 use crate::config::{Config, Kind};
+use crate::domain::rules::Check;
 use crate::store::Store;
 
-use chart::{Chart, Series};
+use chart::{Chart, LevelLine, Series};
 use data::ReportData;
 
 /// The files a report consists of.
@@ -79,6 +83,23 @@ fn groups(cfg: &Config, site: &str) -> Vec<Group> {
         });
     }
     out
+}
+
+/// Rule levels drawn on a chart of `piezometers`: each level bound of every threshold rule on
+/// the total head of one of them, labelled `rule-id: level-name`.
+fn level_lines(cfg: &Config, piezometers: &[String]) -> Vec<LevelLine> {
+    cfg.alerting
+        .rules
+        .iter()
+        .filter(|r| r.quantity == "total_head" && r.spec.check == Check::Threshold)
+        .filter(|r| piezometers.contains(&r.object))
+        .flat_map(|r| {
+            r.spec.levels.iter().map(|l| LevelLine {
+                label: format!("{}: {}", r.id, l.name),
+                value: l.bound,
+            })
+        })
+        .collect()
 }
 
 /// The times to draw a section at: the period's highest pool, and its end.
@@ -148,7 +169,7 @@ pub fn build(
             y_label: "Total head (m)".into(),
             series,
             stage,
-            levels: Vec::new(),
+            levels: level_lines(cfg, &g.piezometers),
             from_ms: f,
             to_ms: t,
             tz,
@@ -169,11 +190,71 @@ pub fn build(
     let extras = html::Extras {
         charts,
         sections,
-        alerts: None,
+        alerts: Some(alerts::rows(cfg, store.conn(), site, f, t, tz)?),
         caution: crate::CAUTION,
         version: env!("CARGO_PKG_VERSION"),
     };
     Ok((data, extras))
+}
+
+/// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and text.
+#[derive(Debug, Clone)]
+pub struct Document {
+    pub name: String,
+    pub content_type: &'static str,
+    pub text: String,
+}
+
+/// Render the report for `site` over [from, to): the HTML document first, then the CSV tables.
+///
+/// # Errors
+/// Unknown site, database errors, or a generated document that is not well-formed.
+pub fn render_files(
+    cfg: &Config,
+    store: &Store,
+    site: &str,
+    from: DateTime<Utc>,
+    to: DateTime<Utc>,
+    now: DateTime<Utc>,
+) -> anyhow::Result<Vec<Document>> {
+    anyhow::ensure!(to > from, "the period is empty: --to must be after --from");
+    let (data, extras) = build(cfg, store, site, from, to, now)?;
+    let doc = html::render(&data, &extras);
+    crate::xml_check::check_xml(&doc)
+        .map_err(|e| anyhow::anyhow!("generated HTML is not well-formed: {e}"))?;
+    let stem = format!("{}_{}_{}", site, from.format("%Y%m%d"), to.format("%Y%m%d"));
+    let mut docs = vec![Document {
+        name: format!("{stem}.html"),
+        content_type: "text/html; charset=utf-8",
+        text: doc,
+    }];
+    for (name, text) in [
+        ("instruments", csv::instruments(&data)),
+        ("derived", csv::derived(&data)),
+        ("quarantine", csv::quarantine(&data)),
+    ] {
+        docs.push(Document {
+            name: format!("{stem}_{name}.csv"),
+            content_type: "text/csv; charset=utf-8",
+            text,
+        });
+    }
+    Ok(docs)
+}
+
+/// Write rendered documents into `out` (created if needed); returns their paths in order.
+///
+/// # Errors
+/// File errors.
+pub fn write_files(docs: &[Document], out: &Path) -> anyhow::Result<Vec<PathBuf>> {
+    std::fs::create_dir_all(out).with_context(|| format!("creating {}", out.display()))?;
+    let mut paths = Vec::new();
+    for d in docs {
+        let p = out.join(&d.name);
+        std::fs::write(&p, &d.text).with_context(|| format!("writing {}", p.display()))?;
+        paths.push(p);
+    }
+    Ok(paths)
 }
 
 /// Generate the report files for `site` over [from, to) into `out`.
@@ -189,27 +270,13 @@ pub fn generate(
     now: DateTime<Utc>,
     out: &Path,
 ) -> anyhow::Result<ReportFiles> {
-    anyhow::ensure!(to > from, "the period is empty: --to must be after --from");
-    let (data, extras) = build(cfg, store, site, from, to, now)?;
-    let doc = html::render(&data, &extras);
-    crate::xml_check::check_xml(&doc)
-        .map_err(|e| anyhow::anyhow!("generated HTML is not well-formed: {e}"))?;
-    std::fs::create_dir_all(out).with_context(|| format!("creating {}", out.display()))?;
-    let stem = format!("{}_{}_{}", site, from.format("%Y%m%d"), to.format("%Y%m%d"));
-    let html_path = out.join(format!("{stem}.html"));
-    std::fs::write(&html_path, doc).with_context(|| format!("writing {}", html_path.display()))?;
-    let mut csv_paths = Vec::new();
-    for (name, text) in [
-        ("instruments", csv::instruments(&data)),
-        ("derived", csv::derived(&data)),
-        ("quarantine", csv::quarantine(&data)),
-    ] {
-        let p = out.join(format!("{stem}_{name}.csv"));
-        std::fs::write(&p, text).with_context(|| format!("writing {}", p.display()))?;
-        csv_paths.push(p);
-    }
+    let docs = render_files(cfg, store, site, from, to, now)?;
+    let mut paths = write_files(&docs, out)?.into_iter();
+    let html = paths
+        .next()
+        .ok_or_else(|| anyhow::anyhow!("no HTML document was rendered"))?;
     Ok(ReportFiles {
-        html: html_path,
-        csv: csv_paths,
+        html,
+        csv: paths.collect(),
     })
 }

@@ -10,6 +10,7 @@ pub mod alerts;
 pub mod export;
 mod models;
 pub mod outbox;
+pub mod reports;
 mod schema;
 
 use std::path::Path;
@@ -22,6 +23,7 @@ use crate::quality::{Flags, Reason};
 
 pub use alerts::{AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow};
 pub use models::{InstrumentSpan, ModelRow, SeedReading};
+pub use reports::{Attachment, ReportMessage};
 pub use schema::SCHEMA_VERSION;
 
 /// Errors from the store.

@@ -19,6 +19,8 @@ pub struct Queued {
     pub attempts: i64,
     pub next_attempt_ms: i64,
     pub last_error: Option<String>,
+    /// Files to attach (scheduled reports; none for alert messages).
+    pub attachments: Vec<super::Attachment>,
 }
 
 /// An alert not yet resolved, for `seepd alerts`.
@@ -67,6 +69,7 @@ fn queued(r: &rusqlite::Row<'_>) -> rusqlite::Result<Queued> {
         attempts: r.get(7)?,
         next_attempt_ms: r.get(8)?,
         last_error: r.get(9)?,
+        attachments: Vec::new(),
     })
 }
 
@@ -81,7 +84,11 @@ impl Store {
              WHERE status = 'pending' AND next_attempt_ms <= ?1 ORDER BY id LIMIT ?2"
         ))?;
         let rows = st.query_map(params![now_ms, limit as i64], queued)?;
-        Ok(rows.collect::<Result<_, _>>()?)
+        let mut out: Vec<Queued> = rows.collect::<Result<_, _>>()?;
+        for m in &mut out {
+            m.attachments = self.attachments(m.id)?;
+        }
+        Ok(out)
     }
 
     /// When the next pending message is due, if any.

@@ -175,6 +175,26 @@ const MIGRATIONS: &[&str] = &[
         params TEXT NOT NULL,
         PRIMARY KEY (id, fitted_ms)
     ) WITHOUT ROWID;",
+    // 6: scheduled reports. Files attached to an outbox message, and each generated period of
+    // each schedule (written in the transaction that queues its message, so a restart neither
+    // skips nor repeats one). Report messages take negative outbox ids: the alert evaluator
+    // allocates positive ids in memory and never meets them.
+    "CREATE TABLE outbox_attachments (
+        outbox INTEGER NOT NULL REFERENCES outbox (id),
+        seq INTEGER NOT NULL,
+        name TEXT NOT NULL,
+        content_type TEXT NOT NULL,
+        data BLOB NOT NULL,
+        PRIMARY KEY (outbox, seq)
+    );
+    CREATE TABLE report_runs (
+        schedule TEXT NOT NULL,
+        period_start_ms INTEGER NOT NULL,
+        period_end_ms INTEGER NOT NULL,
+        outbox_id INTEGER,
+        created_ms INTEGER NOT NULL,
+        PRIMARY KEY (schedule, period_start_ms)
+    );",
 ];
 
 /// The schema version this build writes.

@@ -1,0 +1,216 @@
+//! Reading a site file's `[[report]]` tables: scheduled instrumentation reports (daily, weekly
+//! or monthly at a local time, with recipients and contact lists).
+//!
+//! Owns those keys and the checks within one table. Checks across files (unique report ids,
+//! contact lists that exist in the same site) are in `cross_check`, called by `load`, which
+//! also resolves `out_dir` through `finish`. Computing due times is `report::schedule`'s job.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use chrono::{NaiveTime, Weekday};
+
+use super::model::{Every, ReportSchedule};
+use super::problem::{Cx, Problem};
+use super::reader::Tbl;
+use super::site::Pos;
+use super::smtp::plain_address;
+
+/// Top-level keys of a site file that this module reads.
+pub(crate) const KEYS: [&str; 1] = ["report"];
+
+const TABLE_KEYS: [&str; 8] = [
+    "id",
+    "every",
+    "at",
+    "weekday",
+    "day",
+    "recipients",
+    "contacts",
+    "out_dir",
+];
+
+const WEEKDAYS: [(&str, Weekday); 7] = [
+    ("mon", Weekday::Mon),
+    ("tue", Weekday::Tue),
+    ("wed", Weekday::Wed),
+    ("thu", Weekday::Thu),
+    ("fri", Weekday::Fri),
+    ("sat", Weekday::Sat),
+    ("sun", Weekday::Sun),
+];
+
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Kind {
+    Daily,
+    Weekly,
+    Monthly,
+}
+
+/// One `[[report]]` as read, with what the cross-file checks need.
+pub(crate) struct ReportEntry {
+    /// The schedule; `None` if the table had problems (already reported).
+    pub schedule: Option<ReportSchedule>,
+    pub id: Option<(String, Pos)>,
+    /// Contact list names and where they are written.
+    pub contacts: Vec<(String, Pos)>,
+}
+
+/// Read the `[[report]]` tables of a site file.
+pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> Vec<ReportEntry> {
+    root.tables(cx, "report")
+        .into_iter()
+        .map(|mut t| read_one(cx, &mut t, site))
+        .collect()
+}
+
+fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
+    let before = cx.problems.len();
+    let id = t.nonempty(cx, "id");
+    match &id {
+        Some(id) => t.what = format!("report {id:?}"),
+        None if !t.has("id") => t.missing(cx, "id", ""),
+        None => {}
+    }
+    let id_pos = cx.pos(t.value_span("id"));
+    t.check_keys(cx, &TABLE_KEYS);
+    let kind = t.choice(
+        cx,
+        "every",
+        true,
+        &[
+            ("daily", Kind::Daily),
+            ("weekly", Kind::Weekly),
+            ("monthly", Kind::Monthly),
+        ],
+    );
+    let at = t.req_string(cx, "at").and_then(|s| {
+        let parsed = NaiveTime::parse_from_str(s.trim(), "%H:%M").ok();
+        if parsed.is_none() {
+            t.problem_at(
+                cx,
+                "at",
+                format!("key \"at\" is {s:?}, expected a local time of day such as \"07:30\""),
+            );
+        }
+        parsed
+    });
+    let weekday = t.choice(cx, "weekday", kind == Some(Kind::Weekly), &WEEKDAYS);
+    let day = t.opt_int_in(cx, "day", 1, 28, kind == Some(Kind::Monthly));
+    for (key, wanted) in [("weekday", Kind::Weekly), ("day", Kind::Monthly)] {
+        if t.has(key) && kind.is_some_and(|k| k != wanted) {
+            let every = if wanted == Kind::Weekly {
+                "weekly"
+            } else {
+                "monthly"
+            };
+            t.problem_at(
+                cx,
+                key,
+                format!("key \"{key}\" applies only to every = \"{every}\"; remove it"),
+            );
+        }
+    }
+    let recipients = t.strings(cx, "recipients", false).unwrap_or_default();
+    for r in recipients.iter().filter(|r| !plain_address(r)) {
+        t.problem_at(
+            cx,
+            "recipients",
+            format!("address {r:?} is not a plain address; expected e.g. engineer@example.org"),
+        );
+    }
+    let contacts = t.strings(cx, "contacts", false).unwrap_or_default();
+    if recipients.is_empty() && contacts.is_empty() && !t.has("recipients") && !t.has("contacts") {
+        t.problem(
+            cx,
+            "no one receives this report; expected \"recipients\" (addresses) and/or \"contacts\" (names of [[contacts]] lists)",
+        );
+    }
+    let out_dir = t.nonempty(cx, "out_dir").map(PathBuf::from);
+    let contacts_pos = cx.pos(t.value_span("contacts"));
+    let every = match kind {
+        Some(Kind::Daily) => Some(Every::Daily),
+        Some(Kind::Weekly) => weekday.map(Every::Weekly),
+        Some(Kind::Monthly) => day.map(|d| Every::Monthly(d as u32)),
+        None => None,
+    };
+    let schedule = match (&id, every, at) {
+        (Some(id), Some(every), Some(at)) if cx.problems.len() == before => Some(ReportSchedule {
+            id: id.clone(),
+            site: site.to_string(),
+            every,
+            at,
+            recipients,
+            contacts: contacts.clone(),
+            out_dir,
+        }),
+        _ => None,
+    };
+    ReportEntry {
+        schedule,
+        id: id.map(|s| (s, id_pos)),
+        contacts: contacts.into_iter().map(|c| (c, contacts_pos)).collect(),
+    }
+}
+
+/// One site file's reports and the names of its `[[contacts]]` lists.
+pub(crate) struct SiteReports<'a> {
+    pub file: &'a Path,
+    pub entries: &'a [ReportEntry],
+    pub contact_lists: Vec<String>,
+}
+
+/// Unique report ids across sites; contact lists named by a report exist in its site.
+pub(crate) fn cross_check(files: &[SiteReports<'_>], problems: &mut Vec<Problem>) {
+    let mut seen: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
+    let problem = |file: &Path, pos: Pos, message: String| Problem {
+        file: file.to_path_buf(),
+        line: pos.0,
+        column: pos.1,
+        message,
+    };
+    for f in files {
+        for e in f.entries {
+            if let Some((id, pos)) = &e.id {
+                if let Some((f0, p0)) = seen.get(id.as_str()) {
+                    problems.push(problem(
+                        f.file,
+                        *pos,
+                        format!(
+                            "report id {id:?} is already used at {}:{}; expected report ids unique across all sites",
+                            f0.display(),
+                            p0.0
+                        ),
+                    ));
+                } else {
+                    seen.insert(id, (f.file, *pos));
+                }
+            }
+            for (name, pos) in &e.contacts {
+                if !f.contact_lists.contains(name) {
+                    problems.push(problem(
+                        f.file,
+                        *pos,
+                        format!(
+                            "report {:?}: contacts {name:?} is not a [[contacts]] list of this site; expected one of: {}",
+                            e.id.as_ref().map_or("", |(i, _)| i.as_str()),
+                            if f.contact_lists.is_empty() { "(none configured)".to_string() } else { f.contact_lists.join(", ") }
+                        ),
+                    ));
+                }
+            }
+        }
+    }
+}
+
+/// The validated schedules, `out_dir` resolved against the configuration directory.
+pub(crate) fn finish(dir: &Path, entries: Vec<ReportEntry>) -> Vec<ReportSchedule> {
+    entries
+        .into_iter()
+        .filter_map(|e| e.schedule)
+        .map(|mut s| {
+            s.out_dir = s.out_dir.map(|d| dir.join(d));
+            s
+        })
+        .collect()
+}
