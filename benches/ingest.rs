@@ -89,30 +89,41 @@ fn main() {
     println!("  seepd stored + acked     : {seepd_rate:>10.0} readings/s ({seepd_s:.2} s, incl. start-up)");
     println!("  ratio                    : {:.2}", seepd_rate / sub_rate);
 
-    // 3. Replay throughput.
+    // 3. Replay throughput: five instruments and the barometer their sealed gauges need, one
+    //    reading a minute each; on the instruments alone (reduction, health checks, rates and
+    //    completeness) and on the full example site (plus clusters, toe checks, blanket theory,
+    //    the section, stage-response model and rules).
     let rn: i64 = 200_000;
     let input = dir.path().join("replay.ndjson");
-    let ids = ["AB-PZ-1A", "AB-PZ-2B", "AB-SP-3", "TH-PZ-1", "TH-POOL"];
-    let vals = [2800.0, 10.0, 4.0, 8000.0, 215.0];
+    let ids = [
+        "AB-BARO", "AB-PZ-1A", "AB-PZ-2B", "AB-SP-3", "TH-PZ-1", "TH-POOL",
+    ];
+    let vals = [101.0, 2800.0, 10.0, 4.0, 8000.0, 215.0];
     let mut text = String::with_capacity(rn as usize * 80);
     for i in 0..rn {
-        let k = (i % 5) as usize;
-        let extra = if k == 0 { ",\"temperature\":12.0" } else { "" };
+        let k = (i % 6) as usize;
+        let extra = if k == 1 { ",\"temperature\":12.0" } else { "" };
         text.push_str(&format!(
             "{{\"time\":{},\"instrument\":\"{}\",\"value\":{}{extra}}}\n",
-            t0 + i / 5 * 60,
+            t0 + i / 6 * 60,
             ids[k],
             vals[k]
         ));
     }
     std::fs::write(&input, text).unwrap();
-    for (label, db) in [
-        ("in-memory", None),
-        ("SQLite file", Some(dir.path().join("replay.sqlite"))),
+    let instruments_only = instruments_only_config(&cfg, &dir.path().join("instruments-only"));
+    for (label, config, db) in [
+        ("instruments only, in-memory", &instruments_only, None),
+        ("full example site, in-memory", &cfg, None),
+        (
+            "full example site, SQLite file",
+            &cfg,
+            Some(dir.path().join("replay.sqlite")),
+        ),
     ] {
         let mut cmd = Command::new(seepd_bin());
         cmd.args(["replay", "--config"])
-            .arg(&cfg)
+            .arg(config)
             .arg("--input")
             .arg(&input)
             .args(["--output", "/dev/null"]);
@@ -128,4 +139,35 @@ fn main() {
             rn as f64 / s
         );
     }
+}
+
+/// A copy of the configuration with only the service file and the sites' instruments: every
+/// table after the instruments (objects, rules, models, reports) is cut.
+fn instruments_only_config(cfg: &std::path::Path, out: &std::path::Path) -> std::path::PathBuf {
+    std::fs::create_dir_all(out).unwrap();
+    for e in std::fs::read_dir(cfg).unwrap() {
+        let p = e.unwrap().path();
+        if p.extension().is_none_or(|x| x != "toml") {
+            continue;
+        }
+        let text = std::fs::read_to_string(&p).unwrap();
+        let mut kept = String::new();
+        let mut keep = true;
+        for line in text.lines() {
+            let t = line.trim();
+            if t.starts_with('[') {
+                let name = t.trim_matches(|c| c == '[' || c == ']');
+                keep = p.file_name().is_some_and(|n| n == "seepd.toml")
+                    || name == "site"
+                    || name == "instrument"
+                    || name.starts_with("instrument.");
+            }
+            if keep {
+                kept.push_str(line);
+                kept.push('\n');
+            }
+        }
+        std::fs::write(out.join(p.file_name().unwrap()), kept).unwrap();
+    }
+    out.to_path_buf()
 }
