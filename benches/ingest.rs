@@ -12,6 +12,9 @@ use std::time::{Duration, Instant};
 
 use common::*;
 
+/// Builds a message for a time (s).
+type Payload = Box<dyn Fn(i64) -> String>;
+
 fn main() {
     let n: i64 = std::env::var("SEEPD_BENCH_N")
         .ok()
@@ -23,71 +26,80 @@ fn main() {
     let topic = "demo/AB-LOG1/json";
     let t0 = chrono::Utc::now().timestamp() - 30 * 86_400;
 
-    // 1. mosquitto_sub draining a queued QoS 1 stream from its persistent session.
-    let sub_id = "bench-sub";
-    let status = Command::new("mosquitto_sub")
-        .args([
-            "-p",
-            &broker.port.to_string(),
-            "-q",
-            "1",
-            "-c",
-            "-i",
-            sub_id,
-            "-t",
-            "demo/+/json",
-            "-E",
-        ])
-        .status()
-        .expect("mosquitto_sub (package mosquitto-clients)");
-    assert!(status.success());
-    // 2. Create seepd's persistent session, then stop it so the stream queues for it too.
+    // Live ingest, two streams of one-reading messages:
+    // - a standpipe that feeds no derived object (reduction, health check, rates, completeness);
+    // - the river gauge, which also feeds the blanket-theory reach (14 derived values per
+    //   reading) and an alert rule: the most expensive instrument of the example site.
     let log = dir.path().join("seepd.log");
     let mut d = Daemon::start(&cfg, &log);
     d.wait_connected(1);
     d.terminate();
-
     let p = Publisher::connect(broker.port, "bench-pub");
-    for i in 0..n {
-        p.send(topic, river_json(t0 + i, 3.0));
+    let rounds: [(&str, &str, Payload); 2] = [
+        (
+            "standpipe AB-SP-3 (no derived objects)",
+            "AB-SP-3",
+            Box::new(|t| format!(r#"{{"time": {t}, "channel": "5", "value": 4.0}}"#)),
+        ),
+        (
+            "river gauge AB-RIVER (blanket model + rule)",
+            "AB-RIVER",
+            Box::new(|t| river_json(t, 3.0)),
+        ),
+    ];
+    for (k, (label, instrument, payload)) in rounds.iter().enumerate() {
+        // mosquitto_sub draining the same queued QoS 1 stream from its persistent session.
+        let sub_id = format!("bench-sub-{k}");
+        let sub = |count: Option<i64>| {
+            let mut c = Command::new("mosquitto_sub");
+            c.args([
+                "-p",
+                &broker.port.to_string(),
+                "-q",
+                "1",
+                "-c",
+                "-i",
+                &sub_id,
+            ])
+            .args(["-t", "demo/+/json"])
+            .stdout(Stdio::null());
+            match count {
+                Some(n) => c.args(["-C", &n.to_string()]),
+                None => c.arg("-E"),
+            };
+            assert!(c
+                .status()
+                .expect("mosquitto_sub (package mosquitto-clients)")
+                .success());
+        };
+        sub(None);
+        let base = p.acked();
+        for i in 0..n {
+            p.send(topic, payload(t0 + i));
+        }
+        p.wait_acked(base + n as usize, Duration::from_secs(600));
+
+        let started = Instant::now();
+        sub(Some(n));
+        let sub_s = started.elapsed().as_secs_f64();
+
+        let started = Instant::now();
+        let mut d2 = Daemon::start(&cfg, &log);
+        let filter = format!("instrument = '{instrument}'");
+        wait_for(Duration::from_secs(600), || {
+            (count(dir.path(), "readings", &filter) >= n).then_some(())
+        })
+        .expect("seepd did not store the stream");
+        let seepd_s = started.elapsed().as_secs_f64();
+        d2.terminate();
+
+        let sub_rate = n as f64 / sub_s;
+        let seepd_rate = n as f64 / seepd_s;
+        println!("live ingest, {n} queued QoS 1 messages, {label}:");
+        println!("  mosquitto_sub -q 1 drain : {sub_rate:>10.0} msg/s ({sub_s:.2} s)");
+        println!("  seepd stored + acked     : {seepd_rate:>10.0} readings/s ({seepd_s:.2} s, incl. start-up)");
+        println!("  ratio                    : {:.2}", seepd_rate / sub_rate);
     }
-    p.wait_acked(n as usize, Duration::from_secs(600));
-
-    let started = Instant::now();
-    let out = Command::new("mosquitto_sub")
-        .args([
-            "-p",
-            &broker.port.to_string(),
-            "-q",
-            "1",
-            "-c",
-            "-i",
-            sub_id,
-            "-t",
-            "demo/+/json",
-        ])
-        .args(["-C", &n.to_string()])
-        .stdout(Stdio::null())
-        .status()
-        .unwrap();
-    assert!(out.success());
-    let sub_s = started.elapsed().as_secs_f64();
-
-    let started = Instant::now();
-    let d2 = Daemon::start(&cfg, &log);
-    wait_for(Duration::from_secs(600), || {
-        (count(dir.path(), "readings", "1") >= n).then_some(())
-    })
-    .expect("seepd did not store the stream");
-    let seepd_s = started.elapsed().as_secs_f64();
-    drop(d2);
-
-    let sub_rate = n as f64 / sub_s;
-    let seepd_rate = n as f64 / seepd_s;
-    println!("live ingest, {n} queued QoS 1 messages (one reading each):");
-    println!("  mosquitto_sub -q 1 drain : {sub_rate:>10.0} msg/s ({sub_s:.2} s)");
-    println!("  seepd stored + acked     : {seepd_rate:>10.0} readings/s ({seepd_s:.2} s, incl. start-up)");
-    println!("  ratio                    : {:.2}", seepd_rate / sub_rate);
 
     // 3. Replay throughput: five instruments and the barometer their sealed gauges need, one
     //    reading a minute each; on the instruments alone (reduction, health checks, rates and
