@@ -20,4 +20,14 @@ if [ ${#need[@]} -gt 0 ]; then
 fi
 
 # Library, binary and integration tests (benches are run with `cargo bench`, not here).
-cargo test "$@"
+log=$(mktemp)
+trap 'rm -f "$log"' EXIT
+set +e
+cargo test "$@" 2>&1 | tee "$log"
+status=${PIPESTATUS[0]}
+set -e
+# One closing line with the totals of every test binary.
+passed=$(awk '/^test result:/ {s += $4} END {print s + 0}' "$log")
+failed=$(awk '/^test result:/ {s += $6} END {print s + 0}' "$log")
+echo "tests: $passed passed, $failed failed"
+exit "$status"
