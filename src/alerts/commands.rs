@@ -12,7 +12,12 @@ use crate::domain::rules::{Phase, State};
 use crate::store::outbox::AckOutcome;
 use crate::store::Store;
 
-use super::render::{num, time};
+use super::render::num;
+
+/// Operator listings show UTC (they span sites).
+fn time(t_ms: i64) -> String {
+    super::render::time(t_ms, chrono_tz::UTC)
+}
 
 fn open(cfg: &Config) -> anyhow::Result<Store> {
     Store::open(&cfg.service.database)

@@ -462,6 +462,13 @@ impl Evaluator {
             .iter()
             .find(|s| s.id == site)
             .map_or(site, |s| s.name.as_str());
+        let tz: chrono_tz::Tz = self
+            .cfg
+            .sites
+            .iter()
+            .find(|s| s.id == site)
+            .and_then(|s| s.time_zone.parse().ok())
+            .unwrap_or(chrono_tz::UTC);
         let empty = VecDeque::new();
         let recent: Vec<Vec<(i64, f64)>> = group
             .iter()
@@ -496,6 +503,7 @@ impl Evaluator {
                     unit: &n.unit,
                     t_ms: n.t_ms,
                     recent,
+                    tz,
                 })
             })
             .collect();

@@ -4,6 +4,7 @@
 //! Every message carries the value against its bound, the direction, the recent rate and the
 //! last readings, the response text, a status-page link, how to acknowledge, and the caution.
 
+use chrono_tz::Tz;
 use std::fmt::Write as _;
 
 use chrono::{TimeZone, Utc};
@@ -35,6 +36,8 @@ pub struct Item<'a> {
     pub t_ms: i64,
     /// Last values (time, value), oldest first.
     pub recent: &'a [(i64, f64)],
+    /// The site's time zone: times are shown in it (and in UTC).
+    pub tz: Tz,
 }
 
 /// A number without needless digits.
@@ -48,11 +51,21 @@ pub fn num(v: f64) -> String {
     }
 }
 
-/// RFC 3339-like UTC time to the minute.
-pub fn time(t_ms: i64) -> String {
+/// A time to the minute in the site's time zone, with UTC beside it unless the zone is UTC.
+pub fn time(t_ms: i64, tz: Tz) -> String {
     Utc.timestamp_millis_opt(t_ms).single().map_or_else(
         || t_ms.to_string(),
-        |t| t.format("%Y-%m-%d %H:%M UTC").to_string(),
+        |t| {
+            if tz == chrono_tz::UTC {
+                t.format("%Y-%m-%d %H:%M UTC").to_string()
+            } else {
+                format!(
+                    "{} ({} UTC)",
+                    t.with_timezone(&tz).format("%Y-%m-%d %H:%M %Z"),
+                    t.format("%H:%M")
+                )
+            }
+        },
     )
 }
 
@@ -114,7 +127,7 @@ impl Item<'_> {
         format!(
             "{} at {} — bound: {} {} ({} level); the level clears {} (deadband {})",
             with_unit(v, self.unit),
-            time(self.t_ms),
+            time(self.t_ms, self.tz),
             l.direction.name(),
             with_unit(l.bound, self.unit),
             l.name,
@@ -137,8 +150,8 @@ impl Item<'_> {
                     "{}{unit} per hour over the last {} values ({} to {})",
                     num(per_h),
                     self.recent.len(),
-                    time(t0),
-                    time(t1)
+                    time(t0, self.tz),
+                    time(t1, self.tz)
                 )
             }
             _ => "not enough values for a rate".into(),
@@ -179,7 +192,7 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
             let _ = writeln!(text, "Recent rate: {}", it.rate());
             let _ = writeln!(text, "Last values:");
             for &(t, v) in it.recent.iter().rev() {
-                let _ = writeln!(text, "  {}  {}", time(t), with_unit(v, it.unit));
+                let _ = writeln!(text, "  {}  {}", time(t, it.tz), with_unit(v, it.unit));
             }
         }
         let _ = writeln!(text, "Response:    {}", it.level.response);
@@ -227,7 +240,7 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
                 let _ = write!(
                     html,
                     "<tr><td>{}</td><td>{}</td></tr>",
-                    escape(&time(t)),
+                    escape(&time(t, it.tz)),
                     escape(&with_unit(v, it.unit))
                 );
             }
@@ -250,4 +263,23 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
         escape(CAUTION)
     );
     (subject, text, html)
+}
+
+#[cfg(test)]
+mod time_tests {
+    use super::*;
+
+    #[test]
+    fn times_are_shown_in_the_site_zone_with_utc_beside() {
+        // 2026-01-15 12:00 UTC is 06:00 in Chicago (CST, UTC−6) [definition of the zone].
+        let t = Utc
+            .with_ymd_and_hms(2026, 1, 15, 12, 0, 0)
+            .unwrap()
+            .timestamp_millis();
+        assert_eq!(time(t, chrono_tz::UTC), "2026-01-15 12:00 UTC");
+        assert_eq!(
+            time(t, chrono_tz::America::Chicago),
+            "2026-01-15 06:00 CST (12:00 UTC)"
+        );
+    }
 }
