@@ -5,6 +5,7 @@
 //! `replay`; `ingest`, `store` and `demo` are adapters; `cli` parses arguments.
 
 pub mod alerts;
+pub mod background;
 pub mod cli;
 pub mod config;
 #[cfg(feature = "demo-broker")]

@@ -89,14 +89,7 @@ pub fn replay_subscription(format: PayloadFormat) -> Subscription {
         qos: 1,
         format,
         epoch_unit: EpochUnit::Auto,
-        json: JsonFields {
-            time: "time".into(),
-            instrument: "instrument".into(),
-            channel: "channel".into(),
-            value: "value".into(),
-            temperature: "temperature".into(),
-            readings: "readings".into(),
-        },
+        json: JsonFields::default(),
     }
 }
 

@@ -540,6 +540,9 @@ mod tests;
 mod check_tests;
 
 #[cfg(test)]
+mod test_dir;
+
+#[cfg(test)]
 mod object_tests;
 
 #[cfg(test)]

@@ -158,6 +158,20 @@ pub struct JsonFields {
     pub readings: String,
 }
 
+impl Default for JsonFields {
+    /// The field names documented in `config/seepd.toml`.
+    fn default() -> Self {
+        JsonFields {
+            time: "time".into(),
+            instrument: "instrument".into(),
+            channel: "channel".into(),
+            value: "value".into(),
+            temperature: "temperature".into(),
+            readings: "readings".into(),
+        }
+    }
+}
+
 /// One subscription: a topic pattern with named placeholders, a payload format and a mapping.
 #[derive(Debug, Clone)]
 pub struct Subscription {

@@ -399,14 +399,7 @@ fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
             ],
         )
         .unwrap_or(EpochUnit::Auto);
-    let mut json = JsonFields {
-        time: "time".into(),
-        instrument: "instrument".into(),
-        channel: "channel".into(),
-        value: "value".into(),
-        temperature: "temperature".into(),
-        readings: "readings".into(),
-    };
+    let mut json = JsonFields::default();
     if let Some(j) = t.sub(cx, "json", "[subscription.json]") {
         let names = [
             "time",

@@ -77,14 +77,7 @@ pub(crate) mod test_support {
             qos: 1,
             format,
             epoch_unit,
-            json: JsonFields {
-                time: "time".into(),
-                instrument: "instrument".into(),
-                channel: "channel".into(),
-                value: "value".into(),
-                temperature: "temperature".into(),
-                readings: "readings".into(),
-            },
+            json: JsonFields::default(),
         }
     }
 }

@@ -10,13 +10,12 @@
 pub mod smtp;
 
 use std::path::Path;
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{Receiver, RecvTimeoutError};
-use std::sync::Arc;
 use std::time::Duration;
 
 use chrono::Utc;
 
+pub use crate::background::Waker;
+use crate::background::{Background, Signals};
 use crate::config::Smtp;
 use crate::store::Store;
 
@@ -83,7 +82,7 @@ pub fn deliver_due(
 
 /// Run the worker until `stop` is set: deliver, then wait for a wake-up, the next due time or
 /// the poll interval.
-pub fn run(db: &Path, smtp: &Smtp, wake: &Receiver<()>, stop: &AtomicBool) {
+pub fn run(db: &Path, smtp: &Smtp, signals: &Signals) {
     let mailer = match Mailer::new(smtp) {
         Ok(m) => m,
         Err(e) => {
@@ -96,13 +95,13 @@ pub fn run(db: &Path, smtp: &Smtp, wake: &Receiver<()>, stop: &AtomicBool) {
             Ok(s) => break s,
             Err(e) => {
                 tracing::error!(error = %e, "Mail worker cannot open the database; retrying");
-                if wait(wake, stop, Duration::from_secs(5)) {
+                if signals.wait(Duration::from_secs(5)) {
                     return;
                 }
             }
         }
     };
-    while !stop.load(Ordering::SeqCst) {
+    while !signals.stopping() {
         if let Err(e) = deliver_due(&store, &mailer, smtp) {
             tracing::error!(error = %e, "Mail worker database error");
         }
@@ -110,27 +109,14 @@ pub fn run(db: &Path, smtp: &Smtp, wake: &Receiver<()>, stop: &AtomicBool) {
         let next = store.next_due_ms().ok().flatten().map_or(POLL, |t| {
             Duration::from_millis((t - now_ms).clamp(0, POLL.as_millis() as i64) as u64)
         });
-        if wait(wake, stop, next) {
+        if signals.wait(next) {
             return;
         }
     }
 }
 
-/// Wait for a wake-up or `d`; true when the worker must stop.
-fn wait(wake: &Receiver<()>, stop: &AtomicBool, d: Duration) -> bool {
-    match wake.recv_timeout(d) {
-        Ok(()) | Err(RecvTimeoutError::Timeout) => {}
-        Err(RecvTimeoutError::Disconnected) => return true,
-    }
-    stop.load(Ordering::SeqCst)
-}
-
-/// A running worker: wake it after committing messages; stop it at shutdown.
-pub struct Worker {
-    wake: std::sync::mpsc::SyncSender<()>,
-    stop: Arc<AtomicBool>,
-    thread: Option<std::thread::JoinHandle<()>>,
-}
+/// The running mail worker: wake it after committing messages; stop it at shutdown.
+pub struct Worker(Background);
 
 impl Worker {
     /// Start the worker thread on the database at `db`.
@@ -138,48 +124,18 @@ impl Worker {
     /// # Errors
     /// The thread cannot be spawned.
     pub fn spawn(db: &Path, smtp: Smtp) -> std::io::Result<Worker> {
-        let (wake, rx) = std::sync::mpsc::sync_channel(1);
-        let stop = Arc::new(AtomicBool::new(false));
         let db = db.to_path_buf();
-        let s = Arc::clone(&stop);
-        let thread = std::thread::Builder::new()
-            .name("seepd-mail".into())
-            .spawn(move || run(&db, &smtp, &rx, &s))?;
-        Ok(Worker {
-            wake,
-            stop,
-            thread: Some(thread),
-        })
+        Background::spawn("seepd-mail", move |signals| run(&db, &smtp, signals)).map(Worker)
     }
 
     /// A handle for waking the worker from another thread.
     pub fn waker(&self) -> Waker {
-        Waker(self.wake.clone())
+        self.0.waker()
     }
 
     /// Ask the worker to stop and wait up to `deadline` for it (a send in progress is bounded by
     /// the SMTP timeout; an interrupted send is retried at the next start).
-    pub fn stop(mut self, deadline: Duration) {
-        self.stop.store(true, Ordering::SeqCst);
-        let _ = self.wake.try_send(());
-        if let Some(t) = self.thread.take() {
-            let end = std::time::Instant::now() + deadline;
-            while !t.is_finished() && std::time::Instant::now() < end {
-                std::thread::sleep(Duration::from_millis(20));
-            }
-            if t.is_finished() {
-                let _ = t.join();
-            }
-        }
-    }
-}
-
-/// Wakes the mail worker (coalescing: one pending wake-up is enough).
-#[derive(Clone)]
-pub struct Waker(std::sync::mpsc::SyncSender<()>);
-
-impl Waker {
-    pub fn wake(&self) {
-        let _ = self.0.try_send(());
+    pub fn stop(self, deadline: Duration) {
+        self.0.stop(deadline);
     }
 }

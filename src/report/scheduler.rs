@@ -9,8 +9,6 @@
 //! worker's job.
 
 use std::collections::BTreeSet;
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{Receiver, RecvTimeoutError, SyncSender};
 use std::sync::Arc;
 use std::time::Duration;
 
@@ -19,9 +17,9 @@ use chrono_tz::Tz;
 
 use super::html::local;
 use super::schedule::{last_due, next_due, period};
+use crate::background::{Background, Signals, Waker};
 use crate::config::{Config, ReportSchedule};
 use crate::domain::section_svg::xml_escape as esc;
-use crate::notify::Waker;
 use crate::store::{Attachment, ReportMessage, Store};
 
 /// The scheduler looks again at least this often (clock changes, failed attempts).
@@ -172,20 +170,20 @@ pub fn next_wake(cfg: &Config, now: DateTime<Utc>) -> Option<DateTime<Utc>> {
         .min()
 }
 
-fn run(cfg: &Config, mail: Option<&Waker>, wake: &Receiver<()>, stop: &AtomicBool) {
+fn run(cfg: &Config, mail: Option<&Waker>, signals: &Signals) {
     let mut store = loop {
         match Store::open(&cfg.service.database) {
             Ok(s) => break s,
             Err(e) => {
                 tracing::error!(error = %e, "Report scheduler cannot open the database; retrying");
-                if wait(wake, stop, Duration::from_secs(5)) {
+                if signals.wait(Duration::from_secs(5)) {
                     return;
                 }
             }
         }
     };
     let mut first = true;
-    while !stop.load(Ordering::SeqCst) {
+    while !signals.stopping() {
         let now = Utc::now();
         if !pass(cfg, &mut store, now).is_empty() {
             if let Some(w) = mail {
@@ -199,27 +197,14 @@ fn run(cfg: &Config, mail: Option<&Waker>, wake: &Receiver<()>, stop: &AtomicBoo
         let d = next_wake(cfg, now)
             .and_then(|t| (t - Utc::now()).to_std().ok())
             .map_or(POLL, |d| d.min(POLL));
-        if wait(wake, stop, d) {
+        if signals.wait(d) {
             return;
         }
     }
 }
 
-/// Wait for a wake-up or `d`; true when the scheduler must stop.
-fn wait(wake: &Receiver<()>, stop: &AtomicBool, d: Duration) -> bool {
-    match wake.recv_timeout(d) {
-        Ok(()) | Err(RecvTimeoutError::Timeout) => {}
-        Err(RecvTimeoutError::Disconnected) => return true,
-    }
-    stop.load(Ordering::SeqCst)
-}
-
 /// The running scheduler thread.
-pub struct Scheduler {
-    wake: SyncSender<()>,
-    stop: Arc<AtomicBool>,
-    thread: Option<std::thread::JoinHandle<()>>,
-}
+pub struct Scheduler(Background);
 
 impl Scheduler {
     /// Start the scheduler; `mail` wakes the mail worker after a report is queued.
@@ -227,32 +212,15 @@ impl Scheduler {
     /// # Errors
     /// The thread cannot be spawned.
     pub fn spawn(cfg: Arc<Config>, mail: Option<Waker>) -> std::io::Result<Scheduler> {
-        let (wake, rx) = std::sync::mpsc::sync_channel(1);
-        let stop = Arc::new(AtomicBool::new(false));
-        let s = Arc::clone(&stop);
-        let thread = std::thread::Builder::new()
-            .name("seepd-reports".into())
-            .spawn(move || run(&cfg, mail.as_ref(), &rx, &s))?;
-        Ok(Scheduler {
-            wake,
-            stop,
-            thread: Some(thread),
+        Background::spawn("seepd-reports", move |signals| {
+            run(&cfg, mail.as_ref(), signals)
         })
+        .map(Scheduler)
     }
 
     /// Ask the scheduler to stop and wait up to `deadline` (a report being rendered is not
     /// queued if it is abandoned; it is generated again at the next start).
-    pub fn stop(mut self, deadline: Duration) {
-        self.stop.store(true, Ordering::SeqCst);
-        let _ = self.wake.try_send(());
-        if let Some(t) = self.thread.take() {
-            let end = std::time::Instant::now() + deadline;
-            while !t.is_finished() && std::time::Instant::now() < end {
-                std::thread::sleep(Duration::from_millis(20));
-            }
-            if t.is_finished() {
-                let _ = t.join();
-            }
-        }
+    pub fn stop(self, deadline: Duration) {
+        self.0.stop(deadline);
     }
 }
