@@ -59,15 +59,15 @@ pub enum Command {
     },
     /// List active, pending and silenced alerts and undeliverable messages.
     Alerts {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        on: Operator,
     },
     /// Acknowledge an alert: no more reminders or escalation for it.
     Ack {
         /// The alert number (see `seepd alerts`).
         alert: i64,
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        on: Operator,
         /// Who acknowledges (default: $USER).
         #[arg(long, value_name = "NAME")]
         by: Option<String>,
@@ -76,8 +76,8 @@ pub enum Command {
     },
     /// Silence the messages of a rule or of an instrument until a time (mandatory).
     Silence {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        on: Operator,
         #[arg(
             long,
             value_name = "ID",
@@ -135,8 +135,8 @@ pub enum Command {
     },
     /// Show what the database holds: readings, quarantine counts, export backlog and lag.
     Status {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        on: Operator,
     },
     /// Send the stored readings and derived values of a time range to the export server.
     Export {
@@ -169,6 +169,18 @@ pub enum Command {
         #[arg(long)]
         days: Option<u32>,
     },
+}
+
+/// Where an operator command finds the database: the configuration directory (whose other
+/// problems are only warned about) and/or the database file itself.
+#[derive(clap::Args, Debug)]
+pub struct Operator {
+    /// The configuration directory (its database; names and checks when it loads).
+    #[arg(long, value_name = "DIR", required_unless_present = "db")]
+    config: Option<PathBuf>,
+    /// The database (default: the one the configuration names).
+    #[arg(long, value_name = "FILE")]
+    db: Option<PathBuf>,
 }
 
 /// Replay input formats.
@@ -205,6 +217,47 @@ fn load(dir: &std::path::Path) -> Result<Config, i32> {
         );
         EXIT_CONFIG
     })
+}
+
+/// The database and (if it loads) the configuration of an operator command. A configuration
+/// with problems does not stop it: the problems are printed as a warning and the database is
+/// taken from `[service] database` (or `--db`). Exit 78 only when no database can be found;
+/// exit 1 when the database file does not exist (a new empty one would report "no alerts").
+fn operator(on: &Operator) -> Result<(PathBuf, Option<Config>), i32> {
+    let cfg = match &on.config {
+        None => None,
+        Some(dir) => match config::load_dir(dir) {
+            Ok(cfg) => Some(cfg),
+            Err(problems) => {
+                eprintln!("{problems}");
+                eprintln!(
+                    "seepd: warning: {} configuration problem(s) (see `seepd check`); going on \
+                     with the database only",
+                    problems.0.len()
+                );
+                None
+            }
+        },
+    };
+    let db = match (&on.db, &cfg, &on.config) {
+        (Some(db), ..) => db.clone(),
+        (None, Some(cfg), _) => cfg.service.database.clone(),
+        (None, None, Some(dir)) => config::database_path(dir).map_err(|problems| {
+            eprintln!("{problems}");
+            eprintln!("seepd: cannot find the database in the configuration; pass --db FILE");
+            EXIT_CONFIG
+        })?,
+        (None, None, None) => return Err(2),
+    };
+    if !db.is_file() {
+        eprintln!(
+            "seepd: error: there is no database at {} (has `seepd run` started with this \
+             configuration?)",
+            db.display()
+        );
+        return Err(1);
+    }
+    Ok((db, cfg))
 }
 
 /// A time from the command line: RFC 3339, or a date (midnight UTC).
@@ -257,12 +310,15 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             rt.block_on(crate::service::run(cfg, counters, crate::service::signal()))?;
             Ok(0)
         }
-        Command::Status { config } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
+        Command::Status { on } => {
+            let (db, cfg) = match operator(&on) {
+                Ok(found) => found,
                 Err(code) => return Ok(code),
             };
-            print!("{}", crate::status::report(&cfg, chrono::Utc::now())?);
+            print!(
+                "{}",
+                crate::status::report_db(&db, cfg.as_ref(), chrono::Utc::now())?
+            );
             Ok(0)
         }
         Command::Export { config, from, to } => {
@@ -362,48 +418,52 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             }
             Ok(0)
         }
-        Command::Alerts { config } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
+        Command::Alerts { on } => {
+            let (db, cfg) = match operator(&on) {
+                Ok(found) => found,
                 Err(code) => return Ok(code),
             };
-            print!("{}", alerts::commands::report(&cfg, chrono::Utc::now())?);
+            print!(
+                "{}",
+                alerts::commands::report(&db, cfg.as_ref(), chrono::Utc::now())?
+            );
             Ok(0)
         }
         Command::Ack {
             alert,
-            config,
+            on,
             by,
             note,
         } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
+            let (db, _) = match operator(&on) {
+                Ok(found) => found,
                 Err(code) => return Ok(code),
             };
             let by = by.unwrap_or_else(who);
             print!(
                 "{}",
-                alerts::commands::ack(&cfg, alert, &by, note.as_deref(), chrono::Utc::now())?
+                alerts::commands::ack(&db, alert, &by, note.as_deref(), chrono::Utc::now())?
             );
             Ok(0)
         }
         Command::Silence {
-            config,
+            on,
             rule,
             instrument,
             until,
             reason,
             by,
         } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
+            let (db, cfg) = match operator(&on) {
+                Ok(found) => found,
                 Err(code) => return Ok(code),
             };
             let by = by.unwrap_or_else(who);
             print!(
                 "{}",
                 alerts::commands::silence(
-                    &cfg,
+                    &db,
+                    cfg.as_ref(),
                     rule.as_deref(),
                     instrument.as_deref(),
                     &until,

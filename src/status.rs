@@ -5,6 +5,7 @@
 //! a running service (WAL).
 
 use std::fmt::Write as _;
+use std::path::Path;
 
 use chrono::{DateTime, Utc};
 use rusqlite::OptionalExtension;
@@ -24,10 +25,22 @@ fn time(ms: i64) -> String {
 /// # Errors
 /// SQLite errors (including a database from a newer seepd).
 pub fn report(cfg: &Config, now: DateTime<Utc>) -> Result<String, StoreError> {
-    let store = Store::open(&cfg.service.database)?;
+    report_db(&cfg.service.database, Some(cfg), now)
+}
+
+/// The status report of the database `db`; `cfg` (when it loads) describes the export target.
+///
+/// # Errors
+/// SQLite errors (including a database from a newer seepd).
+pub fn report_db(
+    db: &Path,
+    cfg: Option<&Config>,
+    now: DateTime<Utc>,
+) -> Result<String, StoreError> {
+    let store = Store::open(db)?;
     let conn = store.conn();
     let mut s = String::new();
-    let _ = writeln!(s, "Database: {}", cfg.service.database.display());
+    let _ = writeln!(s, "Database: {}", db.display());
     let readings = store.count_readings()?;
     // The latest time per instrument uses the primary key; the overall latest is their max.
     let latest: Option<(String, i64)> = conn
@@ -58,10 +71,11 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> Result<String, StoreError> {
         let _ = writeln!(s, "  {reason}: {n}");
     }
     let b = export::backlog(conn)?;
-    let state = match &cfg.export {
-        None => "not configured".to_string(),
-        Some(e) if !e.enabled => format!("disabled ({})", e.url),
-        Some(e) => format!("to {} bucket {:?}", e.url, e.bucket),
+    let state = match cfg.map(|c| &c.export) {
+        None => "(configuration not loaded)".to_string(),
+        Some(None) => "not configured".to_string(),
+        Some(Some(e)) if !e.enabled => format!("disabled ({})", e.url),
+        Some(Some(e)) => format!("to {} bucket {:?}", e.url, e.bucket),
     };
     let _ = writeln!(s, "Export: {state}");
     let lag_s = b

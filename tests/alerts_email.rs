@@ -7,12 +7,10 @@ mod common;
 
 use std::collections::BTreeSet;
 use std::path::Path;
-use std::sync::Arc;
 use std::time::Duration;
 
 use common::smtp::{header, Opts, SmtpServer, PASSWORD, USER};
 use common::*;
-use seepd::alerts::{Evaluator, Observation};
 use seepd::config::{Config, Secret, Smtp, SmtpSecurity};
 use seepd::notify::{deliver_due, Mailer};
 use seepd::store::Store;
@@ -40,22 +38,7 @@ fn config(dir: &Path, smtp_port: u16) -> Config {
 
 /// Raise the river-stage rule to its most severe level with readings; commit the messages.
 fn raise_river(cfg: Config, store: &mut Store) -> Vec<String> {
-    let mut ev = Evaluator::new(Arc::new(cfg));
-    let t0 = 1_772_366_400_000_i64;
-    let mut writes = seepd::store::AlertWrites::default();
-    for (i, head) in [96.0, 97.0, 97.9, 98.2].iter().enumerate() {
-        let t = t0 + i as i64 * 3_600_000;
-        let obs = Observation {
-            object: "AB-RIVER".into(),
-            quantity: "total_head".into(),
-            t_ms: t,
-            value: Some(*head),
-            unit: "m".into(),
-        };
-        writes.extend(ev.evaluate(&[obs], t));
-    }
-    store.write_alerts(&writes).unwrap();
-    writes
+    river_alerts(cfg, store, &[96.0, 97.0, 97.9, 98.2])
         .messages
         .iter()
         .map(|m| m.message_id.clone())

@@ -4,19 +4,8 @@
 mod common;
 
 use std::path::Path;
-use std::process::Command;
 
-fn seepd(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(common::seepd_bin())
-        .args(args)
-        .output()
-        .unwrap();
-    (
-        out.status.code().unwrap_or(-1),
-        String::from_utf8_lossy(&out.stdout).into_owned(),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
-    )
-}
+use common::seepd_output as seepd;
 
 fn example_dir() -> String {
     Path::new(env!("CARGO_MANIFEST_DIR"))
@@ -57,12 +46,13 @@ fn check_lists_every_problem_with_file_and_line_and_exits_78() {
     .unwrap();
     let (code, out, err) = seepd(&["check", "--config", &d.display().to_string()]);
     assert_eq!(code, 78, "{out}\n{err}");
-    // port out of range on line 5 of seepd.toml; unknown key on line 11 and bad unit on line 14
-    // of site-a.toml.
+    // No subscription (the service would receive nothing) and port out of range on line 5 of
+    // seepd.toml; unknown key on line 11 and bad unit on line 14 of site-a.toml.
+    assert!(err.contains("seepd.toml:1:1: seepd.toml: no [[subscription]]"), "{err}");
     assert!(err.contains("seepd.toml:5:"), "{err}");
     assert!(err.contains("site-a.toml:11:"), "{err}");
     assert!(err.contains("site-a.toml:14:"), "{err}");
-    assert!(err.contains("3 configuration problem(s)"), "{err}");
+    assert!(err.contains("4 configuration problem(s)"), "{err}");
 }
 
 #[test]

@@ -1,8 +1,11 @@
 //! The operator commands `seepd alerts`, `seepd ack` and `seepd silence`: they open the
 //! database of a (possibly running) service, do one short transaction each and print a plain
-//! report. The service applies acknowledgements and silences on its next tick (≤ 1 s).
+//! report. The service applies acknowledgements and silences on its next tick (≤ 1 s). They
+//! need only the database: the configuration, when it loads, adds names and checks, so that
+//! an operator can always see and acknowledge alerts (even with a broken configuration).
 
 use std::fmt::Write as _;
+use std::path::Path;
 
 use anyhow::{bail, Context as _};
 use chrono::{DateTime, NaiveDate, Utc};
@@ -19,17 +22,17 @@ fn time(t_ms: i64) -> String {
     super::render::time(t_ms, chrono_tz::UTC)
 }
 
-fn open(cfg: &Config) -> anyhow::Result<Store> {
-    Store::open(&cfg.service.database)
-        .with_context(|| format!("opening database {}", cfg.service.database.display()))
+fn open(db: &Path) -> anyhow::Result<Store> {
+    Store::open(db).with_context(|| format!("opening database {}", db.display()))
 }
 
-/// The `seepd alerts` report: active, pending, silenced, undeliverable, queued.
+/// The `seepd alerts` report of the database `db`: active, pending, silenced, undeliverable,
+/// queued. `cfg` (when it loads) names the levels of pending rules.
 ///
 /// # Errors
 /// Database errors.
-pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
-    let store = open(cfg)?;
+pub fn report(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow::Result<String> {
+    let store = open(db)?;
     let now_ms = now.timestamp_millis();
     let mut s = String::new();
     let open = store.open_alerts()?;
@@ -64,14 +67,18 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
         let Phase::Pending { level, since_ms } = state.phase else {
             continue;
         };
-        let Some(rule) = cfg.alerting.rules.iter().find(|r| r.id == rule_id) else {
-            continue;
+        let rule = cfg.and_then(|c| c.alerting.rules.iter().find(|r| r.id == rule_id));
+        let what = match rule {
+            Some(rule) => {
+                let name = rule.spec.levels.get(level).map_or("?", |l| l.name.as_str());
+                format!("{} {} beyond the {name} bound", rule.object, rule.quantity)
+            }
+            // Without the configuration: the level by its number, least severe first.
+            None if cfg.is_none() => format!("beyond the bound of level #{}", level + 1),
+            None => continue,
         };
-        let name = rule.spec.levels.get(level).map_or("?", |l| l.name.as_str());
         pending.push(format!(
-            "  rule {rule_id}: {} {} beyond the {name} bound since {} (persistence not met yet)",
-            rule.object,
-            rule.quantity,
+            "  rule {rule_id}: {what} since {} (persistence not met yet)",
             time(since_ms)
         ));
     }
@@ -127,18 +134,18 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
     Ok(s)
 }
 
-/// `seepd ack ALERT`.
+/// `seepd ack ALERT` on the database `db`.
 ///
 /// # Errors
 /// Database errors; an unknown or resolved alert.
 pub fn ack(
-    cfg: &Config,
+    db: &Path,
     alert: i64,
     by: &str,
     note: Option<&str>,
     now: DateTime<Utc>,
 ) -> anyhow::Result<String> {
-    let mut store = open(cfg)?;
+    let mut store = open(db)?;
     match store.acknowledge(alert, by, note, now.timestamp_millis())? {
         AckOutcome::Recorded => Ok(format!(
             "Alert {alert} acknowledged by {by}: no more reminders or escalation for it.\n"
@@ -184,12 +191,16 @@ pub fn parse_until(s: &str, now: DateTime<Utc>) -> anyhow::Result<DateTime<Utc>>
         })
 }
 
-/// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT`.
+/// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT` on the database
+/// `db`. The rule or instrument is checked against `cfg` when it loads, else against what the
+/// database knows (configured instruments, rules with a state or an alert).
 ///
 /// # Errors
 /// Database errors; an unknown rule or instrument; an expiry in the past.
+#[allow(clippy::too_many_arguments)]
 pub fn silence(
-    cfg: &Config,
+    db: &Path,
+    cfg: Option<&Config>,
     rule: Option<&str>,
     object: Option<&str>,
     until: &str,
@@ -204,19 +215,27 @@ pub fn silence(
     if reason.trim().is_empty() {
         bail!("--reason must say why");
     }
+    let store = open(db)?;
     if let Some(r) = rule {
-        if !cfg.alerting.rules.iter().any(|x| x.id == r) {
+        let known = match cfg {
+            Some(cfg) => cfg.alerting.rules.iter().any(|x| x.id == r),
+            None => store.rule_known(r)?,
+        };
+        if !known {
             bail!("there is no rule {r:?} in the configuration");
         }
     }
     if let Some(o) = object {
-        let known =
-            cfg.instruments.contains_key(o) || cfg.alerting.rules.iter().any(|x| x.object == o);
+        let known = match cfg {
+            Some(cfg) => {
+                cfg.instruments.contains_key(o) || cfg.alerting.rules.iter().any(|x| x.object == o)
+            }
+            None => store.object_known(o)?,
+        };
         if !known {
             bail!("{o:?} is not an instrument or the object of any rule");
         }
     }
-    let store = open(cfg)?;
     let id = store.add_silence(
         rule,
         object,

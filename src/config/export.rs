@@ -6,6 +6,7 @@
 
 use std::path::Path;
 
+use super::limits;
 use super::model::Export;
 use super::problem::Cx;
 use super::reader::Tbl;
@@ -107,7 +108,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
         }
     }
     let (readings, derived) = read_series(cx, t);
-    let max = i64::MAX;
+    let (max, backoff) = (limits::EXPORT_MS, limits::BACKOFF_MS);
     let e = Export {
         url: url.unwrap_or_default().trim_end_matches('/').to_string(),
         org: org.unwrap_or_default(),
@@ -119,8 +120,8 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
         readings,
         derived,
         enabled: t.boolean(cx, "enabled", true),
-        retry_min_ms: t.int_in(cx, "retry_min_ms", 1, max, 500) as u64,
-        retry_max_ms: t.int_in(cx, "retry_max_ms", 1, max, 30_000) as u64,
+        retry_min_ms: t.int_in(cx, "retry_min_ms", 1, backoff, 500) as u64,
+        retry_max_ms: t.int_in(cx, "retry_max_ms", 1, backoff, 30_000) as u64,
         timeout_ms: t.int_in(cx, "timeout_ms", 1, max, 10_000) as u64,
     };
     if e.retry_min_ms > e.retry_max_ms {

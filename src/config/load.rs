@@ -60,7 +60,8 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             ))
         }
     };
-    let mut site_paths = match site_files(dir) {
+    let mut problems = Vec::new();
+    let mut site_paths = match site_files(dir, &mut problems) {
         Ok(paths) => paths,
         Err(e) => {
             return Err(one(
@@ -70,21 +71,21 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         }
     };
     site_paths.sort();
-    let mut problems = Vec::new();
 
     let service_path = dir.join(SERVICE_FILE);
-    let service = if service_path.is_file() {
-        with_document(&service_path, &mut problems, |cx, root| {
+    let service = match not_a_file(&service_path) {
+        None => with_document(&service_path, &mut problems, |cx, root| {
             service::read(cx, root, &abs, env)
-        })
-    } else {
-        problems.push(whole_file(
-            &service_path,
-            format!(
-                "missing service file {SERVICE_FILE}; expected it in the configuration directory"
-            ),
-        ));
-        None
+        }),
+        Some(why) => {
+            problems.push(whole_file(
+                &service_path,
+                format!(
+                    "service file {SERVICE_FILE} {why}; expected it in the configuration directory"
+                ),
+            ));
+            None
+        }
     };
     let sites: Vec<(PathBuf, SiteFile)> = site_paths
         .iter()
@@ -188,18 +189,47 @@ fn one(file: &Path, message: impl Into<String>) -> Problems {
     Problems(vec![whole_file(file, message)])
 }
 
-/// Every `*.toml` regular file in `dir` except the service file (unsorted).
-fn site_files(dir: &Path) -> std::io::Result<Vec<PathBuf>> {
+/// Every `*.toml` in `dir` except the service file (unsorted). A `*.toml` that is not a
+/// readable regular file (a directory, a dangling symbolic link, a socket...) is a problem:
+/// skipping it would make a site vanish from the configuration without a word.
+fn site_files(dir: &Path, problems: &mut Vec<Problem>) -> std::io::Result<Vec<PathBuf>> {
     let mut out = Vec::new();
     for entry in std::fs::read_dir(dir)? {
         let path = entry?.path();
         let is_toml = path.extension().is_some_and(|e| e == "toml");
         let is_service = path.file_name().is_some_and(|n| n == SERVICE_FILE);
-        if is_toml && !is_service && path.is_file() {
-            out.push(path);
+        if !is_toml || is_service {
+            continue;
+        }
+        match not_a_file(&path) {
+            None => out.push(path),
+            Some(why) => problems.push(whole_file(
+                &path,
+                format!(
+                    "{why}; expected a site file (every *.toml beside seepd.toml is one): \
+                     fix it, or rename it so that it does not end in .toml"
+                ),
+            )),
         }
     }
     Ok(out)
+}
+
+/// Why `path` is not a regular file that can be read (following symbolic links), if it is not.
+fn not_a_file(path: &Path) -> Option<String> {
+    match std::fs::metadata(path) {
+        Ok(m) if m.is_file() => None,
+        Ok(m) if m.is_dir() => Some("is a directory".into()),
+        Ok(_) => Some("is not a regular file".into()),
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+            if std::fs::symlink_metadata(path).is_ok() {
+                Some("is a symbolic link to nothing (its target does not exist)".into())
+            } else {
+                Some("is missing".into())
+            }
+        }
+        Err(e) => Some(format!("cannot be read: {e}")),
+    }
 }
 
 /// Read and parse one file, then hand its root table to `read`. A file that cannot be read or
@@ -556,3 +586,6 @@ mod export_tests;
 
 #[cfg(test)]
 mod report_tests;
+
+#[cfg(test)]
+mod hardening_tests;

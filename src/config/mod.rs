@@ -5,7 +5,9 @@
 pub mod alerting;
 mod export;
 mod kinds;
+pub mod limits;
 pub mod load;
+mod locate;
 pub mod model;
 mod objects;
 mod problem;
@@ -19,5 +21,6 @@ mod trends;
 
 pub use alerting::{Alerting, Contacts, Policy, Rule, SiteAlerting, Smtp, SmtpSecurity};
 pub use load::{load_dir, summary, Problem, Problems};
+pub use locate::database_path;
 pub use model::*;
 pub use smtp::is_loopback;

@@ -12,6 +12,7 @@ mod blanket;
 mod refs;
 mod values;
 
+use super::limits;
 use super::model::{BlanketReach, Cluster, CriticalGradientFrom, Section, ToeCheck};
 use super::problem::Cx;
 use super::reader::{finite, Tbl};
@@ -114,7 +115,7 @@ fn entry(
         r.t.missing(cx, "id", "");
     }
     let id_pos = cx.pos(r.t.value_span("id"));
-    let tolerance_s = r.t.opt_int_in(cx, "tolerance_s", 1, i64::MAX, false);
+    let tolerance_s = r.t.opt_int_in(cx, "tolerance_s", 1, limits::YEAR_S, false);
     let (name, site) = (id.clone().unwrap_or_default(), site.to_string());
     let object = match table {
         "cluster" => cluster(cx, r, name, site).map(Object::Cluster),

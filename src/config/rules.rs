@@ -97,7 +97,7 @@ fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
         ],
     );
     let d = Policy::default();
-    let max = i64::MAX / 1000;
+    let max = super::limits::YEAR_S;
     Policy {
         group_wait_ms: t.int_in(cx, "group_wait_s", 0, 3600, d.group_wait_ms / 1000) * 1000,
         repeat_ms: match t.opt_int_in(cx, "repeat_interval_s", 0, max, false) {
@@ -151,8 +151,8 @@ fn read_defaults(cx: &mut Cx<'_>, t: &Tbl<'_>) -> LevelDefaults {
     LevelDefaults {
         deadband: t.number(cx, "deadband", false),
         persist_readings: t.opt_int_in(cx, "persist_readings", 1, u32::MAX.into(), false),
-        persist_s: t.opt_int_in(cx, "persist_s", 0, i64::MAX / 1000, false),
-        keep_active_s: t.opt_int_in(cx, "keep_active_s", 0, i64::MAX / 1000, false),
+        persist_s: t.opt_int_in(cx, "persist_s", 0, super::limits::YEAR_S, false),
+        keep_active_s: t.opt_int_in(cx, "keep_active_s", 0, super::limits::YEAR_S, false),
         response: t.nonempty(cx, "response"),
     }
 }
@@ -350,10 +350,10 @@ fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<Le
             .or(d.persist_readings)
             .unwrap_or(1);
         let persist_s = l
-            .opt_int_in(cx, "persist_s", 0, i64::MAX / 1000, false)
+            .opt_int_in(cx, "persist_s", 0, super::limits::YEAR_S, false)
             .or(d.persist_s);
         let keep_s = l
-            .opt_int_in(cx, "keep_active_s", 0, i64::MAX / 1000, false)
+            .opt_int_in(cx, "keep_active_s", 0, super::limits::YEAR_S, false)
             .or(d.keep_active_s);
         let response = l.nonempty(cx, "response").or_else(|| d.response.clone());
         if response.is_none() {

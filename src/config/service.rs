@@ -6,6 +6,7 @@
 
 use std::path::{Path, PathBuf};
 
+use super::limits;
 use super::model::{
     EpochUnit, Export, JsonFields, Mqtt, PayloadFormat, Secret, Service, Subscription, Tls,
 };
@@ -80,6 +81,12 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
             subscriptions.push(s);
         }
     }
+    if !root.has("subscription") {
+        root.problem(
+            cx,
+            "no [[subscription]] table; expected at least one (without one seepd receives nothing)",
+        );
+    }
     let smtp = root.sub(cx, "smtp", "[smtp]").and_then(|mut t| {
         t.what = "[smtp]".into();
         super::smtp::read(cx, &t, dir, env)
@@ -139,15 +146,16 @@ fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
     let database = t
         .nonempty(cx, "database")
         .map_or(d.database, |p| resolve(dir, &p));
-    let max = i64::MAX;
     let s = Service {
         database,
-        commit_max_readings: t.int_in(cx, "commit_max_readings", 1, max, 500) as usize,
-        commit_max_ms: t.int_in(cx, "commit_max_ms", 0, max, 50) as u64,
-        max_payload_bytes: t.int_in(cx, "max_payload_bytes", 1, max, 65536) as usize,
-        max_future_s: t.int_in(cx, "max_future_s", 0, max, 600),
-        barometer_max_age_s: t.int_in(cx, "barometer_max_age_s", 0, max, 7200),
-        shutdown_deadline_s: t.int_in(cx, "shutdown_deadline_s", 1, max, 10) as u64,
+        commit_max_readings: t.int_in(cx, "commit_max_readings", 1, limits::COMMIT_READINGS, 500)
+            as usize,
+        commit_max_ms: t.int_in(cx, "commit_max_ms", 0, limits::COMMIT_MS, 50) as u64,
+        max_payload_bytes: t.int_in(cx, "max_payload_bytes", 1, limits::MQTT_PACKET_BYTES, 65536)
+            as usize,
+        max_future_s: t.int_in(cx, "max_future_s", 0, limits::FUTURE_S, 600),
+        barometer_max_age_s: t.int_in(cx, "barometer_max_age_s", 0, limits::BAROMETER_AGE_S, 7200),
+        shutdown_deadline_s: t.int_in(cx, "shutdown_deadline_s", 1, limits::SHUTDOWN_S, 10) as u64,
     };
     (cx.problems.len() == before).then_some(s)
 }
@@ -172,7 +180,7 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
     );
     let d = default_mqtt();
     let before = cx.problems.len();
-    let max = i64::MAX;
+    let backoff = limits::BACKOFF_MS;
     let username = t.nonempty(cx, "username");
     let password = read_password(cx, t, dir, env, "MQTT");
     if password.is_some() && username.is_none() {
@@ -194,9 +202,15 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
         tls,
         persistent_session: t.boolean(cx, "persistent_session", true),
         keep_alive_s: t.int_in(cx, "keep_alive_s", 0, 65535, 30) as u64,
-        max_packet_bytes: t.int_in(cx, "max_packet_bytes", 1, max, 1_048_576) as usize,
-        reconnect_min_ms: t.int_in(cx, "reconnect_min_ms", 0, max, 500) as u64,
-        reconnect_max_ms: t.int_in(cx, "reconnect_max_ms", 0, max, 30_000) as u64,
+        max_packet_bytes: t.int_in(
+            cx,
+            "max_packet_bytes",
+            1,
+            limits::MQTT_PACKET_BYTES,
+            1_048_576,
+        ) as usize,
+        reconnect_min_ms: t.int_in(cx, "reconnect_min_ms", 0, backoff, 500) as u64,
+        reconnect_max_ms: t.int_in(cx, "reconnect_max_ms", 0, backoff, 30_000) as u64,
     };
     if m.reconnect_min_ms > m.reconnect_max_ms {
         t.problem_at(

@@ -12,6 +12,7 @@ use chrono::{DateTime, NaiveDate, Utc};
 use crate::domain::units::GAMMA_W_62_4_PCF_KN_M3;
 
 use super::kinds::{self, KINDS, LENGTH_UNITS, M_PER_FT};
+use super::limits;
 use super::model::{DisplayUnits, Instrument, LengthUnit, Location, Site};
 use super::objects::{self, ObjEntry};
 use super::problem::Cx;
@@ -275,7 +276,7 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
         }
         parsed
     });
-    let interval_s = t.opt_int_in(cx, "interval_s", 1, i64::MAX, true);
+    let interval_s = t.opt_int_in(cx, "interval_s", 1, limits::YEAR_S, true);
     let raw_range = t.pair(cx, "range", true);
     let logger = t.label(cx, "logger");
     let channel = t.label(cx, "channel");

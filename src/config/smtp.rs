@@ -8,6 +8,7 @@ use std::net::IpAddr;
 use std::path::Path;
 
 use super::alerting::{Smtp, SmtpSecurity};
+use super::limits;
 use super::problem::Cx;
 use super::reader::Tbl;
 use super::service::{read_password, resolve, Env};
@@ -110,7 +111,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
             format!("key \"from\" is {f:?}, expected an address such as seepd@example.org"),
         );
     }
-    let max = i64::MAX;
+    let max = limits::MAIL_RETRY_S;
     let timeout_s = t.int_in(cx, "timeout_s", 1, 3600, 30) as u64;
     let retry_min_s = t.int_in(cx, "retry_min_s", 1, max, 5) as u64;
     let retry_max_s = t.int_in(cx, "retry_max_s", 1, max, 600) as u64;

@@ -9,6 +9,7 @@
 
 use std::collections::BTreeMap;
 
+use super::limits;
 use super::model::{HealthSettings, HstSpec, RateSpan, ResponseSpec, SiteTrends};
 use super::objects::{reference_problem, Known, Ref, Want};
 use super::problem::Cx;
@@ -175,13 +176,23 @@ pub(crate) fn duration_s(text: &str) -> Option<i64> {
 
 /// A number > `lo` under `key`, or `default`.
 fn above(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, default: f64) -> f64 {
+    within(cx, t, key, lo, f64::MAX, default)
+}
+
+/// A number > `lo` and <= `hi` under `key`, or `default`.
+fn within(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, hi: f64, default: f64) -> f64 {
     match t.number(cx, key, false) {
-        Some(v) if v > lo => v,
+        Some(v) if v > lo && v <= hi => v,
         Some(v) => {
+            let expected = if hi == f64::MAX {
+                format!("a number > {lo}")
+            } else {
+                format!("a number > {lo} and at most {hi}")
+            };
             t.problem_at(
                 cx,
                 key,
-                format!("key \"{key}\" is {v}, expected a number > {lo}"),
+                format!("key \"{key}\" is {v}, expected {expected}"),
             );
             default
         }
@@ -206,12 +217,12 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
     let spike_floor_m = nonneg(cx, "spike_floor", d.spike_floor_m);
     let flatline_tolerance_m = nonneg(cx, "flatline_tolerance", d.flatline_tolerance_m);
     let no_data_factor = match t.number(cx, "no_data_factor", false) {
-        Some(v) if v >= 1.0 => v,
+        Some(v) if (1.0..=limits::NO_DATA_FACTOR).contains(&v) => v,
         Some(v) => {
             t.problem_at(
                 cx,
                 "no_data_factor",
-                format!("key \"no_data_factor\" is {v}, expected a number >= 1 (a multiple of the instrument's interval_s)"),
+                format!("key \"no_data_factor\" is {v}, expected a number >= 1 and at most {} (a multiple of the instrument's interval_s)", limits::NO_DATA_FACTOR),
             );
             d.no_data_factor
         }
@@ -230,6 +241,11 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
         thermistor_max_jump_c: above(cx, t, "thermistor_max_jump", 0.0, d.thermistor_max_jump_c),
         use_flagged: t.boolean(cx, "use_flagged", d.use_flagged),
     }
+}
+
+/// `refit_interval_h`: hours, more than 0 and at most a year.
+fn refit_h(cx: &mut Cx<'_>, t: &Tbl<'_>, default: f64) -> f64 {
+    within(cx, t, "refit_interval_h", 0.0, limits::YEAR_H, default)
 }
 
 /// Hours (a number, as written) to whole seconds.
@@ -266,24 +282,40 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         t.check_keys(cx, &RESPONSE_KEYS);
         let piezometer = reference(cx, "piezometer", Want::Piezometer);
         let gauge = reference(cx, "stage_gauge", Want::StageGauge);
-        let training = above(cx, &t, "training_days", 0.0, DEFAULT_TRAINING_DAYS);
+        let training = within(
+            cx,
+            &t,
+            "training_days",
+            0.0,
+            limits::TRAINING_DAYS,
+            DEFAULT_TRAINING_DAYS,
+        );
         let (lo, hi) = t
             .pair(cx, "lag_range_h", false)
             .unwrap_or(DEFAULT_LAG_RANGE_H);
-        if lo < 0.0 {
+        if lo < 0.0 || hi > limits::YEAR_H {
             t.problem_at(
                 cx,
                 "lag_range_h",
                 format!(
-                    "key \"lag_range_h\" starts at {lo}, expected [low, high] hours with low >= 0"
+                    "key \"lag_range_h\" is [{lo}, {hi}], expected [low, high] hours with low >= 0 and high at most {}",
+                    limits::YEAR_H
                 ),
             );
         }
-        let step = above(cx, &t, "lag_step_h", 0.0, DEFAULT_LAG_STEP_H);
-        if (hi - lo) / step > MAX_LAGS {
+        let step = within(
+            cx,
+            &t,
+            "lag_step_h",
+            0.0,
+            limits::YEAR_H,
+            DEFAULT_LAG_STEP_H,
+        );
+        let range_ok = lo >= 0.0 && hi <= limits::YEAR_H;
+        if range_ok && (hi - lo) / step > MAX_LAGS {
             t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
         }
-        let refit = above(cx, &t, "refit_interval_h", 0.0, DEFAULT_RESPONSE_REFIT_H);
+        let refit = refit_h(cx, &t, DEFAULT_RESPONSE_REFIT_H);
         match (piezometer, gauge) {
             (Some(piezometer), Some(stage_gauge)) => Some(Model::Response(ResponseSpec {
                 id: name,
@@ -303,7 +335,7 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         let instrument = reference(cx, "instrument", Want::Piezometer);
         let gauge = reference(cx, "reservoir_gauge", Want::StageGauge);
         let degree = t.int_in(cx, "degree", 1, 4, DEFAULT_HST_DEGREE) as usize;
-        let refit = above(cx, &t, "refit_interval_h", 0.0, DEFAULT_HST_REFIT_H);
+        let refit = refit_h(cx, &t, DEFAULT_HST_REFIT_H);
         match (instrument, gauge) {
             (Some(instrument), Some(reservoir_gauge)) => Some(Model::Hst(HstSpec {
                 id: name,

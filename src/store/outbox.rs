@@ -223,6 +223,36 @@ impl Store {
         Ok(outcome)
     }
 
+    /// Whether the database knows rule `id` (it has a state or an alert): the check of
+    /// `seepd silence --rule` when the configuration does not load.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn rule_known(&self, id: &str) -> Result<bool, StoreError> {
+        self.exists(
+            "SELECT EXISTS (SELECT 1 FROM rule_states WHERE rule = ?1)
+                OR EXISTS (SELECT 1 FROM alerts WHERE rule = ?1)",
+            id,
+        )
+    }
+
+    /// Whether the database knows instrument or object `id` (a configured instrument, or the
+    /// object of an alert): the check of `seepd silence --instrument` without a configuration.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn object_known(&self, id: &str) -> Result<bool, StoreError> {
+        self.exists(
+            "SELECT EXISTS (SELECT 1 FROM instruments WHERE id = ?1)
+                OR EXISTS (SELECT 1 FROM alerts WHERE object = ?1)",
+            id,
+        )
+    }
+
+    fn exists(&self, sql: &str, id: &str) -> Result<bool, StoreError> {
+        Ok(self.conn.query_row(sql, [id], |r| r.get(0))?)
+    }
+
     /// Record a silence of a rule or of an instrument/object until `until_ms`; returns its id.
     ///
     /// # Errors

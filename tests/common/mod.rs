@@ -140,6 +140,41 @@ pub fn seepd_bin() -> &'static str {
     env!("CARGO_BIN_EXE_seepd")
 }
 
+/// Run the seepd binary to completion: (exit code, stdout, stderr).
+pub fn seepd_output(args: &[&str]) -> (i32, String, String) {
+    let out = Command::new(seepd_bin()).args(args).output().unwrap();
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+/// Step the alert rules of `cfg` with river-stage readings (one per hour from a fixed time)
+/// and commit what they decide into `store`; returns the writes (alerts, messages).
+pub fn river_alerts(
+    cfg: seepd::config::Config,
+    store: &mut seepd::store::Store,
+    heads_m: &[f64],
+) -> seepd::store::AlertWrites {
+    let mut ev = seepd::alerts::Evaluator::new(std::sync::Arc::new(cfg));
+    let t0 = 1_772_366_400_000_i64;
+    let mut writes = seepd::store::AlertWrites::default();
+    for (i, head) in heads_m.iter().enumerate() {
+        let t = t0 + i as i64 * 3_600_000;
+        let obs = seepd::alerts::Observation {
+            object: "AB-RIVER".into(),
+            quantity: "total_head".into(),
+            t_ms: t,
+            value: Some(*head),
+            unit: "m".into(),
+        };
+        writes.extend(ev.evaluate(&[obs], t));
+    }
+    store.write_alerts(&writes).unwrap();
+    writes
+}
+
 /// Copy the example configuration into `dir/config`, pointed at `port` and `dir/seepd.sqlite`,
 /// with a unique client id. Returns the config directory.
 pub fn example_config(dir: &Path, port: u16) -> PathBuf {

@@ -49,16 +49,7 @@ fn run(service: &str, site: &str) -> Vec<(String, usize, String)> {
     let dir = tempfile::tempdir().expect("tempdir");
     write(dir.path(), "seepd.toml", service);
     write(dir.path(), "s.toml", site);
-    match load_dir_with(dir.path(), &no_env) {
-        Ok(_) => Vec::new(),
-        Err(Problems(ps)) => ps
-            .into_iter()
-            .map(|p| {
-                let name = p.file.file_name().map(|n| n.to_string_lossy().into_owned());
-                (name.unwrap_or_default(), p.line, p.message)
-            })
-            .collect(),
-    }
+    super::test_dir::located(load_dir_with(dir.path(), &no_env))
 }
 
 /// The base site with line `n` replaced by `text` (which may hold several lines).
@@ -104,7 +95,7 @@ fn site_checks() {
         (6, "tip_elevation = nan", 6, "expected a finite number"),
         (7, "installed = \"2025-13-01\"", 7, "expected an RFC 3339 date"),
         (7, "installed = 2025-01-01T00:00:00", 7, "expected an RFC 3339 date"),
-        (8, "interval_s = 0", 8, "expected at least 1"),
+        (8, "interval_s = 0", 8, "expected between 1 and"),
         (9, "range = [3000.0, 1000.0]", 9, "low < high"),
         (9, "range = [1.0]", 9, "expected [low, high]"),
         (11, "#", 3, "both \"logger\" and \"channel\""),
@@ -235,7 +226,7 @@ fn service_checks() {
         (
             format!("[mqtt]\nmax_packet_bytes = 0\n{SERVICE}"),
             2,
-            "at least 1",
+            "expected between 1 and",
         ),
         (
             format!("[mqtt]\npersistent_session = \"yes\"\n{SERVICE}"),
@@ -267,7 +258,7 @@ fn service_checks() {
         (
             format!("[service]\ncommit_max_readings = 0\n{SERVICE}"),
             2,
-            "at least 1",
+            "expected between 1 and",
         ),
         (
             format!("[service]\ndatabse = \"x.sqlite\"\n{SERVICE}"),

@@ -141,7 +141,7 @@ fn object_checks() {
             30,
             "piezometers = [\"P1\", \"P2\"]\ntolerance_s = 0",
             31,
-            "expected at least 1",
+            "expected between 1 and",
         ),
         (
             33,

@@ -15,7 +15,7 @@ fn no_env(_: &str) -> Option<String> {
 
 fn load(site: &str) -> Result<Config, Vec<(usize, String)>> {
     let dir = tempfile::tempdir().expect("tempdir");
-    std::fs::write(dir.path().join("seepd.toml"), "").expect("write");
+    std::fs::write(dir.path().join("seepd.toml"), super::tests::SERVICE).expect("write");
     std::fs::write(dir.path().join("s.toml"), site).expect("write");
     load_dir_with(dir.path(), &no_env)
         .map_err(|Problems(ps)| ps.into_iter().map(|p| (p.line, p.message)).collect())

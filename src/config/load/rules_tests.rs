@@ -24,7 +24,10 @@ fn no_env(_: &str) -> Option<String> {
 fn load(service: &str, site: &str) -> Result<Config, Vec<(usize, String)>> {
     let dir = tempfile::tempdir().expect("tempdir");
     let write = |name: &str, text: &str| std::fs::write(dir.path().join(name), text);
-    write("seepd.toml", service).expect("write");
+    // Every service file needs a subscription; it goes last so that line numbers stay.
+    let service =
+        format!("{service}\n[[subscription]]\npattern = \"t/{{logger}}\"\nformat = \"json\"\n");
+    write("seepd.toml", &service).expect("write");
     write("s.toml", site).expect("write");
     load_dir_with(dir.path(), &no_env)
         .map_err(|Problems(ps)| ps.into_iter().map(|p| (p.line, p.message)).collect())

@@ -21,7 +21,12 @@ pub(super) fn load(files: &[(&str, &str)]) -> Result<Config, Problems> {
 
 /// (file name, line, message) of each problem; empty when the directory loads.
 pub(super) fn problems(files: &[(&str, &str)]) -> Vec<(String, usize, String)> {
-    match load(files) {
+    located(load(files))
+}
+
+/// (file name, line, message) of each problem of a load; empty when it loaded.
+pub(super) fn located(loaded: Result<Config, Problems>) -> Vec<(String, usize, String)> {
+    match loaded {
         Ok(_) => Vec::new(),
         Err(Problems(ps)) => ps
             .into_iter()

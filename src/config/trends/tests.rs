@@ -166,7 +166,7 @@ fn every_problem_is_located() {
             35,
             "key \"stage_gauge\" names \"NOPE\", which is not an instrument",
         ),
-        (36, "key \"lag_range_h\" starts at -1"),
+        (36, "key \"lag_range_h\" is [-1, 5]"),
     ];
     for (line, text) in want {
         assert!(
