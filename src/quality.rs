@@ -29,11 +29,16 @@ pub enum Reason {
     BeforeInstall,
     /// The reading cannot be reduced (e.g. a thermal correction without a temperature).
     Unreducible,
+    /// A SenML pack of a newer version than this decoder implements (RFC 8428 `bver` > 10).
+    UnsupportedVersion,
+    /// A reading for an (instrument, time) already stored with another value: the first stored
+    /// value is kept, this one is recorded here.
+    ConflictingDuplicate,
 }
 
 impl Reason {
     /// Every reason, in a stable order (for counters and docs).
-    pub const ALL: [Reason; 10] = [
+    pub const ALL: [Reason; 12] = [
         Reason::Malformed,
         Reason::Oversized,
         Reason::UnknownTopic,
@@ -44,6 +49,8 @@ impl Reason {
         Reason::TimeInFuture,
         Reason::BeforeInstall,
         Reason::Unreducible,
+        Reason::UnsupportedVersion,
+        Reason::ConflictingDuplicate,
     ];
 
     /// Stable snake_case code.
@@ -59,6 +66,8 @@ impl Reason {
             Reason::TimeInFuture => "time_in_future",
             Reason::BeforeInstall => "before_install",
             Reason::Unreducible => "unreducible",
+            Reason::UnsupportedVersion => "unsupported_version",
+            Reason::ConflictingDuplicate => "conflicting_duplicate",
         }
     }
 }

@@ -48,7 +48,10 @@ fn check_lists_every_problem_with_file_and_line_and_exits_78() {
     assert_eq!(code, 78, "{out}\n{err}");
     // No subscription (the service would receive nothing) and port out of range on line 5 of
     // seepd.toml; unknown key on line 11 and bad unit on line 14 of site-a.toml.
-    assert!(err.contains("seepd.toml:1:1: seepd.toml: no [[subscription]]"), "{err}");
+    assert!(
+        err.contains("seepd.toml:1:1: seepd.toml: no [[subscription]]"),
+        "{err}"
+    );
     assert!(err.contains("seepd.toml:5:"), "{err}");
     assert!(err.contains("site-a.toml:11:"), "{err}");
     assert!(err.contains("site-a.toml:14:"), "{err}");

@@ -95,7 +95,58 @@ pub struct BatchStats {
     pub derived: usize,
     /// Readings already stored for (instrument, time): not inserted again.
     pub duplicates: usize,
+    /// Of the duplicates, those with another value than the stored one: the first stored value
+    /// is kept and each is recorded in quarantine as `conflicting_duplicate`.
+    pub conflicts: usize,
     pub quarantined: usize,
+}
+
+/// The quarantine row of reading `r` if its (instrument, time) is stored with another raw value
+/// or temperature (not a plain redelivery). Its payload is the reading as an NDJSON replay
+/// line, so that it can be looked at or replayed; it came from no single topic.
+fn conflict(
+    tx: &rusqlite::Transaction<'_>,
+    r: &ReadingRow,
+) -> Result<Option<QuarantineRow>, StoreError> {
+    let mut st = tx.prepare_cached(
+        "SELECT raw, temperature_c FROM readings WHERE instrument = ?1 AND t_ms = ?2",
+    )?;
+    let stored: Option<(f64, Option<f64>)> = st
+        .query_row(params![r.instrument, r.t_ms], |row| {
+            Ok((row.get(0)?, row.get(1)?))
+        })
+        .optional()?;
+    let Some((raw, temperature_c)) = stored else {
+        return Ok(None);
+    };
+    if raw == r.raw && temperature_c == r.temperature_c {
+        return Ok(None);
+    }
+    let time = DateTime::<Utc>::from_timestamp_millis(r.t_ms)
+        .map_or_else(|| r.t_ms.to_string(), |t| t.to_rfc3339());
+    let shown = |v: f64, t: Option<f64>| match t {
+        Some(t) => format!("{v} (temperature {t})"),
+        None => v.to_string(),
+    };
+    let payload = serde_json::json!({
+        "time": time,
+        "instrument": r.instrument,
+        "value": r.raw,
+        "temperature": r.temperature_c,
+    });
+    Ok(Some(QuarantineRow {
+        received_ms: r.arrival_ms,
+        topic: String::new(),
+        reason: Reason::ConflictingDuplicate,
+        detail: format!(
+            "instrument {} at {time}: value {} differs from the stored {}; the stored value is kept",
+            r.instrument,
+            shown(r.raw, r.temperature_c),
+            shown(raw, temperature_c)
+        ),
+        payload: payload.to_string().into_bytes(),
+        redelivered: true,
+    }))
 }
 
 /// A latest stored value, for summaries.
@@ -125,6 +176,8 @@ pub struct Store {
     conn: Connection,
     /// Which new rows `write_batch` queues for export (none unless export is configured).
     queue: export::QueueMode,
+    /// Instruments whose conflicting duplicate has been logged (one warning each per run).
+    conflicts_logged: std::collections::HashSet<String>,
 }
 
 impl Store {
@@ -154,6 +207,7 @@ impl Store {
         Ok(Store {
             conn,
             queue: export::QueueMode::default(),
+            conflicts_logged: Default::default(),
         })
     }
 
@@ -234,6 +288,7 @@ impl Store {
     ) -> Result<BatchStats, StoreError> {
         let tx = self.conn.transaction()?;
         let mut stats = BatchStats::default();
+        let mut conflicts = Vec::new();
         {
             let mut ins = tx.prepare_cached(
                 "INSERT OR IGNORE INTO readings (instrument, t_ms, arrival_ms, raw,
@@ -263,6 +318,9 @@ impl Store {
                     }
                 } else {
                     stats.duplicates += 1;
+                    if let Some(c) = conflict(&tx, r)? {
+                        conflicts.push((r.instrument.as_str(), c));
+                    }
                 }
             }
             let mut d = tx.prepare_cached(
@@ -290,6 +348,19 @@ impl Store {
                     (SELECT 1 FROM quarantine WHERE topic = ?2 AND payload = ?5 AND reason = ?3
                         AND detail = ?4)",
             )?;
+            // A conflict met again (a redelivery) is recorded once: same row, same detail.
+            for (_, r) in &conflicts {
+                let n = q.execute(params![
+                    r.received_ms,
+                    r.topic,
+                    r.reason.code(),
+                    r.detail,
+                    r.payload,
+                    true,
+                ])?;
+                stats.conflicts += 1;
+                stats.quarantined += n;
+            }
             for r in quarantined {
                 stats.quarantined += q.execute(params![
                     r.received_ms,
@@ -303,6 +374,11 @@ impl Store {
         }
         alerts::write(&tx, alerts)?;
         tx.commit()?;
+        for (instrument, c) in &conflicts {
+            if self.conflicts_logged.insert(instrument.to_string()) {
+                tracing::warn!(detail = %c.detail, "Conflicting duplicate reading: the first stored value is kept (quarantine conflicting_duplicate; logged once per instrument)");
+            }
+        }
         Ok(stats)
     }
 

@@ -133,3 +133,46 @@ fn concurrent_opens_of_a_fresh_database_both_succeed() {
         assert!(r.is_ok(), "{r:?}");
     }
 }
+
+/// A second reading for a stored (instrument, time) with another value is no redelivery: the
+/// first value is kept and the other recorded (once, however often it comes back).
+#[test]
+fn a_conflicting_duplicate_is_recorded_once_and_the_first_value_kept() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut s = Store::open(&dir.path().join("c.sqlite")).unwrap();
+    s.write_batch(&[row("P1", 1000, 10.0)], &[], &[]).unwrap();
+    // The same value again: a plain redelivery, nothing recorded.
+    let st = s.write_batch(&[row("P1", 1000, 10.0)], &[], &[]).unwrap();
+    assert_eq!((st.duplicates, st.conflicts, st.quarantined), (1, 0, 0));
+    // Another value, twice (a redelivery of the conflicting message), and another temperature.
+    for _ in 0..2 {
+        let st = s.write_batch(&[row("P1", 1000, 10.5)], &[], &[]).unwrap();
+        assert_eq!((st.duplicates, st.conflicts), (1, 1));
+    }
+    let mut warmer = row("P1", 1000, 10.0);
+    warmer.temperature_c = Some(13.0);
+    s.write_batch(&[warmer], &[], &[]).unwrap();
+    assert_eq!(s.reading("P1", 1000).unwrap().unwrap().0, 10.0);
+    assert_eq!(
+        s.quarantine_counts().unwrap(),
+        vec![("conflicting_duplicate".to_string(), 2)]
+    );
+    let (detail, payload): (String, String) = s
+        .conn()
+        .query_row(
+            "SELECT detail, CAST(payload AS TEXT) FROM quarantine ORDER BY id LIMIT 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .unwrap();
+    assert!(detail.contains("instrument P1"), "{detail}");
+    assert!(
+        detail.contains(
+            "value 10.5 (temperature 12.5) differs from the stored 10 (temperature 12.5)"
+        ),
+        "{detail}"
+    );
+    let v: serde_json::Value = serde_json::from_str(&payload).unwrap();
+    assert_eq!(v["instrument"], "P1");
+    assert_eq!(v["value"], 10.5);
+}

@@ -17,6 +17,11 @@ use crate::quality::{Reason, Reject};
 /// Resolved times below this (seconds) are relative to now (RFC 8428 §4.5.3).
 const RELATIVE_LIMIT_S: f64 = (1u64 << 28) as f64;
 
+/// The SenML version this decoder implements (RFC 8428: `bver` defaults to 10). A pack of a
+/// newer version must not be used (RFC 8428, Base Version; RFC 9100 reads the number as a set
+/// of features, each newer one unknown here).
+const SENML_VERSION: u64 = 10;
+
 /// Name suffix of a thermistor record.
 const TEMPERATURE_SUFFIX: &str = "/temperature";
 
@@ -72,6 +77,9 @@ pub(super) fn decode(payload: &[u8], now: DateTime<Utc>) -> Result<Entries, Reje
                 "record {i}: field {key:?} must be understood and is not (RFC 8428 §4.4)"
             )));
         }
+        if let Some(v) = record.as_object().and_then(|o| o.get("bver")) {
+            check_version(i, v)?;
+        }
     }
 
     let mut base = Base::default();
@@ -107,6 +115,24 @@ pub(super) fn decode(payload: &[u8], now: DateTime<Utc>) -> Result<Entries, Reje
         items.push(item);
     }
     Ok(pair_temperatures(items))
+}
+
+/// A record's `bver`: a positive integer no newer than [`SENML_VERSION`].
+fn check_version(i: usize, v: &Value) -> Result<(), Reject> {
+    match v.as_u64() {
+        Some(n) if (1..=SENML_VERSION).contains(&n) => Ok(()),
+        Some(n) if n > SENML_VERSION => Err(Reject::new(
+            Reason::UnsupportedVersion,
+            format!(
+                "record {i}: SenML version bver = {n} is newer than version {SENML_VERSION}, \
+                 which this decoder implements; a pack of a newer version must not be used \
+                 (RFC 8428)"
+            ),
+        )),
+        _ => Err(malformed(format!(
+            "record {i}: field \"bver\" is {v}, expected a positive integer (the SenML version)"
+        ))),
+    }
 }
 
 /// Apply the base fields of a record. Errors are whole-pack: later records depend on them.
@@ -414,6 +440,29 @@ mod tests {
         // Unknown fields without the underscore are ignored.
         let out = run(r#"[{"n":"a","v":1,"ut":60,"bver":10,"colour":"red","s":3}]"#).expect("ok");
         assert_eq!(ok(&out[0]).value, 1.0);
+    }
+
+    /// RFC 8428: `bver` defaults to 10; a pack of a newer version must not be used. RFC 9100's
+    /// version 26 (10 plus secondary units) is one such.
+    #[test]
+    fn a_newer_senml_version_rejects_the_pack() {
+        for bver in [11, 26] {
+            let pack = format!(r#"[{{"bver":{bver},"n":"a","v":1}},{{"n":"b","v":2}}]"#);
+            let err = run(&pack).expect_err("newer version");
+            assert_eq!(err.reason, Reason::UnsupportedVersion, "{err}");
+            assert!(err.detail.contains(&format!("bver = {bver}")), "{err}");
+        }
+        // In a later record too: the whole pack is refused.
+        let err = run(r#"[{"n":"a","v":1},{"n":"b","v":2,"bver":12}]"#).expect_err("newer");
+        assert_eq!(err.reason, Reason::UnsupportedVersion);
+        for bad in ["0", "-1", "10.5", "\"10\""] {
+            let err = run(&format!(r#"[{{"bver":{bad},"n":"a","v":1}}]"#)).expect_err("bad");
+            assert_eq!(err.reason, Reason::Malformed, "bver {bad}: {err}");
+        }
+        for known in [1, 5, 10] {
+            let out = run(&format!(r#"[{{"bver":{known},"n":"a","v":1}}]"#)).expect("known");
+            assert_eq!(ok(&out[0]).value, 1.0);
+        }
     }
 
     #[test]
