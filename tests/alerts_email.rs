@@ -243,3 +243,127 @@ fn a_550_is_dead_lettered_and_listed_by_seepd_alerts() {
     );
     assert!(text.contains("Active alerts (1):"), "{text}");
 }
+
+/// The example configuration with a second address on the on-call list.
+fn two_oncall(dir: &Path, smtp_port: u16) -> (std::path::PathBuf, Config) {
+    let cfg_dir = common::smtp::alert_config(
+        dir,
+        1883,
+        smtp_port,
+        &[(
+            "emails = [\"levee-oncall@example.invalid\"]",
+            "emails = [\"levee-oncall@example.invalid\", \"gone@example.invalid\"]",
+        )],
+    );
+    let cfg = seepd::config::load_dir(&cfg_dir).unwrap();
+    (cfg_dir, cfg)
+}
+
+/// Every (Message-ID, recipient) the outbox asks for, leaving out `except`.
+fn wanted(store: &Store, except: &str) -> Vec<(String, String)> {
+    let mut v: Vec<(String, String)> = ["pending", "sent", "dead"]
+        .iter()
+        .flat_map(|s| store.messages(s).unwrap())
+        .flat_map(|m| {
+            m.recipients
+                .iter()
+                .filter(|r| *r != except)
+                .map(|r| (m.message_id.clone(), r.clone()))
+                .collect::<Vec<_>>()
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn one_refused_recipient_does_not_silence_the_others() {
+    let dir = tempfile::tempdir().unwrap();
+    let gone = "gone@example.invalid";
+    let server = SmtpServer::start(
+        dir.path(),
+        Opts {
+            refuse: vec![gone.into()],
+            ..Opts::default()
+        },
+    );
+    let (cfg_dir, cfg) = two_oncall(dir.path(), server.port);
+    let relay = cfg.alerting.smtp.clone().unwrap();
+    let mut store = Store::open(&dir.path().join("seepd.sqlite")).unwrap();
+    raise_river(cfg, &mut store);
+    let to_gone = store
+        .messages("pending")
+        .unwrap()
+        .iter()
+        .filter(|m| m.recipients.iter().any(|r| r == gone))
+        .count();
+    assert!(to_gone >= 2, "the on-call list gets several messages");
+    let pass = drain(&store, &relay);
+    assert_eq!(
+        (pass.sent, pass.refused, pass.dead),
+        (4, to_gone, 0),
+        "{pass:?}"
+    );
+    // Every other recipient got every message once; the refused one got nothing.
+    let want = wanted(&store, gone);
+    assert_eq!(server.deliveries(), want);
+    assert_eq!(store.messages("sent").unwrap().len(), 4);
+    // Nothing is sent again.
+    store
+        .conn()
+        .execute("UPDATE outbox SET next_attempt_ms = 0", [])
+        .unwrap();
+    assert_eq!(drain(&store, &relay), seepd::notify::Pass::default());
+    assert_eq!(server.deliveries(), want);
+    drop(store);
+    let (code, text, err) = seepd_output(&["alerts", "--config", &cfg_dir.display().to_string()]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        text.contains(&format!("Undeliverable ({to_gone}):")),
+        "{text}"
+    );
+    assert!(
+        text.contains(&format!(
+            "not delivered to {gone}; server reply: RCPT TO: permanent error (550)"
+        )),
+        "{text}"
+    );
+    assert!(
+        text.contains("delivered to levee-oncall@example.invalid"),
+        "{text}"
+    );
+}
+
+#[test]
+fn a_deferred_recipient_is_retried_alone_and_served_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let gone = "gone@example.invalid";
+    let port = free_port();
+    let mut server = SmtpServer::start_on(
+        dir.path(),
+        port,
+        Opts {
+            defer: vec![gone.into()],
+            ..Opts::default()
+        },
+    );
+    let (_, cfg) = two_oncall(dir.path(), port);
+    let relay = cfg.alerting.smtp.clone().unwrap();
+    let mut store = Store::open(&dir.path().join("seepd.sqlite")).unwrap();
+    raise_river(cfg, &mut store);
+    let pass = drain(&store, &relay);
+    assert_eq!((pass.sent, pass.dead, pass.refused), (4, 0, 0), "{pass:?}");
+    assert!(pass.retried >= 2, "{pass:?}");
+    assert_eq!(server.deliveries(), wanted(&store, gone));
+    // The relay takes the deferred address again: only it gets the messages still owed.
+    server.stop();
+    let server = SmtpServer::start_on(dir.path(), port, Opts::default());
+    store
+        .conn()
+        .execute("UPDATE outbox SET next_attempt_ms = 0", [])
+        .unwrap();
+    let pass = drain(&store, &relay);
+    assert_eq!(pass.retried, 0, "{pass:?}");
+    assert_eq!(store.messages("pending").unwrap().len(), 0);
+    assert_eq!(server.deliveries(), wanted(&store, ""));
+}

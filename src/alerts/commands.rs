@@ -102,19 +102,7 @@ pub fn report(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow::Re
             x.reason
         );
     }
-    let dead = store.messages("dead")?;
-    let _ = writeln!(s, "Undeliverable ({}):", dead.len());
-    for m in &dead {
-        let _ = writeln!(
-            s,
-            "  message {} of {} to {}: {:?}\n    server reply: {}",
-            m.message_id,
-            time(m.created_ms),
-            m.recipients.join(", "),
-            m.subject,
-            m.last_error.as_deref().unwrap_or("?")
-        );
-    }
+    undeliverable(&mut s, &store)?;
     let queued = store.messages("pending")?;
     let _ = writeln!(s, "Queued for sending ({}):", queued.len());
     for m in &queued {
@@ -132,6 +120,30 @@ pub fn report(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow::Re
         );
     }
     Ok(s)
+}
+
+/// The "Undeliverable" section: each message some recipient will never get, with every
+/// refused recipient and the server's reply, and who did get it.
+fn undeliverable(s: &mut String, store: &Store) -> anyhow::Result<()> {
+    let dead = store.undeliverable()?;
+    let _ = writeln!(s, "Undeliverable ({}):", dead.len());
+    for u in &dead {
+        let m = &u.message;
+        let _ = writeln!(
+            s,
+            "  message {} of {}: {:?}",
+            m.message_id,
+            time(m.created_ms),
+            m.subject
+        );
+        for (to, reply) in &u.refused {
+            let _ = writeln!(s, "    not delivered to {to}; server reply: {reply}");
+        }
+        if !u.delivered.is_empty() {
+            let _ = writeln!(s, "    delivered to {}", u.delivered.join(", "));
+        }
+    }
+    Ok(())
 }
 
 /// `seepd ack ALERT` on the database `db`.

@@ -1,11 +1,14 @@
 //! The outbox worker: a thread with its own database connection that sends the outbox's due
 //! messages through the SMTP relay, oldest first.
 //!
-//! Delivery guarantee: at least once. A message is marked sent only after the relay accepted
-//! it; connection failures and 4xx replies are retried with capped exponential backoff; a 5xx
-//! reply dead-letters the message with the server's reply (listed by `seepd alerts`). A crash
-//! between acceptance and marking resends the message with the same Message-ID, so the
-//! duplicate is recognisable. Must not decide what to send: that is `alerts`' job.
+//! Delivery guarantee: at least once per recipient. Each recipient is judged on its own: the
+//! message goes to every recipient the relay accepts, a recipient refused with a 5xx is
+//! dead-lettered with the server's reply (listed by `seepd alerts`) without holding up the
+//! others, and connection failures and 4xx replies are retried with capped exponential backoff
+//! for the recipients not yet served. A recipient is marked served only after the relay
+//! accepted the data; a crash between acceptance and marking resends the message (to those
+//! recipients only) with the same Message-ID, so the duplicate is recognisable. Must not decide
+//! what to send: that is `alerts`' job.
 
 pub mod smtp;
 
@@ -19,17 +22,25 @@ use crate::background::{Background, Signals};
 use crate::config::Smtp;
 use crate::store::Store;
 
-pub use smtp::{Mailer, SendError};
+pub use smtp::{Delivery, Mailer, SendError};
+
+use crate::store::outbox::RcptOutcome;
 
 /// The worker looks at the outbox at least this often, even without a wake-up.
 const POLL: Duration = Duration::from_secs(1);
 
-/// What one pass did.
+/// What one pass did, counted in messages (a message can be sent to some recipients and
+/// refused for others).
 #[derive(Debug, Default, Clone, Copy, PartialEq, Eq)]
 pub struct Pass {
+    /// Accepted by the relay for at least one recipient.
     pub sent: usize,
+    /// Left for another attempt (for every recipient, or for some).
     pub retried: usize,
+    /// Now undeliverable to every recipient left.
     pub dead: usize,
+    /// Recipients refused for good (5xx) in this pass.
+    pub refused: usize,
 }
 
 /// Backoff before attempt `attempts + 1`: min · 2^(attempts − 1), capped at max (seconds).
@@ -53,28 +64,51 @@ pub fn deliver_due(
     let mut pass = Pass::default();
     let now_ms = Utc::now().timestamp_millis();
     for m in store.due_messages(now_ms, 100)? {
-        match mailer.send(&m) {
-            Ok(()) => {
-                crate::alerts::live::pause_point("after_send");
-                store.mark_sent(m.id, Utc::now().timestamp_millis())?;
-                tracing::info!(message_id = %m.message_id, to = %m.recipients.join(","), "Alert message accepted by the mail relay");
-                pass.sent += 1;
-            }
-            Err(SendError::Permanent(reply)) => {
-                store.mark_dead(m.id, &reply)?;
-                tracing::error!(message_id = %m.message_id, error = %reply, "Mail relay refused the message permanently; dead-lettered (see `seepd alerts`)");
-                pass.dead += 1;
-            }
+        let to = store.pending_recipients(&m)?;
+        let wait = backoff_s(smtp, m.attempts + 1);
+        let retry_ms = Utc::now().timestamp_millis() + (wait as i64) * 1000;
+        let delivery: Delivery = match mailer.send(&m, &to) {
+            Ok(d) => d,
+            Err(SendError::Permanent(reply)) => to
+                .iter()
+                .map(|r| (r.clone(), RcptOutcome::Refused(reply.clone())))
+                .collect(),
             Err(SendError::Transient(e)) => {
-                let wait = backoff_s(smtp, m.attempts + 1);
-                let next = Utc::now().timestamp_millis() + (wait as i64) * 1000;
-                store.mark_retry(m.id, next, &e)?;
+                store.mark_retry(m.id, retry_ms, &e)?;
                 if m.attempts == 0 || (m.attempts + 1).count_ones() == 1 {
                     tracing::warn!(message_id = %m.message_id, attempts = m.attempts + 1, retry_in_s = wait, error = %e, "Cannot deliver alert message; will retry");
                 }
                 pass.retried += 1;
+                // The relay is down or refusing everything for now: the rest would fail alike.
                 break;
             }
+        };
+        let accepted: Vec<&str> = delivery
+            .iter()
+            .filter(|(_, o)| *o == RcptOutcome::Accepted)
+            .map(|(r, _)| r.as_str())
+            .collect();
+        if !accepted.is_empty() {
+            crate::alerts::live::pause_point("after_send");
+            tracing::info!(message_id = %m.message_id, to = %accepted.join(","), "Alert message accepted by the mail relay");
+            pass.sent += 1;
+        }
+        for (r, o) in &delivery {
+            match o {
+                RcptOutcome::Refused(reply) => {
+                    tracing::error!(message_id = %m.message_id, to = %r, error = %reply, "Mail relay refused a recipient permanently; dead-lettered for that recipient (see `seepd alerts`)");
+                    pass.refused += 1;
+                }
+                RcptOutcome::Deferred(reply) => {
+                    tracing::warn!(message_id = %m.message_id, to = %r, retry_in_s = wait, error = %reply, "Mail relay deferred a recipient; will retry");
+                }
+                RcptOutcome::Accepted => {}
+            }
+        }
+        match store.record_delivery(&m, &delivery, Utc::now().timestamp_millis(), retry_ms)? {
+            "pending" => pass.retried += 1,
+            "dead" => pass.dead += 1,
+            _ => {}
         }
     }
     Ok(pass)

@@ -1,36 +1,64 @@
-//! The SMTP side of the outbox worker (lettre, rustls): build the transport from `[smtp]`,
-//! build each message (text and HTML alternatives, stable Message-ID, Date from the outbox
-//! row; with the row's attachments, a multipart/mixed message whose first part is that body and
-//! whose other parts are the attached files) and classify failures as transient (retry) or permanent (dead-letter).
+//! The SMTP side of the outbox worker (lettre's SMTP connection, rustls): build each message
+//! (text and HTML alternatives, stable Message-ID, Date from the outbox row; with the row's
+//! attachments, a multipart/mixed message whose first part is that body and whose other parts
+//! are the attached files) and run one SMTP transaction per attempt, recipient by recipient.
+//!
+//! Recipients are judged one by one at RCPT TO: one refused address must not silence the
+//! others, so the message goes to every accepted recipient and each refusal comes back with
+//! the server's reply (5xx: never retried; 4xx: retried later). The whole message body and its
+//! terminating `.` go out in one write: written separately, Nagle's algorithm holds the small
+//! terminator until the relay's delayed acknowledgement (about 40 ms per message). Must not
+//! decide what to send or touch the database.
 
+use std::fmt;
 use std::time::{Duration, UNIX_EPOCH};
 
 use lettre::message::header::ContentType;
 use lettre::message::{Attachment, Mailbox, MultiPart};
-use lettre::transport::smtp::authentication::Credentials;
-use lettre::transport::smtp::client::{Certificate, CertificateStore, Tls, TlsParameters};
-use lettre::{Message, SmtpTransport, Transport};
+use lettre::transport::smtp::authentication::{Credentials, DEFAULT_MECHANISMS};
+use lettre::transport::smtp::client::{
+    Certificate, CertificateStore, SmtpConnection, TlsParameters,
+};
+use lettre::transport::smtp::commands::{Data, Mail, Rcpt};
+use lettre::transport::smtp::extension::{ClientId, Extension, MailBodyParameter, MailParameter};
+use lettre::{Address, Message};
 
 use crate::config::{Smtp, SmtpSecurity};
-use crate::store::outbox::Queued;
+use crate::store::outbox::{Queued, RcptOutcome};
 
-/// Why a message was not accepted.
+/// Why a whole attempt failed (no recipient got the message).
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum SendError {
-    /// Connection, TLS or 4xx: try again later.
+    /// Connection, TLS, authentication or a 4xx to the whole transaction: try again later.
     Transient(String),
-    /// 5xx reply or an unbuildable message: never retried.
+    /// A 5xx to the whole transaction (sender or data refused) or an unbuildable message: no
+    /// recipient will ever get it.
     Permanent(String),
 }
 
-/// A configured SMTP client.
+/// The outcome of one attempt per recipient, in the order asked.
+pub type Delivery = Vec<(String, RcptOutcome)>;
+
+/// How the connection is secured.
+enum Security {
+    Plain,
+    Starttls(TlsParameters),
+    Wrapper(TlsParameters),
+}
+
+/// A configured SMTP client (no connection is kept between attempts).
 pub struct Mailer {
-    transport: SmtpTransport,
+    host: String,
+    port: u16,
+    timeout: Duration,
+    security: Security,
+    credentials: Option<Credentials>,
+    hello: ClientId,
     from: Mailbox,
 }
 
 impl Mailer {
-    /// Build the transport (no connection is made yet).
+    /// Build the client (no connection is made yet).
     ///
     /// # Errors
     /// Unreadable CA file or bad addresses.
@@ -46,26 +74,28 @@ impl Mailer {
             }
             Ok(b.build_rustls()?)
         };
-        let tls = match smtp.security {
-            SmtpSecurity::Starttls => Tls::Required(tls_params()?),
-            SmtpSecurity::Tls => Tls::Wrapper(tls_params()?),
-            SmtpSecurity::Plain => Tls::None,
+        let security = match smtp.security {
+            SmtpSecurity::Starttls => Security::Starttls(tls_params()?),
+            SmtpSecurity::Tls => Security::Wrapper(tls_params()?),
+            SmtpSecurity::Plain => Security::Plain,
         };
-        let mut b = SmtpTransport::builder_dangerous(smtp.host.clone())
-            .port(smtp.port)
-            .tls(tls)
-            .timeout(Some(Duration::from_secs(smtp.timeout_s)));
-        if let (Some(user), Some(pass)) = (&smtp.username, &smtp.password) {
-            b = b.credentials(Credentials::new(user.clone(), pass.0.clone()));
-        }
+        let credentials = match (&smtp.username, &smtp.password) {
+            (Some(user), Some(pass)) => Some(Credentials::new(user.clone(), pass.0.clone())),
+            _ => None,
+        };
         Ok(Mailer {
-            transport: b.build(),
+            host: smtp.host.clone(),
+            port: smtp.port,
+            timeout: Duration::from_secs(smtp.timeout_s),
+            security,
+            credentials,
+            hello: ClientId::default(),
             from: format!("seepd <{}>", smtp.from).parse()?,
         })
     }
 
-    /// Build the message of an outbox row (the same bytes at every attempt, except for the
-    /// transport's own headers).
+    /// Build the message of an outbox row (the same bytes at every attempt). Its To: header
+    /// names every recipient of the row, whoever is left to deliver to.
     ///
     /// # Errors
     /// Bad recipient addresses (a permanent failure).
@@ -76,10 +106,7 @@ impl Mailer {
             .message_id(Some(m.message_id.clone()))
             .date(UNIX_EPOCH + Duration::from_millis(m.created_ms.max(0) as u64));
         for r in &m.recipients {
-            let to: Mailbox = r
-                .parse()
-                .map_err(|e| SendError::Permanent(format!("recipient {r:?}: {e}")))?;
-            b = b.to(to);
+            b = b.to(Mailbox::new(None, address(r)?));
         }
         let body = MultiPart::alternative_plain_html(m.text.clone(), m.html.clone());
         let body = if m.attachments.is_empty() {
@@ -98,16 +125,165 @@ impl Mailer {
             .map_err(|e| SendError::Permanent(format!("building the message: {e}")))
     }
 
-    /// Send one outbox message.
+    /// Send outbox message `m` to `recipients` (those of its recipients still to be served) in
+    /// one SMTP transaction: every recipient the relay accepts at RCPT TO gets it.
     ///
     /// # Errors
-    /// `Transient` for connection/TLS failures and 4xx, `Permanent` for 5xx.
-    pub fn send(&self, m: &Queued) -> Result<(), SendError> {
-        let msg = self.message(m)?;
-        match self.transport.send(&msg) {
-            Ok(_) => Ok(()),
-            Err(e) if e.is_permanent() => Err(SendError::Permanent(e.to_string())),
-            Err(e) => Err(SendError::Transient(e.to_string())),
+    /// `Transient` when no recipient could be tried or the transaction failed for all of them
+    /// for now (connection, TLS, 4xx); `Permanent` for a 5xx to the sender or the data, or a
+    /// message that cannot be built.
+    pub fn send(&self, m: &Queued, recipients: &[String]) -> Result<Delivery, SendError> {
+        let email = self.message(m)?.formatted();
+        let to = recipients
+            .iter()
+            .map(|r| address(r))
+            .collect::<Result<Vec<_>, _>>()?;
+        let mut conn = self.connect()?;
+        let result = self.transaction(&mut conn, &email, recipients, to);
+        let _ = conn.quit();
+        result
+    }
+
+    /// Connect, secure and authenticate.
+    fn connect(&self) -> Result<SmtpConnection, SendError> {
+        let wrapper = match &self.security {
+            Security::Wrapper(p) => Some(p),
+            _ => None,
+        };
+        let transient = |what: &str, e: lettre::transport::smtp::Error| {
+            SendError::Transient(format!("{what}: {e}"))
+        };
+        let mut conn = SmtpConnection::connect(
+            (self.host.as_str(), self.port),
+            Some(self.timeout),
+            &self.hello,
+            wrapper,
+            None,
+        )
+        .map_err(|e| transient("connecting to the mail relay", e))?;
+        if let Security::Starttls(p) = &self.security {
+            conn.starttls(p, &self.hello)
+                .map_err(|e| transient("STARTTLS", e))?;
         }
+        if let Some(c) = &self.credentials {
+            conn.auth(DEFAULT_MECHANISMS, c)
+                .map_err(|e| transient("authentication", e))?;
+        }
+        Ok(conn)
+    }
+
+    /// MAIL FROM, one RCPT TO per recipient, and the data to the accepted ones.
+    fn transaction(
+        &self,
+        conn: &mut SmtpConnection,
+        email: &[u8],
+        recipients: &[String],
+        to: Vec<Address>,
+    ) -> Result<Delivery, SendError> {
+        let info = conn.server_info();
+        let mut params = Vec::new();
+        if to.iter().any(|a| !AsRef::<str>::as_ref(a).is_ascii()) {
+            if !info.supports_feature(Extension::SmtpUtfEight) {
+                return Err(SendError::Permanent(
+                    "a recipient address is not ASCII and the relay does not offer SMTPUTF8".into(),
+                ));
+            }
+            params.push(MailParameter::SmtpUtfEight);
+        }
+        if !email.is_ascii() {
+            if !info.supports_feature(Extension::EightBitMime) {
+                return Err(SendError::Permanent(
+                    "the message is not ASCII and the relay does not offer 8BITMIME".into(),
+                ));
+            }
+            params.push(MailParameter::Body(MailBodyParameter::EightBitMime));
+        }
+        conn.command(Mail::new(Some(self.from.email.clone()), params))
+            .map_err(|e| classify("MAIL FROM", &e))?;
+        let mut delivery: Delivery = Vec::with_capacity(recipients.len());
+        for (name, address) in recipients.iter().zip(to) {
+            let outcome = match conn.command(Rcpt::new(address, Vec::new())) {
+                Ok(_) => RcptOutcome::Accepted,
+                Err(e) if e.is_permanent() => RcptOutcome::Refused(format!("RCPT TO: {e}")),
+                Err(e) => RcptOutcome::Deferred(format!("RCPT TO: {e}")),
+            };
+            delivery.push((name.clone(), outcome));
+        }
+        if !delivery.iter().any(|(_, o)| *o == RcptOutcome::Accepted) {
+            return Ok(delivery);
+        }
+        // Lettre's messages are UTF-8 (binary parts are base64); anything else goes the slow way.
+        let data = conn
+            .command(Data)
+            .and_then(|_| match std::str::from_utf8(email) {
+                Ok(text) => conn.command(Terminated(text)),
+                Err(_) => conn.message(email),
+            });
+        if let Err(e) = data {
+            // The data went to no one: each accepted recipient shares the fate of the whole.
+            let fate = match classify("DATA", &e) {
+                SendError::Permanent(r) => RcptOutcome::Refused(r),
+                SendError::Transient(r) => RcptOutcome::Deferred(r),
+            };
+            for (_, o) in delivery
+                .iter_mut()
+                .filter(|(_, o)| *o == RcptOutcome::Accepted)
+            {
+                *o = fate.clone();
+            }
+        }
+        Ok(delivery)
+    }
+}
+
+/// A 5xx is permanent, anything else (4xx, network, TLS) transient.
+fn classify(step: &str, e: &lettre::transport::smtp::Error) -> SendError {
+    if e.is_permanent() {
+        SendError::Permanent(format!("{step}: {e}"))
+    } else {
+        SendError::Transient(format!("{step}: {e}"))
+    }
+}
+
+fn address(r: &str) -> Result<Address, SendError> {
+    r.parse()
+        .map_err(|e| SendError::Permanent(format!("recipient {r:?}: {e}")))
+}
+
+/// The message data as SMTP sends it after DATA, written as one piece: dot-stuffed (a line
+/// that starts with `.` gets another, RFC 5321 §4.5.2) and ended by `CRLF . CRLF`.
+struct Terminated<'a>(&'a str);
+
+impl fmt::Display for Terminated<'_> {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let mut line_start = true;
+        let mut after_cr = false;
+        let mut out = String::with_capacity(self.0.len() + 64);
+        for c in self.0.chars() {
+            if line_start && c == '.' {
+                out.push('.');
+            }
+            out.push(c);
+            line_start = after_cr && c == '\n';
+            after_cr = c == '\r';
+        }
+        out.push_str("\r\n.\r\n");
+        f.write_str(&out)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn data_is_dot_stuffed_and_terminated_once() {
+        let body = ".first\r\nplain\r\n..two\r\nmid.dot\r\n.\r\nend";
+        assert_eq!(
+            Terminated(body).to_string(),
+            "..first\r\nplain\r\n...two\r\nmid.dot\r\n..\r\nend\r\n.\r\n"
+        );
+        // A bare LF does not start a line (only CRLF does, as SMTP reads it).
+        assert_eq!(Terminated("a\n.b").to_string(), "a\n.b\r\n.\r\n");
     }
 }

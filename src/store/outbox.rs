@@ -1,6 +1,7 @@
-//! SQL of the mail outbox (the worker's side: due messages, sent / retry / dead-letter) and of
-//! the operator commands (`seepd alerts`, `ack`, `silence`), which run against the database of
-//! a running service: every statement is a short transaction under the busy timeout.
+//! SQL of the mail outbox (the worker's side: due messages, sent / retry / dead-letter, each
+//! recipient's fate) and of the operator commands (`seepd alerts`, `ack`, `silence`), which run
+//! against the database of a running service: every statement is a short transaction under
+//! the busy timeout.
 
 use rusqlite::{params, OptionalExtension};
 
@@ -21,6 +22,27 @@ pub struct Queued {
     pub last_error: Option<String>,
     /// Files to attach (scheduled reports; none for alert messages).
     pub attachments: Vec<super::Attachment>,
+}
+
+/// What an attempt came to for one recipient.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum RcptOutcome {
+    /// The relay accepted the message for this recipient.
+    Accepted,
+    /// Refused for good (5xx), with the server's reply: this recipient is dead-lettered.
+    Refused(String),
+    /// Not delivered for now (4xx, or the transaction failed after RCPT): try again.
+    Deferred(String),
+}
+
+/// A message some recipient of which will never get it, for `seepd alerts`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Undeliverable {
+    pub message: Queued,
+    /// (address, server reply) of each refused recipient.
+    pub refused: Vec<(String, String)>,
+    /// Recipients who did get it.
+    pub delivered: Vec<String>,
 }
 
 /// An alert not yet resolved, for `seepd alerts`.
@@ -103,19 +125,6 @@ impl Store {
         )?)
     }
 
-    /// The server accepted the message.
-    ///
-    /// # Errors
-    /// SQLite errors.
-    pub fn mark_sent(&self, id: i64, now_ms: i64) -> Result<(), StoreError> {
-        self.conn.execute(
-            "UPDATE outbox SET status = 'sent', sent_ms = ?2, attempts = attempts + 1,
-                last_error = NULL WHERE id = ?1",
-            params![id, now_ms],
-        )?;
-        Ok(())
-    }
-
     /// A transient failure: try again at `next_ms`.
     ///
     /// # Errors
@@ -129,17 +138,139 @@ impl Store {
         Ok(())
     }
 
-    /// A permanent refusal (5xx): dead-letter with the server's reply.
+    /// The recipients of `m` still to be served (no delivery and no refusal recorded).
     ///
     /// # Errors
     /// SQLite errors.
-    pub fn mark_dead(&self, id: i64, error: &str) -> Result<(), StoreError> {
-        self.conn.execute(
-            "UPDATE outbox SET status = 'dead', attempts = attempts + 1, last_error = ?2
-             WHERE id = ?1",
-            params![id, error],
+    pub fn pending_recipients(&self, m: &Queued) -> Result<Vec<String>, StoreError> {
+        let done = self.recipient_rows(m.id)?;
+        Ok(m.recipients
+            .iter()
+            .filter(|r| !done.iter().any(|(a, ..)| a == *r))
+            .cloned()
+            .collect())
+    }
+
+    /// (address, status, reply) of each recipient of message `id` served so far.
+    fn recipient_rows(&self, id: i64) -> Result<Vec<(String, String, Option<String>)>, StoreError> {
+        let mut st = self.conn.prepare_cached(
+            "SELECT address, status, reply FROM outbox_recipients WHERE outbox = ?1
+             ORDER BY address",
         )?;
-        Ok(())
+        let rows = st.query_map([id], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// Record one attempt at message `m`, recipient by recipient, in one transaction: accepted
+    /// and refused recipients are settled; while any recipient is left (deferred, or never
+    /// tried), the message stays pending until `retry_ms`; otherwise it is `sent` when anyone
+    /// got it, else `dead`. Returns the message's status afterwards.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn record_delivery(
+        &self,
+        m: &Queued,
+        delivery: &[(String, RcptOutcome)],
+        now_ms: i64,
+        retry_ms: i64,
+    ) -> Result<&'static str, StoreError> {
+        let tx = self.conn.unchecked_transaction()?;
+        for (address, outcome) in delivery {
+            let (status, reply) = match outcome {
+                RcptOutcome::Accepted => ("sent", None),
+                RcptOutcome::Refused(r) => ("dead", Some(r.as_str())),
+                RcptOutcome::Deferred(_) => continue,
+            };
+            tx.execute(
+                "INSERT OR REPLACE INTO outbox_recipients (outbox, address, status, reply, t_ms)
+                 VALUES (?1, ?2, ?3, ?4, ?5)",
+                params![m.id, address, status, reply, now_ms],
+            )?;
+        }
+        let (served, sent): (i64, i64) = tx.query_row(
+            "SELECT count(*), coalesce(sum(status = 'sent'), 0) FROM outbox_recipients
+             WHERE outbox = ?1",
+            [m.id],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )?;
+        let replies = |pick: fn(&RcptOutcome) -> Option<&String>| {
+            let v: Vec<String> = delivery
+                .iter()
+                .filter_map(|(a, o)| pick(o).map(|r| format!("{a}: {r}")))
+                .collect();
+            (!v.is_empty()).then(|| v.join("; "))
+        };
+        let refused = replies(|o| match o {
+            RcptOutcome::Refused(r) => Some(r),
+            _ => None,
+        });
+        let status = if (served as usize) < m.recipients.len() {
+            let deferred = replies(|o| match o {
+                RcptOutcome::Deferred(r) => Some(r),
+                _ => None,
+            });
+            tx.execute(
+                "UPDATE outbox SET attempts = attempts + 1, next_attempt_ms = ?2,
+                    last_error = coalesce(?3, ?4, last_error) WHERE id = ?1",
+                params![m.id, retry_ms, deferred, refused],
+            )?;
+            "pending"
+        } else {
+            let status = if sent > 0 { "sent" } else { "dead" };
+            tx.execute(
+                "UPDATE outbox SET status = ?2, attempts = attempts + 1,
+                    sent_ms = CASE WHEN ?2 = 'sent' THEN coalesce(sent_ms, ?3) END,
+                    last_error = coalesce(?4, CASE WHEN ?2 = 'dead' THEN last_error END)
+                 WHERE id = ?1",
+                params![m.id, status, now_ms, refused],
+            )?;
+            status
+        };
+        tx.commit()?;
+        Ok(status)
+    }
+
+    /// Messages that some recipient will never get (dead, or refused for some recipients),
+    /// oldest first, with each refused recipient's reply.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn undeliverable(&self) -> Result<Vec<Undeliverable>, StoreError> {
+        let mut st = self.conn.prepare(&format!(
+            "SELECT {QUEUED_COLUMNS} FROM outbox WHERE status = 'dead' OR id IN
+                (SELECT outbox FROM outbox_recipients WHERE status = 'dead') ORDER BY id"
+        ))?;
+        let messages: Vec<Queued> = st.query_map([], queued)?.collect::<Result<_, _>>()?;
+        let mut out = Vec::with_capacity(messages.len());
+        for message in messages {
+            let rows = self.recipient_rows(message.id)?;
+            let mut refused: Vec<(String, String)> = rows
+                .iter()
+                .filter(|(_, s, _)| s == "dead")
+                .map(|(a, _, r)| (a.clone(), r.clone().unwrap_or_default()))
+                .collect();
+            if refused.is_empty() {
+                // Dead-lettered whole before recipients were recorded one by one.
+                let reply = message.last_error.clone().unwrap_or_default();
+                refused = message
+                    .recipients
+                    .iter()
+                    .map(|a| (a.clone(), reply.clone()))
+                    .collect();
+            }
+            let delivered = rows
+                .into_iter()
+                .filter(|(_, s, _)| s == "sent")
+                .map(|(a, ..)| a)
+                .collect();
+            out.push(Undeliverable {
+                message,
+                refused,
+                delivered,
+            });
+        }
+        Ok(out)
     }
 
     /// Messages with `status` (`pending`, `sent`, `dead`), oldest first.

@@ -195,6 +195,17 @@ const MIGRATIONS: &[&str] = &[
         created_ms INTEGER NOT NULL,
         PRIMARY KEY (schedule, period_start_ms)
     );",
+    // 7: the fate of each recipient of an outbox message: one refused address must not
+    // silence the others, so delivery is judged (and dead-lettered) recipient by recipient.
+    // A recipient without a row is still to be served.
+    "CREATE TABLE outbox_recipients (
+        outbox INTEGER NOT NULL REFERENCES outbox (id),
+        address TEXT NOT NULL,
+        status TEXT NOT NULL,
+        reply TEXT,
+        t_ms INTEGER NOT NULL,
+        PRIMARY KEY (outbox, address)
+    ) WITHOUT ROWID;",
 ];
 
 /// The schema version this build writes.

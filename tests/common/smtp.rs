@@ -23,6 +23,10 @@ pub struct Opts {
     pub auth: bool,
     /// 550 for every message.
     pub reject: bool,
+    /// Addresses refused with 550 at RCPT TO (the other recipients are accepted).
+    pub refuse: Vec<String>,
+    /// Addresses deferred with 450 at RCPT TO.
+    pub defer: Vec<String>,
 }
 
 /// A running aiosmtpd.
@@ -108,6 +112,12 @@ impl SmtpServer {
         if self.opts.reject {
             cmd.arg("--reject");
         }
+        for a in &self.opts.refuse {
+            cmd.args(["--refuse", a]);
+        }
+        for a in &self.opts.defer {
+            cmd.args(["--defer", a]);
+        }
         let child = cmd
             .stdout(Stdio::null())
             .stderr(std::fs::File::create(self.dir.join("smtp-server.err")).unwrap())
@@ -145,6 +155,20 @@ impl SmtpServer {
                 out.push(std::fs::read_to_string(e.path()).unwrap_or_default());
             }
         }
+        out
+    }
+
+    /// (Message-ID, recipient) of every delivery in the Maildir: one per recipient of each
+    /// message (aiosmtpd records the envelope recipients in `X-RcptTo`).
+    pub fn deliveries(&self) -> Vec<(String, String)> {
+        let mut out = Vec::new();
+        for m in self.messages() {
+            let id = header(&m, "Message-ID").unwrap_or_default();
+            for to in header(&m, "X-RcptTo").unwrap_or_default().split(',') {
+                out.push((id.clone(), to.trim().to_string()));
+            }
+        }
+        out.sort();
         out
     }
 

@@ -9,7 +9,10 @@ Run with /usr/bin/python3 (Debian python3-aiosmtpd). Listens on 127.0.0.1 only.
   --auth USER:PASS      require AUTH (PLAIN/LOGIN) with this one test user (needs --cert)
   --implicit-tls        TLS from the first byte instead of STARTTLS (with --cert/--key)
   --reject              answer every DATA with 550 (a permanent refusal)
-  --log FILE            append one line per accepted message: time, Message-ID, Subject
+  --refuse ADDR         answer RCPT TO:<ADDR> with 550 (repeatable; other recipients accepted)
+  --defer ADDR          answer RCPT TO:<ADDR> with 450 (repeatable; a temporary refusal)
+  --log FILE            append one line per accepted message: time, Message-ID, Subject,
+                        recipients (comma-separated)
 """
 import argparse
 import email
@@ -23,12 +26,27 @@ from aiosmtpd.handlers import Mailbox
 from aiosmtpd.smtp import AuthResult
 
 
-class Rejecting:
+class Recipients:
+    """RCPT TO: refuse (550) or defer (450) the listed addresses, accept the others."""
+
+    refuse = ()
+    defer = ()
+
+    async def handle_RCPT(self, server, session, envelope, address, rcpt_options):
+        if address.lower() in self.refuse:
+            return "550 5.1.1 <%s>: mailbox unavailable (test server refuse list)" % address
+        if address.lower() in self.defer:
+            return "450 4.2.1 <%s>: mailbox busy, try later (test server defer list)" % address
+        envelope.rcpt_tos.append(address)
+        return "250 OK"
+
+
+class Rejecting(Recipients):
     async def handle_DATA(self, server, session, envelope):
         return "550 5.7.1 Rejected by the test server (reject mode)"
 
 
-class Logging(Mailbox):
+class Logging(Recipients, Mailbox):
     def __init__(self, maildir, log):
         super().__init__(maildir)
         self.log = log
@@ -38,8 +56,13 @@ class Logging(Mailbox):
         if self.log:
             with open(self.log, "a") as f:
                 f.write(
-                    "%.6f\t%s\t%s\n"
-                    % (time.time(), message.get("Message-ID", ""), message.get("Subject", ""))
+                    "%.6f\t%s\t%s\t%s\n"
+                    % (
+                        time.time(),
+                        message.get("Message-ID", ""),
+                        message.get("Subject", ""),
+                        message.get("X-RcptTo", ""),
+                    )
                 )
 
 
@@ -52,10 +75,14 @@ def main():
     p.add_argument("--auth")
     p.add_argument("--implicit-tls", action="store_true")
     p.add_argument("--reject", action="store_true")
+    p.add_argument("--refuse", action="append", default=[])
+    p.add_argument("--defer", action="append", default=[])
     p.add_argument("--log")
     a = p.parse_args()
 
     handler = Rejecting() if a.reject else Logging(a.maildir, a.log)
+    handler.refuse = {x.lower() for x in a.refuse}
+    handler.defer = {x.lower() for x in a.defer}
     kw = {}
     if a.cert:
         ctx = ssl.create_default_context(ssl.Purpose.CLIENT_AUTH)
