@@ -188,6 +188,9 @@ impl Engine {
         accepted.sort_by_key(|(i, ..)| i.kind.barometer().is_some());
         for (instrument, d, t_ms, flags) in accepted {
             match self.reduce_one(&cfg, instrument, &d, t_ms, flags, msg.arrival) {
+                // Stamped ahead of our clock: stored, but it must not move the instrument's
+                // clock (health, rates, derived inputs) past the real readings that follow.
+                Ok(row) if row.flags.contains(Flags::TIME_AHEAD) => out.readings.push(row),
                 Ok(mut row) => {
                     self.watch.check(&mut row);
                     out.derived.extend(self.deriver.on_reading(&row));
@@ -239,8 +242,9 @@ impl Engine {
                 arrival
             }
         };
-        let ahead_s = (time - arrival).num_seconds();
-        if ahead_s > cfg.service.max_future_s {
+        let ahead_ms = (time - arrival).num_milliseconds();
+        let ahead_s = ahead_ms / 1000;
+        if ahead_ms > cfg.service.max_future_s * 1000 {
             return Err(Reject::new(
                 Reason::TimeInFuture,
                 format!(
@@ -250,6 +254,9 @@ impl Engine {
                     cfg.service.max_future_s
                 ),
             ));
+        }
+        if ahead_ms > cfg.service.clock_skew_s * 1000 {
+            flags.insert(Flags::TIME_AHEAD);
         }
         if time < instrument.installed {
             return Err(Reject::new(

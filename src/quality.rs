@@ -118,15 +118,20 @@ impl Flags {
     pub const FLATLINE: Flags = Flags(1 << 4);
     /// Sensor health: thermistor temperature implausible or jumped since the last reading.
     pub const THERMISTOR: Flags = Flags(1 << 5);
+    /// Stamped more than `clock_skew_s` after its arrival: the logger's clock is ahead of ours.
+    /// Stored, but kept out of every clock-driven state (rules, health, rates, derived values)
+    /// so that its time cannot make the real readings after it look late.
+    pub const TIME_AHEAD: Flags = Flags(1 << 6);
 
     /// Names of the flags, for output and docs.
-    pub const NAMES: [(Flags, &'static str); 6] = [
+    pub const NAMES: [(Flags, &'static str); 7] = [
         (Flags::TIME_FROM_ARRIVAL, "time_from_arrival"),
         (Flags::BARO_MISSING, "baro_missing"),
         (Flags::TEMP_MISSING, "temp_missing"),
         (Flags::SPIKE, "spike"),
         (Flags::FLATLINE, "flatline"),
         (Flags::THERMISTOR, "thermistor"),
+        (Flags::TIME_AHEAD, "time_ahead"),
     ];
 
     pub fn empty() -> Self {

@@ -48,7 +48,15 @@ pub fn observations(out: &Outcome) -> Vec<Observation> {
 /// The observations of the objects `keep` accepts (the others cost nothing).
 pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observation> {
     let mut v = Vec::new();
-    for r in out.readings.iter().filter(|r| keep(&r.instrument)) {
+    // A reading stamped ahead of our clock never reaches a rule: its time would make the
+    // rule ignore the real readings that follow (see `Flags::TIME_AHEAD`).
+    let on_time = |r: &&crate::store::ReadingRow| !r.flags.contains(Flags::TIME_AHEAD);
+    for r in out
+        .readings
+        .iter()
+        .filter(on_time)
+        .filter(|r| keep(&r.instrument))
+    {
         for (quantity, value, unit) in crate::replay::quantities(r) {
             v.push(Observation {
                 object: r.instrument.clone(),

@@ -64,6 +64,10 @@ pub struct Service {
     pub max_payload_bytes: usize,
     /// Readings stamped further than this into the future are quarantined (s). Default 600.
     pub max_future_s: i64,
+    /// Readings stamped more than this after their arrival (but within `max_future_s`) are
+    /// stored flagged `time_ahead` and kept out of rules, health, rates and derived values
+    /// (s). Default 60.
+    pub clock_skew_s: i64,
     /// How far apart in time a barometer reading may be from the reading it corrects (s).
     pub barometer_max_age_s: i64,
     /// Shutdown deadline (s): after SIGINT/SIGTERM the service exits within this.

@@ -107,6 +107,7 @@ fn default_service(dir: &Path) -> Service {
         commit_max_ms: 50,
         max_payload_bytes: 65536,
         max_future_s: 600,
+        clock_skew_s: 60,
         barometer_max_age_s: 7200,
         shutdown_deadline_s: 10,
     }
@@ -137,6 +138,7 @@ fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
             "commit_max_ms",
             "max_payload_bytes",
             "max_future_s",
+            "clock_skew_s",
             "barometer_max_age_s",
             "shutdown_deadline_s",
         ],
@@ -154,9 +156,20 @@ fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
         max_payload_bytes: t.int_in(cx, "max_payload_bytes", 1, limits::MQTT_PACKET_BYTES, 65536)
             as usize,
         max_future_s: t.int_in(cx, "max_future_s", 0, limits::FUTURE_S, 600),
+        clock_skew_s: t.int_in(cx, "clock_skew_s", 0, limits::FUTURE_S, 60),
         barometer_max_age_s: t.int_in(cx, "barometer_max_age_s", 0, limits::BAROMETER_AGE_S, 7200),
         shutdown_deadline_s: t.int_in(cx, "shutdown_deadline_s", 1, limits::SHUTDOWN_S, 10) as u64,
     };
+    if s.clock_skew_s > s.max_future_s && t.has("clock_skew_s") {
+        t.problem_at(
+            cx,
+            "clock_skew_s",
+            format!(
+                "clock_skew_s is {} but max_future_s is {}; expected clock_skew_s <= max_future_s",
+                s.clock_skew_s, s.max_future_s
+            ),
+        );
+    }
     (cx.problems.len() == before).then_some(s)
 }
 

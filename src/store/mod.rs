@@ -404,7 +404,8 @@ impl Store {
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
-    /// The latest reading of each instrument.
+    /// The latest reading of each instrument, leaving out readings stamped ahead of the clock
+    /// (`time_ahead`: they seed nothing).
     ///
     /// # Errors
     /// SQLite errors.
@@ -412,11 +413,12 @@ impl Store {
         let mut st = self.conn.prepare(
             "SELECT r.instrument, r.t_ms, r.total_head_m, r.pressure_kpa, r.flags
              FROM readings r
-             JOIN (SELECT instrument, max(t_ms) AS t FROM readings GROUP BY instrument) m
+             JOIN (SELECT instrument, max(t_ms) AS t FROM readings WHERE (flags & ?1) = 0
+                   GROUP BY instrument) m
                ON m.instrument = r.instrument AND m.t = r.t_ms
              ORDER BY r.instrument",
         )?;
-        let rows = st.query_map([], |r| {
+        let rows = st.query_map([Flags::TIME_AHEAD.0], |r| {
             Ok(Latest {
                 instrument: r.get(0)?,
                 t_ms: r.get(1)?,

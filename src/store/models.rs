@@ -147,7 +147,8 @@ impl Store {
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
-    /// Readings of `instrument` at or after `since_ms`, oldest first (seeding at start).
+    /// Readings of `instrument` at or after `since_ms`, oldest first (seeding at start);
+    /// readings stamped ahead of the clock (`time_ahead`) are left out.
     ///
     /// # Errors
     /// SQLite errors.
@@ -158,9 +159,10 @@ impl Store {
     ) -> Result<Vec<SeedReading>, StoreError> {
         let mut st = self.conn.prepare_cached(
             "SELECT t_ms, total_head_m, temperature_c, flags FROM readings
-             WHERE instrument = ?1 AND t_ms >= ?2 ORDER BY t_ms",
+             WHERE instrument = ?1 AND t_ms >= ?2 AND (flags & ?3) = 0 ORDER BY t_ms",
         )?;
-        let rows = st.query_map(params![instrument, since_ms], |r| {
+        let ahead = Flags::TIME_AHEAD.0;
+        let rows = st.query_map(params![instrument, since_ms, ahead], |r| {
             Ok(SeedReading {
                 t_ms: r.get(0)?,
                 total_head_m: r.get(1)?,

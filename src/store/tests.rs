@@ -176,3 +176,19 @@ fn a_conflicting_duplicate_is_recorded_once_and_the_first_value_kept() {
     assert_eq!(v["instrument"], "P1");
     assert_eq!(v["value"], 10.5);
 }
+
+/// A reading stamped ahead of the clock seeds nothing at start: the latest reading and the
+/// seeding read-back skip it, so a restart does not bring back what it would have hidden.
+#[test]
+fn readings_stamped_ahead_seed_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut s = Store::open(&dir.path().join("d.sqlite")).unwrap();
+    let mut ahead = row("P1", 9_000, 3.0);
+    ahead.flags.insert(Flags::TIME_AHEAD);
+    s.write_batch(&[row("P1", 1_000, 1.0), ahead], &[], &[])
+        .unwrap();
+    let latest = s.latest_all().unwrap();
+    assert_eq!((latest.len(), latest[0].t_ms), (1, 1_000));
+    let seed = s.readings_since("P1", 0).unwrap();
+    assert_eq!(seed.iter().map(|r| r.t_ms).collect::<Vec<_>>(), vec![1_000]);
+}
