@@ -69,6 +69,7 @@ pub async fn run(
     counters: Arc<Counters>,
     shutdown: impl Future<Output = ()>,
 ) -> anyhow::Result<()> {
+    survive_file_size_limit();
     let (store, mut engine) = open(&cfg)?;
     let (fits_tx, fits_rx) = std::sync::mpsc::channel();
     engine.watch_mut().receive_fits(fits_rx);
@@ -128,6 +129,20 @@ pub async fn run(
         }
     }
     result
+}
+
+/// A file-size limit (RLIMIT_FSIZE, e.g. systemd's `LimitFSIZE`) sends SIGXFSZ, which by
+/// default kills the process: take the signal instead, so that the write fails like a full
+/// disk — the commit is retried, nothing is acknowledged, and the service stays up.
+fn survive_file_size_limit() {
+    #[cfg(unix)]
+    {
+        use tokio::signal::unix::{signal, SignalKind};
+        // Tokio keeps a signal's handler installed for the life of the process.
+        if let Err(e) = signal(SignalKind::from_raw(libc::SIGXFSZ)) {
+            tracing::warn!(error = %e, "Cannot take SIGXFSZ; a file-size limit would stop the service");
+        }
+    }
 }
 
 /// Spawn the export worker when `[export]` is configured and enabled.

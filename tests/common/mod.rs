@@ -104,6 +104,14 @@ impl Broker {
         self.stop();
         self.spawn();
     }
+
+    /// Start again on the same port with its store emptied (every session and queued message
+    /// forgotten, as after a broker replaced or reinstalled).
+    pub fn restart_empty(&mut self) {
+        self.stop();
+        let _ = std::fs::remove_file(self.dir.join("mosquitto.db"));
+        self.spawn();
+    }
 }
 
 impl Drop for Broker {
@@ -213,12 +221,26 @@ pub struct Daemon {
 
 impl Daemon {
     pub fn start(config: &Path, log: &Path) -> Daemon {
+        Daemon::start_cmd(Command::new(seepd_bin()), config, log)
+    }
+
+    /// `start` under a file-size limit (RLIMIT_FSIZE, soft `bytes`, hard unlimited), set with
+    /// the `prlimit` tool, which then runs seepd in its own place (same process id).
+    pub fn start_limited(config: &Path, log: &Path, bytes: u64) -> Daemon {
+        let mut cmd = Command::new("prlimit");
+        cmd.arg(format!("--fsize={bytes}:unlimited"))
+            .arg("--")
+            .arg(seepd_bin());
+        Daemon::start_cmd(cmd, config, log)
+    }
+
+    fn start_cmd(mut cmd: Command, config: &Path, log: &Path) -> Daemon {
         let out = std::fs::OpenOptions::new()
             .create(true)
             .append(true)
             .open(log)
             .unwrap();
-        let child = Command::new(seepd_bin())
+        let child = cmd
             .args(["run", "--config"])
             .arg(config)
             .env("SEEPD_LOG", "info")
@@ -271,6 +293,50 @@ impl Drop for Daemon {
     }
 }
 
+/// A running seepd on the example configuration with a broker of its own, in a temp dir. Its
+/// fields drop in order: the daemon, then the broker, then the directory.
+pub struct Rig {
+    pub daemon: Daemon,
+    pub broker: Broker,
+    pub cfg: PathBuf,
+    pub log: PathBuf,
+    pub dir: tempfile::TempDir,
+}
+
+impl Rig {
+    /// The example configuration (`example_config`), seepd connected.
+    pub fn start() -> Rig {
+        Rig::start_with(example_config)
+    }
+
+    /// A configuration made by `make(dir, broker_port)`, seepd connected.
+    pub fn start_with(make: impl FnOnce(&Path, u16) -> PathBuf) -> Rig {
+        let dir = tempfile::tempdir().unwrap();
+        let broker = Broker::start(dir.path());
+        let cfg = make(dir.path(), broker.port);
+        let log = dir.path().join("seepd.log");
+        let daemon = Daemon::start(&cfg, &log);
+        daemon.wait_connected(1);
+        Rig {
+            daemon,
+            broker,
+            cfg,
+            log,
+            dir,
+        }
+    }
+
+    /// The test directory (database, logs).
+    pub fn path(&self) -> &Path {
+        self.dir.path()
+    }
+
+    /// The seepd log so far.
+    pub fn log_text(&self) -> String {
+        std::fs::read_to_string(&self.log).unwrap_or_default()
+    }
+}
+
 /// A QoS 1 publisher with a persistent session that survives broker restarts, driven from a
 /// thread of its own. `publish_all` returns once the broker has acknowledged every message.
 pub struct Publisher {
@@ -281,6 +347,11 @@ pub struct Publisher {
 
 impl Publisher {
     pub fn connect(port: u16, id: &str) -> Publisher {
+        Publisher::connect_with(port, id, 1 << 20)
+    }
+
+    /// `connect` with a larger packet limit (for oversized payloads).
+    pub fn connect_with(port: u16, id: &str, max_packet_bytes: usize) -> Publisher {
         let rt = tokio::runtime::Builder::new_multi_thread()
             .worker_threads(1)
             .enable_all()
@@ -290,7 +361,7 @@ impl Publisher {
         o.set_clean_session(false)
             .set_keep_alive(Duration::from_secs(5))
             .set_inflight(50)
-            .set_max_packet_size(1 << 20, 1 << 20);
+            .set_max_packet_size(max_packet_bytes, max_packet_bytes);
         let (client, mut el) = rumqttc::AsyncClient::new(o, 100_000);
         let acked = std::sync::Arc::new(std::sync::atomic::AtomicUsize::new(0));
         let a = acked.clone();

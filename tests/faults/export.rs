@@ -1,0 +1,111 @@
+//! The InfluxDB-compatible server (VictoriaMetrics) stopped while readings stream in through
+//! the broker, then started again: every point of every reading is in it afterwards, each
+//! exactly once.
+
+use std::collections::{BTreeMap, BTreeSet};
+use std::time::{Duration, Instant};
+
+use crate::common::*;
+use crate::support::*;
+
+const PER_PHASE: i64 = 1_000;
+/// Samples per river reading with `series = ["readings"]`: engineering value and total head
+/// (`seepd_reading_value`), raw and flags (`seepd_input_raw`, `seepd_input_flags`).
+const SAMPLES: usize = 4;
+
+fn publish(p: &Publisher, t0: i64, from: i64) {
+    for i in from..from + PER_PHASE {
+        p.send(
+            "demo/AB-LOG1/json",
+            river_json(t0 + i, 2.0 + (i % 500) as f64 / 100.0),
+        );
+    }
+}
+
+#[test]
+fn export_server_down_mid_stream_every_point_arrives_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let broker = Broker::start(dir.path());
+    let mut vm = Victoria::start(dir.path());
+    let cfg = export_config(
+        dir.path(),
+        broker.port,
+        &vm.url(),
+        "batch_size = 200\nseries = [\"readings\"]",
+    );
+    let log = dir.path().join("seepd.log");
+    let d = Daemon::start(&cfg, &log);
+    d.wait_connected(1);
+    let p = Publisher::connect(broker.port, "pub-export");
+    let t0 = chrono::Utc::now().timestamp() - 3 * 86_400;
+    publish(&p, t0, 0);
+    // Down while the stream is on: some of the first phase is out, the rest queues.
+    wait_for(Duration::from_secs(60), || {
+        (vm.samples() >= 200 * SAMPLES).then_some(())
+    })
+    .expect("export started");
+    vm.stop();
+    let down = Instant::now();
+    publish(&p, t0, PER_PHASE);
+    assert!(
+        wait_log(&log, "Export write failed", 3, Duration::from_secs(30)),
+        "retries during the outage: {}",
+        std::fs::read_to_string(&log).unwrap_or_default()
+    );
+    // A few seconds of outage, as a restart of the server would take.
+    std::thread::sleep(Duration::from_secs(3).saturating_sub(down.elapsed()));
+    let queued = count(dir.path(), "export_queue", "1");
+    vm.restart();
+    let outage = down.elapsed();
+    let up = Instant::now();
+    publish(&p, t0, 2 * PER_PHASE);
+    let n = 3 * PER_PHASE;
+    let want = n as usize * SAMPLES;
+    let arrived = wait_for(Duration::from_secs(90), || {
+        (vm.samples() >= want && count(dir.path(), "export_queue", "1") == 0).then_some(())
+    });
+    let catch_up = up.elapsed();
+    assert!(
+        arrived.is_some(),
+        "{} of {want} samples; log:\n{}",
+        vm.samples(),
+        std::fs::read_to_string(&log).unwrap_or_default()
+    );
+    // Every (series, time) exactly once.
+    let mut by: BTreeMap<String, Vec<i64>> = BTreeMap::new();
+    for s in vm.series() {
+        let name = format!(
+            "{}/{}",
+            s.metric["__name__"],
+            s.metric.get("quantity").map_or("", String::as_str)
+        );
+        by.entry(name).or_default().extend(&s.timestamps);
+    }
+    let times: BTreeSet<i64> = (0..n).map(|i| (t0 + i) * 1000).collect();
+    assert_eq!(by.len(), SAMPLES, "{:?}", by.keys());
+    for (name, got) in &by {
+        let distinct: BTreeSet<i64> = got.iter().copied().collect();
+        assert_eq!(distinct, times, "{name}: missing points");
+        assert_eq!(got.len(), times.len(), "{name}: a point twice");
+    }
+    assert_eq!(count(dir.path(), "readings", "1"), n);
+    drop(d);
+    figures(
+        "export",
+        &[
+            (
+                "readings published",
+                format!("{n} (1,000 before, during and after the outage)"),
+            ),
+            (
+                "points",
+                format!("{want} expected, {want} in VictoriaMetrics, none twice"),
+            ),
+            (
+                "outage",
+                format!("{} ({queued} entries queued meanwhile)", secs(outage)),
+            ),
+            ("backlog drained after the server came back", secs(catch_up)),
+        ],
+    );
+}
