@@ -589,3 +589,6 @@ mod report_tests;
 
 #[cfg(test)]
 mod hardening_tests;
+
+#[cfg(test)]
+mod props_tests;

@@ -1,6 +1,7 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
 //! (`load`, with `service`, `export`, `site`, `kinds`, `objects`, `rules`, `smtp` and `trends`
-//! reading the tables through `reader`); the alerting model is in `alerting`.
+//! reading the tables through `reader`, every bound from `limits`); the alerting model is in
+//! `alerting`; `locate` finds the database alone for the operator commands.
 
 pub mod alerting;
 mod export;

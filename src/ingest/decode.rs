@@ -83,6 +83,9 @@ pub(crate) mod test_support {
 }
 
 #[cfg(test)]
+mod props;
+
+#[cfg(test)]
 mod tests {
     use super::test_support::sub;
     use super::*;
