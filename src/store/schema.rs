@@ -195,6 +195,13 @@ const MIGRATIONS: &[&str] = &[
         created_ms INTEGER NOT NULL,
         PRIMARY KEY (schedule, period_start_ms)
     );",
+    // 7: the running service's own state for `seepd status` (broker link, ...), one JSON
+    // document per key.
+    "CREATE TABLE service_state (
+        key TEXT PRIMARY KEY,
+        value TEXT NOT NULL,
+        updated_ms INTEGER NOT NULL
+    );",
 ];
 
 /// The schema version this build writes.
