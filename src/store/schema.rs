@@ -195,7 +195,14 @@ const MIGRATIONS: &[&str] = &[
         created_ms INTEGER NOT NULL,
         PRIMARY KEY (schedule, period_start_ms)
     );",
-    // 7: the fate of each recipient of an outbox message: one refused address must not
+    // 7: the running service's own state for `seepd status` (broker link, ...), one JSON
+    // document per key.
+    "CREATE TABLE service_state (
+        key TEXT PRIMARY KEY,
+        value TEXT NOT NULL,
+        updated_ms INTEGER NOT NULL
+    );",
+    // 8: the fate of each recipient of an outbox message: one refused address must not
     // silence the others, so delivery is judged (and dead-lettered) recipient by recipient.
     // A recipient without a row is still to be served.
     "CREATE TABLE outbox_recipients (

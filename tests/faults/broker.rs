@@ -56,10 +56,16 @@ fn broker_restarts_with_its_store_kept_and_emptied_lose_nothing_published_after(
     let t0 = chrono::Utc::now().timestamp() - 7 * 86_400;
     publish_and_store(&p, &dir, t0, 0, &log);
 
-    // 1. Store kept: a stop of a few seconds, then the same broker again.
+    // 1. Store kept: a stop of a few seconds, then the same broker again. Meanwhile
+    // `seepd status` tells of the outage.
     broker.stop();
     let down = Instant::now();
-    std::thread::sleep(Duration::from_secs(2));
+    let during = wait_for(Duration::from_secs(10), || {
+        let (_, out, _) = seepd_output(&["status", "--config", &cfg.display().to_string()]);
+        out.contains("Broker: NOT CONNECTED").then_some(out)
+    })
+    .expect("status shows the outage");
+    std::thread::sleep(Duration::from_secs(2).saturating_sub(down.elapsed()));
     broker.restart();
     let up = Instant::now();
     let outage_kept = up - down;
@@ -92,12 +98,24 @@ fn broker_restarts_with_its_store_kept_and_emptied_lose_nothing_published_after(
     assert_eq!(count(&dir, "readings", "1"), 3 * PER_PHASE);
     assert_eq!(count(&dir, "quarantine", "1"), 0);
 
-    let (code, status, err) = seepd_output(&["status", "--config", &cfg.display().to_string()]);
-    assert_eq!(code, 0, "{err}");
+    // The link state is recorded within a second of a change.
+    let status = wait_for(Duration::from_secs(10), || {
+        let (code, out, err) = seepd_output(&["status", "--config", &cfg.display().to_string()]);
+        assert_eq!(code, 0, "{err}");
+        out.contains("Broker: connected").then_some(out)
+    })
+    .expect("status shows the link up again");
     assert!(
         status.contains(&format!("Readings: {}", 3 * PER_PHASE)),
         "{status}"
     );
+    assert!(status.contains("Broker: connected"), "{status}");
+    assert!(status.contains("reconnections since start: 2"), "{status}");
+    let outage_line = during
+        .lines()
+        .find(|l| l.starts_with("Broker:"))
+        .unwrap_or("")
+        .to_string();
     figures(
         "broker",
         &[
@@ -120,6 +138,7 @@ fn broker_restarts_with_its_store_kept_and_emptied_lose_nothing_published_after(
                 ),
             ),
             ("reconnect backoff", "reconnect_min_ms 100, reconnect_max_ms 1000".into()),
+            ("`seepd status` during the outage", outage_line),
         ],
     );
 }
