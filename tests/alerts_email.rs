@@ -367,3 +367,42 @@ fn a_deferred_recipient_is_retried_alone_and_served_once() {
     assert_eq!(store.messages("pending").unwrap().len(), 0);
     assert_eq!(server.deliveries(), wanted(&store, ""));
 }
+
+/// One connection serves a burst (aiosmtpd's `X-Peer` names the client's port), and a kept
+/// connection the relay dropped meanwhile is replaced without losing or doubling a message.
+#[test]
+fn a_kept_connection_serves_a_burst_and_survives_a_relay_restart() {
+    let dir = tempfile::tempdir().unwrap();
+    let port = free_port();
+    let mut server = SmtpServer::start_on(dir.path(), port, Opts::default());
+    let cfg = config(dir.path(), port);
+    let relay = cfg.alerting.smtp.clone().unwrap();
+    let mut store = Store::open(&dir.path().join("seepd.sqlite")).unwrap();
+    let ids = raise_river(cfg, &mut store);
+    let mailer = Mailer::new(&relay).unwrap();
+    assert_eq!(
+        deliver_due(&store, &mailer, &relay).unwrap().sent,
+        ids.len()
+    );
+    let peers: BTreeSet<String> = server
+        .messages()
+        .iter()
+        .filter_map(|m| header(m, "X-Peer"))
+        .collect();
+    assert_eq!(peers.len(), 1, "one connection for the burst: {peers:?}");
+    // The relay restarts under the kept connection; one message is owed again.
+    server.stop();
+    let server = SmtpServer::start_on(dir.path(), port, Opts::default());
+    let before = server.messages().len();
+    store
+        .conn()
+        .execute_batch(
+            "DELETE FROM outbox_recipients WHERE outbox = (SELECT min(id) FROM outbox);
+             UPDATE outbox SET status = 'pending', next_attempt_ms = 0
+              WHERE id = (SELECT min(id) FROM outbox);",
+        )
+        .unwrap();
+    let pass = deliver_due(&store, &mailer, &relay).unwrap();
+    assert_eq!((pass.sent, pass.retried), (1, 0), "{pass:?}");
+    assert_eq!(server.messages().len(), before + 1);
+}

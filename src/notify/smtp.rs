@@ -7,11 +7,14 @@
 //! others, so the message goes to every accepted recipient and each refusal comes back with
 //! the server's reply (5xx: never retried; 4xx: retried later). The whole message body and its
 //! terminating `.` go out in one write: written separately, Nagle's algorithm holds the small
-//! terminator until the relay's delayed acknowledgement (about 40 ms per message). Must not
-//! decide what to send or touch the database.
+//! terminator until the relay's delayed acknowledgement (about 40 ms per message). A connection
+//! is kept for the next message for up to `KEEP` (a burst of alerts pays for one connection,
+//! TLS handshake and login); one the relay closed meanwhile is noticed at MAIL FROM and replaced
+//! before anything is sent. Must not decide what to send or touch the database.
 
+use std::cell::RefCell;
 use std::fmt;
-use std::time::{Duration, UNIX_EPOCH};
+use std::time::{Duration, Instant, UNIX_EPOCH};
 
 use lettre::message::header::ContentType;
 use lettre::message::{Attachment, Mailbox, MultiPart};
@@ -19,7 +22,7 @@ use lettre::transport::smtp::authentication::{Credentials, DEFAULT_MECHANISMS};
 use lettre::transport::smtp::client::{
     Certificate, CertificateStore, SmtpConnection, TlsParameters,
 };
-use lettre::transport::smtp::commands::{Data, Mail, Rcpt};
+use lettre::transport::smtp::commands::{Data, Mail, Rcpt, Rset};
 use lettre::transport::smtp::extension::{ClientId, Extension, MailBodyParameter, MailParameter};
 use lettre::{Address, Message};
 
@@ -39,6 +42,23 @@ pub enum SendError {
 /// The outcome of one attempt per recipient, in the order asked.
 pub type Delivery = Vec<(String, RcptOutcome)>;
 
+/// How long an idle connection is kept for the next message (relays close idle ones after a
+/// few minutes; RFC 5321 §4.5.3.2 asks servers to wait at least 5).
+const KEEP: Duration = Duration::from_secs(30);
+
+/// Why a transaction failed: an answer of the relay, or a connection that was already closed
+/// (no answer at all to the first command).
+enum Failed {
+    Send(SendError),
+    Closed(String),
+}
+
+/// A connection kept between messages, and when it was last used.
+struct Kept {
+    conn: SmtpConnection,
+    used: Instant,
+}
+
 /// How the connection is secured.
 enum Security {
     Plain,
@@ -46,7 +66,7 @@ enum Security {
     Wrapper(TlsParameters),
 }
 
-/// A configured SMTP client (no connection is kept between attempts).
+/// A configured SMTP client. Used from one thread (the mail worker's).
 pub struct Mailer {
     host: String,
     port: u16,
@@ -55,6 +75,16 @@ pub struct Mailer {
     credentials: Option<Credentials>,
     hello: ClientId,
     from: Mailbox,
+    /// The connection of the last message, while it is fresh enough to reuse.
+    kept: RefCell<Option<Kept>>,
+}
+
+impl Drop for Mailer {
+    fn drop(&mut self) {
+        if let Some(mut k) = self.kept.take() {
+            let _ = k.conn.quit();
+        }
+    }
 }
 
 impl Mailer {
@@ -91,6 +121,7 @@ impl Mailer {
             credentials,
             hello: ClientId::default(),
             from: format!("seepd <{}>", smtp.from).parse()?,
+            kept: RefCell::new(None),
         })
     }
 
@@ -138,10 +169,43 @@ impl Mailer {
             .iter()
             .map(|r| address(r))
             .collect::<Result<Vec<_>, _>>()?;
+        let kept = self.kept.take().filter(|k| k.used.elapsed() < KEEP);
+        if let Some(mut k) = kept {
+            match self.transaction(&mut k.conn, &email, recipients, to.clone()) {
+                Err(Failed::Closed(_)) => k.conn.abort(),
+                Err(Failed::Send(e)) => {
+                    k.conn.abort();
+                    return Err(e);
+                }
+                Ok(d) => return Ok(self.keep(k.conn, d)),
+            }
+        }
         let mut conn = self.connect()?;
-        let result = self.transaction(&mut conn, &email, recipients, to);
-        let _ = conn.quit();
-        result
+        match self.transaction(&mut conn, &email, recipients, to) {
+            Ok(d) => Ok(self.keep(conn, d)),
+            Err(f) => {
+                conn.abort();
+                Err(match f {
+                    Failed::Send(e) => e,
+                    Failed::Closed(e) => SendError::Transient(e),
+                })
+            }
+        }
+    }
+
+    /// Keep `conn` for the next message (after a RSET if no data went out, so that no
+    /// transaction is left open).
+    fn keep(&self, mut conn: SmtpConnection, d: Delivery) -> Delivery {
+        let sent = d.iter().any(|(_, o)| *o == RcptOutcome::Accepted);
+        if sent || conn.command(Rset).is_ok() {
+            *self.kept.borrow_mut() = Some(Kept {
+                conn,
+                used: Instant::now(),
+            });
+        } else {
+            conn.abort();
+        }
+        d
     }
 
     /// Connect, secure and authenticate.
@@ -179,27 +243,35 @@ impl Mailer {
         email: &[u8],
         recipients: &[String],
         to: Vec<Address>,
-    ) -> Result<Delivery, SendError> {
+    ) -> Result<Delivery, Failed> {
         let info = conn.server_info();
         let mut params = Vec::new();
+        let refuse = |why: &str| Err(Failed::Send(SendError::Permanent(why.into())));
         if to.iter().any(|a| !AsRef::<str>::as_ref(a).is_ascii()) {
             if !info.supports_feature(Extension::SmtpUtfEight) {
-                return Err(SendError::Permanent(
-                    "a recipient address is not ASCII and the relay does not offer SMTPUTF8".into(),
-                ));
+                return refuse(
+                    "a recipient address is not ASCII and the relay does not offer SMTPUTF8",
+                );
             }
             params.push(MailParameter::SmtpUtfEight);
         }
         if !email.is_ascii() {
             if !info.supports_feature(Extension::EightBitMime) {
-                return Err(SendError::Permanent(
-                    "the message is not ASCII and the relay does not offer 8BITMIME".into(),
-                ));
+                return refuse("the message is not ASCII and the relay does not offer 8BITMIME");
             }
             params.push(MailParameter::Body(MailBodyParameter::EightBitMime));
         }
         conn.command(Mail::new(Some(self.from.email.clone()), params))
-            .map_err(|e| classify("MAIL FROM", &e))?;
+            .map_err(|e| {
+                // No reply at all, or 421 (closing): the relay closed the connection (a kept
+                // one that timed out). Nothing was sent: a fresh connection can try again.
+                let closing = e.status().is_some_and(|c| c.to_string() == "421");
+                if closing || !(e.is_permanent() || e.is_transient()) {
+                    Failed::Closed(format!("MAIL FROM: {e}"))
+                } else {
+                    Failed::Send(classify("MAIL FROM", &e))
+                }
+            })?;
         let mut delivery: Delivery = Vec::with_capacity(recipients.len());
         for (name, address) in recipients.iter().zip(to) {
             let outcome = match conn.command(Rcpt::new(address, Vec::new())) {

@@ -1,11 +1,12 @@
 //! The database on a full filesystem. Where the tests may mount (root, with mount allowed),
 //! the database lives on a 64 MiB tmpfs that a filler file fills to the last byte (a real
 //! ENOSPC); elsewhere seepd runs under a file-size limit (RLIMIT_FSIZE through `prlimit`,
-//! unprivileged), which fails the database's growth the same way. `SEEPD_TEST_DISK=rlimit`
-//! forces the second way. Either way seepd stops acknowledging (the broker keeps the
-//! readings), stays up, and recovers by itself once there is room; then, full again, SIGTERM
-//! stops it within its deadline and a restart with room stores every reading — nothing
-//! acknowledged was lost.
+//! unprivileged), which fails the database's growth the same way. The file-size-limit way also
+//! runs on its own everywhere (it proves that SIGXFSZ does not kill the service), and
+//! `SEEPD_TEST_DISK=rlimit` makes the first test use it too. Either way seepd stops
+//! acknowledging (the broker keeps the readings), stays up, and recovers by itself once there
+//! is room; then, full again, SIGTERM stops it within its deadline and a restart with room
+//! stores every reading — nothing acknowledged was lost.
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -134,6 +135,18 @@ fn a_full_filesystem_stops_acknowledging_and_loses_nothing() {
         Some(t) => Full::Tmpfs(t),
         None => Full::Rlimit,
     };
+    scenario(&dir, full, "disk");
+}
+
+/// The file-size limit way always runs too: it is also the test that SIGXFSZ does not kill
+/// the service.
+#[test]
+fn a_file_size_limit_stops_acknowledging_and_loses_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    scenario(&dir, Full::Rlimit, "disk-rlimit");
+}
+
+fn scenario(dir: &tempfile::TempDir, full: Full, name: &str) {
     let db_dir = match &full {
         Full::Tmpfs(t) => t.0.clone(),
         Full::Rlimit => dir.path().to_path_buf(),
@@ -237,7 +250,7 @@ fn a_full_filesystem_stops_acknowledging_and_loses_nothing() {
     drop(d);
     let _ = Path::new(&db_dir).join("filler");
     figures(
-        "disk",
+        name,
         &[
             ("how the disk was made full", full.how().into()),
             ("readings", format!("{n2} published, {n2} stored once")),
