@@ -172,17 +172,32 @@ fn scenario(dir: &tempfile::TempDir, full: Full, name: &str) {
     let t0 = chrono::Utc::now().timestamp() - 7 * 86_400;
     let count_db = || count(&db_dir, "readings", "1");
     publish(&p, t0, 0, 300);
-    wait_for(Duration::from_secs(30), || {
+    wait_for(Duration::from_secs(60), || {
         (count_db() >= 300).then_some(())
     })
-    .expect("first readings stored");
+    .unwrap_or_else(|| {
+        panic!(
+            "first readings not stored: {}; log:\n{}",
+            count_db(),
+            std::fs::read_to_string(&log).unwrap_or_default()
+        )
+    });
 
     // Full: commits fail, nothing more is stored or acknowledged; seepd stays up.
     full.fill();
     let n1 = 6_000;
     publish(&p, t0, 300, n1);
+    let noticed = wait_for(Duration::from_secs(60), || {
+        if let Some(status) = d.child.try_wait().unwrap() {
+            panic!(
+                "seepd died on the full disk ({status}); stored {}",
+                count_db()
+            );
+        }
+        (log_count(&log, "Commit failed") >= 1).then_some(())
+    });
     assert!(
-        wait_log(&log, "Commit failed", 1, Duration::from_secs(60)),
+        noticed.is_some(),
         "the disk never filled; stored {}; log:\n{}",
         count_db(),
         std::fs::read_to_string(&log).unwrap_or_default()
