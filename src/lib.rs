@@ -19,6 +19,7 @@ pub mod ingest;
 pub mod notify;
 pub mod quality;
 pub mod replay;
+pub mod scenario;
 pub mod section_cmd;
 pub mod service;
 pub mod status;

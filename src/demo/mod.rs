@@ -19,26 +19,7 @@ use crate::config::Config;
 use crate::ingest::progress::Counters;
 use crate::store::Store;
 
-/// The example configuration, compiled in so the demo runs from anywhere.
-pub const EXAMPLE_CONFIG: [(&str, &str); 3] = [
-    ("seepd.toml", include_str!("../../config/seepd.toml")),
-    (
-        "levee-ash-bend.toml",
-        include_str!("../../config/levee-ash-bend.toml"),
-    ),
-    ("dam-tarn.toml", include_str!("../../config/dam-tarn.toml")),
-];
-
-/// Write the example configuration into `dir` and load it.
-///
-/// # Errors
-/// I/O errors, or problems in the example configuration (a bug).
-pub fn example_config(dir: &std::path::Path) -> anyhow::Result<Config> {
-    for (name, text) in EXAMPLE_CONFIG {
-        std::fs::write(dir.join(name), text)?;
-    }
-    crate::config::load_dir(dir).map_err(|p| anyhow::anyhow!("example configuration: {p}"))
-}
+pub use crate::scenario::{example_config, EXAMPLE_CONFIG};
 
 /// Run the demo until `shutdown` resolves (or after `days` simulated days).
 ///

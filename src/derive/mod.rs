@@ -16,7 +16,7 @@ use crate::config::{Config, Level};
 use crate::quality::Flags;
 use crate::store::{DerivedRow, ReadingRow};
 
-pub use objects::section_input;
+pub use objects::{blanket_ratio, section_input};
 
 /// Reading flags that make a head unfit for derived quantities (unless the site's `[health]`
 /// says `use_flagged = true`).

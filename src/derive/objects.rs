@@ -176,6 +176,22 @@ fn landside(c: LandsideCase) -> Landside {
     }
 }
 
+/// The residual-head ratio `h_o/H` blanket theory gives for a reach (independent of `H`).
+pub fn blanket_ratio(b: &BlanketReach) -> Option<f64> {
+    blanket::solve(&BlanketConfig {
+        net_head_m: 1.0,
+        base_width_m: b.base_width_m,
+        foundation_thickness_m: b.foundation_thickness_m,
+        k_foundation_m_s: b.k_foundation_m_s,
+        k_blanket_m_s: b.k_blanket_m_s,
+        blanket_thickness_m: b.blanket_thickness_m,
+        riverside: riverside(b.riverside),
+        landside: landside(b.landside),
+    })
+    .ok()
+    .map(|s| s.residual_head_ratio)
+}
+
 /// Name of the expected excess head at a distance landward of the toe.
 fn at_distance(x_m: f64) -> String {
     format!("expected_excess_head_at_{x_m}m")
