@@ -134,18 +134,24 @@ fn rising_series_rate_spike_and_flatline() {
     }
     let recs = replay(&cfg, &input, None);
 
-    // The spike is flagged on its value records and nowhere else.
+    // The spike is confirmed by the next reading (one `flag` record for its time), and no
+    // other reading is flagged.
     let t_spike = t0 + spike_k * H_MS;
-    assert_eq!(flags(&recs, "AB-PZ-2B", t_spike), ["spike"]);
-    for k in (0..=40).filter(|k| *k != spike_k) {
+    let flag_recs: Vec<&Value> = recs.iter().filter(|r| r["type"] == "flag").collect();
+    assert_eq!(flag_recs.len(), 1, "{flag_recs:?}");
+    assert_eq!(flag_recs[0]["id"], "AB-PZ-2B");
+    assert_eq!(flag_recs[0]["time"], t_text(t_spike));
+    assert_eq!(flag_recs[0]["flags"], serde_json::json!(["spike"]));
+    for k in 0..=40 {
         assert!(flags(&recs, "AB-PZ-2B", t0 + k * H_MS).is_empty(), "{k}");
     }
-    // ... and left out of the cluster gradient at that time (recomputed on the spike reading).
+    // ... and the cluster gradient at that time is recomputed without it (the last record for
+    // that time wins).
     let g = derived(&recs, "AB-N2", "vertical_gradient", t_spike);
     let last = g.last().unwrap();
     assert!(last["value"].is_null(), "{last}");
     assert!(
-        last["reason"].as_str().unwrap().contains("flagged spike"),
+        last["reason"].as_str().unwrap().contains("rejected: spike"),
         "{last}"
     );
     // The gradient comes back with the next reading.

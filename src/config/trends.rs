@@ -204,7 +204,19 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
         None => default,
     };
     let spike_floor_m = nonneg(cx, "spike_floor", d.spike_floor_m);
-    let flatline_tolerance_m = nonneg(cx, "flatline_tolerance", d.flatline_tolerance_m);
+    // In the raw value's own unit (it differs by instrument), so no length conversion.
+    let flatline_tolerance_raw = match t.number(cx, "flatline_tolerance", false) {
+        Some(v) if v >= 0.0 => v,
+        Some(v) => {
+            t.problem_at(
+                cx,
+                "flatline_tolerance",
+                format!("key \"flatline_tolerance\" is {v}, expected a number >= 0"),
+            );
+            d.flatline_tolerance_raw
+        }
+        None => d.flatline_tolerance_raw,
+    };
     let no_data_factor = match t.number(cx, "no_data_factor", false) {
         Some(v) if v >= 1.0 => v,
         Some(v) => {
@@ -222,7 +234,7 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
         spike_k: above(cx, t, "spike_k", 0.0, d.spike_k),
         spike_floor_m,
         flatline_count: t.int_in(cx, "flatline_count", 2, 10_000, d.flatline_count as i64) as usize,
-        flatline_tolerance_m,
+        flatline_tolerance_raw,
         no_data_factor,
         thermistor_range_c: t
             .pair(cx, "thermistor_range", false)

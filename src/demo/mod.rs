@@ -15,7 +15,6 @@ use chrono::{TimeZone, Utc};
 use rumqttc::{AsyncClient, MqttOptions, QoS};
 use tokio::sync::watch;
 
-use crate::config::Config;
 use crate::ingest::progress::Counters;
 use crate::store::Store;
 

@@ -74,7 +74,7 @@ fn cluster_gradient_positive_upward() {
 }
 
 #[test]
-fn missing_stale_and_flagged_inputs_give_no_value_with_a_reason() {
+fn missing_stale_and_rejected_inputs_give_no_value_with_a_reason_suspect_ones_keep_it() {
     let mut d = Deriver::new(cluster_cfg());
     let out = d.on_reading(&row("AB-PZ-1A", 0, 101.0, Flags::empty()));
     let g = find(&out, "N1", "vertical_gradient");
@@ -92,11 +92,25 @@ fn missing_stale_and_flagged_inputs_give_no_value_with_a_reason() {
         g.value.is_none() && g.reason.as_deref().unwrap().contains("stale"),
         "{g:?}"
     );
-    // Fresh but flagged for a missing barometer.
+    // Fresh but suspect (a missing barometer, a stuck sensor): the value is kept, with a note
+    // naming the input — a soft flag never blanks a safety value.
     let out = d.on_reading(&row("AB-PZ-1A", 7300, 101.0, Flags::BARO_MISSING));
     let g = find(&out, "N1", "vertical_gradient");
+    assert!((g.value.unwrap() - 1.0 / 9.0).abs() < 1e-12, "{g:?}");
+    assert_eq!(
+        g.reason.as_deref(),
+        Some("suspect input AB-PZ-1A: baro_missing")
+    );
+    let out = d.on_reading(&row("AB-PZ-1A", 7350, 101.0, Flags::FLATLINE));
+    assert!(find(&out, "N1", "vertical_gradient").value.is_some());
+    // Rejected (a confirmed spike): no value, with the reason; recomputed at its own time.
+    let out = d.reject("AB-PZ-1A", 7_350_000, 101.0, Flags::SPIKE);
+    let g = find(&out, "N1", "vertical_gradient");
+    assert_eq!(g.t_ms, 7_350_000);
     assert!(
-        g.value.is_none() && g.reason.as_deref().unwrap().contains("baro_missing"),
+        g.value.is_none()
+            && crate::derive::is_input_problem(g.reason.as_deref().unwrap())
+            && g.reason.as_deref().unwrap().contains("rejected: spike"),
         "{g:?}"
     );
     // A reading flagged only for its time source is usable.

@@ -284,21 +284,19 @@ fn writer_loop(
                 arrival: a.arrival,
                 redelivered: a.publish.dup,
             };
-            let o = engine.process(&msg);
-            out.readings.extend(o.readings);
-            out.derived.extend(o.derived);
-            out.quarantined.extend(o.quarantined);
+            out.append(engine.process(&msg));
         }
         let aw = alerts.evaluate_outcome(&out);
         let Outcome {
             readings,
             derived,
             quarantined,
+            flag_updates,
         } = out;
         alerts.before_commit(&aw);
         let mut wait = Duration::from_millis(100);
         let stats = loop {
-            match store.write_batch_with(&readings, &derived, &quarantined, &aw) {
+            match store.write_batch_flagged(&readings, &derived, &quarantined, &flag_updates, &aw) {
                 Ok(s) => break s,
                 Err(e) => {
                     tracing::error!(error = %e, messages = batch.len(), "Commit failed; retrying (nothing acknowledged)");

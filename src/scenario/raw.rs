@@ -31,7 +31,8 @@ impl RawReading {
             .single()
             .map(|t| t.to_rfc3339_opts(SecondsFormat::Secs, true))
             .unwrap_or_default();
-        let mut v = serde_json::json!({"time": time, "instrument": self.instrument, "value": self.raw});
+        let mut v =
+            serde_json::json!({"time": time, "instrument": self.instrument, "value": self.raw});
         if let Some(t) = self.temperature_c {
             v["temperature"] = serde_json::json!(t);
         }

@@ -90,7 +90,10 @@ pub fn levee_flood_with(cfg: &Config, start_ms: i64, faults: Vec<Fault>) -> Scen
             ("AB-RIVER".into(), Driver::Water(levee_river())),
             // Deep tips in the pervious foundation under the toe: blanket theory, lagged.
             ("AB-PZ-1B".into(), follows("AB-RIVER", ratio, 3.0, 86.0)),
-            ("AB-PZ-2B".into(), follows("AB-RIVER", 0.9 * ratio, 4.0, 86.3)),
+            (
+                "AB-PZ-2B".into(),
+                follows("AB-RIVER", 0.9 * ratio, 4.0, 86.3),
+            ),
             // Shallow tips inside the 2.5 m top blanket (surface 96.0 m).
             (
                 "AB-PZ-1A".into(),
@@ -111,7 +114,10 @@ pub fn levee_flood_with(cfg: &Config, start_ms: i64, faults: Vec<Fault>) -> Scen
                 },
             ),
             // The standpipe 80 m landward answers less and later.
-            ("AB-SP-3".into(), follows("AB-RIVER", 0.5 * ratio, 8.0, 88.0)),
+            (
+                "AB-SP-3".into(),
+                follows("AB-RIVER", 0.5 * ratio, 8.0, 88.0),
+            ),
         ],
         faults,
         noise_m: 0.003,
@@ -171,7 +177,10 @@ pub fn dam_pool(start_ms: i64) -> Scenario {
         drivers: vec![
             ("TH-POOL".into(), Driver::Water(dam_pool_level())),
             ("TH-TAIL".into(), Driver::Water(tail)),
-            ("TH-PZ-1".into(), follows(far(209.0, 0.75), 0.75, 12.0, 201.0)),
+            (
+                "TH-PZ-1".into(),
+                follows(far(209.0, 0.75), 0.75, 12.0, 201.0),
+            ),
             ("TH-PZ-2".into(), follows(far(205.0, 0.6), 0.6, 24.0, 200.5)),
             ("TH-PZ-3".into(), follows(far(199.9, 0.4), 0.4, 36.0, 197.0)),
         ],

@@ -45,6 +45,11 @@ pub struct StageMemory {
 }
 
 impl StageMemory {
+    /// Forget the reading at `t_ms` (rejected after it was taken).
+    pub fn remove(&mut self, t_ms: i64) {
+        self.points.remove(&t_ms);
+    }
+
     pub fn push(&mut self, t_ms: i64, m: f64) {
         self.points.insert(t_ms, m);
         if let Some((&newest, _)) = self.points.last_key_value() {

@@ -57,6 +57,7 @@ pub fn from_store(
                 &span.instrument,
                 r.t_ms,
                 r.total_head_m,
+                r.raw,
                 r.temperature_c,
                 r.flags,
             );

@@ -114,7 +114,8 @@ fn written_settings_in_site_units() {
     assert_eq!(s.max_points, 50);
     // Feet to metres: 1 ft = 0.3048 m exactly (NIST SP 811) [pub].
     assert!((s.health.spike_floor_m - 0.3048).abs() < 1e-12);
-    assert!((s.health.flatline_tolerance_m - 0.003048).abs() < 1e-12);
+    // The flatline tolerance is in the raw value's own unit: not converted.
+    assert_eq!(s.health.flatline_tolerance_raw, 0.01);
     assert!(s.health.use_flagged);
     assert_eq!(
         s.health.spike_window,
