@@ -171,15 +171,14 @@ pub fn run_with(
         store,
         now.timestamp_millis(),
     )?;
+    // Alert transitions are always recorded in the database (the report and `seepd alerts`
+    // show them); messages are composed and sent only with `--send-email`.
+    let mut evaluator = Evaluator::load(Arc::new(cfg.clone()), store)?;
+    evaluator.set_delivery(send_email);
     let mut alerts = Alerts {
-        evaluator: if send_email {
-            Evaluator::load(Arc::new(cfg.clone()), store)?
-        } else {
-            Evaluator::new(Arc::new(cfg.clone()))
-        },
+        evaluator,
         writes: AlertWrites::default(),
         transitions: Vec::new(),
-        send_email,
         clock_ms: i64::MIN,
     };
     let mut totals = Totals::default();
@@ -213,10 +212,8 @@ pub fn run_with(
             pending = 0;
         }
     }
-    if alerts.send_email {
-        let w = alerts.evaluator.flush(alerts.clock_ms.max(0));
-        alerts.writes.extend(w);
-    }
+    let w = alerts.evaluator.flush(alerts.clock_ms.max(0));
+    alerts.writes.extend(w);
     flush(store, &mut rows, &mut alerts, out, &mut totals)?;
     out.flush()?;
     if let Some(smtp) = smtp.filter(|_| send_email) {
@@ -231,7 +228,6 @@ struct Alerts {
     evaluator: Evaluator,
     writes: AlertWrites,
     transitions: Vec<Transition>,
-    send_email: bool,
     /// The newest reading time seen: replay's clock.
     clock_ms: i64,
 }
@@ -250,9 +246,7 @@ impl Alerts {
         self.clock_ms = self.clock_ms.max(t);
         let w = self.evaluator.evaluate(&obs, self.clock_ms);
         self.transitions.extend(self.evaluator.take_transitions());
-        if self.send_email {
-            self.writes.extend(w);
-        }
+        self.writes.extend(w);
     }
 }
 

@@ -10,7 +10,7 @@ use chrono::{DateTime, NaiveDate, Utc};
 use crate::config::Config;
 use crate::domain::rules::{Phase, State};
 use crate::store::outbox::AckOutcome;
-use crate::store::Store;
+use crate::store::{SilenceRow, Store};
 
 use super::render::num;
 
@@ -35,17 +35,15 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
     let open = store.open_alerts()?;
     let _ = writeln!(s, "Active alerts ({}):", open.len());
     for a in &open {
-        let value = a.value.map_or_else(|| "no value".into(), num);
+        // The current level; the value and level of each step are in the history below.
         let _ = write!(
             s,
-            "  #{}  {}  {}  {} {} = {} {}  since {}  rule {}",
+            "  #{}  now {}  {}  {} {}  raised {}  rule {}",
             a.id,
             a.level,
             a.site,
             a.object,
             a.quantity,
-            value,
-            a.unit,
             time(a.raised_ms),
             a.rule
         );
@@ -54,6 +52,24 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
                 let _ = writeln!(s, "  acknowledged by {by} at {}", time(t));
             }
             _ => s.push_str("  NOT acknowledged\n"),
+        }
+        // Its history, in order: each step with its own level and value.
+        for e in store.alert_events(a.id)? {
+            let value = e.value.map_or_else(|| "no value".into(), num);
+            let detail = if e.detail.is_empty() {
+                String::new()
+            } else {
+                format!("  ({})", e.detail)
+            };
+            let _ = writeln!(
+                s,
+                "      {}  {:<20} {:<10} {} {}{detail}",
+                time(e.t_ms),
+                e.kind,
+                e.level,
+                value,
+                e.unit
+            );
         }
     }
     let mut pending = Vec::new();
@@ -184,24 +200,29 @@ pub fn parse_until(s: &str, now: DateTime<Utc>) -> anyhow::Result<DateTime<Utc>>
         })
 }
 
-/// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT`.
+/// What `seepd silence` asks for.
+#[derive(Debug, Clone, Default)]
+pub struct SilenceArgs<'a> {
+    pub rule: Option<&'a str>,
+    pub object: Option<&'a str>,
+    pub until: &'a str,
+    pub reason: &'a str,
+    pub by: &'a str,
+    /// Also silence the most severe level (otherwise its notices are always sent).
+    pub all_levels: bool,
+}
+
+/// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT [--all-levels]`.
 ///
 /// # Errors
 /// Database errors; an unknown rule or instrument; an expiry in the past.
-pub fn silence(
-    cfg: &Config,
-    rule: Option<&str>,
-    object: Option<&str>,
-    until: &str,
-    reason: &str,
-    by: &str,
-    now: DateTime<Utc>,
-) -> anyhow::Result<String> {
-    let until = parse_until(until, now)?;
+pub fn silence(cfg: &Config, a: &SilenceArgs<'_>, now: DateTime<Utc>) -> anyhow::Result<String> {
+    let (rule, object) = (a.rule, a.object);
+    let until = parse_until(a.until, now)?;
     if until <= now {
         bail!("--until {} is not in the future", until.to_rfc3339());
     }
-    if reason.trim().is_empty() {
+    if a.reason.trim().is_empty() {
         bail!("--reason must say why");
     }
     if let Some(r) = rule {
@@ -217,20 +238,27 @@ pub fn silence(
         }
     }
     let store = open(cfg)?;
-    let id = store.add_silence(
-        rule,
-        object,
-        until.timestamp_millis(),
-        reason,
-        by,
-        now.timestamp_millis(),
-    )?;
+    let row = SilenceRow {
+        id: 0,
+        rule: rule.map(str::to_string),
+        object: object.map(str::to_string),
+        until_ms: until.timestamp_millis(),
+        reason: a.reason.to_string(),
+        who: a.by.to_string(),
+        all_levels: a.all_levels,
+    };
+    let id = store.add_silence(&row, now.timestamp_millis())?;
     let what = rule.map_or_else(
         || format!("instrument {}", object.unwrap_or("?")),
         |r| format!("rule {r}"),
     );
+    let top = if a.all_levels {
+        "every level, the most severe included"
+    } else {
+        "every level but the most severe (its messages are still sent; --all-levels to include it)"
+    };
     Ok(format!(
-        "Silence {id}: {what} until {}; alerts still change state and are listed, but no messages are sent for them.\n",
+        "Silence {id}: {what} until {}, {top}; alerts still change state and are listed, and every suppressed message is recorded.\n",
         time(until.timestamp_millis())
     ))
 }

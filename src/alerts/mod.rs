@@ -18,7 +18,7 @@ use crate::domain::rules::{self, Action, Check, Obs, State};
 use crate::engine::Outcome;
 use crate::quality::Flags;
 use crate::store::{
-    AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
+    AckRow, AlertRow, AlertWrites, EventRow, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
 };
 
 use render::Item;
@@ -124,6 +124,24 @@ pub struct Evaluator {
     next_message: i64,
     out: AlertWrites,
     transitions: Vec<Transition>,
+    /// False in a replay without `--send-email`: notices are recorded as `not_sent`, no
+    /// message is composed.
+    deliver: bool,
+    /// Open alerts whose rule is gone from the configuration (id, rule, site, level, unit):
+    /// closed at the next evaluation.
+    orphans: Vec<(i64, String, String, String, String)>,
+}
+
+/// The history event kind of a rule action.
+fn event_kind(a: &Action) -> &'static str {
+    match a {
+        Action::Raise { .. } => "raised",
+        Action::Escalate { .. } => "escalated",
+        Action::DeEscalate { .. } => "de_escalated",
+        Action::Resolve { .. } => "resolved",
+        Action::Remind { .. } => "reminded",
+        Action::NotifyEscalation { .. } => "escalation_notified",
+    }
 }
 
 impl Evaluator {
@@ -167,7 +185,14 @@ impl Evaluator {
             next_message: 1,
             out: AlertWrites::default(),
             transitions: Vec::new(),
+            deliver: true,
+            orphans: Vec::new(),
         }
+    }
+
+    /// Record notices without composing messages (replay without `--send-email`).
+    pub fn set_delivery(&mut self, deliver: bool) {
+        self.deliver = deliver;
     }
 
     /// Resume from the store: rule states, waiting notices, next ids, recent values.
@@ -198,6 +223,13 @@ impl Evaluator {
                 e.recent.insert(key, values.into_iter().collect());
             }
         }
+        let ids: Vec<&str> = e.rules.iter().map(|w| w.rule.id.as_str()).collect();
+        e.orphans = store.orphaned_alerts(&ids)?;
+        e.out.removed_rules = stored
+            .keys()
+            .filter(|r| !ids.contains(&r.as_str()))
+            .cloned()
+            .collect();
         e.waiting = store.waiting_notices()?;
         let (a, n, m) = store.alert_max_ids()?;
         (e.next_alert, e.next_notice, e.next_message) = (a + 1, n + 1, m + 1);
@@ -226,6 +258,24 @@ impl Evaluator {
                 let json = serde_json::to_string(&w.state).unwrap_or_default();
                 self.out.states.push((w.rule.id.clone(), json));
                 tracing::info!(alert = a.alert, by = %a.who, rule = %w.rule.id, "Alert acknowledged");
+                let level = w
+                    .state
+                    .active_level()
+                    .and_then(|l| w.rule.spec.levels.get(l))
+                    .map_or_else(String::new, |l| l.name.clone());
+                let last = w.state.last;
+                self.out.events.push(EventRow {
+                    alert: a.alert,
+                    rule: w.rule.id.clone(),
+                    site: w.rule.site.clone(),
+                    kind: "acknowledged".into(),
+                    level,
+                    value: last.map(|l| l.1),
+                    unit: w.unit.clone(),
+                    t_ms: a.t_ms,
+                    recorded_ms: a.t_ms,
+                    detail: format!("by {}", a.who),
+                });
             }
             self.out.acks_applied.push(a.id);
         }
@@ -249,6 +299,7 @@ impl Evaluator {
     /// Step the rules watching these observations, then every rule's timers at `now_ms`, then
     /// send the notices whose group wait is over. Returns what to commit.
     pub fn evaluate(&mut self, obs: &[Observation], now_ms: i64) -> AlertWrites {
+        self.close_orphans(now_ms);
         for o in obs {
             let key = (o.object.clone(), o.quantity.clone());
             if let (Some(v), Some(q)) = (o.value, self.recent.get_mut(&key)) {
@@ -357,7 +408,7 @@ impl Evaluator {
             rule: rule.id.clone(),
             action: a,
             level: level_spec.name.clone(),
-            previous,
+            previous: previous.clone(),
             object: rule.object.clone(),
             quantity: rule.quantity.clone(),
             t_ms,
@@ -375,18 +426,55 @@ impl Evaluator {
             Action::NotifyEscalation { .. } => site.recipients(&level_spec.name, false, true),
             _ => site.recipients(&level_spec.name, true, escalated),
         };
-        let silenced = self.silences.iter().any(|s| {
+        // A silence never holds back the most severe level unless it says so.
+        let top = level + 1 == rule.spec.levels.len();
+        let silence = self.silences.iter().find(|s| {
             s.until_ms > now_ms
+                && (s.all_levels || !top)
                 && (s.rule.as_deref() == Some(&rule.id)
                     || s.object.as_deref() == Some(&rule.object))
         });
-        let status = if silenced {
+        let status = if silence.is_some() {
             "silenced"
         } else if recipients.is_empty() {
             "no_recipients"
+        } else if !self.deliver {
+            "not_sent"
         } else {
             "waiting"
         };
+        let event = |kind: &str, detail: String| EventRow {
+            alert: alert_id,
+            rule: rule.id.clone(),
+            site: rule.site.clone(),
+            kind: kind.into(),
+            level: level_spec.name.clone(),
+            value,
+            unit: w.unit.clone(),
+            t_ms,
+            recorded_ms: now_ms,
+            detail,
+        };
+        let mut events = vec![event(
+            event_kind(&a),
+            previous
+                .as_ref()
+                .map(|p| format!("from {p}"))
+                .unwrap_or_default(),
+        )];
+        if let Some(s) = silence {
+            events.push(event(
+                "silenced",
+                format!(
+                    "{} notice not sent: silence {} by {} ({})",
+                    a.name(),
+                    s.id,
+                    s.who,
+                    s.reason
+                ),
+            ));
+        }
+        self.out.events.extend(events);
         let notice = NoticeRow {
             id: self.next_notice,
             alert: alert_id,
@@ -407,6 +495,87 @@ impl Evaluator {
             self.waiting.push(notice.clone());
         }
         self.out.notices.push(notice);
+    }
+
+    /// Close the open alerts whose rule is gone from the configuration: resolved now, a
+    /// `closed` event saying why, and a message to the contact lists of the level.
+    fn close_orphans(&mut self, now_ms: i64) {
+        for (id, rule, site, level, unit) in std::mem::take(&mut self.orphans) {
+            let why = format!(
+                "rule {rule} is no longer in the configuration; alert #{id} closed without an all-clear"
+            );
+            tracing::warn!(alert = id, rule = %rule, "Alert closed: its rule was removed");
+            self.out.resolved.push((id, now_ms));
+            self.out.events.push(EventRow {
+                alert: id,
+                rule: rule.clone(),
+                site: site.clone(),
+                kind: "closed".into(),
+                level: level.clone(),
+                value: None,
+                unit: unit.clone(),
+                t_ms: now_ms,
+                recorded_ms: now_ms,
+                detail: why.clone(),
+            });
+            let recipients = self.cfg.alerting.site(&site).recipients(&level, true, true);
+            let status = if recipients.is_empty() {
+                "no_recipients"
+            } else if !self.deliver {
+                "not_sent"
+            } else {
+                "queued"
+            };
+            let outbox = (status == "queued").then(|| {
+                let m = self.next_message;
+                self.next_message += 1;
+                m
+            });
+            self.out.notices.push(NoticeRow {
+                id: self.next_notice,
+                alert: id,
+                rule: rule.clone(),
+                site: site.clone(),
+                kind: "closed".into(),
+                level: level.clone(),
+                value: None,
+                unit,
+                t_ms: now_ms,
+                created_ms: now_ms,
+                recipients: recipients.clone(),
+                status: status.into(),
+                outbox,
+            });
+            self.next_notice += 1;
+            if let Some(m) = outbox {
+                let domain = self.mail_domain();
+                let text = format!(
+                    "Alert #{id} ({level}) of site {site} was closed: {why}.\n\
+                     It was still active. Check the structure and the configuration change.\n\n{}\n",
+                    crate::CAUTION
+                );
+                self.out.messages.push(OutboxRow {
+                    id: m,
+                    created_ms: now_ms,
+                    site,
+                    recipients,
+                    subject: format!("[seepd] Closed: alert #{id} ({level}), rule {rule} removed"),
+                    html: format!("<pre>{}</pre>", render::escape(&text)),
+                    text,
+                    message_id: format!("<seepd.alert-{m}.{now_ms}@{domain}>"),
+                });
+            }
+        }
+    }
+
+    /// The domain of Message-IDs: the `[smtp] from` address's.
+    fn mail_domain(&self) -> String {
+        self.cfg
+            .alerting
+            .smtp
+            .as_ref()
+            .and_then(|s| s.from.split('@').nth(1).map(str::to_string))
+            .unwrap_or_else(|| "seepd.invalid".into())
     }
 
     /// Turn groups of waiting notices (same site and recipients) whose oldest member has
@@ -508,13 +677,7 @@ impl Evaluator {
             })
             .collect();
         let (subject, text, html) = render::render(&mut items, status_url);
-        let domain = self
-            .cfg
-            .alerting
-            .smtp
-            .as_ref()
-            .and_then(|s| s.from.split('@').nth(1).map(str::to_string))
-            .unwrap_or_else(|| "seepd.invalid".into());
+        let domain = self.mail_domain();
         OutboxRow {
             id,
             created_ms: now_ms,

@@ -22,6 +22,11 @@ pub struct Alerting {
 
 impl Alerting {
     /// The policy and contacts of a site (defaults when the site configures none).
+    /// Every site's warnings, in site order.
+    pub fn warnings(&self) -> Vec<String> {
+        self.sites.values().flat_map(|s| s.warnings.clone()).collect()
+    }
+
     pub fn site(&self, site: &str) -> SiteAlerting {
         self.sites.get(site).cloned().unwrap_or_default()
     }
@@ -87,6 +92,9 @@ impl Contacts {
 pub struct SiteAlerting {
     pub policy: Policy,
     pub contacts: Vec<Contacts>,
+    /// Things that work but are probably not meant, as `file:line:column: message` (rule
+    /// levels no contact list receives); `seepd check` prints them, `seepd run` logs them.
+    pub warnings: Vec<String>,
 }
 
 impl SiteAlerting {

@@ -58,7 +58,9 @@ pub(crate) struct SiteRules {
     pub alerting: SiteAlerting,
 }
 
-/// Read `[alerting]`, `[[contacts]]` and `[[rule]]` of a site file.
+/// Read `[alerting]`, `[[contacts]]` and `[[rule]]` of a site file. A contact list may name
+/// only levels some rule of the site defines (a problem otherwise: that list would never hear
+/// of the level it meant); a rule level no contact list receives is a warning.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
     let policy = match root.sub(cx, "alerting", "[alerting]") {
         Some(mut t) => {
@@ -67,18 +69,59 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
         }
         None => Policy::default(),
     };
-    let mut contacts = Vec::new();
-    for mut t in root.tables(cx, "contacts") {
-        contacts.extend(read_contacts(cx, &mut t));
-    }
-    let rules = root
-        .tables(cx, "rule")
+    let rule_tables = root.tables(cx, "rule");
+    let rules: Vec<RuleEntry> = rule_tables
         .into_iter()
         .map(|mut t| read_rule(cx, &mut t, site, &policy))
         .collect();
+    let defined: BTreeSet<&str> = rules
+        .iter()
+        .filter_map(|e| e.rule.as_ref())
+        .flat_map(|r| r.spec.levels.iter().map(|l| l.name.as_str()))
+        .collect();
+    let mut contacts = Vec::new();
+    for mut t in root.tables(cx, "contacts") {
+        let Some(c) = read_contacts(cx, &mut t) else {
+            continue;
+        };
+        for l in c.levels.iter().filter(|l| !defined.contains(l.as_str())) {
+            let known: Vec<&str> = defined.iter().copied().collect();
+            t.problem_at(
+                cx,
+                "levels",
+                format!(
+                    "level {l:?} is not a level of any rule of this site; expected one of: {}",
+                    if known.is_empty() { "(no rules)".to_string() } else { known.join(", ") }
+                ),
+            );
+        }
+        contacts.push(c);
+    }
+    let mut warnings = Vec::new();
+    for e in &rules {
+        let (Some(r), Some((_, pos))) = (&e.rule, &e.id) else {
+            continue;
+        };
+        for l in &r.spec.levels {
+            if !contacts.iter().any(|c: &Contacts| c.receives(&l.name)) {
+                warnings.push(format!(
+                    "{}:{}:{}: rule {:?} level {:?}: no contact list receives it (its notices are recorded, not sent)",
+                    cx.file.display(),
+                    pos.0,
+                    pos.1,
+                    r.id,
+                    l.name
+                ));
+            }
+        }
+    }
     SiteRules {
         rules,
-        alerting: SiteAlerting { policy, contacts },
+        alerting: SiteAlerting {
+            policy,
+            contacts,
+            warnings,
+        },
     }
 }
 

@@ -21,7 +21,7 @@ use rusqlite::{params, Connection, OptionalExtension};
 use crate::config::Config;
 use crate::quality::{Flags, Reason};
 
-pub use alerts::{AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow};
+pub use alerts::{AckRow, AlertRow, AlertWrites, EventRow, NoticeRow, OutboxRow, SilenceRow};
 pub use models::{InstrumentSpan, ModelRow, SeedReading};
 pub use reports::{Attachment, ReportMessage};
 pub use schema::SCHEMA_VERSION;

@@ -195,6 +195,25 @@ const MIGRATIONS: &[&str] = &[
         created_ms INTEGER NOT NULL,
         PRIMARY KEY (schedule, period_start_ms)
     );",
+    // 7: alert history as events (raised, escalated, de-escalated, acknowledged, silenced,
+    // reminded, escalation notified, resolved, closed), each with its level, value and time;
+    // silences that also cover the most severe level (`--all-levels`).
+    "CREATE TABLE alert_events (
+        id INTEGER PRIMARY KEY,
+        alert INTEGER NOT NULL,
+        rule TEXT NOT NULL,
+        site TEXT NOT NULL,
+        kind TEXT NOT NULL,
+        level TEXT NOT NULL,
+        value REAL,
+        unit TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        recorded_ms INTEGER NOT NULL,
+        detail TEXT NOT NULL DEFAULT ''
+    );
+    CREATE INDEX alert_events_alert ON alert_events (alert, id);
+    CREATE INDEX alert_events_site_time ON alert_events (site, t_ms);
+    ALTER TABLE silences ADD COLUMN all_levels INTEGER NOT NULL DEFAULT 0;",
 ];
 
 /// The schema version this build writes.
