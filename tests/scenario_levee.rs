@@ -85,3 +85,134 @@ fn injected_faults_are_flagged_and_nothing_else() {
         );
     }
 }
+
+/// The alert timeline of the flood with its faults, as the on-call engineer sees it (no one
+/// acknowledges in a replay, so reminders every 4 h and one escalation notice per level follow).
+///
+/// | hour | rule | action | level | why |
+/// |---|---|---|---|---|
+/// | 35 | river stage | raise | watch | 2nd reading above 95.0 m on the rise |
+/// | 36 | river stage | notify_escalation | watch | not acknowledged 1 h after the raise |
+/// | 42 | river stage | escalate | concern | 2nd reading above 96.5 m |
+/// | 43 | river stage | notify_escalation | concern | 1 h after the level was reached |
+/// | 47 | river stage | escalate | act | 2nd reading above 97.8 m |
+/// | 48 | river stage | notify_escalation | act | |
+/// | 56 | toe FS | raise | watch | FS < 2.0 twice (toe head lags the river) |
+/// | 57 | toe FS | notify_escalation | watch | |
+/// | 61 | toe FS | escalate | concern | FS < 1.6 twice; the spike at 62 (FS < 1.3 once) is rejected |
+/// | 62 | toe FS | notify_escalation | concern | |
+/// | 73 | toe FS | de_escalate | watch | back above 1.65, 1 h keep-active |
+/// | 82 | toe FS | resolve | watch | back above 2.05 |
+/// | 116 | river stage | de_escalate | concern | below 97.6 m, 2 h keep-active |
+/// | 142 | river stage | de_escalate | watch | below 96.3 m |
+/// | 173 | river stage | resolve | watch | below 94.8 m |
+/// | 203 | AB-PZ-1A silent | raise | watch | dropout from 200: silent > 3 h |
+/// | 204 | AB-PZ-1A silent | notify_escalation | watch | |
+/// | 210 | AB-PZ-1A silent | resolve | watch | its next reading |
+#[test]
+fn alert_timeline_of_the_flood() {
+    let ex = example(|_, t| t);
+    let s = seepd::scenario::levee_flood(&ex.cfg, START_MS);
+    let tl = replay(&ex, &s);
+    let expected: [(u32, &str, &str, &str); 18] = [
+        (35, "ash-bend-river-stage", "raise", "watch"),
+        (36, "ash-bend-river-stage", "notify_escalation", "watch"),
+        (42, "ash-bend-river-stage", "escalate", "concern"),
+        (43, "ash-bend-river-stage", "notify_escalation", "concern"),
+        (47, "ash-bend-river-stage", "escalate", "act"),
+        (48, "ash-bend-river-stage", "notify_escalation", "act"),
+        (56, "ash-bend-toe-fs", "raise", "watch"),
+        (57, "ash-bend-toe-fs", "notify_escalation", "watch"),
+        (61, "ash-bend-toe-fs", "escalate", "concern"),
+        (62, "ash-bend-toe-fs", "notify_escalation", "concern"),
+        (73, "ash-bend-toe-fs", "de_escalate", "watch"),
+        (82, "ash-bend-toe-fs", "resolve", "watch"),
+        (116, "ash-bend-river-stage", "de_escalate", "concern"),
+        (142, "ash-bend-river-stage", "de_escalate", "watch"),
+        (173, "ash-bend-river-stage", "resolve", "watch"),
+        (203, "ash-bend-pz1a-silent", "raise", "watch"),
+        (204, "ash-bend-pz1a-silent", "notify_escalation", "watch"),
+        (210, "ash-bend-pz1a-silent", "resolve", "watch"),
+    ];
+    let got: Vec<(u32, String, String, String)> = tl
+        .alerts()
+        .into_iter()
+        .filter(|a| a.2 != "remind")
+        .collect();
+    let got_ref: Vec<(u32, &str, &str, &str)> = got
+        .iter()
+        .map(|(h, r, a, l)| (*h, r.as_str(), a.as_str(), l.as_str()))
+        .collect();
+    assert_eq!(got_ref, expected);
+    // Reminders: every 4 h of an unacknowledged alert, at its current level, never with a raise.
+    // Each reminder comes 4 h after the previous raise, level change or reminder.
+    let notices: Vec<(u32, String)> = tl
+        .alerts()
+        .into_iter()
+        .filter(|a| a.1 == "ash-bend-river-stage" && a.2 != "notify_escalation")
+        .map(|a| (a.0, a.2))
+        .collect();
+    assert_eq!(notices.get(1), Some(&(39, "remind".to_string())));
+    for w in notices.windows(2) {
+        if w[1].1 == "remind" {
+            assert_eq!(w[1].0 - w[0].0, 4, "{w:?}");
+        }
+    }
+    // Replay without --send-email records every transition in the database too (finding 6),
+    // with its history in order, and composes no message.
+    let conn = rusqlite::Connection::open(&tl.db).unwrap();
+    let alerts: i64 = conn
+        .query_row("SELECT count(*) FROM alerts", [], |r| r.get(0))
+        .unwrap();
+    assert_eq!(alerts, 3);
+    let outbox: i64 = conn
+        .query_row("SELECT count(*) FROM outbox", [], |r| r.get(0))
+        .unwrap();
+    assert_eq!(outbox, 0);
+    let mut st = conn
+        .prepare(
+            "SELECT e.kind, e.level FROM alert_events e JOIN alerts a ON a.id = e.alert
+             WHERE a.rule = 'ash-bend-river-stage' AND e.kind != 'reminded' ORDER BY e.id",
+        )
+        .unwrap();
+    let history: Vec<(String, String)> = st
+        .query_map([], |r| Ok((r.get(0)?, r.get(1)?)))
+        .unwrap()
+        .map(Result::unwrap)
+        .collect();
+    let want = [
+        ("raised", "watch"),
+        ("escalation_notified", "watch"),
+        ("escalated", "concern"),
+        ("escalation_notified", "concern"),
+        ("escalated", "act"),
+        ("escalation_notified", "act"),
+        ("de_escalated", "concern"),
+        ("de_escalated", "watch"),
+        ("resolved", "watch"),
+    ];
+    let history: Vec<(&str, &str)> = history
+        .iter()
+        .map(|(k, l)| (k.as_str(), l.as_str()))
+        .collect();
+    assert_eq!(history, want);
+    // The report's alert table shows the same steps in order, each at its own level (finding 4).
+    let rows = seepd::report::alerts::rows(
+        &ex.cfg,
+        &conn,
+        "ash-bend",
+        START_MS,
+        START_MS + 240 * HOUR_MS,
+        chrono_tz::UTC,
+    )
+    .unwrap();
+    let river: Vec<(&str, &str)> = rows
+        .iter()
+        .filter(|r| r[2].ends_with("ash-bend-river-stage") && r[1] != "reminded")
+        .map(|r| (r[1].as_str(), r[3].as_str()))
+        .collect();
+    assert_eq!(river.first(), Some(&("raised", "watch")));
+    assert_eq!(river.get(2), Some(&("escalated", "concern")));
+    assert_eq!(river.last(), Some(&("resolved", "watch")));
+    assert!(rows[0][4].contains("m"), "{:?}", rows[0]);
+}

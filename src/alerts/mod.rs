@@ -361,10 +361,15 @@ impl Evaluator {
         let w = &self.rules[i];
         let rule = &w.rule;
         let level = a.level();
-        let (t_ms, value) = next
+        let (mut t_ms, value) = next
             .last
             .or(old.last)
             .map_or((now_ms, None), |(t, v)| (t, Some(v)));
+        // Timer actions, and clearing after a keep-active time, happen at the evaluation time,
+        // not at the time of the last value (raises and escalations are the value's).
+        if !matches!(a, Action::Raise { .. } | Action::Escalate { .. }) {
+            t_ms = now_ms;
+        }
         let alert_id = match a {
             Action::Raise { .. } => {
                 let id = self.next_alert;

@@ -24,7 +24,10 @@ impl Alerting {
     /// The policy and contacts of a site (defaults when the site configures none).
     /// Every site's warnings, in site order.
     pub fn warnings(&self) -> Vec<String> {
-        self.sites.values().flat_map(|s| s.warnings.clone()).collect()
+        self.sites
+            .values()
+            .flat_map(|s| s.warnings.clone())
+            .collect()
     }
 
     pub fn site(&self, site: &str) -> SiteAlerting {

@@ -91,7 +91,11 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
                 "levels",
                 format!(
                     "level {l:?} is not a level of any rule of this site; expected one of: {}",
-                    if known.is_empty() { "(no rules)".to_string() } else { known.join(", ") }
+                    if known.is_empty() {
+                        "(no rules)".to_string()
+                    } else {
+                        known.join(", ")
+                    }
                 ),
             );
         }

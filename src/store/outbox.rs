@@ -231,7 +231,15 @@ impl Store {
         self.conn.execute(
             "INSERT INTO silences (rule, object, until_ms, reason, who, created_ms, all_levels)
              VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-            params![s.rule, s.object, s.until_ms, s.reason, s.who, now_ms, s.all_levels],
+            params![
+                s.rule,
+                s.object,
+                s.until_ms,
+                s.reason,
+                s.who,
+                now_ms,
+                s.all_levels
+            ],
         )?;
         Ok(self.conn.last_insert_rowid())
     }

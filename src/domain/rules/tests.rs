@@ -329,7 +329,13 @@ fn row_normal_to_pending_to_normal() {
     let spec = hourly_spec();
     let mut s = State::default();
     assert!(at(&spec, &mut s, 0, 0, 1.9).is_empty());
-    assert_eq!(s.phase, Phase::Pending { level: 0, since_ms: 0 });
+    assert_eq!(
+        s.phase,
+        Phase::Pending {
+            level: 0,
+            since_ms: 0
+        }
+    );
     assert!(at(&spec, &mut s, HOUR, HOUR, 2.1).is_empty());
     assert_eq!(s.phase, Phase::Normal);
 }
@@ -341,15 +347,24 @@ fn row_pending_to_active_raises_and_no_timer_fires_with_the_raise() {
     let spec = hourly_spec();
     let mut s = State::default();
     at(&spec, &mut s, 0, 0, 1.9);
-    assert_eq!(at(&spec, &mut s, HOUR, HOUR, 1.9), [Action::Raise { level: 0 }]);
+    assert_eq!(
+        at(&spec, &mut s, HOUR, HOUR, 1.9),
+        [Action::Raise { level: 0 }]
+    );
     assert!(tick(&spec, &mut s, 2 * HOUR - 1).is_empty());
-    assert_eq!(tick(&spec, &mut s, 2 * HOUR), [Action::NotifyEscalation { level: 0 }]);
+    assert_eq!(
+        tick(&spec, &mut s, 2 * HOUR),
+        [Action::NotifyEscalation { level: 0 }]
+    );
     // Live with readings stamped 30 days ago (a demo, a catch-up): the timers start at the
     // evaluation time of the raise, so nothing else fires with it.
     let mut s = State::default();
     let now = 30 * DAY;
     at(&spec, &mut s, 0, now, 1.9);
-    assert_eq!(at(&spec, &mut s, HOUR, now + 200, 1.9), [Action::Raise { level: 0 }]);
+    assert_eq!(
+        at(&spec, &mut s, HOUR, now + 200, 1.9),
+        [Action::Raise { level: 0 }]
+    );
     assert!(tick(&spec, &mut s, now + 1000).is_empty());
     assert_eq!(
         tick(&spec, &mut s, now + 200 + HOUR),
