@@ -230,7 +230,16 @@ impl Evaluator {
             .filter(|r| !ids.contains(&r.as_str()))
             .cloned()
             .collect();
-        e.waiting = store.waiting_notices()?;
+        // Notices of removed rules still waiting out their group wait are not sent: the
+        // closing message says what happened to their alert.
+        for mut n in store.waiting_notices()? {
+            if ids.contains(&n.rule.as_str()) {
+                e.waiting.push(n);
+            } else {
+                n.status = "rule_removed".into();
+                e.out.notices.push(n);
+            }
+        }
         let (a, n, m) = store.alert_max_ids()?;
         (e.next_alert, e.next_notice, e.next_message) = (a + 1, n + 1, m + 1);
         Ok(e)
