@@ -18,6 +18,7 @@ fn river(t_h: i64, value: f64) -> Observation {
         t_ms: START_MS + t_h * HOUR_MS,
         value: Some(value),
         unit: "m".into(),
+        reason: None,
     }
 }
 

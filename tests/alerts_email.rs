@@ -51,6 +51,7 @@ fn raise_river(cfg: Config, store: &mut Store) -> Vec<String> {
             t_ms: t,
             value: Some(*head),
             unit: "m".into(),
+            reason: None,
         };
         writes.extend(ev.evaluate(&[obs], t));
     }

@@ -14,6 +14,7 @@ use std::collections::{BTreeMap, HashMap, VecDeque};
 use std::sync::Arc;
 
 use crate::config::{Config, Rule};
+use crate::derive::is_input_problem;
 use crate::domain::rules::{self, Action, Check, Obs, State};
 use crate::engine::Outcome;
 use crate::quality::Flags;
@@ -35,6 +36,8 @@ pub struct Observation {
     /// `None`: the quantity could not be computed (never a crossing).
     pub value: Option<f64>,
     pub unit: String,
+    /// Why there is no value (or a note beside it), for derived values.
+    pub reason: Option<String>,
 }
 
 /// Every observation an engine outcome holds: each reading's quantities, each derived value.
@@ -56,6 +59,7 @@ pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observ
                 t_ms: r.t_ms,
                 value: Some(value),
                 unit: unit.into(),
+                reason: None,
             });
         }
         // Sensor health as a quantity rules can watch: how many health flags (spike, flatline,
@@ -70,6 +74,7 @@ pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observ
             t_ms: r.t_ms,
             value: Some(health as f64),
             unit: "-".into(),
+            reason: None,
         });
     }
     for d in out.derived.iter().filter(|d| keep(&d.object)) {
@@ -79,6 +84,7 @@ pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observ
             t_ms: d.t_ms,
             value: d.value,
             unit: d.unit.into(),
+            reason: d.reason.clone(),
         });
     }
     v
@@ -127,9 +133,11 @@ pub struct Evaluator {
     /// False in a replay without `--send-email`: notices are recorded as `not_sent`, no
     /// message is composed.
     deliver: bool,
+    /// The latest reason a watched derived value had no value, by (object, quantity).
+    unavailable_reason: HashMap<(String, String), String>,
     /// Open alerts whose rule is gone from the configuration (id, rule, site, level, unit):
     /// closed at the next evaluation.
-    orphans: Vec<(i64, String, String, String, String)>,
+    orphans: Vec<crate::store::alerts::OrphanAlert>,
 }
 
 /// The history event kind of a rule action.
@@ -159,7 +167,7 @@ impl Evaluator {
                     .entry((r.object.clone(), r.quantity.clone()))
                     .or_default()
                     .push(i);
-                let unit = if r.spec.check == Check::NoData {
+                let unit = if r.spec.check != Check::Threshold {
                     "s"
                 } else {
                     recent.insert((r.object.clone(), r.quantity.clone()), VecDeque::new());
@@ -186,6 +194,7 @@ impl Evaluator {
             out: AlertWrites::default(),
             transitions: Vec::new(),
             deliver: true,
+            unavailable_reason: HashMap::new(),
             orphans: Vec::new(),
         }
     }
@@ -328,9 +337,23 @@ impl Evaluator {
                 if self.rules[i].rule.spec.check == Check::Threshold {
                     self.rules[i].unit.clone_from(&o.unit);
                 }
+                // A safety-value watch hears a value, or a value that does not apply (no upward
+                // gradient, no exit point); "no value" because of the inputs is silence to it.
+                let value = match self.rules[i].rule.spec.check {
+                    Check::Unavailable => {
+                        let available = o.value.is_some()
+                            || o.reason.as_deref().is_none_or(|r| !is_input_problem(r));
+                        if !available {
+                            self.unavailable_reason
+                                .insert(key.clone(), o.reason.clone().unwrap_or_default());
+                        }
+                        available.then_some(1.0)
+                    }
+                    _ => o.value,
+                };
                 let ob = Obs {
                     t_ms: o.t_ms,
-                    value: o.value,
+                    value,
                 };
                 self.step_rule(i, Some(ob), now_ms);
             }
@@ -445,8 +468,13 @@ impl Evaluator {
         let silence = self.silences.iter().find(|s| {
             s.until_ms > now_ms
                 && (s.all_levels || !top)
-                && (s.rule.as_deref() == Some(&rule.id)
-                    || s.object.as_deref() == Some(&rule.object))
+                && (s.rule.as_deref().is_some_and(|r| {
+                    r == rule.id
+                        || rule
+                            .id
+                            .strip_suffix(crate::config::rules::UNAVAILABLE_SUFFIX)
+                            == Some(r)
+                }) || s.object.as_deref() == Some(&rule.object))
         });
         let status = if silence.is_some() {
             "silenced"
@@ -469,13 +497,17 @@ impl Evaluator {
             recorded_ms: now_ms,
             detail,
         };
-        let mut events = vec![event(
-            event_kind(&a),
-            previous
-                .as_ref()
-                .map(|p| format!("from {p}"))
-                .unwrap_or_default(),
-        )];
+        let detail = match (&previous, &rule.spec.check) {
+            (Some(p), _) => format!("from {p}"),
+            (None, Check::Unavailable) if matches!(a, Action::Raise { .. }) => format!(
+                "safety value unavailable: {}",
+                self.unavailable_reason
+                    .get(&(rule.object.clone(), rule.quantity.clone()))
+                    .map_or("no value computed", String::as_str)
+            ),
+            _ => String::new(),
+        };
+        let mut events = vec![event(event_kind(&a), detail)];
         if let Some(s) = silence {
             events.push(event(
                 "silenced",
@@ -514,7 +546,14 @@ impl Evaluator {
     /// Close the open alerts whose rule is gone from the configuration: resolved now, a
     /// `closed` event saying why, and a message to the contact lists of the level.
     fn close_orphans(&mut self, now_ms: i64) {
-        for (id, rule, site, level, unit) in std::mem::take(&mut self.orphans) {
+        for o in std::mem::take(&mut self.orphans) {
+            let crate::store::alerts::OrphanAlert {
+                id,
+                rule,
+                site,
+                level,
+                unit,
+            } = o;
             let why = format!(
                 "rule {rule} is no longer in the configuration; alert #{id} closed without an all-clear"
             );

@@ -59,6 +59,9 @@ pub struct Policy {
     pub escalate_after_ms: Option<i64>,
     /// Link printed in every message (a placeholder until a status page exists).
     pub status_url: String,
+    /// A rule's derived value without a value (its inputs missing, stale or rejected) this
+    /// long is itself an alert, "safety value unavailable" (ms; `None`: never).
+    pub unavailable_after_ms: Option<i64>,
 }
 
 impl Default for Policy {
@@ -67,6 +70,7 @@ impl Default for Policy {
             group_wait_ms: 30_000,
             repeat_ms: Some(4 * 3_600_000),
             escalate_after_ms: Some(3_600_000),
+            unavailable_after_ms: Some(3 * 3_600_000),
             status_url: "https://status.example.invalid/seepd".into(),
         }
     }

@@ -141,6 +141,7 @@ fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
             "repeat_interval_s",
             "escalate_after_s",
             "status_url",
+            "unavailable_after_s",
         ],
     );
     let d = Policy::default();
@@ -156,6 +157,10 @@ fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
             None => d.escalate_after_ms,
         },
         status_url: t.nonempty(cx, "status_url").unwrap_or(d.status_url),
+        unavailable_after_ms: match t.opt_int_in(cx, "unavailable_after_s", 0, max, false) {
+            Some(s) => millis(Some(s)),
+            None => d.unavailable_after_ms,
+        },
     }
 }
 
@@ -489,6 +494,44 @@ pub(crate) fn cross_check(
     }
 }
 
+/// The "safety value unavailable" watch of a threshold rule on a derived object: its id is the
+/// rule's with `:unavailable`, its one level the rule's least severe level's name (so the same
+/// contact lists hear of it), its bound the site's `unavailable_after_s`.
+fn unavailable_companion(rule: &Rule, cfg: &Config, policy: &Policy) -> Option<Rule> {
+    let after_ms = policy.unavailable_after_ms?;
+    let first = rule.spec.levels.first()?;
+    if rule.spec.check != Check::Threshold || cfg.instruments.contains_key(&rule.object) {
+        return None;
+    }
+    Some(Rule {
+        id: format!("{}{UNAVAILABLE_SUFFIX}", rule.id),
+        site: rule.site.clone(),
+        object: rule.object.clone(),
+        quantity: rule.quantity.clone(),
+        spec: Spec {
+            check: Check::Unavailable,
+            levels: vec![LevelSpec {
+                name: first.name.clone(),
+                direction: Direction::Above,
+                bound: after_ms as f64 / 1000.0,
+                deadband: 0.0,
+                persist_readings: 1,
+                persist_ms: 0,
+                keep_active_ms: 0,
+                response: format!(
+                    "{} {} has had no value for too long because its inputs could not be used: read its instruments by hand and check them until it returns.",
+                    rule.object, rule.quantity
+                ),
+            }],
+            repeat_ms: rule.spec.repeat_ms,
+            escalate_after_ms: rule.spec.escalate_after_ms,
+        },
+    })
+}
+
+/// The id suffix of a rule's "safety value unavailable" watch.
+pub const UNAVAILABLE_SUFFIX: &str = ":unavailable";
+
 /// Put a site file's alerting into the configuration: no-data bounds from the instrument's
 /// interval (k × interval_s), then the rules and the site's policy and contacts.
 pub(crate) fn finish(cfg: &mut Config, site: &str, sr: SiteRules) {
@@ -500,7 +543,9 @@ pub(crate) fn finish(cfg: &mut Config, site: &str, sr: SiteRules) {
                 l.bound = k * i.interval_s as f64;
             }
         }
+        let companion = unavailable_companion(&rule, cfg, &sr.alerting.policy);
         cfg.alerting.rules.push(rule);
+        cfg.alerting.rules.extend(companion);
     }
     cfg.alerting.sites.insert(site.to_string(), sr.alerting);
 }

@@ -86,6 +86,9 @@ pub enum Check {
     /// Silence: the value evaluated is the age (s) of the newest observation, against the one
     /// level's bound (k × the instrument's interval), direction above.
     NoData,
+    /// A safety value without a value: as `NoData`, the age (s) of the newest observation that
+    /// had a value (or a value that does not apply), against the one level's bound.
+    Unavailable,
 }
 
 /// A rule's evaluation settings.
@@ -247,7 +250,7 @@ pub fn step(spec: &Spec, state: &State, obs: Option<Obs>, now_ms: i64) -> (State
                 settle(spec, &mut s, now_ms, now_ms, &mut actions);
             }
         }
-        Check::NoData => {
+        Check::NoData | Check::Unavailable => {
             // Heard from at the evaluation time: a reading stamped long ago but arriving now
             // (a logger catching up, a demo starting in the past) ends the silence.
             if let Some(Obs { value: Some(_), .. }) = obs {

@@ -80,6 +80,16 @@ pub struct SilenceRow {
     pub all_levels: bool,
 }
 
+/// An open alert whose rule is no longer configured.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OrphanAlert {
+    pub id: i64,
+    pub rule: String,
+    pub site: String,
+    pub level: String,
+    pub unit: String,
+}
+
 /// One step in an alert's history.
 #[derive(Debug, Clone, PartialEq)]
 pub struct EventRow {
@@ -395,24 +405,27 @@ impl Store {
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
-    /// Open alerts whose rule is not among `rules`: (id, rule, site, level, unit).
+    /// Open alerts whose rule is not among `rules`.
     ///
     /// # Errors
     /// SQLite errors.
-    pub fn orphaned_alerts(
-        &self,
-        rules: &[&str],
-    ) -> Result<Vec<(i64, String, String, String, String)>, StoreError> {
+    pub fn orphaned_alerts(&self, rules: &[&str]) -> Result<Vec<OrphanAlert>, StoreError> {
         let mut st = self.conn.prepare(
             "SELECT id, rule, site, level, unit FROM alerts WHERE resolved_ms IS NULL ORDER BY id",
         )?;
         let rows = st.query_map([], |r| {
-            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+            Ok(OrphanAlert {
+                id: r.get(0)?,
+                rule: r.get(1)?,
+                site: r.get(2)?,
+                level: r.get(3)?,
+                unit: r.get(4)?,
+            })
         })?;
-        let all: Vec<(i64, String, String, String, String)> = rows.collect::<Result<_, _>>()?;
+        let all: Vec<OrphanAlert> = rows.collect::<Result<_, _>>()?;
         Ok(all
             .into_iter()
-            .filter(|a| !rules.contains(&a.1.as_str()))
+            .filter(|a| !rules.contains(&a.rule.as_str()))
             .collect())
     }
 
