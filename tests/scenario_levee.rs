@@ -70,6 +70,11 @@ fn injected_faults_are_flagged_and_nothing_else() {
     assert!(toe
         .iter()
         .any(|(q, _, r)| q == "factor_of_safety" && r.contains("rejected: spike")));
+    for object in ["AB-TOE-1", "AB-TOE-2", "AB-N1", "AB-N2", "AB-R2"] {
+        let mut hours: Vec<u32> = tl.unavailable(object).iter().map(|x| x.1).collect();
+        hours.dedup();
+        println!("figures: {object} without a value at hours {hours:?}");
+    }
     let n1: Vec<u32> = tl.unavailable("AB-N1").iter().map(|(_, h, _)| *h).collect();
     assert!(
         n1.iter().all(|h| *h == 62 || (200..=210).contains(h)),

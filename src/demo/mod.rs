@@ -62,8 +62,10 @@ pub async fn run(
         .timestamp_opt(start.timestamp() - start.timestamp() % 3600, 0)
         .single()
         .unwrap_or(start);
+    let sim = sim::Sim::new(&cfg, start.timestamp_millis())?;
     let loggers = tokio::spawn(publish_loop(
         port,
+        sim,
         start,
         seconds_per_day,
         total_days,
@@ -120,6 +122,7 @@ fn tempfile_dir() -> anyhow::Result<std::path::PathBuf> {
 /// Publish the scenario: one hourly round of every logger per simulated hour.
 async fn publish_loop(
     port: u16,
+    sim: sim::Sim,
     start: chrono::DateTime<Utc>,
     seconds_per_day: f64,
     days: u32,
@@ -142,7 +145,7 @@ async fn publish_loop(
     let per_hour = Duration::from_secs_f64((seconds_per_day / 24.0).max(0.001));
     for hour in 0..(days * 24) {
         let t = start + chrono::Duration::hours(i64::from(hour));
-        for (topic, payload) in sim::messages(hour, t) {
+        for (topic, payload) in sim.messages(hour, t) {
             client
                 .publish(topic, QoS::AtLeastOnce, false, payload)
                 .await?;
