@@ -18,6 +18,7 @@ pub mod fit_cmd;
 pub mod ingest;
 pub mod notify;
 pub mod quality;
+pub mod reload;
 pub mod replay;
 pub mod scenario;
 pub mod section_cmd;

@@ -259,6 +259,11 @@ impl Evaluator {
         self.rules.is_empty()
     }
 
+    /// The silences in force (as last read from the database).
+    pub fn silences(&self) -> &[SilenceRow] {
+        &self.silences
+    }
+
     /// Replace the silences in force.
     pub fn set_silences(&mut self, s: Vec<SilenceRow>) {
         self.silences = s;

@@ -259,6 +259,9 @@ fn writer_loop(
     let mut qlog = QuarantineLog::new(Duration::from_secs(60));
     let mut ack_failed = false;
     loop {
+        if let Some(new) = alerts.take_reload() {
+            crate::reload::apply(new, &mut store, &mut engine, &mut alerts);
+        }
         // The timer must be created inside the runtime: build it in the async block.
         let first = match rt.block_on(async { tokio::time::timeout(TICK, rx.recv()).await }) {
             Ok(Some(a)) => a,

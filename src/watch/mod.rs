@@ -195,6 +195,11 @@ impl Watcher {
         self.fitted = Some(rx);
     }
 
+    /// Hand over the channel of models fitted elsewhere (to a rebuilt watcher, on reload).
+    pub fn take_fits(&mut self) -> Option<Receiver<Fitted>> {
+        self.fitted.take()
+    }
+
     /// Install a fitted model, or record why it could not be fitted.
     pub fn install(&mut self, fitted: Fitted) {
         self.models.install(fitted);
