@@ -141,8 +141,13 @@ pub struct AlertState {
     /// The level the acknowledgement was given at: it holds for that level and below.
     #[serde(default)]
     pub acked_level: Option<usize>,
-    /// The escalation list has been told (about the current level).
+    /// The escalation lists have been told (at some level): from then on they receive this
+    /// alert's notices too.
     pub escalated: bool,
+    /// The most severe level the escalation lists were told about (`None`: not yet, or a
+    /// state from an older version — read from `escalated`).
+    #[serde(default)]
+    pub told_level: Option<usize>,
 }
 
 /// Everything a rule remembers between steps (persisted as JSON by the caller).
@@ -326,6 +331,7 @@ fn settle(spec: &Spec, s: &mut State, t_ms: i64, now_ms: i64, actions: &mut Vec<
                     acked: false,
                     acked_level: None,
                     escalated: false,
+                    told_level: None,
                 });
                 actions.push(Action::Raise { level });
             } else if let Some(level) = (0..spec.levels.len()).rev().find(|&i| s.runs[i].is_some())
@@ -342,7 +348,6 @@ fn settle(spec: &Spec, s: &mut State, t_ms: i64, now_ms: i64, actions: &mut Vec<
                 if let Some(al) = s.alert.as_mut() {
                     // A more severe level re-arms reminders and escalation, from now.
                     al.acked = al.acked_level.is_some_and(|l| l >= to);
-                    al.escalated = false;
                     al.level_since_ms = now_ms;
                     al.last_notice_ms = now_ms;
                 }
@@ -394,8 +399,10 @@ fn notice_timers(spec: &Spec, s: &mut State, now_ms: i64, actions: &mut Vec<Acti
         } else {
             al.level_since_ms
         };
-        if !al.escalated && now_ms - since >= after {
+        let told = al.told_level.or(al.escalated.then_some(level));
+        if told.is_none_or(|t| t < level) && now_ms - since >= after {
             al.escalated = true;
+            al.told_level = Some(level);
             actions.push(Action::NotifyEscalation { level });
         }
     }

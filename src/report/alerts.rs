@@ -38,7 +38,8 @@ pub fn rows(
         "SELECT e.alert, e.rule, e.site, e.kind, e.level, e.value, e.unit, e.t_ms,
                 e.recorded_ms, e.detail, coalesce(a.object, ''), coalesce(a.quantity, '')
          FROM alert_events e LEFT JOIN alerts a ON a.id = e.alert
-         WHERE e.site = ?1 AND e.t_ms >= ?2 AND e.t_ms < ?3 ORDER BY e.t_ms, e.id",
+         WHERE e.site = ?1 AND e.t_ms >= ?2 AND e.t_ms < ?3 AND e.kind != 'acknowledged'
+         ORDER BY e.t_ms, e.id",
     )?;
     let events = st.query_map(params![site, from_ms, to_ms], |r| {
         Ok((
@@ -67,6 +68,41 @@ pub fn rows(
                 format!("{object} / {}", e.rule),
                 e.level,
                 detail,
+            ],
+        ));
+    }
+    // Acknowledgements from the operators' own record (also those the service has not applied
+    // yet), at the level the alert had when it was acknowledged.
+    let mut st = conn.prepare(
+        "SELECT k.t_ms, k.who, k.note, a.id, a.rule, a.object,
+                coalesce((SELECT e.level FROM alert_events e
+                          WHERE e.alert = a.id AND e.t_ms <= k.t_ms AND e.kind != 'acknowledged'
+                          ORDER BY e.t_ms DESC, e.id DESC LIMIT 1), a.level)
+         FROM acks k JOIN alerts a ON a.id = k.alert
+         WHERE a.site = ?1 AND k.t_ms >= ?2 AND k.t_ms < ?3",
+    )?;
+    let acks = st.query_map(params![site, from_ms, to_ms], |r| {
+        Ok((
+            r.get::<_, i64>(0)?,
+            r.get::<_, String>(1)?,
+            r.get::<_, Option<String>>(2)?,
+            r.get::<_, i64>(3)?,
+            r.get::<_, String>(4)?,
+            r.get::<_, String>(5)?,
+            r.get::<_, String>(6)?,
+        ))
+    })?;
+    for k in acks {
+        let (t, who, note, id, rule, object, level) = k?;
+        let note = note.map(|n| format!(": {n}")).unwrap_or_default();
+        out.push((
+            t,
+            [
+                local(t, tz),
+                "acknowledged".into(),
+                format!("{object} / {rule}"),
+                level,
+                format!("alert #{id} by {who}{note}"),
             ],
         ));
     }
