@@ -63,11 +63,18 @@ pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observ
             });
         }
         // Sensor health as a quantity rules can watch: how many health flags (spike, flatline,
-        // thermistor) this reading carries; 0 for a clean reading, so an alert on it clears.
+        // thermistor) this reading carries, plus the spike it confirmed on the reading before;
+        // 0 for a clean reading, so an alert on it clears.
+        let confirmed = out
+            .flag_updates
+            .iter()
+            .filter(|f| f.instrument == r.instrument && f.flags.contains(Flags::SPIKE))
+            .count();
         let health = [Flags::SPIKE, Flags::FLATLINE, Flags::THERMISTOR]
             .iter()
             .filter(|f| r.flags.contains(**f))
-            .count();
+            .count()
+            + confirmed;
         v.push(Observation {
             object: r.instrument.clone(),
             quantity: HEALTH_FLAGS.into(),
@@ -793,5 +800,20 @@ mod observation_tests {
         two.insert(Flags::THERMISTOR);
         two.insert(Flags::TIME_FROM_ARRIVAL);
         assert_eq!(health(two), Some(2.0));
+        // A spike is confirmed by the next reading: it counts on that reading.
+        let out = Outcome {
+            readings: vec![reading(Flags::empty())],
+            flag_updates: vec![crate::store::FlagUpdate {
+                instrument: "P1".into(),
+                t_ms: 0,
+                flags: Flags::SPIKE,
+            }],
+            ..Outcome::default()
+        };
+        let v = observations(&out)
+            .into_iter()
+            .find(|o| o.quantity == HEALTH_FLAGS)
+            .and_then(|o| o.value);
+        assert_eq!(v, Some(1.0));
     }
 }
