@@ -8,6 +8,8 @@
 
 pub mod commands;
 pub mod live;
+mod observe;
+mod orphans;
 pub mod render;
 
 use std::collections::{BTreeMap, HashMap, VecDeque};
@@ -17,85 +19,16 @@ use crate::config::{Config, Rule};
 use crate::derive::is_input_problem;
 use crate::domain::rules::{self, Action, Check, Obs, State};
 use crate::engine::Outcome;
-use crate::quality::Flags;
 use crate::store::{
     AckRow, AlertRow, AlertWrites, EventRow, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
 };
 
 use render::Item;
 
+pub use observe::{observations, observations_of, Observation, HEALTH_FLAGS};
+
 /// Values kept per watched quantity for messages (last readings, rate).
 const RECENT: usize = 6;
-
-/// One value of one quantity of an instrument or derived object.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Observation {
-    pub object: String,
-    pub quantity: String,
-    pub t_ms: i64,
-    /// `None`: the quantity could not be computed (never a crossing).
-    pub value: Option<f64>,
-    pub unit: String,
-    /// Why there is no value (or a note beside it), for derived values.
-    pub reason: Option<String>,
-}
-
-/// Every observation an engine outcome holds: each reading's quantities, each derived value.
-/// The observation quantity counting a reading's sensor-health flags.
-pub const HEALTH_FLAGS: &str = "health_flags";
-
-pub fn observations(out: &Outcome) -> Vec<Observation> {
-    observations_of(out, |_| true)
-}
-
-/// The observations of the objects `keep` accepts (the others cost nothing).
-pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observation> {
-    let mut v = Vec::new();
-    for r in out.readings.iter().filter(|r| keep(&r.instrument)) {
-        for (quantity, value, unit) in crate::replay::quantities(r) {
-            v.push(Observation {
-                object: r.instrument.clone(),
-                quantity: quantity.into(),
-                t_ms: r.t_ms,
-                value: Some(value),
-                unit: unit.into(),
-                reason: None,
-            });
-        }
-        // Sensor health as a quantity rules can watch: how many health flags (spike, flatline,
-        // thermistor) this reading carries, plus the spike it confirmed on the reading before;
-        // 0 for a clean reading, so an alert on it clears.
-        let confirmed = out
-            .flag_updates
-            .iter()
-            .filter(|f| f.instrument == r.instrument && f.flags.contains(Flags::SPIKE))
-            .count();
-        let health = [Flags::SPIKE, Flags::FLATLINE, Flags::THERMISTOR]
-            .iter()
-            .filter(|f| r.flags.contains(**f))
-            .count()
-            + confirmed;
-        v.push(Observation {
-            object: r.instrument.clone(),
-            quantity: HEALTH_FLAGS.into(),
-            t_ms: r.t_ms,
-            value: Some(health as f64),
-            unit: "-".into(),
-            reason: None,
-        });
-    }
-    for d in out.derived.iter().filter(|d| keep(&d.object)) {
-        v.push(Observation {
-            object: d.object.clone(),
-            quantity: d.quantity.clone(),
-            t_ms: d.t_ms,
-            value: d.value,
-            unit: d.unit.into(),
-            reason: d.reason.clone(),
-        });
-    }
-    v
-}
 
 /// One rule action, as replay reports it.
 #[derive(Debug, Clone, PartialEq)]
@@ -555,84 +488,6 @@ impl Evaluator {
         self.out.notices.push(notice);
     }
 
-    /// Close the open alerts whose rule is gone from the configuration: resolved now, a
-    /// `closed` event saying why, and a message to the contact lists of the level.
-    fn close_orphans(&mut self, now_ms: i64) {
-        for o in std::mem::take(&mut self.orphans) {
-            let crate::store::alerts::OrphanAlert {
-                id,
-                rule,
-                site,
-                level,
-                unit,
-            } = o;
-            let why = format!(
-                "rule {rule} is no longer in the configuration; alert #{id} closed without an all-clear"
-            );
-            tracing::warn!(alert = id, rule = %rule, "Alert closed: its rule was removed");
-            self.out.resolved.push((id, now_ms));
-            self.out.events.push(EventRow {
-                alert: id,
-                rule: rule.clone(),
-                site: site.clone(),
-                kind: "closed".into(),
-                level: level.clone(),
-                value: None,
-                unit: unit.clone(),
-                t_ms: now_ms,
-                recorded_ms: now_ms,
-                detail: why.clone(),
-            });
-            let recipients = self.cfg.alerting.site(&site).recipients(&level, true, true);
-            let status = if recipients.is_empty() {
-                "no_recipients"
-            } else if !self.deliver {
-                "not_sent"
-            } else {
-                "queued"
-            };
-            let outbox = (status == "queued").then(|| {
-                let m = self.next_message;
-                self.next_message += 1;
-                m
-            });
-            self.out.notices.push(NoticeRow {
-                id: self.next_notice,
-                alert: id,
-                rule: rule.clone(),
-                site: site.clone(),
-                kind: "closed".into(),
-                level: level.clone(),
-                value: None,
-                unit,
-                t_ms: now_ms,
-                created_ms: now_ms,
-                recipients: recipients.clone(),
-                status: status.into(),
-                outbox,
-            });
-            self.next_notice += 1;
-            if let Some(m) = outbox {
-                let domain = self.mail_domain();
-                let text = format!(
-                    "Alert #{id} ({level}) of site {site} was closed: {why}.\n\
-                     It was still active. Check the structure and the configuration change.\n\n{}\n",
-                    crate::CAUTION
-                );
-                self.out.messages.push(OutboxRow {
-                    id: m,
-                    created_ms: now_ms,
-                    site,
-                    recipients,
-                    subject: format!("[seepd] Closed: alert #{id} ({level}), rule {rule} removed"),
-                    html: format!("<pre>{}</pre>", render::escape(&text)),
-                    text,
-                    message_id: format!("<seepd.alert-{m}.{now_ms}@{domain}>"),
-                });
-            }
-        }
-    }
-
     /// The domain of Message-IDs: the `[smtp] from` address's.
     fn mail_domain(&self) -> String {
         self.cfg
@@ -756,64 +611,5 @@ impl Evaluator {
             html,
             message_id: format!("<seepd.alert-{id}.{now_ms}@{domain}>"),
         }
-    }
-}
-
-#[cfg(test)]
-mod observation_tests {
-    use super::*;
-    use crate::store::ReadingRow;
-
-    fn reading(flags: Flags) -> ReadingRow {
-        ReadingRow {
-            instrument: "P1".into(),
-            t_ms: 1000,
-            arrival_ms: 1000,
-            raw: 1.0,
-            temperature_c: None,
-            baro_kpa: None,
-            eng_value: 1.0,
-            eng_unit: "kPa",
-            pressure_kpa: Some(1.0),
-            pressure_head_m: Some(0.1),
-            total_head_m: Some(100.1),
-            flags,
-        }
-    }
-
-    fn health(flags: Flags) -> Option<f64> {
-        let out = Outcome {
-            readings: vec![reading(flags)],
-            ..Outcome::default()
-        };
-        observations(&out)
-            .into_iter()
-            .find(|o| o.quantity == HEALTH_FLAGS)
-            .and_then(|o| o.value)
-    }
-
-    #[test]
-    fn health_flags_count_only_sensor_health() {
-        assert_eq!(health(Flags::empty()), Some(0.0));
-        assert_eq!(health(Flags::SPIKE), Some(1.0));
-        let mut two = Flags::FLATLINE;
-        two.insert(Flags::THERMISTOR);
-        two.insert(Flags::TIME_FROM_ARRIVAL);
-        assert_eq!(health(two), Some(2.0));
-        // A spike is confirmed by the next reading: it counts on that reading.
-        let out = Outcome {
-            readings: vec![reading(Flags::empty())],
-            flag_updates: vec![crate::store::FlagUpdate {
-                instrument: "P1".into(),
-                t_ms: 0,
-                flags: Flags::SPIKE,
-            }],
-            ..Outcome::default()
-        };
-        let v = observations(&out)
-            .into_iter()
-            .find(|o| o.quantity == HEALTH_FLAGS)
-            .and_then(|o| o.value);
-        assert_eq!(v, Some(1.0));
     }
 }
