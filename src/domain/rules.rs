@@ -7,8 +7,9 @@
 //! list). It does no I/O and never reads the clock: time comes in as `now_ms` and with each
 //! observation. Who is told, and how, is decided elsewhere (`alerts`, `notify`).
 //!
-//! Clock: persistence durations and keep-active times are measured in observation time when an
-//! observation arrives and in `now_ms` on a tick (a step without observation). Observations
+//! Clock: persistence durations and keep-active times are measured in observation time: on a
+//! tick (a step without observation) as the newest observation's time plus the evaluation time
+//! passed since it was applied. Observations
 //! older than (or as old as) the newest one already applied are ignored. The notice timers
 //! (escalation to the second list, reminders) run on `now_ms` only — the evaluation clock: wall
 //! time live, reading time in replay — so an old reading arriving late can never make a timer
@@ -158,6 +159,11 @@ pub struct State {
     pub runs: Vec<Option<Run>>,
     /// Newest observation applied (time, value).
     pub last: Option<(i64, f64)>,
+    /// Evaluation time at which `last` was applied: on a tick, persistence and keep-active run
+    /// on from the reading's time by the evaluation time passed since (so readings stamped long
+    /// ago, a catch-up, do not cut a keep-active short). `None` in older states: `now` is used.
+    #[serde(default)]
+    pub applied_ms: Option<i64>,
     /// No-data rules: newest observation time, or when watching started.
     pub seen_ms: Option<i64>,
     pub alert: Option<AlertState>,
@@ -248,11 +254,15 @@ pub fn step(spec: &Spec, state: &State, obs: Option<Obs>, now_ms: i64) -> (State
             {
                 if v.is_finite() && s.last.is_none_or(|(t, _)| t_ms > t) {
                     apply_value(spec, &mut s, t_ms, v);
+                    s.applied_ms = Some(now_ms);
                     settle(spec, &mut s, t_ms, now_ms, &mut actions);
                 }
             }
-            if s.last.is_some() {
-                settle(spec, &mut s, now_ms, now_ms, &mut actions);
+            if let Some((t_last, _)) = s.last {
+                let t = s
+                    .applied_ms
+                    .map_or(now_ms, |a| t_last + (now_ms - a).max(0));
+                settle(spec, &mut s, t, now_ms, &mut actions);
             }
         }
         Check::NoData | Check::Unavailable => {

@@ -492,3 +492,26 @@ fn row_no_data_counts_silence_on_the_evaluation_clock() {
     );
     assert_eq!(a, [Action::Resolve { from: 0 }]);
 }
+
+#[test]
+fn row_keep_active_on_ticks_runs_from_the_reading_time_by_the_time_passed() {
+    // Readings stamped 30 days ago (a catch-up): back inside at reading time 2 h; a tick one
+    // second later must not cut the 2 h keep-active short; one 2 h later ends it.
+    let mut spec = hourly_spec();
+    spec.levels[0].keep_active_ms = 2 * HOUR;
+    (spec.escalate_after_ms, spec.repeat_ms) = (None, None);
+    let now = 30 * DAY;
+    let mut s = State::default();
+    at(&spec, &mut s, 0, now, 1.9);
+    at(&spec, &mut s, HOUR, now + 1000, 1.9);
+    assert!(at(&spec, &mut s, 2 * HOUR, now + 2000, 2.1).is_empty());
+    assert!(
+        tick(&spec, &mut s, now + 3000).is_empty(),
+        "keep-active holds"
+    );
+    assert!(tick(&spec, &mut s, now + 2000 + 2 * HOUR - 1).is_empty());
+    assert_eq!(
+        tick(&spec, &mut s, now + 2000 + 2 * HOUR),
+        [Action::Resolve { from: 0 }]
+    );
+}
