@@ -78,7 +78,7 @@ impl Background {
 
     /// Ask the thread to stop and wait up to `deadline` for it; a thread still busy then is
     /// left to end with the process.
-    pub fn stop(mut self, deadline: Duration) {
+    pub fn stop(mut self, deadline: Duration) -> bool {
         self.stop.store(true, Ordering::SeqCst);
         let _ = self.wake.try_send(());
         if let Some(t) = self.thread.take() {
@@ -86,9 +86,11 @@ impl Background {
             while !t.is_finished() && Instant::now() < end {
                 std::thread::sleep(Duration::from_millis(20));
             }
-            if t.is_finished() {
-                let _ = t.join();
+            if !t.is_finished() {
+                return false;
             }
+            let _ = t.join();
         }
+        true
     }
 }

@@ -261,7 +261,10 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             };
             let rt = tokio::runtime::Runtime::new()?;
             let counters = Arc::new(Counters::default());
-            rt.block_on(crate::service::run(cfg, counters, crate::service::signal()))?;
+            let result = rt.block_on(crate::service::run(cfg, counters, crate::service::signal()));
+            // A task stuck past the shutdown deadline must not hold the exit.
+            rt.shutdown_timeout(std::time::Duration::from_millis(500));
+            result?;
             Ok(0)
         }
         Command::Status { config } => {

@@ -17,6 +17,7 @@ use crate::alerts::live::Live;
 use crate::alerts::Evaluator;
 use crate::config::Config;
 use crate::engine::Engine;
+use crate::ingest::link::LinkState;
 use crate::ingest::progress::Counters;
 use crate::notify::Worker;
 use crate::report::scheduler::Scheduler;
@@ -113,34 +114,54 @@ pub async fn run(
     let hangups = tokio::spawn(on_hangup(Arc::clone(&cfg), reload_tx));
     let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
     let exporter = start_export(&cfg, stop_rx);
+    let link = LinkState::shared(&cfg.mqtt, Utc::now());
     let stop_sent = std::sync::OnceLock::new();
     let forward = async {
         shutdown.await;
         let _ = stop_sent.set(tokio::time::Instant::now());
         let _ = stop_tx.send(true);
     };
-    let result =
-        crate::ingest::mqtt::run(Arc::clone(&cfg), store, engine, live, counters, forward).await;
+    let result = crate::ingest::mqtt::run(
+        Arc::clone(&cfg),
+        store,
+        engine,
+        live,
+        counters,
+        link,
+        forward,
+    )
+    .await;
     let _ = stop_sent.set(tokio::time::Instant::now());
     let _ = stop_tx.send(true);
     refits.abort();
     hangups.abort();
+    // Everything stops within one deadline counted from the stop request.
+    let deadline_len = Duration::from_secs(cfg.service.shutdown_deadline_s);
+    let end = *stop_sent.get_or_init(tokio::time::Instant::now) + deadline_len;
+    let left = || end.saturating_duration_since(tokio::time::Instant::now());
+    let mut late = false;
     if let Some(r) = reports {
-        r.stop(Duration::from_secs(cfg.service.shutdown_deadline_s.min(5)));
+        late |= !r.stop(left());
     }
     if let Some(w) = worker {
-        w.stop(Duration::from_secs(cfg.service.shutdown_deadline_s.min(5)));
+        late |= !w.stop(left());
     }
-    if let (Some(task), Some(sent)) = (exporter, stop_sent.get()) {
-        let deadline = *sent + std::time::Duration::from_secs(cfg.service.shutdown_deadline_s);
-        match tokio::time::timeout_at(deadline, task).await {
+    if let Some(task) = exporter {
+        match tokio::time::timeout_at(end, task).await {
             Ok(Ok(Ok(()))) => {}
             Ok(Ok(Err(e))) => tracing::error!(error = %format!("{e:#}"), "Export worker failed"),
             Ok(Err(e)) => tracing::error!(error = %e, "Export worker panicked"),
-            Err(_) => tracing::error!("Export worker did not stop before the shutdown deadline; unsent points stay queued"),
+            Err(_) => {
+                late = true;
+                tracing::error!("Export worker did not stop before the shutdown deadline; unsent points stay queued");
+            }
         }
     }
-    result
+    result?;
+    if late {
+        return Err(crate::ingest::mqtt::DeadlinePassed(deadline_len.as_secs()).into());
+    }
+    Ok(())
 }
 
 /// Spawn the export worker when `[export]` is configured and enabled.

@@ -10,6 +10,7 @@ use chrono::{DateTime, Utc};
 use rusqlite::OptionalExtension;
 
 use crate::config::Config;
+use crate::ingest::link::LinkState;
 use crate::store::{export, Store, StoreError};
 
 fn time(ms: i64) -> String {
@@ -57,6 +58,7 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> Result<String, StoreError> {
     for (reason, n) in quarantine {
         let _ = writeln!(s, "  {reason}: {n}");
     }
+    let _ = writeln!(s, "{}", broker_line(&store, now)?);
     let b = export::backlog(conn)?;
     let state = match &cfg.export {
         None => "not configured".to_string(),
@@ -81,4 +83,48 @@ pub fn report(cfg: &Config, now: DateTime<Utc>) -> Result<String, StoreError> {
         b.rejected
     );
     Ok(s)
+}
+
+/// The broker link as the running service last recorded it.
+fn broker_line(store: &Store, now: DateTime<Utc>) -> Result<String, StoreError> {
+    let Some((l, recorded_ms)) = store.service_state::<LinkState>("broker_link")? else {
+        return Ok("Broker: no state recorded (the service has not run with this database)".into());
+    };
+    let for_s = (now.timestamp_millis() - l.since_ms).max(0) / 1000;
+    let mut line = if l.connected {
+        format!(
+            "Broker: connected to {} since {} ({})",
+            l.broker,
+            time(l.since_ms),
+            span(for_s)
+        )
+    } else {
+        format!(
+            "Broker: NOT CONNECTED to {} since {} ({}; {} failed attempts)",
+            l.broker,
+            time(l.since_ms),
+            span(for_s),
+            l.attempts
+        )
+    };
+    if let (false, Some(e)) = (l.connected, &l.last_error) {
+        let _ = write!(line, "\n  last error: {e}");
+    }
+    let _ = write!(
+        line,
+        "\n  reconnections since start: {}; recorded at {}",
+        l.reconnects,
+        time(recorded_ms)
+    );
+    Ok(line)
+}
+
+/// A duration in words: seconds, minutes, hours or days.
+fn span(s: i64) -> String {
+    match s {
+        s if s < 120 => format!("{s} s"),
+        s if s < 7_200 => format!("{} min", s / 60),
+        s if s < 172_800 => format!("{:.1} h", s as f64 / 3600.0),
+        s => format!("{:.1} days", s as f64 / 86_400.0),
+    }
 }

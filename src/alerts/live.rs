@@ -16,7 +16,8 @@ use super::{Evaluator, Observation};
 /// Crash-test hook: when the environment variable `SEEPD_TEST_PAUSE_AT` names `step`, log
 /// "Test pause at STEP" and stop here for good (the test then kills the process with SIGKILL).
 /// Steps: `before_commit`, `after_commit` (a commit that queued messages), `after_send` (the
-/// relay accepted a message, not yet marked sent). Unset in production: one env lookup.
+/// relay accepted a message, not yet marked sent), `writer_batch` (the writer took a batch of
+/// messages, nothing processed yet). Unset in production: one env lookup.
 pub fn pause_point(step: &str) {
     static AT: std::sync::OnceLock<Option<String>> = std::sync::OnceLock::new();
     let at = AT.get_or_init(|| std::env::var("SEEPD_TEST_PAUSE_AT").ok());

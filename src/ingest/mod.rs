@@ -5,6 +5,8 @@
 //! and deciding flags belong to the engine.
 
 pub mod decode;
+pub mod link;
 pub mod mqtt;
 pub mod progress;
 pub mod topic;
+pub mod writer;

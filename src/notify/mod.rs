@@ -135,7 +135,8 @@ impl Worker {
 
     /// Ask the worker to stop and wait up to `deadline` for it (a send in progress is bounded by
     /// the SMTP timeout; an interrupted send is retried at the next start).
-    pub fn stop(self, deadline: Duration) {
-        self.0.stop(deadline);
+    /// True when it stopped in time.
+    pub fn stop(self, deadline: Duration) -> bool {
+        self.0.stop(deadline)
     }
 }

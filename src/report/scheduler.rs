@@ -220,7 +220,8 @@ impl Scheduler {
 
     /// Ask the scheduler to stop and wait up to `deadline` (a report being rendered is not
     /// queued if it is abandoned; it is generated again at the next start).
-    pub fn stop(self, deadline: Duration) {
-        self.0.stop(deadline);
+    /// True when it stopped in time.
+    pub fn stop(self, deadline: Duration) -> bool {
+        self.0.stop(deadline)
     }
 }

@@ -12,6 +12,7 @@ mod models;
 pub mod outbox;
 pub mod reports;
 mod schema;
+mod state;
 
 use std::path::Path;
 

@@ -195,7 +195,14 @@ const MIGRATIONS: &[&str] = &[
         created_ms INTEGER NOT NULL,
         PRIMARY KEY (schedule, period_start_ms)
     );",
-    // 7: alert history as events (raised, escalated, de-escalated, acknowledged, silenced,
+    // 7: the running service's own state for `seepd status` (broker link, ...), one JSON
+    // document per key.
+    "CREATE TABLE service_state (
+        key TEXT PRIMARY KEY,
+        value TEXT NOT NULL,
+        updated_ms INTEGER NOT NULL
+    );",
+    // 8: alert history as events (raised, escalated, de-escalated, acknowledged, silenced,
     // reminded, escalation notified, resolved, closed), each with its level, value and time;
     // silences that also cover the most severe level (`--all-levels`).
     "CREATE TABLE alert_events (

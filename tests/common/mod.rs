@@ -38,15 +38,23 @@ pub struct Broker {
     pub port: u16,
     dir: PathBuf,
     child: Option<Child>,
+    /// Mosquitto's per-client window of unacknowledged QoS 1 messages.
+    inflight: u32,
 }
 
 impl Broker {
     /// Start Mosquitto on a free port with persistence in `dir`.
     pub fn start(dir: &Path) -> Broker {
+        Broker::start_with_inflight(dir, 100)
+    }
+
+    /// As `start`, with `max_inflight_messages` set to `inflight` (Mosquitto's default is 20).
+    pub fn start_with_inflight(dir: &Path, inflight: u32) -> Broker {
         let mut b = Broker {
             port: free_port(),
             dir: dir.to_path_buf(),
             child: None,
+            inflight,
         };
         b.spawn();
         b
@@ -60,8 +68,9 @@ impl Broker {
             "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\n\
              user {user}\n\
              persistence_location {dir}/\nautosave_interval 1\nmax_queued_messages 0\n\
-             max_inflight_messages 100\nmessage_size_limit 0\nlog_dest file {dir}/mosquitto.log\n",
+             max_inflight_messages {inflight}\nmessage_size_limit 0\nlog_dest file {dir}/mosquitto.log\n",
             port = self.port,
+            inflight = self.inflight,
             dir = self.dir.display(),
             // Started as root, Mosquitto drops to the `mosquitto` user and could then not write
             // its persistence file in our temp dir; run it as the user we are.
@@ -178,6 +187,11 @@ pub struct Daemon {
 
 impl Daemon {
     pub fn start(config: &Path, log: &Path) -> Daemon {
+        Daemon::start_env(config, log, &[])
+    }
+
+    /// As `start`, with extra environment variables (e.g. `SEEPD_TEST_PAUSE_AT`).
+    pub fn start_env(config: &Path, log: &Path, env: &[(&str, &str)]) -> Daemon {
         let out = std::fs::OpenOptions::new()
             .create(true)
             .append(true)
@@ -187,6 +201,7 @@ impl Daemon {
             .args(["run", "--config"])
             .arg(config)
             .env("SEEPD_LOG", "info")
+            .envs(env.iter().copied())
             .stdout(Stdio::null())
             .stderr(out)
             .spawn()
