@@ -1,6 +1,6 @@
 //! Alert latency benchmark (not a test): from a reading's publication to a real Mosquitto to
 //! the alert message accepted by a real aiosmtpd, through the real seepd binary (ingest,
-//! commit with the rule transition and its outbox row, mail worker, SMTP). No group wait.
+//! commit with the rule transition and its outbox row, mail worker, SMTP). No bundle window.
 //!
 //! Run: `cargo bench --bench alerts` (env SEEPD_BENCH_ALERTS sets the number of alerts,
 //! default 1000; under `cargo test`, which runs it without `--bench`, a 20-alert smoke run). Each alert is a river reading above the rule's bound (raise), followed by
@@ -78,7 +78,7 @@ fn main() {
         broker.port,
         smtp.port,
         &[
-            ("repeat_interval_s = 14400", "repeat_interval_s = 0"),
+            ("remind_every_s = 14400", "remind_every_s = 0"),
             ("escalate_after_s = 3600", "escalate_after_s = 0"),
             ("deadband = 0.2\n", "deadband = 0.0\n"),
             (
@@ -110,7 +110,7 @@ fn main() {
     lat_ms.sort_by(f64::total_cmp);
     let pct =
         |q: f64| lat_ms[((lat_ms.len() as f64 * q).ceil() as usize).clamp(1, lat_ms.len()) - 1];
-    println!("alert latency, publish → accepted by the SMTP server, {n} alerts, no group wait:");
+    println!("alert latency, publish → accepted by the SMTP server, {n} alerts, no bundle window:");
     println!("  p50 {:>7.1} ms", pct(0.50));
     println!("  p99 {:>7.1} ms", pct(0.99));
     println!("  max {:>7.1} ms", lat_ms.last().copied().unwrap_or(0.0));

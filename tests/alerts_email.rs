@@ -32,7 +32,7 @@ fn smtp(port: u16, security: SmtpSecurity) -> Smtp {
     }
 }
 
-/// The example configuration with no group wait, loaded.
+/// The example configuration with no bundle window, loaded.
 fn config(dir: &Path, smtp_port: u16) -> Config {
     let cfg = common::smtp::alert_config(dir, 1883, smtp_port, &[]);
     let mut cfg = seepd::config::load_dir(&cfg).unwrap();

@@ -1,6 +1,6 @@
 //! Alert evaluation between the engine and the store: observations from an `Outcome`, each
 //! rule stepped through `domain::rules`, actions turned into alert rows and notices, notices
-//! grouped into rendered outbox messages after the site's group wait, silences and
+//! grouped into rendered outbox messages after the site's bundle window, silences and
 //! acknowledgements applied. Everything it decides comes back as `AlertWrites`, which the
 //! caller commits in the same transaction as the readings that caused it.
 //!
@@ -62,7 +62,7 @@ pub struct Evaluator {
     /// Objects some rule watches: observations of other objects are not built at all.
     watched: std::collections::HashSet<String>,
     recent: HashMap<(String, String), VecDeque<(i64, f64)>>,
-    /// Notices waiting out the group wait.
+    /// Notices waiting out the bundle window.
     waiting: Vec<NoticeRow>,
     silences: Vec<SilenceRow>,
     next_alert: i64,
@@ -179,7 +179,7 @@ impl Evaluator {
             .filter(|r| !ids.contains(&r.as_str()))
             .cloned()
             .collect();
-        // Notices of removed rules still waiting out their group wait are not sent: the
+        // Notices of removed rules still waiting out their bundle window are not sent: the
         // closing message says what happened to their alert.
         for mut n in store.waiting_notices()? {
             if ids.contains(&n.rule.as_str()) {
@@ -260,7 +260,7 @@ impl Evaluator {
     }
 
     /// Step the rules watching these observations, then every rule's timers at `now_ms`, then
-    /// send the notices whose group wait is over. Returns what to commit.
+    /// send the notices whose bundle window is over. Returns what to commit.
     pub fn evaluate(&mut self, obs: &[Observation], now_ms: i64) -> AlertWrites {
         self.close_orphans(now_ms);
         for o in obs {
@@ -311,7 +311,7 @@ impl Evaluator {
         std::mem::take(&mut self.out)
     }
 
-    /// Send every waiting notice now, whatever its group wait (end of a replay).
+    /// Send every waiting notice now, whatever its bundle window (end of a replay).
     pub fn flush(&mut self, now_ms: i64) -> AlertWrites {
         self.compose(now_ms, true);
         self.out.now_ms = now_ms;
@@ -499,7 +499,7 @@ impl Evaluator {
     }
 
     /// Turn groups of waiting notices (same site and recipients) whose oldest member has
-    /// waited the site's group wait (or every group, with `force`) into one rendered outbox
+    /// waited the site's bundle window (or every group, with `force`) into one rendered outbox
     /// message each.
     fn compose(&mut self, now_ms: i64, force: bool) {
         if self.waiting.is_empty() {
@@ -515,7 +515,7 @@ impl Evaluator {
         for ((site, _), group) in groups {
             let policy = self.cfg.alerting.site(&site).policy;
             let oldest = group.iter().map(|n| n.created_ms).min().unwrap_or(now_ms);
-            if !force && now_ms - oldest < policy.group_wait_ms {
+            if !force && now_ms - oldest < policy.bundle_window_ms {
                 self.waiting.extend(group);
                 continue;
             }

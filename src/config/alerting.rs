@@ -52,9 +52,9 @@ pub struct Rule {
 #[derive(Debug, Clone)]
 pub struct Policy {
     /// Notices waiting this long are sent together in one message (ms; 0: at once).
-    pub group_wait_ms: i64,
+    pub bundle_window_ms: i64,
     /// Reminder interval while active and unacknowledged (ms); `None`: no reminders.
-    pub repeat_ms: Option<i64>,
+    pub remind_every_ms: Option<i64>,
     /// The escalation lists are told when an alert is not acknowledged within this (ms).
     pub escalate_after_ms: Option<i64>,
     /// Link printed in every message (a placeholder until a status page exists).
@@ -67,8 +67,8 @@ pub struct Policy {
 impl Default for Policy {
     fn default() -> Self {
         Policy {
-            group_wait_ms: 30_000,
-            repeat_ms: Some(4 * 3_600_000),
+            bundle_window_ms: 30_000,
+            remind_every_ms: Some(4 * 3_600_000),
             escalate_after_ms: Some(3_600_000),
             unavailable_after_ms: Some(3 * 3_600_000),
             status_url: "https://status.example.invalid/seepd".into(),

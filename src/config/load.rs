@@ -556,3 +556,6 @@ mod export_tests;
 
 #[cfg(test)]
 mod report_tests;
+
+#[cfg(test)]
+mod renamed_tests;

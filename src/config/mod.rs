@@ -1,6 +1,7 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
 //! (`load`, with `service`, `export`, `site`, `kinds`, `objects`, `rules`, `smtp` and `trends`
-//! reading the tables through `reader`); the alerting model is in `alerting`.
+//! reading the tables through `reader`, which refuses old names through `renamed`); the
+//! alerting model is in `alerting`.
 
 pub mod alerting;
 mod export;
@@ -10,6 +11,7 @@ pub mod model;
 mod objects;
 mod problem;
 mod reader;
+mod renamed;
 mod reports;
 pub mod rules;
 mod service;

@@ -137,8 +137,8 @@ fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
     t.check_keys(
         cx,
         &[
-            "group_wait_s",
-            "repeat_interval_s",
+            "bundle_window_s",
+            "remind_every_s",
             "escalate_after_s",
             "status_url",
             "unavailable_after_s",
@@ -147,10 +147,11 @@ fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
     let d = Policy::default();
     let max = i64::MAX / 1000;
     Policy {
-        group_wait_ms: t.int_in(cx, "group_wait_s", 0, 3600, d.group_wait_ms / 1000) * 1000,
-        repeat_ms: match t.opt_int_in(cx, "repeat_interval_s", 0, max, false) {
+        bundle_window_ms: t.int_in(cx, "bundle_window_s", 0, 3600, d.bundle_window_ms / 1000)
+            * 1000,
+        remind_every_ms: match t.opt_int_in(cx, "remind_every_s", 0, max, false) {
             Some(s) => millis(Some(s)),
-            None => d.repeat_ms,
+            None => d.remind_every_ms,
         },
         escalate_after_ms: match t.opt_int_in(cx, "escalate_after_s", 0, max, false) {
             Some(s) => millis(Some(s)),
@@ -309,7 +310,7 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
                         Check::Threshold
                     },
                     levels,
-                    repeat_ms: policy.repeat_ms,
+                    remind_every_ms: policy.remind_every_ms,
                     escalate_after_ms: policy.escalate_after_ms,
                 },
             })
@@ -523,7 +524,7 @@ fn unavailable_companion(rule: &Rule, cfg: &Config, policy: &Policy) -> Option<R
                     rule.object, rule.quantity
                 ),
             }],
-            repeat_ms: rule.spec.repeat_ms,
+            remind_every_ms: rule.spec.remind_every_ms,
             escalate_after_ms: rule.spec.escalate_after_ms,
         },
     })

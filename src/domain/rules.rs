@@ -99,7 +99,7 @@ pub struct Spec {
     /// Levels in order of severity; bounds strictly monotonic in the dangerous direction.
     pub levels: Vec<LevelSpec>,
     /// Reminder interval while active and unacknowledged (ms); `None`: no reminders.
-    pub repeat_ms: Option<i64>,
+    pub remind_every_ms: Option<i64>,
     /// Notify the escalation list when not acknowledged this long after raising (ms).
     pub escalate_after_ms: Option<i64>,
 }
@@ -416,7 +416,7 @@ fn notice_timers(spec: &Spec, s: &mut State, now_ms: i64, actions: &mut Vec<Acti
             actions.push(Action::NotifyEscalation { level });
         }
     }
-    if let Some(repeat) = spec.repeat_ms.filter(|r| *r > 0) {
+    if let Some(repeat) = spec.remind_every_ms.filter(|r| *r > 0) {
         let due = now_ms - al.last_notice_ms;
         if due >= repeat {
             // One reminder, however many intervals were missed (e.g. while stopped).

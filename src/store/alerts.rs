@@ -39,7 +39,7 @@ pub struct NoticeRow {
     pub t_ms: i64,
     pub created_ms: i64,
     pub recipients: Vec<String>,
-    /// `waiting` (group wait), `queued` (in an outbox message), `silenced`, `no_recipients`.
+    /// `waiting` (bundle window), `queued` (in an outbox message), `silenced`, `no_recipients`.
     pub status: String,
     pub outbox: Option<i64>,
 }
@@ -306,7 +306,7 @@ impl Store {
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
-    /// Notices still waiting out their group wait, oldest first.
+    /// Notices still waiting out their bundle window, oldest first.
     ///
     /// # Errors
     /// SQLite errors.

@@ -58,7 +58,7 @@ const MIGRATIONS: &[&str] = &[
     ) WITHOUT ROWID;",
     // 3: alerting. Rule states (phase, runs, pending/clearing timers, notice timers) as JSON;
     // alerts; acknowledgements and silences (written by the CLI, applied by the service);
-    // notices (one per rule action, waiting out the group wait) and the mail outbox.
+    // notices (one per rule action, waiting out the bundle window) and the mail outbox.
     "CREATE TABLE rule_states (
         rule TEXT PRIMARY KEY,
         state TEXT NOT NULL,

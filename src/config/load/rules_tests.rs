@@ -74,7 +74,7 @@ fn example_configuration_has_its_rules_contacts_and_no_relay() {
     // 3 × interval_s 3600 s.
     assert_eq!(silent.spec.levels[0].bound, 10_800.0);
     let site = a.site("ash-bend");
-    assert_eq!(site.policy.group_wait_ms, 30_000);
+    assert_eq!(site.policy.bundle_window_ms, 30_000);
     assert_eq!(
         site.recipients("concern", true, true),
         [

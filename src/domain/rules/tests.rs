@@ -29,7 +29,7 @@ fn fs_spec() -> Spec {
             level("concern", Direction::Below, 1.6),
             level("act", Direction::Below, 1.3),
         ],
-        repeat_ms: None,
+        remind_every_ms: None,
         escalate_after_ms: None,
     }
 }
@@ -199,7 +199,7 @@ fn reminders_over_ten_days_are_ceil_of_ten_days_over_the_interval() {
     // [derived] notices (raise + reminders) in [0, 10 d) = ceil(10 d / R).
     for repeat in [6 * HOUR, 7 * HOUR, 25 * HOUR, 10 * DAY] {
         let mut spec = fs_spec();
-        spec.repeat_ms = Some(repeat);
+        spec.remind_every_ms = Some(repeat);
         let mut s = State::default();
         let mut notices = run(&spec, &mut s, &[(0, 1.9)]).len();
         let mut t = MIN;
@@ -218,7 +218,7 @@ fn reminders_over_ten_days_are_ceil_of_ten_days_over_the_interval() {
 #[test]
 fn acknowledged_alerts_get_no_reminders_until_they_escalate() {
     let mut spec = fs_spec();
-    spec.repeat_ms = Some(HOUR);
+    spec.remind_every_ms = Some(HOUR);
     let mut s = State::default();
     run(&spec, &mut s, &[(0, 1.9)]);
     s = acknowledge(&s);
@@ -259,7 +259,7 @@ fn no_data_rule_raises_on_silence_and_resolves_on_the_next_reading() {
     let spec = Spec {
         check: Check::NoData,
         levels: vec![level("watch", Direction::Above, 3.0 * 3600.0)],
-        repeat_ms: None,
+        remind_every_ms: None,
         escalate_after_ms: None,
     };
     let mut s = State::default();
@@ -305,7 +305,7 @@ fn hourly_spec() -> Spec {
         l.deadband = 0.05;
     }
     spec.escalate_after_ms = Some(HOUR);
-    spec.repeat_ms = Some(4 * HOUR);
+    spec.remind_every_ms = Some(4 * HOUR);
     spec
 }
 
@@ -423,7 +423,7 @@ fn row_an_acknowledgement_holds_for_its_level_and_below() {
 fn row_active_to_clearing_and_back_then_resolve() {
     let mut spec = hourly_spec();
     spec.levels[0].keep_active_ms = 2 * HOUR;
-    (spec.escalate_after_ms, spec.repeat_ms) = (None, None);
+    (spec.escalate_after_ms, spec.remind_every_ms) = (None, None);
     let mut s = State::default();
     at(&spec, &mut s, 0, 0, 1.9);
     at(&spec, &mut s, HOUR, HOUR, 1.9);
@@ -457,7 +457,7 @@ fn row_no_data_counts_silence_on_the_evaluation_clock() {
     let spec = Spec {
         check: Check::NoData,
         levels: vec![level("watch", Direction::Above, 3.0 * 3600.0)],
-        repeat_ms: None,
+        remind_every_ms: None,
         escalate_after_ms: None,
     };
     let now = 30 * DAY;
@@ -499,7 +499,7 @@ fn row_keep_active_on_ticks_runs_from_the_reading_time_by_the_time_passed() {
     // second later must not cut the 2 h keep-active short; one 2 h later ends it.
     let mut spec = hourly_spec();
     spec.levels[0].keep_active_ms = 2 * HOUR;
-    (spec.escalate_after_ms, spec.repeat_ms) = (None, None);
+    (spec.escalate_after_ms, spec.remind_every_ms) = (None, None);
     let now = 30 * DAY;
     let mut s = State::default();
     at(&spec, &mut s, 0, now, 1.9);
