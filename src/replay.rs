@@ -46,7 +46,7 @@ pub enum Record<'a> {
         #[serde(skip_serializing_if = "<[_]>::is_empty")]
         flags: &'a [&'static str],
     },
-    /// A derived quantity of an object (cluster, toe check, blanket reach, section).
+    /// A derived quantity of an object (nest, toe check, blanket reach, section).
     Derived {
         id: &'a str,
         quantity: &'a str,

@@ -1,6 +1,6 @@
 //! Trends, sensor health and the stage-response model through the real binary: a replayed
 //! rising series gives the Theil–Sen `rate_24h` computed here independently, a spike is
-//! flagged and left out of a cluster gradient, a flatline is flagged; `seepd fit` on a replay
+//! flagged and left out of a nest gradient, a flatline is flagged; `seepd fit` on a replay
 //! database recovers a known lag and ratio, and a later replayed reading's `stage_residual` is
 //! measured − predicted.
 
@@ -145,7 +145,7 @@ fn rising_series_rate_spike_and_flatline() {
     for k in 0..=40 {
         assert!(flags(&recs, "AB-PZ-2B", t0 + k * H_MS).is_empty(), "{k}");
     }
-    // ... and the cluster gradient at that time is recomputed without it (the last record for
+    // ... and the nest gradient at that time is recomputed without it (the last record for
     // that time wins).
     let g = derived(&recs, "AB-N2", "vertical_gradient", t_spike);
     let last = g.last().unwrap();

@@ -105,7 +105,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             .map(|(p, sf)| (p.clone(), &sf.alerting))
             .collect();
         let object_ids: BTreeSet<String> = objects
-            .clusters
+            .nests
             .iter()
             .map(|o| o.id.clone())
             .chain(objects.toes.iter().map(|o| o.id.clone()))
@@ -383,7 +383,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
             let (found, object) = objects::resolve(o, site_of(sf), &known);
             problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
             match object {
-                Some(Object::Cluster(c)) => out.clusters.push(c),
+                Some(Object::Nest(c)) => out.nests.push(c),
                 Some(Object::Toe(t)) => out.toes.push(t),
                 Some(Object::Blanket(b)) => out.blankets.push(b),
                 Some(Object::Section(s)) => out.sections.push(s),
@@ -526,7 +526,7 @@ fn site_objects<'a>(o: &'a Objects, site: &str) -> [(&'static str, Vec<&'a str>)
             .collect()
     }
     [
-        ("cluster", ids(&o.clusters, site, |c| (&c.site, &c.id))),
+        ("nest", ids(&o.nests, site, |c| (&c.site, &c.id))),
         ("toe", ids(&o.toes, site, |t| (&t.site, &t.id))),
         ("blanket", ids(&o.blankets, site, |b| (&b.site, &b.id))),
         ("section", ids(&o.sections, site, |x| (&x.site, &x.id))),

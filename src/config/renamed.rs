@@ -15,7 +15,7 @@ struct Renamed {
 }
 
 /// Every old name still recognised, so that it gets a clear refusal.
-const RENAMED: [Renamed; 2] = [
+const RENAMED: [Renamed; 3] = [
     Renamed {
         old: "group_wait_s",
         new: "bundle_window_s",
@@ -25,6 +25,11 @@ const RENAMED: [Renamed; 2] = [
         old: "repeat_interval_s",
         new: "remind_every_s",
         table: false,
+    },
+    Renamed {
+        old: "cluster",
+        new: "nest",
+        table: true,
     },
 ];
 

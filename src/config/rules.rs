@@ -484,7 +484,7 @@ pub(crate) fn cross_check(
             } else if is_instrument {
                 (!is_instrument_quantity(q)).then(|| format!("rule on instrument {object:?}: quantity {q:?} is not a quantity of an instrument; expected one of: {}, {}, rate_<window> (e.g. rate_24h)", READING_QUANTITIES.join(", "), INSTRUMENT_DERIVED.join(", ")))
             } else if CHECK_OBJECT_IDS && !objects.contains(object) {
-                Some(format!("rule object {object:?} is neither an instrument nor a configured object (cluster, toe, blanket, section)"))
+                Some(format!("rule object {object:?} is neither an instrument nor a configured object (nest, toe, blanket, section)"))
             } else {
                 None
             };

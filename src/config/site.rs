@@ -60,7 +60,7 @@ pub(crate) struct SiteFile {
     pub id: Option<(String, Pos)>,
     pub site: Option<Site>,
     pub entries: Vec<Entry>,
-    /// The `[[cluster]]`, `[[toe]]`, `[[blanket]]` and `[[section]]` tables, in that order.
+    /// The `[[nest]]`, `[[toe]]`, `[[blanket]]` and `[[section]]` tables, in that order.
     pub objects: Vec<ObjEntry>,
     /// `[alerting]`, `[[contacts]]` and `[[rule]]` (see `config::rules`).
     pub alerting: super::rules::SiteRules,

@@ -67,7 +67,7 @@ pub struct Head {
 /// Which object an instrument feeds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum ObjRef {
-    Cluster(usize),
+    Nest(usize),
     Toe(usize),
     Blanket(usize),
     Section(usize),
@@ -122,10 +122,8 @@ impl Deriver {
             _ => None,
         };
         let objs = &cfg.objects;
-        for (k, c) in objs.clusters.iter().enumerate() {
-            c.piezometers
-                .iter()
-                .for_each(|p| add(p, ObjRef::Cluster(k)));
+        for (k, c) in objs.nests.iter().enumerate() {
+            c.piezometers.iter().for_each(|p| add(p, ObjRef::Nest(k)));
         }
         for (k, t) in objs.toes.iter().enumerate() {
             add(&t.piezometer, ObjRef::Toe(k));
@@ -235,7 +233,7 @@ impl Deriver {
                 suspect: std::cell::RefCell::new(Vec::new()),
             };
             let (id, names, mut qs) = match o {
-                ObjRef::Cluster(k) => objects::cluster(&self.cfg.objects.clusters[k], &inputs),
+                ObjRef::Nest(k) => objects::nest(&self.cfg.objects.nests[k], &inputs),
                 ObjRef::Toe(k) => objects::toe(&self.cfg, &self.cfg.objects.toes[k], &inputs),
                 ObjRef::Blanket(k) => objects::blanket(&self.cfg.objects.blankets[k], &inputs),
                 ObjRef::Section(k) => {

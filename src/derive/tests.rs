@@ -5,7 +5,7 @@ use std::sync::Arc;
 
 use super::*;
 use crate::config::{
-    BlanketReach, Cluster, CriticalGradientFrom, LandsideCase, Objects, RiversideCase, Section,
+    BlanketReach, CriticalGradientFrom, LandsideCase, Nest, Objects, RiversideCase, Section,
     ToeCheck,
 };
 
@@ -39,9 +39,9 @@ fn find<'a>(rows: &'a [DerivedRow], object: &str, quantity: &str) -> &'a Derived
         .unwrap_or_else(|| panic!("no {object}/{quantity} in {rows:?}"))
 }
 
-fn cluster_cfg() -> Arc<Config> {
+fn nest_cfg() -> Arc<Config> {
     config(Objects {
-        clusters: vec![Cluster {
+        nests: vec![Nest {
             id: "N1".into(),
             site: "ash-bend".into(),
             piezometers: vec!["AB-PZ-1A".into(), "AB-PZ-1B".into()],
@@ -53,11 +53,11 @@ fn cluster_cfg() -> Arc<Config> {
 }
 
 #[test]
-fn cluster_gradient_positive_upward() {
+fn nest_gradient_positive_upward() {
     // AB-PZ-1A tip 95.0 m, AB-PZ-1B tip 86.0 m (example config). Heads 101.2 (upper) and
     // 102.7 (lower): i_v = (102.7 − 101.2)/(95.0 − 86.0) = 1/6, upward [practice formula,
     // as in check value #11].
-    let mut d = Deriver::new(cluster_cfg());
+    let mut d = Deriver::new(nest_cfg());
     assert!(d
         .on_reading(&row("AB-PZ-1A", 1000, 101.2, Flags::empty()))
         .iter()
@@ -75,7 +75,7 @@ fn cluster_gradient_positive_upward() {
 
 #[test]
 fn missing_stale_and_rejected_inputs_give_no_value_with_a_reason_suspect_ones_keep_it() {
-    let mut d = Deriver::new(cluster_cfg());
+    let mut d = Deriver::new(nest_cfg());
     let out = d.on_reading(&row("AB-PZ-1A", 0, 101.0, Flags::empty()));
     let g = find(&out, "N1", "vertical_gradient");
     assert!(

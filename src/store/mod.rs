@@ -69,7 +69,7 @@ pub struct ReadingRow {
     pub flags: Flags,
 }
 
-/// One derived value: a quantity of an object (cluster, toe check, reach, section...) at a
+/// One derived value: a quantity of an object (nest, toe check, reach, section...) at a
 /// time, computed from the readings named in `inputs`. `value` is `None` when it could not be
 /// computed; `reason` says why (missing, stale or flagged input; not applicable).
 #[derive(Debug, Clone, PartialEq)]

@@ -72,3 +72,14 @@ fn repeat_interval_s_is_refused_naming_remind_every_s() {
         "[alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"; rename it",
     );
 }
+
+#[test]
+fn cluster_tables_are_refused_naming_nest() {
+    assert_refused(
+        "levee-ash-bend.toml",
+        "[[nest]]",
+        "[[cluster]]",
+        2,
+        "levee-ash-bend.toml: [[cluster]] tables are now [[nest]]; rename them",
+    );
+}
