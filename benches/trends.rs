@@ -40,7 +40,7 @@ fn config(n: usize, windows: &str, max_points: usize, models: bool) -> Arc<Confi
         if models {
             let _ = write!(
                 s,
-                "[[response]]\nid = \"R{i}\"\npiezometer = \"P{i}\"\nstage_gauge = \"G\"\n"
+                "[[stage_response]]\nid = \"R{i}\"\npiezometer = \"P{i}\"\nstage_gauge = \"G\"\n"
             );
         }
     }
@@ -87,7 +87,7 @@ fn seeded(cfg: &Arc<Config>, n: usize, days: i64) -> (Watcher, Vec<String>) {
             w.seed(id, t, Some(head(i, k)), head(i, k), None, Flags::empty());
         }
     }
-    for r in &cfg.trends.responses {
+    for r in &cfg.trends.stage_responses {
         let m = StageResponse {
             intercept_m: 50.0,
             ratio: 0.5,

@@ -213,7 +213,7 @@ range = [0.0, 2000.0]
 output = "kPa"
 barometric_correction = "none"
 
-[[response]]
+[[stage_response]]
 id = "T-RESP"
 piezometer = "T-PZ"
 stage_gauge = "T-GAUGE"

@@ -111,7 +111,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             .chain(objects.toes.iter().map(|o| o.id.clone()))
             .chain(objects.blankets.iter().map(|o| o.id.clone()))
             .chain(objects.sections.iter().map(|o| o.id.clone()))
-            .chain(trends.responses.iter().map(|m| m.id.clone()))
+            .chain(trends.stage_responses.iter().map(|m| m.id.clone()))
             .chain(trends.hst.iter().map(|m| m.id.clone()))
             .collect();
         rules::cross_check(&files, &instruments, &object_ids, &mut problems);
@@ -398,7 +398,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
             let (found, model) = trends::resolve(m, site_of(sf), &known);
             problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
             match model {
-                Some(Model::Response(r)) => trends.responses.push(r),
+                Some(Model::StageResponse(r)) => trends.stage_responses.push(r),
                 Some(Model::Hst(h)) => trends.hst.push(h),
                 None => {}
             }
@@ -493,8 +493,8 @@ pub fn summary(cfg: &Config) -> String {
         let t = &cfg.trends;
         let models = [
             (
-                "response",
-                t.responses
+                "stage_response",
+                t.stage_responses
                     .iter()
                     .filter(|r| r.site == site.id)
                     .map(|r| r.id.as_str())

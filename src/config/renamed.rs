@@ -15,7 +15,7 @@ struct Renamed {
 }
 
 /// Every old name still recognised, so that it gets a clear refusal.
-const RENAMED: [Renamed; 3] = [
+const RENAMED: [Renamed; 4] = [
     Renamed {
         old: "group_wait_s",
         new: "bundle_window_s",
@@ -29,6 +29,11 @@ const RENAMED: [Renamed; 3] = [
     Renamed {
         old: "cluster",
         new: "nest",
+        table: true,
+    },
+    Renamed {
+        old: "response",
+        new: "stage_response",
         table: true,
     },
 ];

@@ -64,7 +64,7 @@ pub(crate) struct SiteFile {
     pub objects: Vec<ObjEntry>,
     /// `[alerting]`, `[[contacts]]` and `[[rule]]` (see `config::rules`).
     pub alerting: super::rules::SiteRules,
-    /// `[trends]`, `[health]`, `[[response]]` and `[[hst]]`.
+    /// `[trends]`, `[health]`, `[[stage_response]]` and `[[hst]]`.
     pub trends: SiteTrendsEntry,
     /// `[[report]]` schedules (see `config::reports`).
     pub reports: Vec<super::reports::ReportEntry>,

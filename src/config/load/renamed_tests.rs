@@ -83,3 +83,14 @@ fn cluster_tables_are_refused_naming_nest() {
         "levee-ash-bend.toml: [[cluster]] tables are now [[nest]]; rename them",
     );
 }
+
+#[test]
+fn response_tables_are_refused_naming_stage_response() {
+    assert_refused(
+        "levee-ash-bend.toml",
+        "[[stage_response]]",
+        "[[response]]",
+        2,
+        "levee-ash-bend.toml: [[response]] tables are now [[stage_response]]; rename them",
+    );
+}

@@ -1,5 +1,5 @@
 //! The validated settings of trends, stage-response and HST models, and sensor health: per site
-//! `[trends]` and `[health]`, and the `[[response]]` and `[[hst]]` model tables.
+//! `[trends]` and `[health]`, and the `[[stage_response]]` and `[[hst]]` model tables.
 //!
 //! Already checked and in SI units (durations in seconds, heads in metres); read by `watch`.
 //! Nothing here parses or does I/O (that is `config::trends`).
@@ -84,9 +84,10 @@ impl SiteTrends {
     }
 }
 
-/// A lagged stage-response model `h = a + b·stage(t − lag)` of one piezometer (`[[response]]`).
+/// A lagged stage-response model `h = a + b·stage(t − lag)` of one piezometer
+/// (`[[stage_response]]`).
 #[derive(Debug, Clone, PartialEq)]
-pub struct ResponseSpec {
+pub struct StageResponseSpec {
     /// Model id (unique among instruments, objects and models).
     pub id: String,
     pub site: String,
@@ -120,7 +121,7 @@ pub struct HstSpec {
 pub struct Trends {
     /// One entry per site (defaults when the site file has no `[trends]`/`[health]`).
     pub sites: Vec<SiteTrends>,
-    pub responses: Vec<ResponseSpec>,
+    pub stage_responses: Vec<StageResponseSpec>,
     pub hst: Vec<HstSpec>,
 }
 
