@@ -1,6 +1,6 @@
 //! Alert latency benchmark (not a test): from a reading's publication to a real Mosquitto to
 //! the alert message accepted by a real aiosmtpd, through the real seepd binary (ingest,
-//! commit with the rule transition and its outbox row, mail worker, SMTP). No group wait.
+//! commit with the rule transition and its outbox row, mail worker, SMTP). No bundle window.
 //!
 //! Run: `cargo bench --bench alerts` (env SEEPD_BENCH_ALERTS sets the number of alerts,
 //! default 1000; under `cargo test`, which runs it without `--bench`, a 20-alert smoke run).
@@ -80,7 +80,7 @@ fn main() {
         broker.port,
         smtp.port,
         &[
-            ("repeat_interval_s = 14400", "repeat_interval_s = 0"),
+            ("remind_every_s = 14400", "remind_every_s = 0"),
             ("escalate_after_s = 3600", "escalate_after_s = 0"),
             ("deadband = 0.2\n", "deadband = 0.0\n"),
             (
@@ -111,7 +111,7 @@ fn main() {
     }
     report(
         &format!(
-            "alert latency, publish → accepted by the SMTP server, {n} alerts, no group wait:"
+            "alert latency, publish → accepted by the SMTP server, {n} alerts, no bundle window:"
         ),
         lat_ms,
     );

@@ -103,7 +103,7 @@ fn main() {
 
     // 3. Replay throughput: five instruments and the barometer their sealed gauges need, one
     //    reading a minute each; on the instruments alone (reduction, health checks, rates and
-    //    completeness) and on the full example site (plus clusters, toe checks, blanket theory,
+    //    completeness) and on the full example site (plus nests, toe checks, blanket theory,
     //    the section, stage-response model and rules).
     let rn: i64 = 200_000;
     let input = dir.path().join("replay.ndjson");

@@ -32,7 +32,7 @@ fn main() {
     for c in 0..N / 2 {
         let _ = write!(
             site,
-            "\n[[cluster]]\nid = \"C{c:03}\"\npiezometers = [\"P{:03}\", \"P{:03}\"]\n",
+            "\n[[nest]]\nid = \"C{c:03}\"\npiezometers = [\"P{:03}\", \"P{:03}\"]\n",
             2 * c,
             2 * c + 1
         );

@@ -40,7 +40,7 @@ fn config(n: usize, windows: &str, max_points: usize, models: bool) -> Arc<Confi
         if models {
             let _ = write!(
                 s,
-                "[[response]]\nid = \"R{i}\"\npiezometer = \"P{i}\"\nstage_gauge = \"G\"\n"
+                "[[stage_response]]\nid = \"R{i}\"\npiezometer = \"P{i}\"\nstage_gauge = \"G\"\n"
             );
         }
     }
@@ -79,14 +79,15 @@ fn seeded(cfg: &Arc<Config>, n: usize, days: i64) -> (Watcher, Vec<String>) {
             "G",
             t,
             Some(95.0 + (k as f64 / 10.0).sin()),
+            95.0 + (k as f64 / 10.0).sin(),
             None,
             Flags::empty(),
         );
         for (i, id) in ids.iter().enumerate() {
-            w.seed(id, t, Some(head(i, k)), None, Flags::empty());
+            w.seed(id, t, Some(head(i, k)), head(i, k), None, Flags::empty());
         }
     }
-    for r in &cfg.trends.responses {
+    for r in &cfg.trends.stage_responses {
         let m = StageResponse {
             intercept_m: 50.0,
             ratio: 0.5,
@@ -110,7 +111,7 @@ fn measure(w: &mut Watcher, ids: &[String], from_k: i64, rounds: i64) -> (f64, f
     let (mut check_ns, mut all_ns, mut rows) = (0u128, 0u128, 0usize);
     for k in from_k..from_k + rounds {
         let t = T0 + k * H_MS;
-        w.seed("G", t, Some(95.0), None, Flags::empty());
+        w.seed("G", t, Some(95.0), 95.0, None, Flags::empty());
         for (i, id) in ids.iter().enumerate() {
             let mut r = reading(id, t, head(i, k));
             let a = Instant::now();

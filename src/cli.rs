@@ -96,6 +96,9 @@ pub enum Command {
         /// Who silences (default: $USER).
         #[arg(long, value_name = "NAME")]
         by: Option<String>,
+        /// Also silence the most severe level of the rules (never silenced otherwise).
+        #[arg(long)]
+        all_levels: bool,
     },
     /// Draw a cross-section (phreatic line, exit point) as SVG from the stored heads.
     Section {
@@ -209,14 +212,18 @@ fn rfc3339(s: &str) -> Result<chrono::DateTime<chrono::Utc>, String> {
 
 /// Load a configuration or print every problem and return the config exit code.
 fn load(dir: &std::path::Path) -> Result<Config, i32> {
-    config::load_dir(dir).map_err(|problems| {
+    let cfg = config::load_dir(dir).map_err(|problems| {
         eprintln!("{problems}");
         eprintln!(
             "seepd: {} configuration problem(s); not starting",
             problems.0.len()
         );
         EXIT_CONFIG
-    })
+    })?;
+    for w in cfg.alerting.warnings() {
+        eprintln!("warning: {w}");
+    }
+    Ok(cfg)
 }
 
 /// The database and (if it loads) the configuration of an operator command. A configuration
@@ -428,7 +435,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             };
             print!(
                 "{}",
-                alerts::commands::report(&db, cfg.as_ref(), chrono::Utc::now())?
+                alerts::commands::report_db(&db, cfg.as_ref(), chrono::Utc::now())?
             );
             Ok(0)
         }
@@ -456,6 +463,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             until,
             reason,
             by,
+            all_levels,
         } => {
             let (db, cfg) = match operator(&on) {
                 Ok(found) => found,
@@ -467,11 +475,14 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
                 alerts::commands::silence(
                     &db,
                     cfg.as_ref(),
-                    rule.as_deref(),
-                    instrument.as_deref(),
-                    &until,
-                    &reason,
-                    &by,
+                    &alerts::commands::SilenceArgs {
+                        rule: rule.as_deref(),
+                        object: instrument.as_deref(),
+                        until: &until,
+                        reason: &reason,
+                        by: &by,
+                        all_levels,
+                    },
                     chrono::Utc::now()
                 )?
             );

@@ -16,7 +16,7 @@ use crate::domain::reduce::{reduce, Context};
 use crate::ingest::decode::{decode, Decoded};
 use crate::ingest::topic::{match_topic, TopicFields};
 use crate::quality::{Flags, Reason, Reject};
-use crate::store::{DerivedRow, QuarantineRow, ReadingRow};
+use crate::store::{DerivedRow, FlagUpdate, QuarantineRow, ReadingRow};
 use crate::watch::Watcher;
 
 /// Quarantined payloads are stored up to this many bytes.
@@ -39,6 +39,18 @@ pub struct Outcome {
     /// Derived values recomputed because of these readings.
     pub derived: Vec<DerivedRow>,
     pub quarantined: Vec<QuarantineRow>,
+    /// Flags found for readings stored earlier (a spike confirmed by the reading after it).
+    pub flag_updates: Vec<FlagUpdate>,
+}
+
+impl Outcome {
+    /// Append another message's outcome (a batch of several messages).
+    pub fn append(&mut self, o: Outcome) {
+        self.readings.extend(o.readings);
+        self.derived.extend(o.derived);
+        self.quarantined.extend(o.quarantined);
+        self.flag_updates.extend(o.flag_updates);
+    }
 }
 
 /// The pipeline state.
@@ -192,7 +204,9 @@ impl Engine {
                 // clock (health, rates, derived inputs) past the real readings that follow.
                 Ok(row) if row.flags.contains(Flags::TIME_AHEAD) => out.readings.push(row),
                 Ok(mut row) => {
-                    self.watch.check(&mut row);
+                    if let Some((t_ms, head_m)) = self.watch.check(&mut row) {
+                        self.reject_spike(&row.instrument, t_ms, head_m, &mut out);
+                    }
                     out.derived.extend(self.deriver.on_reading(&row));
                     out.derived.extend(self.watch.derive(&row));
                     out.readings.push(row);
@@ -201,6 +215,27 @@ impl Engine {
             }
         }
         out
+    }
+
+    /// The reading of `instrument` at `t_ms` is a confirmed spike: flag it (in this outcome if
+    /// it is here, else in the store) and recompute what it fed without it.
+    fn reject_spike(&mut self, instrument: &str, t_ms: i64, head_m: f64, out: &mut Outcome) {
+        let flags = Flags::SPIKE;
+        tracing::debug!(instrument, t_ms, "Spike confirmed by the next reading");
+        if let Some(r) = out
+            .readings
+            .iter_mut()
+            .find(|r| r.instrument == instrument && r.t_ms == t_ms)
+        {
+            r.flags.insert(flags);
+        }
+        out.flag_updates.push(FlagUpdate {
+            instrument: instrument.to_string(),
+            t_ms,
+            flags,
+        });
+        out.derived
+            .extend(self.deriver.reject(instrument, t_ms, head_m, flags));
     }
 
     /// Map a decoded entry to its instrument and apply the input checks.
@@ -320,12 +355,22 @@ impl Engine {
             .kind
             .barometer()
             .and_then(|b| self.barometer_at(b, t_ms));
+        // A thermistor reading outside the plausible range is not used for the thermal
+        // correction (the wire itself is fine): the head stays close to the truth and the
+        // reading is flagged `thermistor`.
+        let (lo, hi) = cfg.trends.site(&instrument.site).health.thermistor_range_c;
+        let failed = matches!(instrument.kind, crate::config::Kind::VibratingWire(_))
+            && d.temperature_c.is_some_and(|t| !(lo..=hi).contains(&t));
         let ctx = Context {
-            temperature_c: d.temperature_c,
+            temperature_c: d.temperature_c.filter(|_| !failed),
             baro_kpa,
             gamma_w_kn_m3,
         };
-        let r = reduce(instrument, d.value, &ctx)?;
+        let mut r = reduce(instrument, d.value, &ctx)?;
+        if failed {
+            r.flags = Flags(r.flags.0 & !Flags::TEMP_MISSING.0);
+            r.flags.insert(Flags::THERMISTOR);
+        }
         if matches!(instrument.kind, crate::config::Kind::Barometer(_)) {
             if let Some(p) = r.pressure_kpa {
                 self.remember_barometer(&instrument.id, t_ms, p);

@@ -50,14 +50,14 @@ pub fn describe(m: &ModelRow) -> String {
 pub fn run(cfg: &Config, store: &Store, id: Option<&str>, out: &mut String) -> anyhow::Result<i32> {
     let ids = match id {
         Some(id) if !model_ids(cfg).iter().any(|m| m == id) => anyhow::bail!(
-            "no [[response]] or [[hst]] model with id {id:?} (configured: {})",
+            "no [[stage_response]] or [[hst]] model with id {id:?} (configured: {})",
             model_ids(cfg).join(", ")
         ),
         Some(id) => vec![id.to_string()],
         None => model_ids(cfg),
     };
     if ids.is_empty() {
-        out.push_str("no [[response]] or [[hst]] models configured\n");
+        out.push_str("no [[stage_response]] or [[hst]] models configured\n");
     }
     let now = Utc::now().timestamp_millis();
     let mut failed = false;

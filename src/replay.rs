@@ -15,7 +15,7 @@ use serde::Serialize;
 use crate::alerts::{Evaluator, Transition};
 use crate::config::{Config, EpochUnit, JsonFields, PayloadFormat, Subscription};
 use crate::engine::{Engine, Message, Outcome};
-use crate::store::{AlertWrites, DerivedRow, QuarantineRow, ReadingRow, Store};
+use crate::store::{AlertWrites, DerivedRow, FlagUpdate, QuarantineRow, ReadingRow, Store};
 
 /// The pseudo-topic replayed messages carry.
 pub const REPLAY_TOPIC: &str = "replay";
@@ -46,7 +46,7 @@ pub enum Record<'a> {
         #[serde(skip_serializing_if = "<[_]>::is_empty")]
         flags: &'a [&'static str],
     },
-    /// A derived quantity of an object (cluster, toe check, blanket reach, section).
+    /// A derived quantity of an object (nest, toe check, blanket reach, section).
     Derived {
         id: &'a str,
         quantity: &'a str,
@@ -72,6 +72,12 @@ pub enum Record<'a> {
         unit: &'a str,
         bound: f64,
         direction: &'static str,
+    },
+    /// Flags found for a reading after its own record (a spike confirmed by the next reading).
+    Flag {
+        id: &'a str,
+        time: &'a str,
+        flags: &'a [&'static str],
     },
     /// An input that went to quarantine.
     Quarantine {
@@ -165,21 +171,21 @@ pub fn run_with(
         store,
         now.timestamp_millis(),
     )?;
+    // Alert transitions are always recorded in the database (the report and `seepd alerts`
+    // show them); messages are composed and sent only with `--send-email`.
+    let mut evaluator = Evaluator::load(Arc::new(cfg.clone()), store)?;
+    evaluator.set_delivery(send_email);
     let mut alerts = Alerts {
-        evaluator: if send_email {
-            Evaluator::load(Arc::new(cfg.clone()), store)?
-        } else {
-            Evaluator::new(Arc::new(cfg.clone()))
-        },
+        evaluator,
         writes: AlertWrites::default(),
         transitions: Vec::new(),
-        send_email,
         clock_ms: i64::MIN,
     };
     let mut totals = Totals::default();
-    let mut readings: Vec<ReadingRow> = Vec::with_capacity(BATCH);
-    let mut derived: Vec<DerivedRow> = Vec::new();
-    let mut quarantined: Vec<(u64, QuarantineRow)> = Vec::new();
+    let mut rows = Rows {
+        readings: Vec::with_capacity(BATCH),
+        ..Rows::default()
+    };
     let mut pending = 0usize;
     for line in input.lines() {
         let line = line?;
@@ -195,36 +201,20 @@ pub fn run_with(
         };
         let o = engine.process(&msg);
         alerts.observe(&o);
-        readings.extend(o.readings);
-        derived.extend(o.derived);
-        quarantined.extend(o.quarantined.into_iter().map(|q| (totals.lines, q)));
+        rows.readings.extend(o.readings);
+        rows.derived.extend(o.derived);
+        rows.flagged.extend(o.flag_updates);
+        rows.quarantined
+            .extend(o.quarantined.into_iter().map(|q| (totals.lines, q)));
         pending += 1;
         if pending >= BATCH {
-            flush(
-                store,
-                &mut readings,
-                &mut derived,
-                &mut quarantined,
-                &mut alerts,
-                out,
-                &mut totals,
-            )?;
+            flush(store, &mut rows, &mut alerts, out, &mut totals)?;
             pending = 0;
         }
     }
-    if alerts.send_email {
-        let w = alerts.evaluator.flush(alerts.clock_ms.max(0));
-        alerts.writes.extend(w);
-    }
-    flush(
-        store,
-        &mut readings,
-        &mut derived,
-        &mut quarantined,
-        &mut alerts,
-        out,
-        &mut totals,
-    )?;
+    let w = alerts.evaluator.flush(alerts.clock_ms.max(0));
+    alerts.writes.extend(w);
+    flush(store, &mut rows, &mut alerts, out, &mut totals)?;
     out.flush()?;
     if let Some(smtp) = smtp.filter(|_| send_email) {
         send_all(store, &smtp)?;
@@ -238,7 +228,6 @@ struct Alerts {
     evaluator: Evaluator,
     writes: AlertWrites,
     transitions: Vec<Transition>,
-    send_email: bool,
     /// The newest reading time seen: replay's clock.
     clock_ms: i64,
 }
@@ -257,9 +246,7 @@ impl Alerts {
         self.clock_ms = self.clock_ms.max(t);
         let w = self.evaluator.evaluate(&obs, self.clock_ms);
         self.transitions.extend(self.evaluator.take_transitions());
-        if self.send_email {
-            self.writes.extend(w);
-        }
+        self.writes.extend(w);
     }
 }
 
@@ -289,18 +276,32 @@ fn send_all(store: &Store, smtp: &crate::config::Smtp) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// Rows of a replay batch not yet written.
+#[derive(Default)]
+struct Rows {
+    readings: Vec<ReadingRow>,
+    derived: Vec<DerivedRow>,
+    flagged: Vec<FlagUpdate>,
+    /// With the input line each came from.
+    quarantined: Vec<(u64, QuarantineRow)>,
+}
+
 fn flush(
     store: &mut Store,
-    readings: &mut Vec<ReadingRow>,
-    derived: &mut Vec<DerivedRow>,
-    quarantined: &mut Vec<(u64, QuarantineRow)>,
+    rows: &mut Rows,
     alerts: &mut Alerts,
     out: &mut impl Write,
     totals: &mut Totals,
 ) -> anyhow::Result<()> {
+    let Rows {
+        readings,
+        derived,
+        flagged,
+        quarantined,
+    } = rows;
     let q: Vec<QuarantineRow> = quarantined.iter().map(|(_, q)| q.clone()).collect();
     let aw = std::mem::take(&mut alerts.writes);
-    let stats = store.write_batch_with(readings, derived, &q, &aw)?;
+    let stats = store.write_batch_flagged(readings, derived, &q, flagged, &aw)?;
     totals.readings += stats.inserted as u64;
     totals.duplicates += stats.duplicates as u64;
     totals.quarantined += q.len() as u64;
@@ -342,6 +343,13 @@ fn flush(
             inputs: &d.inputs,
         })?;
     }
+    for f in flagged.iter() {
+        emit(&Record::Flag {
+            id: &f.instrument,
+            time: &rfc3339(f.t_ms),
+            flags: &f.flags.names(),
+        })?;
+    }
     for (line, q) in quarantined.iter() {
         emit(&Record::Quarantine {
             line: *line,
@@ -369,6 +377,7 @@ fn flush(
     out.write_all(&buf)?;
     readings.clear();
     derived.clear();
+    flagged.clear();
     quarantined.clear();
     Ok(())
 }

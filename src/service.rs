@@ -32,14 +32,24 @@ use crate::store::Store;
 pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
     let mut store = Store::open(&cfg.service.database)
         .with_context(|| format!("opening database {}", cfg.service.database.display()))?;
-    let now = Utc::now();
-    store.sync_instruments(cfg, now)?;
+    store.sync_instruments(cfg, Utc::now())?;
     if let Some(e) = cfg.export.as_ref().filter(|e| e.enabled) {
         store.set_export_queue(QueueMode {
             readings: e.readings,
             derived: e.derived,
         });
     }
+    let engine = engine_for(cfg, &store)?;
+    Ok((store, engine))
+}
+
+/// An engine for `cfg` with its barometer memory, latest heads and trend state seeded from
+/// `store` (at start, and on a reload).
+///
+/// # Errors
+/// Database errors.
+pub fn engine_for(cfg: &Arc<Config>, store: &Store) -> anyhow::Result<Engine> {
+    let now = Utc::now();
     let mut engine = Engine::new(Arc::clone(cfg));
     let since = now.timestamp_millis() - cfg.service.barometer_max_age_s * 1000 * 2;
     for b in engine.barometers() {
@@ -57,8 +67,8 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
             engine.seed_head(&l.instrument, head);
         }
     }
-    crate::watch::seed::from_store(engine.watch_mut(), cfg, &store, now.timestamp_millis())?;
-    Ok((store, engine))
+    crate::watch::seed::from_store(engine.watch_mut(), cfg, store, now.timestamp_millis())?;
+    Ok(engine)
 }
 
 /// Run the service until `shutdown` resolves.
@@ -100,7 +110,9 @@ pub async fn run(
             worker.as_ref().map(Worker::waker),
         )?)
     };
-    let live = Live::new(evaluator, worker.as_ref().map(Worker::waker));
+    let (reload_tx, reloads) = crate::reload::channel();
+    let live = Live::new(evaluator, worker.as_ref().map(Worker::waker)).with_reloads(reloads);
+    let hangups = tokio::spawn(on_hangup(Arc::clone(&cfg), reload_tx));
     let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
     let exporter = start_export(&cfg, stop_rx);
     let link = LinkState::shared(&cfg.mqtt, Utc::now());
@@ -123,6 +135,7 @@ pub async fn run(
     let _ = stop_sent.set(tokio::time::Instant::now());
     let _ = stop_tx.send(true);
     refits.abort();
+    hangups.abort();
     // Everything stops within one deadline counted from the stop request.
     let deadline_len = Duration::from_secs(cfg.service.shutdown_deadline_s);
     let end = *stop_sent.get_or_init(tokio::time::Instant::now) + deadline_len;
@@ -181,6 +194,59 @@ fn start_export(
         let _ = stop;
         tracing::warn!("[export] is configured but this build has no InfluxDB client (feature `influx`); points are queued, not sent");
         None
+    }
+}
+
+/// On every SIGHUP, read the configuration directory again and hand a clean one to the writer
+/// thread (see `reload`); a configuration with problems is refused and the running one stays.
+async fn on_hangup(started: Arc<Config>, tx: std::sync::mpsc::Sender<Arc<Config>>) {
+    #[cfg(unix)]
+    {
+        use tokio::signal::unix::{signal, SignalKind};
+        let Ok(mut hup) = signal(SignalKind::hangup()) else {
+            tracing::warn!("Cannot watch for SIGHUP; reload by restarting");
+            return;
+        };
+        let mut running = started;
+        while hup.recv().await.is_some() {
+            tracing::info!(dir = %running.dir.display(), "SIGHUP: reloading the configuration");
+            let dir = running.dir.clone();
+            let current = Arc::clone(&running);
+            let tx2 = tx.clone();
+            let checked = tokio::task::spawn_blocking(move || {
+                crate::reload::check(&dir, &current).map(|(c, kept)| (Arc::new(c), kept))
+            })
+            .await;
+            match checked {
+                Ok(Ok((cfg, kept))) => {
+                    if !kept.is_empty() {
+                        tracing::warn!(
+                            sections = %kept.join(", "),
+                            "Reload: these sections changed but apply only at a restart; running as started"
+                        );
+                    }
+                    for w in cfg.alerting.warnings() {
+                        tracing::warn!(warning = %w, "Configuration warning");
+                    }
+                    running = Arc::clone(&cfg);
+                    let _ = tx2.send(cfg);
+                }
+                Ok(Err(problems)) => {
+                    for p in &problems.0 {
+                        tracing::error!(problem = %p, "Configuration problem");
+                    }
+                    tracing::error!(
+                        problems = problems.0.len(),
+                        "Reload refused: the configuration has problems; the running configuration stays"
+                    );
+                }
+                Err(e) => tracing::error!(error = %e, "Reload check failed"),
+            }
+        }
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = (started, tx);
     }
 }
 

@@ -76,7 +76,7 @@ fn rig(edits: &[(&str, &str)]) -> Rig {
     let broker = Broker::start(dir.path());
     let smtp = SmtpServer::start(dir.path(), Opts::default());
     let mut all = vec![
-        ("repeat_interval_s = 14400", "repeat_interval_s = 0"),
+        ("remind_every_s = 14400", "remind_every_s = 0"),
         ("escalate_after_s = 3600", "escalate_after_s = 0"),
     ];
     all.extend_from_slice(edits);
@@ -203,7 +203,7 @@ fn a_pending_persistence_timer_resumes_after_kill9() {
 
 #[test]
 fn acknowledgements_and_silences_survive_kill9() {
-    let r = rig(&[("repeat_interval_s = 0", "repeat_interval_s = 3")]);
+    let r = rig(&[("remind_every_s = 0", "remind_every_s = 3")]);
     let mut d = daemon(&r.cfg, &r.log, None);
     d.wait_connected(1);
     let p = Publisher::connect(r.broker.port, "pub-ack");

@@ -59,6 +59,47 @@ fn check_lists_every_problem_with_file_and_line_and_exits_78() {
 }
 
 #[test]
+fn check_refuses_old_names_naming_the_new_ones_and_exits_78() {
+    let dir = tempfile::tempdir().unwrap();
+    let (old, new) = (
+        [
+            "group_wait_s",
+            "repeat_interval_s",
+            "[[cluster]]",
+            "[[response]]",
+        ],
+        [
+            "bundle_window_s",
+            "remind_every_s",
+            "[[nest]]",
+            "[[stage_response]]",
+        ],
+    );
+    for entry in std::fs::read_dir(example_dir()).unwrap() {
+        let path = entry.unwrap().path();
+        let mut text = std::fs::read_to_string(&path).unwrap();
+        for (o, n) in old.iter().zip(new) {
+            text = text.replace(n, o);
+        }
+        std::fs::write(dir.path().join(path.file_name().unwrap()), text).unwrap();
+    }
+    let (code, out, err) = seepd(&["check", "--config", &dir.path().display().to_string()]);
+    assert_eq!(code, 78, "{out}\n{err}");
+    // Both site files write the two [alerting] keys; the levee writes the two tables.
+    for needle in [
+        "levee-ash-bend.toml:281:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "levee-ash-bend.toml:283:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "dam-tarn.toml:129:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "dam-tarn.toml:130:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "levee-ash-bend.toml:191:3: levee-ash-bend.toml: [[cluster]] tables are now [[nest]]",
+        "levee-ash-bend.toml:425:3: levee-ash-bend.toml: [[response]] tables are now [[stage_response]]",
+    ] {
+        assert!(err.contains(needle), "{needle} not in:\n{err}");
+    }
+    assert!(err.contains("6 configuration problem(s)"), "{err}");
+}
+
+#[test]
 fn replay_gives_the_expected_heads_and_quarantines_bad_lines() {
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("in.ndjson");

@@ -1,5 +1,5 @@
 //! A scripted scenario replayed through the real binary with the example configuration gives the
-//! expected sequence of derived values (toe check, cluster gradient, blanket expectation and the
+//! expected sequence of derived values (toe check, nest gradient, blanket expectation and the
 //! seepage-face exit on the dam section). Expected values are computed here from the formulas,
 //! independently of the engine.
 
@@ -60,7 +60,7 @@ fn series(records: &[Value], object: &str, quantity: &str) -> Vec<(String, Optio
 }
 
 #[test]
-fn toe_and_cluster_sequence() {
+fn toe_and_nest_sequence() {
     // AB-TOE-2: piezometer AB-PZ-2B, ground 96.0 m, blanket 2.5 m, Gs 2.65, e 0.7.
     let i_c = (2.65 - 1.0) / (1.0 + 0.7); // Terzaghi [pub]
     let heads_2b = [95.0, 97.0, 98.5];
@@ -95,7 +95,7 @@ fn toe_and_cluster_sequence() {
     }
     // FS: not applicable, then falling below 1 as the gradient passes critical.
     assert!(fs[0].1.is_none() && fs[1].1.unwrap() > 1.0 && fs[2].1.unwrap() < 1.0);
-    // Cluster AB-N2 (tips 95.2 and 86.3): gradient at the AB-PZ-2B readings.
+    // Nest AB-N2 (tips 95.2 and 86.3): gradient at the AB-PZ-2B readings.
     let g = series(&recs, "AB-N2", "vertical_gradient");
     let last = g.last().unwrap().1.unwrap();
     assert!(

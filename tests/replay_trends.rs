@@ -1,6 +1,6 @@
 //! Trends, sensor health and the stage-response model through the real binary: a replayed
 //! rising series gives the Theil–Sen `rate_24h` computed here independently, a spike is
-//! flagged and left out of a cluster gradient, a flatline is flagged; `seepd fit` on a replay
+//! flagged and left out of a nest gradient, a flatline is flagged; `seepd fit` on a replay
 //! database recovers a known lag and ratio, and a later replayed reading's `stage_residual` is
 //! measured − predicted.
 
@@ -134,18 +134,24 @@ fn rising_series_rate_spike_and_flatline() {
     }
     let recs = replay(&cfg, &input, None);
 
-    // The spike is flagged on its value records and nowhere else.
+    // The spike is confirmed by the next reading (one `flag` record for its time), and no
+    // other reading is flagged.
     let t_spike = t0 + spike_k * H_MS;
-    assert_eq!(flags(&recs, "AB-PZ-2B", t_spike), ["spike"]);
-    for k in (0..=40).filter(|k| *k != spike_k) {
+    let flag_recs: Vec<&Value> = recs.iter().filter(|r| r["type"] == "flag").collect();
+    assert_eq!(flag_recs.len(), 1, "{flag_recs:?}");
+    assert_eq!(flag_recs[0]["id"], "AB-PZ-2B");
+    assert_eq!(flag_recs[0]["time"], t_text(t_spike));
+    assert_eq!(flag_recs[0]["flags"], serde_json::json!(["spike"]));
+    for k in 0..=40 {
         assert!(flags(&recs, "AB-PZ-2B", t0 + k * H_MS).is_empty(), "{k}");
     }
-    // ... and left out of the cluster gradient at that time (recomputed on the spike reading).
+    // ... and the nest gradient at that time is recomputed without it (the last record for
+    // that time wins).
     let g = derived(&recs, "AB-N2", "vertical_gradient", t_spike);
     let last = g.last().unwrap();
     assert!(last["value"].is_null(), "{last}");
     assert!(
-        last["reason"].as_str().unwrap().contains("flagged spike"),
+        last["reason"].as_str().unwrap().contains("rejected: spike"),
         "{last}"
     );
     // The gradient comes back with the next reading.
@@ -207,7 +213,7 @@ range = [0.0, 2000.0]
 output = "kPa"
 barometric_correction = "none"
 
-[[response]]
+[[stage_response]]
 id = "T-RESP"
 piezometer = "T-PZ"
 stage_gauge = "T-GAUGE"

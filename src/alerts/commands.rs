@@ -13,7 +13,7 @@ use chrono::{DateTime, NaiveDate, Utc};
 use crate::config::Config;
 use crate::domain::rules::{Phase, State};
 use crate::store::outbox::AckOutcome;
-use crate::store::Store;
+use crate::store::{SilenceRow, Store};
 
 use super::render::num;
 
@@ -26,29 +26,36 @@ fn open(db: &Path) -> anyhow::Result<Store> {
     Store::open(db).with_context(|| format!("opening database {}", db.display()))
 }
 
-/// The `seepd alerts` report of the database `db`: active, pending, silenced, undeliverable,
-/// queued. `cfg` (when it loads) names the levels of pending rules.
+/// The `seepd alerts` report of the database `cfg` names: active, pending, silenced,
+/// undeliverable, queued.
 ///
 /// # Errors
 /// Database errors.
-pub fn report(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow::Result<String> {
+pub fn report(cfg: &Config, now: DateTime<Utc>) -> anyhow::Result<String> {
+    report_db(&cfg.service.database, Some(cfg), now)
+}
+
+/// The `seepd alerts` report of the database `db`; `cfg` (when it loads) names the levels of
+/// pending rules.
+///
+/// # Errors
+/// Database errors.
+pub fn report_db(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow::Result<String> {
     let store = open(db)?;
     let now_ms = now.timestamp_millis();
     let mut s = String::new();
     let open = store.open_alerts()?;
     let _ = writeln!(s, "Active alerts ({}):", open.len());
     for a in &open {
-        let value = a.value.map_or_else(|| "no value".into(), num);
+        // The current level; the value and level of each step are in the history below.
         let _ = write!(
             s,
-            "  #{}  {}  {}  {} {} = {} {}  since {}  rule {}",
+            "  #{}  now {}  {}  {} {}  raised {}  rule {}",
             a.id,
             a.level,
             a.site,
             a.object,
             a.quantity,
-            value,
-            a.unit,
             time(a.raised_ms),
             a.rule
         );
@@ -57,6 +64,24 @@ pub fn report(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow::Re
                 let _ = writeln!(s, "  acknowledged by {by} at {}", time(t));
             }
             _ => s.push_str("  NOT acknowledged\n"),
+        }
+        // Its history, in order: each step with its own level and value.
+        for e in store.alert_events(a.id)? {
+            let value = e.value.map_or_else(|| "no value".into(), num);
+            let detail = if e.detail.is_empty() {
+                String::new()
+            } else {
+                format!("  ({})", e.detail)
+            };
+            let _ = writeln!(
+                s,
+                "      {}  {:<20} {:<10} {} {}{detail}",
+                time(e.t_ms),
+                e.kind,
+                e.level,
+                value,
+                e.unit
+            );
         }
     }
     let mut pending = Vec::new();
@@ -203,28 +228,36 @@ pub fn parse_until(s: &str, now: DateTime<Utc>) -> anyhow::Result<DateTime<Utc>>
         })
 }
 
-/// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT` on the database
-/// `db`. The rule or instrument is checked against `cfg` when it loads, else against what the
-/// database knows (configured instruments, rules with a state or an alert).
+/// What `seepd silence` asks for.
+#[derive(Debug, Clone, Default)]
+pub struct SilenceArgs<'a> {
+    pub rule: Option<&'a str>,
+    pub object: Option<&'a str>,
+    pub until: &'a str,
+    pub reason: &'a str,
+    pub by: &'a str,
+    /// Also silence the most severe level (otherwise its notices are always sent).
+    pub all_levels: bool,
+}
+
+/// `seepd silence --rule ID | --instrument ID --until TIME --reason TEXT [--all-levels]` on the
+/// database `db`. The rule or instrument is checked against `cfg` when it loads, else against
+/// what the database knows (configured instruments, rules with a state or an alert).
 ///
 /// # Errors
 /// Database errors; an unknown rule or instrument; an expiry in the past.
-#[allow(clippy::too_many_arguments)]
 pub fn silence(
     db: &Path,
     cfg: Option<&Config>,
-    rule: Option<&str>,
-    object: Option<&str>,
-    until: &str,
-    reason: &str,
-    by: &str,
+    a: &SilenceArgs<'_>,
     now: DateTime<Utc>,
 ) -> anyhow::Result<String> {
-    let until = parse_until(until, now)?;
+    let (rule, object) = (a.rule, a.object);
+    let until = parse_until(a.until, now)?;
     if until <= now {
         bail!("--until {} is not in the future", until.to_rfc3339());
     }
-    if reason.trim().is_empty() {
+    if a.reason.trim().is_empty() {
         bail!("--reason must say why");
     }
     let store = open(db)?;
@@ -248,20 +281,27 @@ pub fn silence(
             bail!("{o:?} is not an instrument or the object of any rule");
         }
     }
-    let id = store.add_silence(
-        rule,
-        object,
-        until.timestamp_millis(),
-        reason,
-        by,
-        now.timestamp_millis(),
-    )?;
+    let row = SilenceRow {
+        id: 0,
+        rule: rule.map(str::to_string),
+        object: object.map(str::to_string),
+        until_ms: until.timestamp_millis(),
+        reason: a.reason.to_string(),
+        who: a.by.to_string(),
+        all_levels: a.all_levels,
+    };
+    let id = store.add_silence(&row, now.timestamp_millis())?;
     let what = rule.map_or_else(
         || format!("instrument {}", object.unwrap_or("?")),
         |r| format!("rule {r}"),
     );
+    let top = if a.all_levels {
+        "every level, the most severe included"
+    } else {
+        "every level but the most severe (its messages are still sent; --all-levels to include it)"
+    };
     Ok(format!(
-        "Silence {id}: {what} until {}; alerts still change state and are listed, but no messages are sent for them.\n",
+        "Silence {id}: {what} until {}, {top}; alerts still change state and are listed, and every suppressed message is recorded.\n",
         time(until.timestamp_millis())
     ))
 }

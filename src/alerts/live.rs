@@ -38,6 +38,8 @@ pub struct Live {
     /// Wakes the mail worker (none when `[smtp]` is not configured).
     pub waker: Option<Waker>,
     last_tick: Instant,
+    /// Configurations checked by a reload (SIGHUP), waiting for the writer thread.
+    reloads: Option<crate::reload::Reloads>,
 }
 
 impl Live {
@@ -46,7 +48,19 @@ impl Live {
             evaluator,
             waker,
             last_tick: Instant::now(),
+            reloads: None,
         }
+    }
+
+    /// Receive reloaded configurations on `r` (see `take_reload`).
+    pub fn with_reloads(mut self, r: crate::reload::Reloads) -> Live {
+        self.reloads = Some(r);
+        self
+    }
+
+    /// A reloaded configuration waiting to be applied by the writer thread, if any.
+    pub fn take_reload(&self) -> Option<std::sync::Arc<crate::config::Config>> {
+        self.reloads.as_ref().and_then(crate::reload::Reloads::take)
     }
 
     /// Evaluate a batch's observations at the current time (to commit with the batch).

@@ -1,6 +1,6 @@
 //! Alert evaluation between the engine and the store: observations from an `Outcome`, each
 //! rule stepped through `domain::rules`, actions turned into alert rows and notices, notices
-//! grouped into rendered outbox messages after the site's group wait, silences and
+//! grouped into rendered outbox messages after the site's bundle window, silences and
 //! acknowledgements applied. Everything it decides comes back as `AlertWrites`, which the
 //! caller commits in the same transaction as the readings that caused it.
 //!
@@ -8,89 +8,27 @@
 
 pub mod commands;
 pub mod live;
+mod observe;
+mod orphans;
 pub mod render;
 
 use std::collections::{BTreeMap, HashMap, VecDeque};
 use std::sync::Arc;
 
 use crate::config::{Config, Rule};
+use crate::derive::is_input_problem;
 use crate::domain::rules::{self, Action, Check, Obs, State};
 use crate::engine::Outcome;
-use crate::quality::Flags;
 use crate::store::{
-    AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
+    AckRow, AlertRow, AlertWrites, EventRow, NoticeRow, OutboxRow, SilenceRow, Store, StoreError,
 };
 
 use render::Item;
 
+pub use observe::{observations, observations_of, Observation, HEALTH_FLAGS};
+
 /// Values kept per watched quantity for messages (last readings, rate).
 const RECENT: usize = 6;
-
-/// One value of one quantity of an instrument or derived object.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Observation {
-    pub object: String,
-    pub quantity: String,
-    pub t_ms: i64,
-    /// `None`: the quantity could not be computed (never a crossing).
-    pub value: Option<f64>,
-    pub unit: String,
-}
-
-/// Every observation an engine outcome holds: each reading's quantities, each derived value.
-/// The observation quantity counting a reading's sensor-health flags.
-pub const HEALTH_FLAGS: &str = "health_flags";
-
-pub fn observations(out: &Outcome) -> Vec<Observation> {
-    observations_of(out, |_| true)
-}
-
-/// The observations of the objects `keep` accepts (the others cost nothing).
-pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observation> {
-    let mut v = Vec::new();
-    // A reading stamped ahead of our clock never reaches a rule: its time would make the
-    // rule ignore the real readings that follow (see `Flags::TIME_AHEAD`).
-    let on_time = |r: &&crate::store::ReadingRow| !r.flags.contains(Flags::TIME_AHEAD);
-    for r in out
-        .readings
-        .iter()
-        .filter(on_time)
-        .filter(|r| keep(&r.instrument))
-    {
-        for (quantity, value, unit) in crate::replay::quantities(r) {
-            v.push(Observation {
-                object: r.instrument.clone(),
-                quantity: quantity.into(),
-                t_ms: r.t_ms,
-                value: Some(value),
-                unit: unit.into(),
-            });
-        }
-        // Sensor health as a quantity rules can watch: how many health flags (spike, flatline,
-        // thermistor) this reading carries; 0 for a clean reading, so an alert on it clears.
-        let health = [Flags::SPIKE, Flags::FLATLINE, Flags::THERMISTOR]
-            .iter()
-            .filter(|f| r.flags.contains(**f))
-            .count();
-        v.push(Observation {
-            object: r.instrument.clone(),
-            quantity: HEALTH_FLAGS.into(),
-            t_ms: r.t_ms,
-            value: Some(health as f64),
-            unit: "-".into(),
-        });
-    }
-    for d in out.derived.iter().filter(|d| keep(&d.object)) {
-        v.push(Observation {
-            object: d.object.clone(),
-            quantity: d.quantity.clone(),
-            t_ms: d.t_ms,
-            value: d.value,
-            unit: d.unit.into(),
-        });
-    }
-    v
-}
 
 /// One rule action, as replay reports it.
 #[derive(Debug, Clone, PartialEq)]
@@ -124,7 +62,7 @@ pub struct Evaluator {
     /// Objects some rule watches: observations of other objects are not built at all.
     watched: std::collections::HashSet<String>,
     recent: HashMap<(String, String), VecDeque<(i64, f64)>>,
-    /// Notices waiting out the group wait.
+    /// Notices waiting out the bundle window.
     waiting: Vec<NoticeRow>,
     silences: Vec<SilenceRow>,
     next_alert: i64,
@@ -132,6 +70,26 @@ pub struct Evaluator {
     next_message: i64,
     out: AlertWrites,
     transitions: Vec<Transition>,
+    /// False in a replay without `--send-email`: notices are recorded as `not_sent`, no
+    /// message is composed.
+    deliver: bool,
+    /// The latest reason a watched derived value had no value, by (object, quantity).
+    unavailable_reason: HashMap<(String, String), String>,
+    /// Open alerts whose rule is gone from the configuration (id, rule, site, level, unit):
+    /// closed at the next evaluation.
+    orphans: Vec<crate::store::alerts::OrphanAlert>,
+}
+
+/// The history event kind of a rule action.
+fn event_kind(a: &Action) -> &'static str {
+    match a {
+        Action::Raise { .. } => "raised",
+        Action::Escalate { .. } => "escalated",
+        Action::DeEscalate { .. } => "de_escalated",
+        Action::Resolve { .. } => "resolved",
+        Action::Remind { .. } => "reminded",
+        Action::NotifyEscalation { .. } => "escalation_notified",
+    }
 }
 
 impl Evaluator {
@@ -149,7 +107,7 @@ impl Evaluator {
                     .entry((r.object.clone(), r.quantity.clone()))
                     .or_default()
                     .push(i);
-                let unit = if r.spec.check == Check::NoData {
+                let unit = if r.spec.check != Check::Threshold {
                     "s"
                 } else {
                     recent.insert((r.object.clone(), r.quantity.clone()), VecDeque::new());
@@ -175,7 +133,15 @@ impl Evaluator {
             next_message: 1,
             out: AlertWrites::default(),
             transitions: Vec::new(),
+            deliver: true,
+            unavailable_reason: HashMap::new(),
+            orphans: Vec::new(),
         }
+    }
+
+    /// Record notices without composing messages (replay without `--send-email`).
+    pub fn set_delivery(&mut self, deliver: bool) {
+        self.deliver = deliver;
     }
 
     /// Resume from the store: rule states, waiting notices, next ids, recent values.
@@ -206,7 +172,23 @@ impl Evaluator {
                 e.recent.insert(key, values.into_iter().collect());
             }
         }
-        e.waiting = store.waiting_notices()?;
+        let ids: Vec<&str> = e.rules.iter().map(|w| w.rule.id.as_str()).collect();
+        e.orphans = store.orphaned_alerts(&ids)?;
+        e.out.removed_rules = stored
+            .keys()
+            .filter(|r| !ids.contains(&r.as_str()))
+            .cloned()
+            .collect();
+        // Notices of removed rules still waiting out their bundle window are not sent: the
+        // closing message says what happened to their alert.
+        for mut n in store.waiting_notices()? {
+            if ids.contains(&n.rule.as_str()) {
+                e.waiting.push(n);
+            } else {
+                n.status = "rule_removed".into();
+                e.out.notices.push(n);
+            }
+        }
         let (a, n, m) = store.alert_max_ids()?;
         (e.next_alert, e.next_notice, e.next_message) = (a + 1, n + 1, m + 1);
         Ok(e)
@@ -215,6 +197,11 @@ impl Evaluator {
     /// Whether any rule is configured.
     pub fn is_empty(&self) -> bool {
         self.rules.is_empty()
+    }
+
+    /// The silences in force (as last read from the database).
+    pub fn silences(&self) -> &[SilenceRow] {
+        &self.silences
     }
 
     /// Replace the silences in force.
@@ -234,6 +221,24 @@ impl Evaluator {
                 let json = serde_json::to_string(&w.state).unwrap_or_default();
                 self.out.states.push((w.rule.id.clone(), json));
                 tracing::info!(alert = a.alert, by = %a.who, rule = %w.rule.id, "Alert acknowledged");
+                let level = w
+                    .state
+                    .active_level()
+                    .and_then(|l| w.rule.spec.levels.get(l))
+                    .map_or_else(String::new, |l| l.name.clone());
+                let last = w.state.last;
+                self.out.events.push(EventRow {
+                    alert: a.alert,
+                    rule: w.rule.id.clone(),
+                    site: w.rule.site.clone(),
+                    kind: "acknowledged".into(),
+                    level,
+                    value: last.map(|l| l.1),
+                    unit: w.unit.clone(),
+                    t_ms: a.t_ms,
+                    recorded_ms: a.t_ms,
+                    detail: format!("by {}", a.who),
+                });
             }
             self.out.acks_applied.push(a.id);
         }
@@ -255,8 +260,9 @@ impl Evaluator {
     }
 
     /// Step the rules watching these observations, then every rule's timers at `now_ms`, then
-    /// send the notices whose group wait is over. Returns what to commit.
+    /// send the notices whose bundle window is over. Returns what to commit.
     pub fn evaluate(&mut self, obs: &[Observation], now_ms: i64) -> AlertWrites {
+        self.close_orphans(now_ms);
         for o in obs {
             let key = (o.object.clone(), o.quantity.clone());
             if let (Some(v), Some(q)) = (o.value, self.recent.get_mut(&key)) {
@@ -276,9 +282,23 @@ impl Evaluator {
                 if self.rules[i].rule.spec.check == Check::Threshold {
                     self.rules[i].unit.clone_from(&o.unit);
                 }
+                // A safety-value watch hears a value, or a value that does not apply (no upward
+                // gradient, no exit point); "no value" because of the inputs is silence to it.
+                let value = match self.rules[i].rule.spec.check {
+                    Check::Unavailable => {
+                        let available = o.value.is_some()
+                            || o.reason.as_deref().is_none_or(|r| !is_input_problem(r));
+                        if !available {
+                            self.unavailable_reason
+                                .insert(key.clone(), o.reason.clone().unwrap_or_default());
+                        }
+                        available.then_some(1.0)
+                    }
+                    _ => o.value,
+                };
                 let ob = Obs {
                     t_ms: o.t_ms,
-                    value: o.value,
+                    value,
                 };
                 self.step_rule(i, Some(ob), now_ms);
             }
@@ -291,7 +311,7 @@ impl Evaluator {
         std::mem::take(&mut self.out)
     }
 
-    /// Send every waiting notice now, whatever its group wait (end of a replay).
+    /// Send every waiting notice now, whatever its bundle window (end of a replay).
     pub fn flush(&mut self, now_ms: i64) -> AlertWrites {
         self.compose(now_ms, true);
         self.out.now_ms = now_ms;
@@ -318,10 +338,15 @@ impl Evaluator {
         let w = &self.rules[i];
         let rule = &w.rule;
         let level = a.level();
-        let (t_ms, value) = next
+        let (mut t_ms, value) = next
             .last
             .or(old.last)
             .map_or((now_ms, None), |(t, v)| (t, Some(v)));
+        // Timer actions, and clearing after a keep-active time, happen at the evaluation time,
+        // not at the time of the last value (raises and escalations are the value's).
+        if !matches!(a, Action::Raise { .. } | Action::Escalate { .. }) {
+            t_ms = now_ms;
+        }
         let alert_id = match a {
             Action::Raise { .. } => {
                 let id = self.next_alert;
@@ -365,7 +390,7 @@ impl Evaluator {
             rule: rule.id.clone(),
             action: a,
             level: level_spec.name.clone(),
-            previous,
+            previous: previous.clone(),
             object: rule.object.clone(),
             quantity: rule.quantity.clone(),
             t_ms,
@@ -383,18 +408,64 @@ impl Evaluator {
             Action::NotifyEscalation { .. } => site.recipients(&level_spec.name, false, true),
             _ => site.recipients(&level_spec.name, true, escalated),
         };
-        let silenced = self.silences.iter().any(|s| {
+        // A silence never holds back the most severe level unless it says so.
+        let top = level + 1 == rule.spec.levels.len();
+        let silence = self.silences.iter().find(|s| {
             s.until_ms > now_ms
-                && (s.rule.as_deref() == Some(&rule.id)
-                    || s.object.as_deref() == Some(&rule.object))
+                && (s.all_levels || !top)
+                && (s.rule.as_deref().is_some_and(|r| {
+                    r == rule.id
+                        || rule
+                            .id
+                            .strip_suffix(crate::config::rules::UNAVAILABLE_SUFFIX)
+                            == Some(r)
+                }) || s.object.as_deref() == Some(&rule.object))
         });
-        let status = if silenced {
+        let status = if silence.is_some() {
             "silenced"
         } else if recipients.is_empty() {
             "no_recipients"
+        } else if !self.deliver {
+            "not_sent"
         } else {
             "waiting"
         };
+        let event = |kind: &str, detail: String| EventRow {
+            alert: alert_id,
+            rule: rule.id.clone(),
+            site: rule.site.clone(),
+            kind: kind.into(),
+            level: level_spec.name.clone(),
+            value,
+            unit: w.unit.clone(),
+            t_ms,
+            recorded_ms: now_ms,
+            detail,
+        };
+        let detail = match (&previous, &rule.spec.check) {
+            (Some(p), _) => format!("from {p}"),
+            (None, Check::Unavailable) if matches!(a, Action::Raise { .. }) => format!(
+                "safety value unavailable: {}",
+                self.unavailable_reason
+                    .get(&(rule.object.clone(), rule.quantity.clone()))
+                    .map_or("no value computed", String::as_str)
+            ),
+            _ => String::new(),
+        };
+        let mut events = vec![event(event_kind(&a), detail)];
+        if let Some(s) = silence {
+            events.push(event(
+                "silenced",
+                format!(
+                    "{} notice not sent: silence {} by {} ({})",
+                    a.name(),
+                    s.id,
+                    s.who,
+                    s.reason
+                ),
+            ));
+        }
+        self.out.events.extend(events);
         let notice = NoticeRow {
             id: self.next_notice,
             alert: alert_id,
@@ -417,8 +488,18 @@ impl Evaluator {
         self.out.notices.push(notice);
     }
 
+    /// The domain of Message-IDs: the `[smtp] from` address's.
+    fn mail_domain(&self) -> String {
+        self.cfg
+            .alerting
+            .smtp
+            .as_ref()
+            .and_then(|s| s.from.split('@').nth(1).map(str::to_string))
+            .unwrap_or_else(|| "seepd.invalid".into())
+    }
+
     /// Turn groups of waiting notices (same site and recipients) whose oldest member has
-    /// waited the site's group wait (or every group, with `force`) into one rendered outbox
+    /// waited the site's bundle window (or every group, with `force`) into one rendered outbox
     /// message each.
     fn compose(&mut self, now_ms: i64, force: bool) {
         if self.waiting.is_empty() {
@@ -434,7 +515,7 @@ impl Evaluator {
         for ((site, _), group) in groups {
             let policy = self.cfg.alerting.site(&site).policy;
             let oldest = group.iter().map(|n| n.created_ms).min().unwrap_or(now_ms);
-            if !force && now_ms - oldest < policy.group_wait_ms {
+            if !force && now_ms - oldest < policy.bundle_window_ms {
                 self.waiting.extend(group);
                 continue;
             }
@@ -516,13 +597,7 @@ impl Evaluator {
             })
             .collect();
         let (subject, text, html) = render::render(&mut items, status_url);
-        let domain = self
-            .cfg
-            .alerting
-            .smtp
-            .as_ref()
-            .and_then(|s| s.from.split('@').nth(1).map(str::to_string))
-            .unwrap_or_else(|| "seepd.invalid".into());
+        let domain = self.mail_domain();
         OutboxRow {
             id,
             created_ms: now_ms,
@@ -536,49 +611,5 @@ impl Evaluator {
             html,
             message_id: format!("<seepd.alert-{id}.{now_ms}@{domain}>"),
         }
-    }
-}
-
-#[cfg(test)]
-mod observation_tests {
-    use super::*;
-    use crate::store::ReadingRow;
-
-    fn reading(flags: Flags) -> ReadingRow {
-        ReadingRow {
-            instrument: "P1".into(),
-            t_ms: 1000,
-            arrival_ms: 1000,
-            raw: 1.0,
-            temperature_c: None,
-            baro_kpa: None,
-            eng_value: 1.0,
-            eng_unit: "kPa",
-            pressure_kpa: Some(1.0),
-            pressure_head_m: Some(0.1),
-            total_head_m: Some(100.1),
-            flags,
-        }
-    }
-
-    fn health(flags: Flags) -> Option<f64> {
-        let out = Outcome {
-            readings: vec![reading(flags)],
-            ..Outcome::default()
-        };
-        observations(&out)
-            .into_iter()
-            .find(|o| o.quantity == HEALTH_FLAGS)
-            .and_then(|o| o.value)
-    }
-
-    #[test]
-    fn health_flags_count_only_sensor_health() {
-        assert_eq!(health(Flags::empty()), Some(0.0));
-        assert_eq!(health(Flags::SPIKE), Some(1.0));
-        let mut two = Flags::FLATLINE;
-        two.insert(Flags::THERMISTOR);
-        two.insert(Flags::TIME_FROM_ARRIVAL);
-        assert_eq!(health(two), Some(2.0));
     }
 }

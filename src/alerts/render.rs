@@ -94,6 +94,9 @@ impl Item<'_> {
     fn subject_part(&self) -> String {
         let value = match (self.check, self.value) {
             (Check::NoData, Some(age_s)) => format!("no data for {:.1} h", age_s / 3600.0),
+            (Check::Unavailable, Some(age_s)) => {
+                format!("safety value unavailable for {:.1} h", age_s / 3600.0)
+            }
             (_, Some(v)) => with_unit(v, self.unit),
             (_, None) => "no value".into(),
         };
@@ -113,6 +116,13 @@ impl Item<'_> {
         let Some(v) = self.value else {
             return "no value".into();
         };
+        if *self.check == Check::Unavailable {
+            return format!(
+                "safety value unavailable: no value for {:.1} h (limit {:.1} h) because its inputs could not be used; see `seepd alerts` for the reason",
+                v / 3600.0,
+                l.bound / 3600.0
+            );
+        }
         if *self.check == Check::NoData {
             return format!(
                 "no reading for {:.1} h; the limit is {:.1} h (the instrument's interval times the rule's factor)",
@@ -159,7 +169,7 @@ impl Item<'_> {
     }
 }
 
-fn escape(s: &str) -> String {
+pub(crate) fn escape(s: &str) -> String {
     s.replace('&', "&amp;")
         .replace('<', "&lt;")
         .replace('>', "&gt;")

@@ -22,6 +22,14 @@ pub struct Alerting {
 
 impl Alerting {
     /// The policy and contacts of a site (defaults when the site configures none).
+    /// Every site's warnings, in site order.
+    pub fn warnings(&self) -> Vec<String> {
+        self.sites
+            .values()
+            .flat_map(|s| s.warnings.clone())
+            .collect()
+    }
+
     pub fn site(&self, site: &str) -> SiteAlerting {
         self.sites.get(site).cloned().unwrap_or_default()
     }
@@ -44,21 +52,25 @@ pub struct Rule {
 #[derive(Debug, Clone)]
 pub struct Policy {
     /// Notices waiting this long are sent together in one message (ms; 0: at once).
-    pub group_wait_ms: i64,
+    pub bundle_window_ms: i64,
     /// Reminder interval while active and unacknowledged (ms); `None`: no reminders.
-    pub repeat_ms: Option<i64>,
+    pub remind_every_ms: Option<i64>,
     /// The escalation lists are told when an alert is not acknowledged within this (ms).
     pub escalate_after_ms: Option<i64>,
     /// Link printed in every message (a placeholder until a status page exists).
     pub status_url: String,
+    /// A rule's derived value without a value (its inputs missing, stale or rejected) this
+    /// long is itself an alert, "safety value unavailable" (ms; `None`: never).
+    pub unavailable_after_ms: Option<i64>,
 }
 
 impl Default for Policy {
     fn default() -> Self {
         Policy {
-            group_wait_ms: 30_000,
-            repeat_ms: Some(4 * 3_600_000),
+            bundle_window_ms: 30_000,
+            remind_every_ms: Some(4 * 3_600_000),
             escalate_after_ms: Some(3_600_000),
+            unavailable_after_ms: Some(3 * 3_600_000),
             status_url: "https://status.example.invalid/seepd".into(),
         }
     }
@@ -87,6 +99,9 @@ impl Contacts {
 pub struct SiteAlerting {
     pub policy: Policy,
     pub contacts: Vec<Contacts>,
+    /// Things that work but are probably not meant, as `file:line:column: message` (rule
+    /// levels no contact list receives); `seepd check` prints them, `seepd run` logs them.
+    pub warnings: Vec<String>,
 }
 
 impl SiteAlerting {

@@ -106,13 +106,13 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             .map(|(p, sf)| (p.clone(), &sf.alerting))
             .collect();
         let object_ids: BTreeSet<String> = objects
-            .clusters
+            .nests
             .iter()
             .map(|o| o.id.clone())
             .chain(objects.toes.iter().map(|o| o.id.clone()))
             .chain(objects.blankets.iter().map(|o| o.id.clone()))
             .chain(objects.sections.iter().map(|o| o.id.clone()))
-            .chain(trends.responses.iter().map(|m| m.id.clone()))
+            .chain(trends.stage_responses.iter().map(|m| m.id.clone()))
             .chain(trends.hst.iter().map(|m| m.id.clone()))
             .collect();
         rules::cross_check(&files, &instruments, &object_ids, &mut problems);
@@ -413,7 +413,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
             let (found, object) = objects::resolve(o, site_of(sf), &known);
             problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
             match object {
-                Some(Object::Cluster(c)) => out.clusters.push(c),
+                Some(Object::Nest(c)) => out.nests.push(c),
                 Some(Object::Toe(t)) => out.toes.push(t),
                 Some(Object::Blanket(b)) => out.blankets.push(b),
                 Some(Object::Section(s)) => out.sections.push(s),
@@ -428,7 +428,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
             let (found, model) = trends::resolve(m, site_of(sf), &known);
             problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
             match model {
-                Some(Model::Response(r)) => trends.responses.push(r),
+                Some(Model::StageResponse(r)) => trends.stage_responses.push(r),
                 Some(Model::Hst(h)) => trends.hst.push(h),
                 None => {}
             }
@@ -523,8 +523,8 @@ pub fn summary(cfg: &Config) -> String {
         let t = &cfg.trends;
         let models = [
             (
-                "response",
-                t.responses
+                "stage_response",
+                t.stage_responses
                     .iter()
                     .filter(|r| r.site == site.id)
                     .map(|r| r.id.as_str())
@@ -556,7 +556,7 @@ fn site_objects<'a>(o: &'a Objects, site: &str) -> [(&'static str, Vec<&'a str>)
             .collect()
     }
     [
-        ("cluster", ids(&o.clusters, site, |c| (&c.site, &c.id))),
+        ("nest", ids(&o.nests, site, |c| (&c.site, &c.id))),
         ("toe", ids(&o.toes, site, |t| (&t.site, &t.id))),
         ("blanket", ids(&o.blankets, site, |b| (&b.site, &b.id))),
         ("section", ids(&o.sections, site, |x| (&x.site, &x.id))),
@@ -586,6 +586,9 @@ mod export_tests;
 
 #[cfg(test)]
 mod report_tests;
+
+#[cfg(test)]
+mod renamed_tests;
 
 #[cfg(test)]
 mod hardening_tests;

@@ -1,7 +1,8 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
 //! (`load`, with `service`, `export`, `site`, `kinds`, `objects`, `rules`, `smtp` and `trends`
-//! reading the tables through `reader`, every bound from `limits`); the alerting model is in
-//! `alerting`; `locate` finds the database alone for the operator commands.
+//! reading the tables through `reader`, which refuses old names through `renamed`, every bound
+//! from `limits`); the alerting model is in `alerting`; `locate` finds the database alone for
+//! the operator commands.
 
 pub mod alerting;
 mod export;
@@ -13,6 +14,7 @@ pub mod model;
 mod objects;
 mod problem;
 mod reader;
+mod renamed;
 mod reports;
 pub mod rules;
 mod service;

@@ -32,7 +32,7 @@ pub struct Config {
     pub sites: Vec<Site>,
     /// Every instrument of every site, by id (ids are unique across sites).
     pub instruments: BTreeMap<String, Instrument>,
-    /// Derived-quantity objects (clusters, toe checks, blanket reaches, sections) of all sites.
+    /// Derived-quantity objects (nests, toe checks, blanket reaches, sections) of all sites.
     pub objects: Objects,
     /// Rules, contact lists, notification policy and the mail relay.
     pub alerting: super::alerting::Alerting,
@@ -430,7 +430,7 @@ pub use report::*;
 
 /// Nested piezometers at one location: vertical gradients between adjacent tips and overall.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Cluster {
+pub struct Nest {
     /// Object id (unique among instruments and objects across all sites).
     pub id: String,
     pub site: String,
@@ -550,7 +550,7 @@ pub struct Section {
 /// All derived-quantity objects of the configuration.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Objects {
-    pub clusters: Vec<Cluster>,
+    pub nests: Vec<Nest>,
     pub toes: Vec<ToeCheck>,
     pub blankets: Vec<BlanketReach>,
     pub sections: Vec<Section>,

@@ -1,4 +1,4 @@
-//! Reading a site file's derived-quantity objects — `[[cluster]]`, `[[toe]]`, `[[blanket]]` and
+//! Reading a site file's derived-quantity objects — `[[nest]]`, `[[toe]]`, `[[blanket]]` and
 //! `[[section]]` — into the `model` objects, lengths converted to metres.
 //!
 //! Owns each object's keys, the keys that exclude or need each other, the ranges of numbers and
@@ -13,7 +13,7 @@ mod refs;
 mod values;
 
 use super::limits;
-use super::model::{BlanketReach, Cluster, CriticalGradientFrom, Section, ToeCheck};
+use super::model::{BlanketReach, CriticalGradientFrom, Nest, Section, ToeCheck};
 use super::problem::Cx;
 use super::reader::{finite, Tbl};
 use super::site::Pos;
@@ -21,10 +21,10 @@ use values::{Reader, Rule};
 
 pub(crate) use refs::{problem as reference_problem, resolve, Known};
 
-/// The object tables of a site file, as written (`[[cluster]]` ...).
-pub(crate) const TABLES: [&str; 4] = ["cluster", "toe", "blanket", "section"];
+/// The object tables of a site file, as written (`[[nest]]` ...).
+pub(crate) const TABLES: [&str; 4] = ["nest", "toe", "blanket", "section"];
 
-/// |i| below which a cluster reports no vertical flow, when `deadband` is not written.
+/// |i| below which a nest reports no vertical flow, when `deadband` is not written.
 const DEFAULT_DEADBAND: f64 = 0.02;
 
 /// Target factor of safety of a toe check, when `fs_target` is not written.
@@ -55,7 +55,7 @@ pub(crate) struct Ref {
 /// One validated object (its `tolerance_s` is settled by `resolve`).
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) enum Object {
-    Cluster(Cluster),
+    Nest(Nest),
     Toe(ToeCheck),
     Blanket(BlanketReach),
     Section(Section),
@@ -63,9 +63,9 @@ pub(crate) enum Object {
 
 /// What `load` needs of one object table.
 pub(crate) struct ObjEntry {
-    /// The table name as written, e.g. `cluster`.
+    /// The table name as written, e.g. `nest`.
     pub table: &'static str,
-    /// How messages name the object, e.g. `cluster "AB-N1"`.
+    /// How messages name the object, e.g. `nest "AB-N1"`.
     pub what: String,
     /// The id, if readable, and where it is written.
     pub id: Option<(String, Pos)>,
@@ -118,7 +118,7 @@ fn entry(
     let tolerance_s = r.t.opt_int_in(cx, "tolerance_s", 1, limits::YEAR_S, false);
     let (name, site) = (id.clone().unwrap_or_default(), site.to_string());
     let object = match table {
-        "cluster" => cluster(cx, r, name, site).map(Object::Cluster),
+        "nest" => nest(cx, r, name, site).map(Object::Nest),
         "toe" => toe(cx, r, name, site, gamma_w).map(Object::Toe),
         "blanket" => blanket::blanket(cx, r, name, site).map(Object::Blanket),
         _ => section(cx, r, name, site).map(Object::Section),
@@ -134,13 +134,13 @@ fn entry(
     }
 }
 
-const CLUSTER_KEYS: [&str; 4] = ["id", "piezometers", "deadband", "tolerance_s"];
+const NEST_KEYS: [&str; 4] = ["id", "piezometers", "deadband", "tolerance_s"];
 
-fn cluster(cx: &mut Cx<'_>, r: &mut Reader<'_>, id: String, site: String) -> Option<Cluster> {
-    r.t.check_keys(cx, &CLUSTER_KEYS);
+fn nest(cx: &mut Cx<'_>, r: &mut Reader<'_>, id: String, site: String) -> Option<Nest> {
+    r.t.check_keys(cx, &NEST_KEYS);
     let piezometers = r.references(cx, "piezometers", 2, "piezometer", Want::Piezometer);
     let deadband = r.number(cx, "deadband", false, Rule::NonNegative);
-    Some(Cluster {
+    Some(Nest {
         id,
         site,
         piezometers: piezometers?,

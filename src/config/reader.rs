@@ -9,6 +9,7 @@ use std::ops::Range;
 use toml_edit::{Item, TableLike, Value};
 
 use super::problem::Cx;
+use super::renamed;
 
 /// One table being read: the table, where it starts, and how messages name it.
 pub(crate) struct Tbl<'t> {
@@ -142,10 +143,15 @@ impl<'t> Tbl<'t> {
         );
     }
 
-    /// Report every key not in `allowed`, with a "did you mean" hint when one is close.
+    /// Report every key not in `allowed`: an old name with the name that replaced it, any other
+    /// with a "did you mean" hint when one is close.
     pub fn check_keys(&self, cx: &mut Cx<'_>, allowed: &[&str]) {
         for (key, _) in self.table.iter() {
             if allowed.contains(&key) {
+                continue;
+            }
+            if let Some(why) = renamed::refusal(key, allowed) {
+                cx.at(self.key_span(key), format!("{}: {why}", self.what));
                 continue;
             }
             let close = allowed

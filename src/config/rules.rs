@@ -58,7 +58,9 @@ pub(crate) struct SiteRules {
     pub alerting: SiteAlerting,
 }
 
-/// Read `[alerting]`, `[[contacts]]` and `[[rule]]` of a site file.
+/// Read `[alerting]`, `[[contacts]]` and `[[rule]]` of a site file. A contact list may name
+/// only levels some rule of the site defines (a problem otherwise: that list would never hear
+/// of the level it meant); a rule level no contact list receives is a warning.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
     let policy = match root.sub(cx, "alerting", "[alerting]") {
         Some(mut t) => {
@@ -67,18 +69,63 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
         }
         None => Policy::default(),
     };
-    let mut contacts = Vec::new();
-    for mut t in root.tables(cx, "contacts") {
-        contacts.extend(read_contacts(cx, &mut t));
-    }
-    let rules = root
-        .tables(cx, "rule")
+    let rule_tables = root.tables(cx, "rule");
+    let rules: Vec<RuleEntry> = rule_tables
         .into_iter()
         .map(|mut t| read_rule(cx, &mut t, site, &policy))
         .collect();
+    let defined: BTreeSet<&str> = rules
+        .iter()
+        .filter_map(|e| e.rule.as_ref())
+        .flat_map(|r| r.spec.levels.iter().map(|l| l.name.as_str()))
+        .collect();
+    let mut contacts = Vec::new();
+    for mut t in root.tables(cx, "contacts") {
+        let Some(c) = read_contacts(cx, &mut t) else {
+            continue;
+        };
+        for l in c.levels.iter().filter(|l| !defined.contains(l.as_str())) {
+            let known: Vec<&str> = defined.iter().copied().collect();
+            t.problem_at(
+                cx,
+                "levels",
+                format!(
+                    "level {l:?} is not a level of any rule of this site; expected one of: {}",
+                    if known.is_empty() {
+                        "(no rules)".to_string()
+                    } else {
+                        known.join(", ")
+                    }
+                ),
+            );
+        }
+        contacts.push(c);
+    }
+    let mut warnings = Vec::new();
+    for e in &rules {
+        let (Some(r), Some((_, pos))) = (&e.rule, &e.id) else {
+            continue;
+        };
+        for l in &r.spec.levels {
+            if !contacts.iter().any(|c: &Contacts| c.receives(&l.name)) {
+                warnings.push(format!(
+                    "{}:{}:{}: rule {:?} level {:?}: no contact list receives it (its notices are recorded, not sent)",
+                    cx.file.display(),
+                    pos.0,
+                    pos.1,
+                    r.id,
+                    l.name
+                ));
+            }
+        }
+    }
     SiteRules {
         rules,
-        alerting: SiteAlerting { policy, contacts },
+        alerting: SiteAlerting {
+            policy,
+            contacts,
+            warnings,
+        },
     }
 }
 
@@ -90,25 +137,31 @@ fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
     t.check_keys(
         cx,
         &[
-            "group_wait_s",
-            "repeat_interval_s",
+            "bundle_window_s",
+            "remind_every_s",
             "escalate_after_s",
             "status_url",
+            "unavailable_after_s",
         ],
     );
     let d = Policy::default();
     let max = super::limits::YEAR_S;
     Policy {
-        group_wait_ms: t.int_in(cx, "group_wait_s", 0, 3600, d.group_wait_ms / 1000) * 1000,
-        repeat_ms: match t.opt_int_in(cx, "repeat_interval_s", 0, max, false) {
+        bundle_window_ms: t.int_in(cx, "bundle_window_s", 0, 3600, d.bundle_window_ms / 1000)
+            * 1000,
+        remind_every_ms: match t.opt_int_in(cx, "remind_every_s", 0, max, false) {
             Some(s) => millis(Some(s)),
-            None => d.repeat_ms,
+            None => d.remind_every_ms,
         },
         escalate_after_ms: match t.opt_int_in(cx, "escalate_after_s", 0, max, false) {
             Some(s) => millis(Some(s)),
             None => d.escalate_after_ms,
         },
         status_url: t.nonempty(cx, "status_url").unwrap_or(d.status_url),
+        unavailable_after_ms: match t.opt_int_in(cx, "unavailable_after_s", 0, max, false) {
+            Some(s) => millis(Some(s)),
+            None => d.unavailable_after_ms,
+        },
     }
 }
 
@@ -257,7 +310,7 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
                         Check::Threshold
                     },
                     levels,
-                    repeat_ms: policy.repeat_ms,
+                    remind_every_ms: policy.remind_every_ms,
                     escalate_after_ms: policy.escalate_after_ms,
                 },
             })
@@ -431,7 +484,7 @@ pub(crate) fn cross_check(
             } else if is_instrument {
                 (!is_instrument_quantity(q)).then(|| format!("rule on instrument {object:?}: quantity {q:?} is not a quantity of an instrument; expected one of: {}, {}, rate_<window> (e.g. rate_24h)", READING_QUANTITIES.join(", "), INSTRUMENT_DERIVED.join(", ")))
             } else if CHECK_OBJECT_IDS && !objects.contains(object) {
-                Some(format!("rule object {object:?} is neither an instrument nor a configured object (cluster, toe, blanket, section)"))
+                Some(format!("rule object {object:?} is neither an instrument nor a configured object (nest, toe, blanket, section)"))
             } else {
                 None
             };
@@ -441,6 +494,44 @@ pub(crate) fn cross_check(
         }
     }
 }
+
+/// The "safety value unavailable" watch of a threshold rule on a derived object: its id is the
+/// rule's with `:unavailable`, its one level the rule's least severe level's name (so the same
+/// contact lists hear of it), its bound the site's `unavailable_after_s`.
+fn unavailable_companion(rule: &Rule, cfg: &Config, policy: &Policy) -> Option<Rule> {
+    let after_ms = policy.unavailable_after_ms?;
+    let first = rule.spec.levels.first()?;
+    if rule.spec.check != Check::Threshold || cfg.instruments.contains_key(&rule.object) {
+        return None;
+    }
+    Some(Rule {
+        id: format!("{}{UNAVAILABLE_SUFFIX}", rule.id),
+        site: rule.site.clone(),
+        object: rule.object.clone(),
+        quantity: rule.quantity.clone(),
+        spec: Spec {
+            check: Check::Unavailable,
+            levels: vec![LevelSpec {
+                name: first.name.clone(),
+                direction: Direction::Above,
+                bound: after_ms as f64 / 1000.0,
+                deadband: 0.0,
+                persist_readings: 1,
+                persist_ms: 0,
+                keep_active_ms: 0,
+                response: format!(
+                    "{} {} has had no value for too long because its inputs could not be used: read its instruments by hand and check them until it returns.",
+                    rule.object, rule.quantity
+                ),
+            }],
+            remind_every_ms: rule.spec.remind_every_ms,
+            escalate_after_ms: rule.spec.escalate_after_ms,
+        },
+    })
+}
+
+/// The id suffix of a rule's "safety value unavailable" watch.
+pub const UNAVAILABLE_SUFFIX: &str = ":unavailable";
 
 /// Put a site file's alerting into the configuration: no-data bounds from the instrument's
 /// interval (k × interval_s), then the rules and the site's policy and contacts.
@@ -453,7 +544,9 @@ pub(crate) fn finish(cfg: &mut Config, site: &str, sr: SiteRules) {
                 l.bound = k * i.interval_s as f64;
             }
         }
+        let companion = unavailable_companion(&rule, cfg, &sr.alerting.policy);
         cfg.alerting.rules.push(rule);
+        cfg.alerting.rules.extend(companion);
     }
     cfg.alerting.sites.insert(site.to_string(), sr.alerting);
 }

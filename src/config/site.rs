@@ -61,11 +61,11 @@ pub(crate) struct SiteFile {
     pub id: Option<(String, Pos)>,
     pub site: Option<Site>,
     pub entries: Vec<Entry>,
-    /// The `[[cluster]]`, `[[toe]]`, `[[blanket]]` and `[[section]]` tables, in that order.
+    /// The `[[nest]]`, `[[toe]]`, `[[blanket]]` and `[[section]]` tables, in that order.
     pub objects: Vec<ObjEntry>,
     /// `[alerting]`, `[[contacts]]` and `[[rule]]` (see `config::rules`).
     pub alerting: super::rules::SiteRules,
-    /// `[trends]`, `[health]`, `[[response]]` and `[[hst]]`.
+    /// `[trends]`, `[health]`, `[[stage_response]]` and `[[hst]]`.
     pub trends: SiteTrendsEntry,
     /// `[[report]]` schedules (see `config::reports`).
     pub reports: Vec<super::reports::ReportEntry>,

@@ -1,6 +1,6 @@
 //! Reading a site file's trend, health and model tables — `[trends]`, `[health]`,
-//! `[[response]]` and `[[hst]]` — into the `model` settings (durations in seconds, lengths in
-//! metres).
+//! `[[stage_response]]` and `[[hst]]` — into the `model` settings (durations in seconds, lengths
+//! in metres).
 //!
 //! Owns those keys, their defaults and ranges. Like `objects`, it must not decide what a
 //! reference names: each model's instrument references are recorded and settled by `resolve`
@@ -10,14 +10,14 @@
 use std::collections::BTreeMap;
 
 use super::limits;
-use super::model::{HealthSettings, HstSpec, RateSpan, ResponseSpec, SiteTrends};
+use super::model::{HealthSettings, HstSpec, RateSpan, SiteTrends, StageResponseSpec};
 use super::objects::{reference_problem, Known, Ref, Want};
 use super::problem::Cx;
 use super::reader::Tbl;
 use super::site::Pos;
 
 /// The tables of a site file read here, as written.
-pub(crate) const TABLES: [&str; 4] = ["trends", "health", "response", "hst"];
+pub(crate) const TABLES: [&str; 4] = ["trends", "health", "stage_response", "hst"];
 
 const TRENDS_KEYS: [&str; 2] = ["rate_windows", "max_points"];
 const HEALTH_KEYS: [&str; 9] = [
@@ -31,7 +31,7 @@ const HEALTH_KEYS: [&str; 9] = [
     "thermistor_max_jump",
     "use_flagged",
 ];
-const RESPONSE_KEYS: [&str; 7] = [
+const STAGE_RESPONSE_KEYS: [&str; 7] = [
     "id",
     "piezometer",
     "stage_gauge",
@@ -48,11 +48,11 @@ const HST_KEYS: [&str; 5] = [
     "refit_interval_h",
 ];
 
-/// Defaults of a `[[response]]` table.
+/// Defaults of a `[[stage_response]]` table.
 const DEFAULT_TRAINING_DAYS: f64 = 30.0;
 const DEFAULT_LAG_RANGE_H: (f64, f64) = (0.0, 48.0);
 const DEFAULT_LAG_STEP_H: f64 = 1.0;
-const DEFAULT_RESPONSE_REFIT_H: f64 = 24.0;
+const DEFAULT_STAGE_RESPONSE_REFIT_H: f64 = 24.0;
 /// Defaults of an `[[hst]]` table.
 const DEFAULT_HST_DEGREE: i64 = 4;
 const DEFAULT_HST_REFIT_H: f64 = 168.0;
@@ -62,15 +62,15 @@ const MAX_LAGS: f64 = 2000.0;
 /// A validated model table.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) enum Model {
-    Response(ResponseSpec),
+    StageResponse(StageResponseSpec),
     Hst(HstSpec),
 }
 
-/// What `load` needs of one `[[response]]` or `[[hst]]` table.
+/// What `load` needs of one `[[stage_response]]` or `[[hst]]` table.
 pub(crate) struct ModelEntry {
-    /// `response` or `hst`.
+    /// `stage_response` or `hst`.
     pub table: &'static str,
-    /// How messages name it, e.g. `response "AB-RESP-1B"`.
+    /// How messages name it, e.g. `stage_response "AB-RESP-1B"`.
     pub what: String,
     pub id: Option<(String, Pos)>,
     pub refs: Vec<Ref>,
@@ -109,7 +109,7 @@ pub(crate) fn read(
     }
     let settings = Some(s).filter(|_| cx.problems.len() == before);
     let mut models = Vec::new();
-    for table in ["response", "hst"] {
+    for table in ["stage_response", "hst"] {
         for t in root.tables(cx, table) {
             models.push(model(cx, t, table, site));
         }
@@ -215,7 +215,19 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
         None => default,
     };
     let spike_floor_m = nonneg(cx, "spike_floor", d.spike_floor_m);
-    let flatline_tolerance_m = nonneg(cx, "flatline_tolerance", d.flatline_tolerance_m);
+    // In the raw value's own unit (it differs by instrument), so no length conversion.
+    let flatline_tolerance_raw = match t.number(cx, "flatline_tolerance", false) {
+        Some(v) if v >= 0.0 => v,
+        Some(v) => {
+            t.problem_at(
+                cx,
+                "flatline_tolerance",
+                format!("key \"flatline_tolerance\" is {v}, expected a number >= 0"),
+            );
+            d.flatline_tolerance_raw
+        }
+        None => d.flatline_tolerance_raw,
+    };
     let no_data_factor = match t.number(cx, "no_data_factor", false) {
         Some(v) if (1.0..=limits::NO_DATA_FACTOR).contains(&v) => v,
         Some(v) => {
@@ -233,7 +245,7 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
         spike_k: above(cx, t, "spike_k", 0.0, d.spike_k),
         spike_floor_m,
         flatline_count: t.int_in(cx, "flatline_count", 2, 10_000, d.flatline_count as i64) as usize,
-        flatline_tolerance_m,
+        flatline_tolerance_raw,
         no_data_factor,
         thermistor_range_c: t
             .pair(cx, "thermistor_range", false)
@@ -278,8 +290,8 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         Some(found)
     };
     let name = id.clone().unwrap_or_default();
-    let model = if table == "response" {
-        t.check_keys(cx, &RESPONSE_KEYS);
+    let model = if table == "stage_response" {
+        t.check_keys(cx, &STAGE_RESPONSE_KEYS);
         let piezometer = reference(cx, "piezometer", Want::Piezometer);
         let gauge = reference(cx, "stage_gauge", Want::StageGauge);
         let training = within(
@@ -315,19 +327,21 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         if range_ok && (hi - lo) / step > MAX_LAGS {
             t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
         }
-        let refit = refit_h(cx, &t, DEFAULT_RESPONSE_REFIT_H);
+        let refit = refit_h(cx, &t, DEFAULT_STAGE_RESPONSE_REFIT_H);
         match (piezometer, gauge) {
-            (Some(piezometer), Some(stage_gauge)) => Some(Model::Response(ResponseSpec {
-                id: name,
-                site: site.into(),
-                piezometer,
-                stage_gauge,
-                training_s: (training * 86_400.0).round() as i64,
-                lag_min_s: hours_s(lo),
-                lag_max_s: hours_s(hi),
-                lag_step_s: hours_s(step).max(1),
-                refit_s: hours_s(refit).max(1),
-            })),
+            (Some(piezometer), Some(stage_gauge)) => {
+                Some(Model::StageResponse(StageResponseSpec {
+                    id: name,
+                    site: site.into(),
+                    piezometer,
+                    stage_gauge,
+                    training_s: (training * 86_400.0).round() as i64,
+                    lag_min_s: hours_s(lo),
+                    lag_max_s: hours_s(hi),
+                    lag_step_s: hours_s(step).max(1),
+                    refit_s: hours_s(refit).max(1),
+                }))
+            }
             _ => None,
         }
     } else {

@@ -15,30 +15,10 @@ use chrono::{TimeZone, Utc};
 use rumqttc::{AsyncClient, MqttOptions, QoS};
 use tokio::sync::watch;
 
-use crate::config::Config;
 use crate::ingest::progress::Counters;
 use crate::store::Store;
 
-/// The example configuration, compiled in so the demo runs from anywhere.
-pub const EXAMPLE_CONFIG: [(&str, &str); 3] = [
-    ("seepd.toml", include_str!("../../config/seepd.toml")),
-    (
-        "levee-ash-bend.toml",
-        include_str!("../../config/levee-ash-bend.toml"),
-    ),
-    ("dam-tarn.toml", include_str!("../../config/dam-tarn.toml")),
-];
-
-/// Write the example configuration into `dir` and load it.
-///
-/// # Errors
-/// I/O errors, or problems in the example configuration (a bug).
-pub fn example_config(dir: &std::path::Path) -> anyhow::Result<Config> {
-    for (name, text) in EXAMPLE_CONFIG {
-        std::fs::write(dir.join(name), text)?;
-    }
-    crate::config::load_dir(dir).map_err(|p| anyhow::anyhow!("example configuration: {p}"))
-}
+pub use crate::scenario::{example_config, EXAMPLE_CONFIG};
 
 /// Run the demo until `shutdown` resolves (or after `days` simulated days).
 ///
@@ -82,8 +62,10 @@ pub async fn run(
         .timestamp_opt(start.timestamp() - start.timestamp() % 3600, 0)
         .single()
         .unwrap_or(start);
+    let sim = sim::Sim::new(&cfg, start.timestamp_millis())?;
     let loggers = tokio::spawn(publish_loop(
         port,
+        sim,
         start,
         seconds_per_day,
         total_days,
@@ -140,6 +122,7 @@ fn tempfile_dir() -> anyhow::Result<std::path::PathBuf> {
 /// Publish the scenario: one hourly round of every logger per simulated hour.
 async fn publish_loop(
     port: u16,
+    sim: sim::Sim,
     start: chrono::DateTime<Utc>,
     seconds_per_day: f64,
     days: u32,
@@ -162,7 +145,7 @@ async fn publish_loop(
     let per_hour = Duration::from_secs_f64((seconds_per_day / 24.0).max(0.001));
     for hour in 0..(days * 24) {
         let t = start + chrono::Duration::hours(i64::from(hour));
-        for (topic, payload) in sim::messages(hour, t) {
+        for (topic, payload) in sim.messages(hour, t) {
             client
                 .publish(topic, QoS::AtLeastOnce, false, payload)
                 .await?;

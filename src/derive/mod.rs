@@ -2,7 +2,8 @@
 //! nested piezometers, toe checks, blanket-theory expectations and section phreatic lines.
 //!
 //! Owns input alignment (each input's latest head within the object's tolerance window; no
-//! value, with a reason, when an input is missing, stale or flagged) and the naming of derived
+//! value, with a reason, when an input is missing, stale or rejected; the value with a note
+//! naming the suspect inputs when an input carries a soft flag) and the naming of derived
 //! quantities. The engineering is in `domain`; nothing here does I/O or reads the clock.
 
 mod objects;
@@ -16,17 +17,27 @@ use crate::config::{Config, Level};
 use crate::quality::Flags;
 use crate::store::{DerivedRow, ReadingRow};
 
-pub use objects::section_input;
+pub use objects::{blanket_ratio, section_input};
 
-/// Reading flags that make a head unfit for derived quantities (unless the site's `[health]`
-/// says `use_flagged = true`).
-pub const EXCLUDING_FLAGS: Flags = Flags(
-    Flags::BARO_MISSING.0
-        | Flags::TEMP_MISSING.0
-        | Flags::SPIKE.0
-        | Flags::FLATLINE.0
-        | Flags::THERMISTOR.0,
-);
+/// Reading flags that **reject** a head: it is left out of derived quantities, which then have
+/// no value with the reason (unless the site's `[health]` says `use_flagged = true`). Only a
+/// confirmed spike rejects.
+pub const EXCLUDING_FLAGS: Flags = Flags::SPIKE;
+
+/// Reading flags that make a head **suspect**: it is kept in every derived quantity, and the
+/// value carries a note naming the input and its flags. No safety value is lost to these.
+pub const SUSPECT_FLAGS: Flags =
+    Flags(Flags::BARO_MISSING.0 | Flags::TEMP_MISSING.0 | Flags::FLATLINE.0 | Flags::THERMISTOR.0);
+
+/// The start of every reason that says a derived value has no value because of its inputs
+/// (missing, stale, rejected), as opposed to a value that does not apply (no upward gradient,
+/// no exit point): the "safety value unavailable" alert watches for it.
+pub const INPUT_PROBLEM: &str = "input ";
+
+/// Whether a derived value's reason says its inputs made it unavailable.
+pub fn is_input_problem(reason: &str) -> bool {
+    reason.starts_with(INPUT_PROBLEM)
+}
 
 /// The flags that keep `instrument`'s readings out of derived quantities under `cfg`: none when
 /// its site sets `use_flagged = true`, else [`EXCLUDING_FLAGS`].
@@ -56,7 +67,7 @@ pub struct Head {
 /// Which object an instrument feeds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum ObjRef {
-    Cluster(usize),
+    Nest(usize),
     Toe(usize),
     Blanket(usize),
     Section(usize),
@@ -111,10 +122,8 @@ impl Deriver {
             _ => None,
         };
         let objs = &cfg.objects;
-        for (k, c) in objs.clusters.iter().enumerate() {
-            c.piezometers
-                .iter()
-                .for_each(|p| add(p, ObjRef::Cluster(k)));
+        for (k, c) in objs.nests.iter().enumerate() {
+            c.piezometers.iter().for_each(|p| add(p, ObjRef::Nest(k)));
         }
         for (k, t) in objs.toes.iter().enumerate() {
             add(&t.piezometer, ObjRef::Toe(k));
@@ -182,28 +191,69 @@ impl Deriver {
             flags: row.flags,
         };
         self.remember(&row.instrument, head);
-        let Some(objs) = self.dependents.get(&row.instrument).cloned() else {
+        self.compute(&row.instrument, head)
+    }
+
+    /// A reading stored earlier turned out to be a spike: reject it (remembered with `flags`
+    /// added, if it is still the latest) and recompute, at its time, every object it feeds —
+    /// the rows replace the ones computed with it.
+    pub fn reject(
+        &mut self,
+        instrument: &str,
+        t_ms: i64,
+        head_m: f64,
+        flags: Flags,
+    ) -> Vec<DerivedRow> {
+        let mut head = match self.latest.get_mut(instrument) {
+            Some(h) if h.t_ms == t_ms => {
+                h.flags.insert(flags);
+                *h
+            }
+            _ => Head {
+                t_ms,
+                head_m,
+                flags,
+            },
+        };
+        head.flags.insert(flags);
+        self.compute(instrument, head)
+    }
+
+    /// Every object `instrument` feeds, at the time of `head`, with `head` as its input.
+    fn compute(&self, instrument: &str, head: Head) -> Vec<DerivedRow> {
+        let Some(objs) = self.dependents.get(instrument) else {
             return Vec::new();
         };
-        let inputs = Inputs {
-            deriver: self,
-            trigger: (&row.instrument, head),
-            t_ms: row.t_ms,
-        };
         let mut out = Vec::new();
-        for o in objs {
-            let (id, names, qs) = match o {
-                ObjRef::Cluster(k) => objects::cluster(&self.cfg.objects.clusters[k], &inputs),
+        for &o in objs {
+            let inputs = Inputs {
+                deriver: self,
+                trigger: (instrument, head),
+                t_ms: head.t_ms,
+                suspect: std::cell::RefCell::new(Vec::new()),
+            };
+            let (id, names, mut qs) = match o {
+                ObjRef::Nest(k) => objects::nest(&self.cfg.objects.nests[k], &inputs),
                 ObjRef::Toe(k) => objects::toe(&self.cfg, &self.cfg.objects.toes[k], &inputs),
                 ObjRef::Blanket(k) => objects::blanket(&self.cfg.objects.blankets[k], &inputs),
                 ObjRef::Section(k) => {
                     objects::section(&self.cfg, &self.cfg.objects.sections[k], &inputs)
                 }
             };
+            let suspect = inputs.suspect.into_inner();
+            if !suspect.is_empty() {
+                let note = format!("suspect input {}", suspect.join("; "));
+                for q in qs.iter_mut().filter(|q| q.value.is_some()) {
+                    q.reason = Some(match q.reason.take() {
+                        Some(r) => format!("{note}; {r}"),
+                        None => note.clone(),
+                    });
+                }
+            }
             out.extend(qs.into_iter().map(|q| DerivedRow {
                 object: id.clone(),
                 quantity: q.name,
-                t_ms: row.t_ms,
+                t_ms: head.t_ms,
                 value: q.value,
                 unit: q.unit,
                 reason: q.reason,
@@ -220,6 +270,8 @@ pub(crate) struct Inputs<'a> {
     /// The reading that triggered it (used as is, even if older than the latest).
     trigger: (&'a str, Head),
     t_ms: i64,
+    /// Inputs used that carry a soft flag: "ID: flags", one each.
+    suspect: std::cell::RefCell<Vec<String>>,
 }
 
 impl Inputs<'_> {
@@ -242,7 +294,18 @@ impl Inputs<'_> {
         }
         let bad = Flags(h.flags.0 & excluding_flags(&self.deriver.cfg, id).0);
         if !bad.is_empty() {
-            return Err(format!("input {id} is flagged {}", bad.names().join(",")));
+            return Err(format!(
+                "input {id} is rejected: {} (an isolated excursion, confirmed by the next reading)",
+                bad.names().join(",")
+            ));
+        }
+        let soft = Flags(h.flags.0 & (SUSPECT_FLAGS.0 | EXCLUDING_FLAGS.0));
+        if !soft.is_empty() {
+            let note = format!("{id}: {}", soft.names().join(","));
+            let mut s = self.suspect.borrow_mut();
+            if !s.contains(&note) {
+                s.push(note);
+            }
         }
         Ok(h.head_m)
     }

@@ -3,11 +3,11 @@
 //! unusable every quantity of the object is returned without a value and with the reason.
 
 use crate::config::{
-    BlanketReach, Cluster, Config, CriticalGradientFrom, LandsideCase, Level, RiversideCase,
-    Section, ToeCheck,
+    BlanketReach, Config, CriticalGradientFrom, LandsideCase, Level, Nest, RiversideCase, Section,
+    ToeCheck,
 };
 use crate::domain::blanket::{self, BlanketConfig, Landside, Riverside};
-use crate::domain::gradient::{cluster_gradients, Direction, Tip};
+use crate::domain::gradient::{nest_gradients, Direction, Tip};
 use crate::domain::section::{SectionInput, SectionPiezometer, StationPoint};
 use crate::domain::toe::{
     allowable_blanket_base_head_m, critical_gradient_from_gs_e,
@@ -26,12 +26,12 @@ fn all_none(names: &[(&str, &'static str)], reason: &str) -> Vec<Quantity> {
         .collect()
 }
 
-const CLUSTER_QUANTITIES: [(&str, &str); 2] = [("vertical_gradient", "-"), ("flow_direction", "-")];
+const NEST_QUANTITIES: [(&str, &str); 2] = [("vertical_gradient", "-"), ("flow_direction", "-")];
 
 /// Vertical gradients of nested piezometers: overall (deepest to shallowest), its direction
 /// (+1 upward, 0 none within the deadband, −1 downward), and between adjacent tips when there
 /// are three or more (`vertical_gradient:UPPER/LOWER`).
-pub(super) fn cluster(c: &Cluster, inp: &Inputs<'_>) -> Computed {
+pub(super) fn nest(c: &Nest, inp: &Inputs<'_>) -> Computed {
     let tips: Result<Vec<(String, Tip, f64)>, String> = c
         .piezometers
         .iter()
@@ -55,12 +55,12 @@ pub(super) fn cluster(c: &Cluster, inp: &Inputs<'_>) -> Computed {
         })
         .collect();
     let qs = match tips {
-        Err(reason) => all_none(&CLUSTER_QUANTITIES, &reason),
+        Err(reason) => all_none(&NEST_QUANTITIES, &reason),
         Ok(mut tips) => {
             tips.sort_by(|a, b| a.2.total_cmp(&b.2));
             let plain: Vec<Tip> = tips.iter().map(|t| t.1).collect();
-            match cluster_gradients(&plain, c.deadband) {
-                Err(e) => all_none(&CLUSTER_QUANTITIES, &e.to_string()),
+            match nest_gradients(&plain, c.deadband) {
+                Err(e) => all_none(&NEST_QUANTITIES, &e.to_string()),
                 Ok(g) => {
                     let dir = match g.overall.direction {
                         Direction::Upward => 1.0,
@@ -174,6 +174,22 @@ fn landside(c: LandsideCase) -> Landside {
         LandsideCase::OpenExitAt { l3_m } => Landside::OpenExitAt { l3_m },
         LandsideCase::Impervious { l3_m } => Landside::Impervious { l3_m },
     }
+}
+
+/// The residual-head ratio `h_o/H` blanket theory gives for a reach (independent of `H`).
+pub fn blanket_ratio(b: &BlanketReach) -> Option<f64> {
+    blanket::solve(&BlanketConfig {
+        net_head_m: 1.0,
+        base_width_m: b.base_width_m,
+        foundation_thickness_m: b.foundation_thickness_m,
+        k_foundation_m_s: b.k_foundation_m_s,
+        k_blanket_m_s: b.k_blanket_m_s,
+        blanket_thickness_m: b.blanket_thickness_m,
+        riverside: riverside(b.riverside),
+        landside: landside(b.landside),
+    })
+    .ok()
+    .map(|s| s.residual_head_ratio)
 }
 
 /// Name of the expected excess head at a distance landward of the toe.

@@ -5,7 +5,7 @@ use std::sync::Arc;
 
 use super::*;
 use crate::config::{
-    BlanketReach, Cluster, CriticalGradientFrom, LandsideCase, Objects, RiversideCase, Section,
+    BlanketReach, CriticalGradientFrom, LandsideCase, Nest, Objects, RiversideCase, Section,
     ToeCheck,
 };
 
@@ -39,9 +39,9 @@ fn find<'a>(rows: &'a [DerivedRow], object: &str, quantity: &str) -> &'a Derived
         .unwrap_or_else(|| panic!("no {object}/{quantity} in {rows:?}"))
 }
 
-fn cluster_cfg() -> Arc<Config> {
+fn nest_cfg() -> Arc<Config> {
     config(Objects {
-        clusters: vec![Cluster {
+        nests: vec![Nest {
             id: "N1".into(),
             site: "ash-bend".into(),
             piezometers: vec!["AB-PZ-1A".into(), "AB-PZ-1B".into()],
@@ -53,11 +53,11 @@ fn cluster_cfg() -> Arc<Config> {
 }
 
 #[test]
-fn cluster_gradient_positive_upward() {
+fn nest_gradient_positive_upward() {
     // AB-PZ-1A tip 95.0 m, AB-PZ-1B tip 86.0 m (example config). Heads 101.2 (upper) and
     // 102.7 (lower): i_v = (102.7 − 101.2)/(95.0 − 86.0) = 1/6, upward [practice formula,
     // as in check value #11].
-    let mut d = Deriver::new(cluster_cfg());
+    let mut d = Deriver::new(nest_cfg());
     assert!(d
         .on_reading(&row("AB-PZ-1A", 1000, 101.2, Flags::empty()))
         .iter()
@@ -74,8 +74,8 @@ fn cluster_gradient_positive_upward() {
 }
 
 #[test]
-fn missing_stale_and_flagged_inputs_give_no_value_with_a_reason() {
-    let mut d = Deriver::new(cluster_cfg());
+fn missing_stale_and_rejected_inputs_give_no_value_with_a_reason_suspect_ones_keep_it() {
+    let mut d = Deriver::new(nest_cfg());
     let out = d.on_reading(&row("AB-PZ-1A", 0, 101.0, Flags::empty()));
     let g = find(&out, "N1", "vertical_gradient");
     assert!(
@@ -92,11 +92,25 @@ fn missing_stale_and_flagged_inputs_give_no_value_with_a_reason() {
         g.value.is_none() && g.reason.as_deref().unwrap().contains("stale"),
         "{g:?}"
     );
-    // Fresh but flagged for a missing barometer.
+    // Fresh but suspect (a missing barometer, a stuck sensor): the value is kept, with a note
+    // naming the input — a soft flag never blanks a safety value.
     let out = d.on_reading(&row("AB-PZ-1A", 7300, 101.0, Flags::BARO_MISSING));
     let g = find(&out, "N1", "vertical_gradient");
+    assert!((g.value.unwrap() - 1.0 / 9.0).abs() < 1e-12, "{g:?}");
+    assert_eq!(
+        g.reason.as_deref(),
+        Some("suspect input AB-PZ-1A: baro_missing")
+    );
+    let out = d.on_reading(&row("AB-PZ-1A", 7350, 101.0, Flags::FLATLINE));
+    assert!(find(&out, "N1", "vertical_gradient").value.is_some());
+    // Rejected (a confirmed spike): no value, with the reason; recomputed at its own time.
+    let out = d.reject("AB-PZ-1A", 7_350_000, 101.0, Flags::SPIKE);
+    let g = find(&out, "N1", "vertical_gradient");
+    assert_eq!(g.t_ms, 7_350_000);
     assert!(
-        g.value.is_none() && g.reason.as_deref().unwrap().contains("baro_missing"),
+        g.value.is_none()
+            && crate::derive::is_input_problem(g.reason.as_deref().unwrap())
+            && g.reason.as_deref().unwrap().contains("rejected: spike"),
         "{g:?}"
     );
     // A reading flagged only for its time source is usable.

@@ -1,8 +1,8 @@
-//! Vertical gradient between nested piezometers at one location (a cluster of tips in one
+//! Vertical gradient between nested piezometers at one location (a nest of tips in one
 //! borehole or closely spaced boreholes).
 //!
 //! Owns: `i_v = (h_lower − h_upper)/(z_upper − z_lower)` with tip elevations (positive = upward
-//! flow) [practice], the adjacent and overall gradients of a cluster, and the direction of flow
+//! flow) [practice], the adjacent and overall gradients of a nest, and the direction of flow
 //! with a deadband. Must not: read instruments, store results or decide alert levels.
 
 use thiserror::Error;
@@ -33,7 +33,7 @@ pub enum Direction {
 /// Why a gradient could not be formed.
 #[derive(Debug, Clone, PartialEq, Error)]
 pub enum GradientError {
-    /// A cluster needs at least two tips.
+    /// A nest needs at least two tips.
     #[error("a vertical gradient needs at least 2 tips, got {count}")]
     TooFewTips {
         /// Number of tips supplied.
@@ -68,9 +68,9 @@ pub struct TipPair {
     pub direction: Direction,
 }
 
-/// The gradients of a cluster of nested tips.
+/// The gradients of a nest of piezometer tips.
 #[derive(Debug, Clone, PartialEq)]
-pub struct ClusterGradients {
+pub struct NestGradients {
     /// Gradients between adjacent tips, deepest pair first.
     pub adjacent: Vec<TipPair>,
     /// Gradient from the deepest to the shallowest tip.
@@ -99,13 +99,13 @@ pub fn direction(i: f64, deadband: f64) -> Direction {
     }
 }
 
-/// Adjacent and overall gradients of a cluster of ≥ 2 tips at one location, sorted by tip
+/// Adjacent and overall gradients of a nest of ≥ 2 tips at one location, sorted by tip
 /// elevation. `deadband` (≥ 0) sets when a gradient counts as no flow.
 ///
 /// # Errors
 /// [`GradientError::TooFewTips`], [`GradientError::CoincidentTips`] (any two adjacent tips),
 /// [`GradientError::NonFinite`], [`GradientError::BadDeadband`].
-pub fn cluster_gradients(tips: &[Tip], deadband: f64) -> Result<ClusterGradients, GradientError> {
+pub fn nest_gradients(tips: &[Tip], deadband: f64) -> Result<NestGradients, GradientError> {
     if !deadband.is_finite() || deadband < 0.0 {
         return Err(GradientError::BadDeadband(deadband));
     }
@@ -134,7 +134,7 @@ pub fn cluster_gradients(tips: &[Tip], deadband: f64) -> Result<ClusterGradients
         .map(|w| pair(w[0], w[1]))
         .collect::<Result<Vec<_>, _>>()?;
     let overall = pair(sorted[0], sorted[sorted.len() - 1])?;
-    Ok(ClusterGradients { adjacent, overall })
+    Ok(NestGradients { adjacent, overall })
 }
 
 /// The two tips as (upper, lower), checked.

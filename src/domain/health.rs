@@ -7,16 +7,22 @@
 //! the caller (`now` included); no clock, no I/O. Deciding what a flag leads to (alert,
 //! exclusion from a rule) belongs to the rules.
 //!
-//! Spike: the Hampel identifier [practice]. Over the trailing `window` readings before the new
-//! one, take the median and the median absolute deviation (MAD); σ̂ = 1.4826·MAD, the factor
-//! that makes the MAD a consistent estimate of the standard deviation for normal data. The new
-//! reading is a spike when `|x − median| > max(k·σ̂, floor)`. The absolute `floor` (in the
-//! value's unit) keeps quantised or very steady series, whose MAD is 0 or tiny, from flagging
-//! every last-digit change. The window trails the new reading, so on a steadily moving series
-//! the new reading sits about `rate × window/2` from the median: set the floor above that
-//! natural change (e.g. 5 cm for hourly heads moving up to a few cm a day over 24 readings).
-//! Spikes stay in the window: the median and MAD resist a few of
-//! them, and a genuine step in head stops being flagged once it fills half the window.
+//! Spike: an isolated excursion that does not persist [practice]. Each new head is compared
+//! with the trend of the readings before it: the median rate of change over the trailing
+//! `window` readings (so a river rising 0.25 m/h predicts the next reading 0.25 m higher), with
+//! a robust spread σ̂ = 1.4826·MAD of those rates scaled to the time step. A head further than
+//! `max(k·σ̂·Δt, floor)` from the prediction is only a *candidate*. The **next** reading decides:
+//! the candidate is a spike when it stands off the straight line between its two neighbours by
+//! more than that threshold *and* by more than the neighbours differ from each other, and the
+//! next reading is nearer the one before than the candidate was — the excursion went out and
+//! came back. A rise that persists (a flood shared by the river and every
+//! piezometer that follows it, a step after a repair, the turn at a crest) is never a spike.
+//! The delay is one reading: the verdict on reading n comes with reading n + 1. A confirmed
+//! spike leaves the window so it cannot bend the trend.
+//!
+//! Flatline: a stuck sensor. The last `count` **raw** values, as the logger sent them, span no
+//! more than `tolerance` (the raw value's unit; 0 = identical). A steady head read by a working
+//! sensor still moves in its last digits, so a steady pool is not a flatline.
 
 use std::collections::VecDeque;
 
@@ -34,9 +40,9 @@ pub struct HealthFlags(pub u8);
 impl HealthFlags {
     /// Value NaN, infinite, or outside the physical range.
     pub const OUT_OF_RANGE: HealthFlags = HealthFlags(1);
-    /// Value far from the trailing median (Hampel identifier).
+    /// An isolated excursion from the trend, confirmed by the next reading.
     pub const SPIKE: HealthFlags = HealthFlags(1 << 1);
-    /// The last `count` readings are identical within the tolerance.
+    /// The last `count` raw values are identical within the tolerance (a stuck sensor).
     pub const FLATLINE: HealthFlags = HealthFlags(1 << 2);
     /// No reading for longer than the allowed multiple of the interval (set by `no_data`).
     pub const NO_DATA: HealthFlags = HealthFlags(1 << 3);
@@ -77,20 +83,22 @@ impl HealthFlags {
 /// Spike check settings.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SpikeConfig {
-    /// Trailing readings the median and MAD are taken over; no spike check until full.
+    /// Trailing readings the trend (median rate) and its spread are taken over; no spike check
+    /// until half of them (at least 3) are there.
     pub window: usize,
-    /// Multiple of σ̂ = 1.4826·MAD beyond which a reading is a spike (3 is customary).
+    /// Multiple of σ̂ = 1.4826·MAD of the rates (times the time step) beyond which a reading
+    /// departs from the trend.
     pub k: f64,
-    /// Smallest deviation from the median that can count as a spike, in the value's unit.
+    /// Smallest departure from the trend that can count as a spike, in the value's unit.
     pub floor: f64,
 }
 
 /// Flatline check settings.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FlatlineConfig {
-    /// Consecutive readings (including the new one) that must be identical.
+    /// Consecutive readings (including the new one) whose raw values must be identical.
     pub count: usize,
-    /// Largest max − min over those readings that still counts as identical.
+    /// Largest max − min of those raw values that still counts as identical (raw unit).
     pub tolerance: f64,
 }
 
@@ -197,23 +205,6 @@ fn median_mad(values: impl Iterator<Item = f64>, scratch: &mut Vec<f64>) -> Opti
     Some((med, median_in_place(scratch)?))
 }
 
-/// Hampel spike test of `x` against the trailing readings `history` (see the module header).
-/// False when `history` is empty.
-pub fn is_spike(history: &[f64], x: f64, k: f64, floor: f64) -> bool {
-    spike_with(history.iter().copied(), x, k, floor, &mut Vec::new())
-}
-
-fn spike_with(
-    history: impl Iterator<Item = f64>,
-    x: f64,
-    k: f64,
-    floor: f64,
-    scratch: &mut Vec<f64>,
-) -> bool {
-    median_mad(history, scratch)
-        .is_some_and(|(med, mad)| (x - med).abs() > (k * MAD_TO_SIGMA * mad).max(floor))
-}
-
 /// True when `recent` holds at least `count` readings and the last `count` of them span no
 /// more than `tolerance` (max − min).
 pub fn is_flatline(recent: &[f64], count: usize, tolerance: f64) -> bool {
@@ -270,16 +261,40 @@ pub fn thermistor_anomaly(temp_c: f64, previous_c: Option<f64>, cfg: &Thermistor
     implausible || jumped
 }
 
-/// The health state of one instrument: a bounded window of recent in-range values.
+/// A reading that left the trend, waiting for the next reading's verdict.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Candidate {
+    t_ms: i64,
+    head: f64,
+    /// The threshold it crossed.
+    threshold: f64,
+    /// The reading before it.
+    base: (i64, f64),
+}
+
+/// What one new reading tells about the sensor.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Verdict {
+    /// Flags of this reading (out of range, flatline, thermistor).
+    pub flags: HealthFlags,
+    /// The previous reading, at this time, is now confirmed an isolated spike.
+    pub spike_at: Option<i64>,
+}
+
+/// The health state of one instrument: a bounded window of recent in-range heads and raw values.
 ///
 /// Readings are expected once each (not redeliveries) and in time order; a late reading is
 /// checked against the current window and does not move the time of the last reading back.
-/// Cost per update: O(window) (a copy and two selections for the median and MAD).
+/// Cost per update: O(window) (a copy and two selections for the median and MAD of the rates).
 #[derive(Debug, Clone)]
 pub struct HealthTracker {
     config: HealthConfig,
-    /// The last `max(spike.window, flatline.count − 1)` in-range values, oldest first.
-    recent: VecDeque<f64>,
+    /// The last `spike.window` in-range (time, head), oldest first (confirmed spikes removed).
+    recent: VecDeque<(i64, f64)>,
+    /// The last `flatline.count − 1` raw values, oldest first.
+    raws: VecDeque<f64>,
+    /// The newest reading, if it left the trend: judged by the next one.
+    candidate: Option<Candidate>,
     /// Working space for the median, kept to avoid an allocation per reading.
     scratch: Vec<f64>,
     /// Time of the newest reading seen, for the no-data check.
@@ -297,11 +312,12 @@ impl HealthTracker {
     /// Every problem with `config`.
     pub fn new(config: HealthConfig, watch_start_ms: i64) -> Result<Self, Vec<HealthError>> {
         config.validate()?;
-        let cap = config.spike.window.max(config.flatline.count - 1);
         Ok(HealthTracker {
             config,
-            recent: VecDeque::with_capacity(cap + 1),
-            scratch: Vec::with_capacity(cap),
+            recent: VecDeque::with_capacity(config.spike.window + 1),
+            raws: VecDeque::with_capacity(config.flatline.count),
+            candidate: None,
+            scratch: Vec::with_capacity(config.spike.window),
             last_ms: None,
             last_temp_c: None,
             watch_start_ms,
@@ -313,38 +329,93 @@ impl HealthTracker {
         self.last_ms
     }
 
-    /// Check a new reading (value, and thermistor temperature if the sensor has one) and take
-    /// it into the window. Never sets `NO_DATA`; see [`HealthTracker::no_data`].
-    pub fn update(&mut self, t_ms: i64, value: f64, temperature_c: Option<f64>) -> HealthFlags {
+    /// Readings needed in the window before heads are judged against the trend.
+    fn min_history(&self) -> usize {
+        (self.config.spike.window / 2).max(3)
+    }
+
+    /// The candidate a head at `t_ms` would be: its departure from the trend of the window.
+    fn departure(&mut self, t_ms: i64, value: f64) -> Option<Candidate> {
+        if self.recent.len() < self.min_history() {
+            return None;
+        }
+        let &(bt, bh) = self.recent.back()?;
+        let dt = t_ms - bt;
+        if dt <= 0 {
+            return None;
+        }
+        let rates = self
+            .recent
+            .iter()
+            .zip(self.recent.iter().skip(1))
+            .filter(|(a, b)| b.0 > a.0)
+            .map(|(a, b)| (b.1 - a.1) / (b.0 - a.0) as f64);
+        let (rate, mad) = median_mad(rates, &mut self.scratch)?;
+        let s = self.config.spike;
+        let threshold = (s.k * MAD_TO_SIGMA * mad * dt as f64).max(s.floor);
+        let excursion = value - (bh + rate * dt as f64);
+        (excursion.abs() > threshold).then_some(Candidate {
+            t_ms,
+            head: value,
+            threshold,
+            base: (bt, bh),
+        })
+    }
+
+    /// Check a new reading — its head (`value`), the raw value the logger sent, and the
+    /// thermistor temperature if the sensor has one — and take it into the window. Never sets
+    /// `NO_DATA`; see [`HealthTracker::no_data`].
+    pub fn update(
+        &mut self,
+        t_ms: i64,
+        value: f64,
+        raw: f64,
+        temperature_c: Option<f64>,
+    ) -> Verdict {
         let c = self.config;
-        let mut flags = HealthFlags::empty();
+        let mut v = Verdict::default();
         self.last_ms = Some(self.last_ms.map_or(t_ms, |l| l.max(t_ms)));
         if let (Some(cfg), Some(temp)) = (c.thermistor, temperature_c) {
             if thermistor_anomaly(temp, self.last_temp_c, &cfg) {
-                flags.insert(HealthFlags::THERMISTOR);
+                v.flags.insert(HealthFlags::THERMISTOR);
             }
-            self.last_temp_c = Some(temp);
+            // An implausible temperature is no reference for the next jump check.
+            if (cfg.min_c..=cfg.max_c).contains(&temp) {
+                self.last_temp_c = Some(temp);
+            }
         }
         if out_of_range(value, c.range) {
-            flags.insert(HealthFlags::OUT_OF_RANGE);
-            return flags;
+            v.flags.insert(HealthFlags::OUT_OF_RANGE);
+            return v;
         }
-        let w = c.spike.window;
-        if self.recent.len() >= w {
-            let history = self.recent.iter().rev().take(w).copied();
-            if spike_with(history, value, c.spike.k, c.spike.floor, &mut self.scratch) {
-                flags.insert(HealthFlags::SPIKE);
+        // The verdict on the previous reading: off the line between its neighbours by more than
+        // the threshold and more than they differ — it went out and came back: a spike.
+        if let Some(p) = self.candidate.take().filter(|p| t_ms > p.t_ms) {
+            let (bt, bh) = p.base;
+            let along = (p.t_ms - bt) as f64 / (t_ms - bt) as f64;
+            let off_line = p.head - (bh + (value - bh) * along);
+            let came_back = (value - bh).abs() < (p.head - bh).abs();
+            if came_back && off_line.abs() > p.threshold.max((value - bh).abs()) {
+                v.spike_at = Some(p.t_ms);
+                if self.recent.back().is_some_and(|r| r.0 == p.t_ms) {
+                    self.recent.pop_back();
+                }
             }
         }
-        let newest_first = std::iter::once(value).chain(self.recent.iter().rev().copied());
+        self.candidate = self.departure(t_ms, value);
+        let newest_first = std::iter::once(raw).chain(self.raws.iter().rev().copied());
         if flat_with(newest_first, c.flatline.count, c.flatline.tolerance) {
-            flags.insert(HealthFlags::FLATLINE);
+            v.flags.insert(HealthFlags::FLATLINE);
         }
-        self.recent.push_back(value);
-        while self.recent.len() > w.max(c.flatline.count - 1) {
+        self.recent.push_back((t_ms, value));
+        while self.recent.len() > c.spike.window {
             self.recent.pop_front();
         }
-        flags
+        self.raws.push_back(raw);
+        while self.raws.len() > c.flatline.count.saturating_sub(1) {
+            self.raws.pop_front();
+        }
+        v
     }
 
     /// True when no reading has arrived for more than `no_data_factor` intervals at `now_ms`

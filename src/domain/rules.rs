@@ -7,9 +7,18 @@
 //! list). It does no I/O and never reads the clock: time comes in as `now_ms` and with each
 //! observation. Who is told, and how, is decided elsewhere (`alerts`, `notify`).
 //!
-//! Clock: persistence durations and keep-active times are measured in observation time when an
-//! observation arrives and in `now_ms` on a tick (a step without observation). Observations
-//! older than (or as old as) the newest one already applied are ignored.
+//! Clock: persistence durations and keep-active times are measured in observation time: on a
+//! tick (a step without observation) as the newest observation's time plus the evaluation time
+//! passed since it was applied. Observations
+//! older than (or as old as) the newest one already applied are ignored. The notice timers
+//! (escalation to the second list, reminders) run on `now_ms` only — the evaluation clock: wall
+//! time live, reading time in replay — so an old reading arriving late can never make a timer
+//! look expired at the moment of the raise. A no-data rule counts silence from the evaluation
+//! time at which the instrument was last heard from, not from the reading's own time stamp.
+//!
+//! Acknowledgement holds for its level: it stops reminders and escalation while the alert stays
+//! at that level or moves to a less severe one; a move to a more severe level re-arms both, and
+//! the escalation timer starts again from the moment that level was reached.
 
 use serde::{Deserialize, Serialize};
 
@@ -78,6 +87,9 @@ pub enum Check {
     /// Silence: the value evaluated is the age (s) of the newest observation, against the one
     /// level's bound (k × the instrument's interval), direction above.
     NoData,
+    /// A safety value without a value: as `NoData`, the age (s) of the newest observation that
+    /// had a value (or a value that does not apply), against the one level's bound.
+    Unavailable,
 }
 
 /// A rule's evaluation settings.
@@ -87,7 +99,7 @@ pub struct Spec {
     /// Levels in order of severity; bounds strictly monotonic in the dangerous direction.
     pub levels: Vec<LevelSpec>,
     /// Reminder interval while active and unacknowledged (ms); `None`: no reminders.
-    pub repeat_ms: Option<i64>,
+    pub remind_every_ms: Option<i64>,
     /// Notify the escalation list when not acknowledged this long after raising (ms).
     pub escalate_after_ms: Option<i64>,
 }
@@ -113,17 +125,30 @@ pub enum Phase {
     Clearing { level: usize, since_ms: i64 },
 }
 
-/// The raised alert's notice bookkeeping.
+/// The raised alert's notice bookkeeping (times on the evaluation clock).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct AlertState {
     /// The alert's id (allocated by the caller after a raise; 0 until then).
     pub id: i64,
     pub raised_ms: i64,
+    /// When the current level was reached (the escalation timer runs from here); 0 in states
+    /// stored by older versions (read as `raised_ms`).
+    #[serde(default)]
+    pub level_since_ms: i64,
     /// Last raise/escalate/de-escalate/reminder notice (reminders count from here).
     pub last_notice_ms: i64,
+    /// Acknowledged for the current level (see `acked_level`).
     pub acked: bool,
-    /// The escalation list has been told.
+    /// The level the acknowledgement was given at: it holds for that level and below.
+    #[serde(default)]
+    pub acked_level: Option<usize>,
+    /// The escalation lists have been told (at some level): from then on they receive this
+    /// alert's notices too.
     pub escalated: bool,
+    /// The most severe level the escalation lists were told about (`None`: not yet, or a
+    /// state from an older version — read from `escalated`).
+    #[serde(default)]
+    pub told_level: Option<usize>,
 }
 
 /// Everything a rule remembers between steps (persisted as JSON by the caller).
@@ -134,6 +159,11 @@ pub struct State {
     pub runs: Vec<Option<Run>>,
     /// Newest observation applied (time, value).
     pub last: Option<(i64, f64)>,
+    /// Evaluation time at which `last` was applied: on a tick, persistence and keep-active run
+    /// on from the reading's time by the evaluation time passed since (so readings stamped long
+    /// ago, a catch-up, do not cut a keep-active short). `None` in older states: `now` is used.
+    #[serde(default)]
+    pub applied_ms: Option<i64>,
     /// No-data rules: newest observation time, or when watching started.
     pub seen_ms: Option<i64>,
     pub alert: Option<AlertState>,
@@ -224,39 +254,43 @@ pub fn step(spec: &Spec, state: &State, obs: Option<Obs>, now_ms: i64) -> (State
             {
                 if v.is_finite() && s.last.is_none_or(|(t, _)| t_ms > t) {
                     apply_value(spec, &mut s, t_ms, v);
-                    settle(spec, &mut s, t_ms, &mut actions);
+                    s.applied_ms = Some(now_ms);
+                    settle(spec, &mut s, t_ms, now_ms, &mut actions);
                 }
             }
-            if s.last.is_some() {
-                settle(spec, &mut s, now_ms, &mut actions);
+            if let Some((t_last, _)) = s.last {
+                let t = s
+                    .applied_ms
+                    .map_or(now_ms, |a| t_last + (now_ms - a).max(0));
+                settle(spec, &mut s, t, now_ms, &mut actions);
             }
         }
-        Check::NoData => {
-            if let Some(Obs {
-                t_ms,
-                value: Some(_),
-            }) = obs
-            {
-                s.seen_ms = Some(s.seen_ms.map_or(t_ms, |seen| seen.max(t_ms)));
+        Check::NoData | Check::Unavailable => {
+            // Heard from at the evaluation time: a reading stamped long ago but arriving now
+            // (a logger catching up, a demo starting in the past) ends the silence.
+            if let Some(Obs { value: Some(_), .. }) = obs {
+                s.seen_ms = Some(s.seen_ms.map_or(now_ms, |seen| seen.max(now_ms)));
             }
             let seen = *s.seen_ms.get_or_insert(now_ms);
             let age_s = (now_ms - seen).max(0) as f64 / 1000.0;
             // Each evaluation is a fresh look at the silence; no run to build up.
             s.runs.iter_mut().for_each(|r| *r = None);
             apply_value(spec, &mut s, now_ms, age_s);
-            settle(spec, &mut s, now_ms, &mut actions);
+            settle(spec, &mut s, now_ms, now_ms, &mut actions);
         }
     }
     notice_timers(spec, &mut s, now_ms, &mut actions);
     (s, actions)
 }
 
-/// Record an acknowledgement of the current alert: no more reminders or escalation notices
-/// (until the alert moves to a more severe level).
+/// Record an acknowledgement of the current alert at its current level: no more reminders or
+/// escalation notices while it stays at that level or below.
 pub fn acknowledge(state: &State) -> State {
     let mut s = state.clone();
+    let level = s.active_level();
     if let Some(a) = s.alert.as_mut() {
         a.acked = true;
+        a.acked_level = level.max(a.acked_level);
     }
     s
 }
@@ -290,8 +324,9 @@ fn confirmed(spec: &Spec, s: &State, t_ms: i64) -> Option<usize> {
     })
 }
 
-/// Move between phases given the runs and the newest value, at time `t_ms`.
-fn settle(spec: &Spec, s: &mut State, t_ms: i64, actions: &mut Vec<Action>) {
+/// Move between phases given the runs and the newest value, at time `t_ms` (observation time,
+/// for persistence and keep-active); notice timers start at `now_ms` (evaluation clock).
+fn settle(spec: &Spec, s: &mut State, t_ms: i64, now_ms: i64, actions: &mut Vec<Action>) {
     let Some((_, v)) = s.last else { return };
     let confirmed = confirmed(spec, s, t_ms);
     match s.phase {
@@ -300,10 +335,13 @@ fn settle(spec: &Spec, s: &mut State, t_ms: i64, actions: &mut Vec<Action>) {
                 s.phase = Phase::Active { level };
                 s.alert = Some(AlertState {
                     id: 0,
-                    raised_ms: t_ms,
-                    last_notice_ms: t_ms,
+                    raised_ms: now_ms,
+                    level_since_ms: now_ms,
+                    last_notice_ms: now_ms,
                     acked: false,
+                    acked_level: None,
                     escalated: false,
+                    told_level: None,
                 });
                 actions.push(Action::Raise { level });
             } else if let Some(level) = (0..spec.levels.len()).rev().find(|&i| s.runs[i].is_some())
@@ -318,8 +356,10 @@ fn settle(spec: &Spec, s: &mut State, t_ms: i64, actions: &mut Vec<Action>) {
             if let Some(to) = confirmed.filter(|&c| c > a) {
                 s.phase = Phase::Active { level: to };
                 if let Some(al) = s.alert.as_mut() {
-                    al.acked = false;
-                    al.last_notice_ms = t_ms;
+                    // A more severe level re-arms reminders and escalation, from now.
+                    al.acked = al.acked_level.is_some_and(|l| l >= to);
+                    al.level_since_ms = now_ms;
+                    al.last_notice_ms = now_ms;
                 }
                 actions.push(Action::Escalate { from: a, to });
                 return;
@@ -340,7 +380,7 @@ fn settle(spec: &Spec, s: &mut State, t_ms: i64, actions: &mut Vec<Action>) {
                 Some(to) => {
                     s.phase = Phase::Active { level: to };
                     if let Some(al) = s.alert.as_mut() {
-                        al.last_notice_ms = t_ms;
+                        al.last_notice_ms = now_ms;
                     }
                     actions.push(Action::DeEscalate { from: a, to });
                 }
@@ -364,12 +404,19 @@ fn notice_timers(spec: &Spec, s: &mut State, now_ms: i64, actions: &mut Vec<Acti
         return;
     }
     if let Some(after) = spec.escalate_after_ms {
-        if !al.escalated && now_ms - al.raised_ms >= after {
+        let since = if al.level_since_ms == 0 {
+            al.raised_ms
+        } else {
+            al.level_since_ms
+        };
+        let told = al.told_level.or(al.escalated.then_some(level));
+        if told.is_none_or(|t| t < level) && now_ms - since >= after {
             al.escalated = true;
+            al.told_level = Some(level);
             actions.push(Action::NotifyEscalation { level });
         }
     }
-    if let Some(repeat) = spec.repeat_ms.filter(|r| *r > 0) {
+    if let Some(repeat) = spec.remind_every_ms.filter(|r| *r > 0) {
         let due = now_ms - al.last_notice_ms;
         if due >= repeat {
             // One reminder, however many intervals were missed (e.g. while stopped).

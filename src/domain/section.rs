@@ -12,7 +12,7 @@
 
 use thiserror::Error;
 
-/// Piezometers closer than this in station are treated as one nested cluster.
+/// Piezometers closer than this in station are treated as one nest.
 pub const SAME_STATION_M: f64 = 1e-3;
 
 /// A point of a polyline in the section plane.

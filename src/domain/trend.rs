@@ -220,6 +220,14 @@ impl RateWindow {
         Ok(())
     }
 
+    /// Remove the point at `t_ms` (a reading rejected after it was taken). True if it was held.
+    pub fn remove(&mut self, t_ms: i64) -> bool {
+        match self.points.binary_search_by_key(&t_ms, |p| p.0) {
+            Ok(i) => self.points.remove(i).is_some(),
+            Err(_) => false,
+        }
+    }
+
     /// Drop the points older than `span_ms` before `now_ms`, e.g. when no reading has come in
     /// for a while. Returns how many were dropped.
     pub fn evict(&mut self, now_ms: i64) -> usize {

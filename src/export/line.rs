@@ -34,9 +34,9 @@ impl ObjectTags {
         let o = &cfg.objects;
         let mut map = HashMap::new();
         let all = [
-            o.clusters
+            o.nests
                 .iter()
-                .map(|c| (&c.id, &c.site, "cluster"))
+                .map(|c| (&c.id, &c.site, "nest"))
                 .collect::<Vec<_>>(),
             o.toes
                 .iter()

@@ -155,6 +155,10 @@ impl Writer {
             if self.flow.stop.load(Ordering::Acquire) {
                 break;
             }
+            // A configuration reloaded by SIGHUP is swapped in between batches.
+            if let Some(new) = self.alerts.take_reload() {
+                crate::reload::apply(new, &mut self.store, &mut self.engine, &mut self.alerts);
+            }
             // Held acknowledgements are retried soon; otherwise wake for the rule timers.
             let wait = if acks.is_empty() {
                 TICK
@@ -213,24 +217,25 @@ impl Writer {
                 arrival: a.arrival,
                 redelivered: a.publish.dup,
             };
-            let o = self.engine.process(&msg);
-            out.readings.extend(o.readings);
-            out.derived.extend(o.derived);
-            out.quarantined.extend(o.quarantined);
+            out.append(self.engine.process(&msg));
         }
         let aw = self.alerts.evaluate_outcome(&out);
         let Outcome {
             readings,
             derived,
             quarantined,
+            flag_updates,
         } = out;
         self.alerts.before_commit(&aw);
         let mut wait = Duration::from_millis(100);
         let stats = loop {
-            match self
-                .store
-                .write_batch_with(&readings, &derived, &quarantined, &aw)
-            {
+            match self.store.write_batch_flagged(
+                &readings,
+                &derived,
+                &quarantined,
+                &flag_updates,
+                &aw,
+            ) {
                 Ok(s) => break s,
                 Err(e) => {
                     tracing::error!(error = %e, messages = batch.len(), "Commit failed; retrying (nothing acknowledged)");

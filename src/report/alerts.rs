@@ -1,4 +1,5 @@
-//! The report's alerts table: alerts raised, resolved and acknowledged in the period, and
+//! The report's alerts table: every alert event of the period (raised, escalated, de-escalated,
+//! acknowledged, silenced, reminded, resolved, closed) with its own level and value, and
 //! silences created or in force in it, for one site, as text rows ordered by time.
 //!
 //! Reads the alerting tables only; never changes them.
@@ -31,54 +32,52 @@ pub fn rows(
     tz: Tz,
 ) -> rusqlite::Result<Vec<[String; 5]>> {
     let mut out: Vec<Row> = Vec::new();
+    // Every step of every alert of the site in the period, in the order it happened, with
+    // the level and value of that step (not of the alert's latest state).
     let mut st = conn.prepare(
-        "SELECT id, rule, object, quantity, level, raised_ms, value, unit, resolved_ms
-         FROM alerts WHERE site = ?1
-           AND ((raised_ms >= ?2 AND raised_ms < ?3) OR (resolved_ms >= ?2 AND resolved_ms < ?3))",
+        "SELECT e.alert, e.rule, e.site, e.kind, e.level, e.value, e.unit, e.t_ms,
+                e.recorded_ms, e.detail, coalesce(a.object, ''), coalesce(a.quantity, '')
+         FROM alert_events e LEFT JOIN alerts a ON a.id = e.alert
+         WHERE e.site = ?1 AND e.t_ms >= ?2 AND e.t_ms < ?3 AND e.kind != 'acknowledged'
+         ORDER BY e.t_ms, e.id",
     )?;
-    let alerts = st.query_map(params![site, from_ms, to_ms], |r| {
+    let events = st.query_map(params![site, from_ms, to_ms], |r| {
         Ok((
-            r.get::<_, i64>(0)?,
-            r.get::<_, String>(1)?,
-            r.get::<_, String>(2)?,
-            r.get::<_, String>(3)?,
-            r.get::<_, String>(4)?,
-            r.get::<_, i64>(5)?,
-            r.get::<_, Option<f64>>(6)?,
-            r.get::<_, String>(7)?,
-            r.get::<_, Option<i64>>(8)?,
+            crate::store::alerts::event_row(r)?,
+            r.get::<_, String>(10)?,
+            r.get::<_, String>(11)?,
         ))
     })?;
-    for a in alerts {
-        let (id, rule, object, quantity, level, raised, v, unit, resolved) = a?;
-        let what = format!("{object} / {rule}");
-        if (from_ms..to_ms).contains(&raised) {
-            out.push((
-                raised,
-                [
-                    local(raised, tz),
-                    "raised".into(),
-                    what.clone(),
-                    level.clone(),
-                    format!("alert #{id}: {quantity} {}", value(v, &unit)),
-                ],
-            ));
-        }
-        if let Some(t) = resolved.filter(|t| (from_ms..to_ms).contains(t)) {
-            out.push((
-                t,
-                [
-                    local(t, tz),
-                    "resolved".into(),
-                    what,
-                    level,
-                    format!("alert #{id}"),
-                ],
-            ));
-        }
+    for e in events {
+        let (e, object, quantity) = e?;
+        let detail = if e.detail.is_empty() {
+            format!("alert #{}: {quantity} {}", e.alert, value(e.value, &e.unit))
+        } else {
+            format!(
+                "alert #{}: {quantity} {}; {}",
+                e.alert,
+                value(e.value, &e.unit),
+                e.detail
+            )
+        };
+        out.push((
+            e.t_ms,
+            [
+                local(e.t_ms, tz),
+                e.kind.replace('_', " "),
+                format!("{object} / {}", e.rule),
+                e.level,
+                detail,
+            ],
+        ));
     }
+    // Acknowledgements from the operators' own record (also those the service has not applied
+    // yet), at the level the alert had when it was acknowledged.
     let mut st = conn.prepare(
-        "SELECT k.t_ms, k.who, k.note, a.id, a.rule, a.object, a.level
+        "SELECT k.t_ms, k.who, k.note, a.id, a.rule, a.object,
+                coalesce((SELECT e.level FROM alert_events e
+                          WHERE e.alert = a.id AND e.t_ms <= k.t_ms AND e.kind != 'acknowledged'
+                          ORDER BY e.t_ms DESC, e.id DESC LIMIT 1), a.level)
          FROM acks k JOIN alerts a ON a.id = k.alert
          WHERE a.site = ?1 AND k.t_ms >= ?2 AND k.t_ms < ?3",
     )?;

@@ -68,7 +68,7 @@ fn row(s: &mut String, i: &InstrumentStats) {
 pub const DERIVED_HEADER: &str =
     "object,quantity,unit,latest_time,latest,min_time,min,max_time,max";
 
-/// `derived.csv`: toe checks, sections and cluster gradients.
+/// `derived.csv`: toe checks, sections and nest gradients.
 pub fn derived(d: &ReportData) -> String {
     let mut s = String::from(DERIVED_HEADER);
     s.push('\n');

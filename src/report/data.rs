@@ -81,7 +81,7 @@ pub struct ReportData {
     pub toes: Vec<DerivedStats>,
     /// Section quantities (exit elevation, seepage-face height) per section.
     pub sections: Vec<DerivedStats>,
-    /// Cluster gradients.
+    /// Nest gradients.
     pub gradients: Vec<DerivedStats>,
     /// Quarantine in the period (whole service): reason → count.
     pub quarantine: Vec<(String, i64)>,
@@ -263,7 +263,7 @@ pub fn gather(
             data.sections.push(derived_stats(conn, &sec.id, q, f, t)?);
         }
     }
-    for c in o.clusters.iter().filter(|x| x.site == site) {
+    for c in o.nests.iter().filter(|x| x.site == site) {
         data.gradients
             .push(derived_stats(conn, &c.id, "vertical_gradient", f, t)?);
     }

@@ -38,7 +38,7 @@ struct Group {
     stage: Option<String>,
 }
 
-/// Plot groups of a site: each cluster, each section, then the remaining piezometers.
+/// Plot groups of a site: each nest, each section, then the remaining piezometers.
 fn groups(cfg: &Config, site: &str) -> Vec<Group> {
     let o = &cfg.objects;
     let site_stage = cfg
@@ -47,7 +47,7 @@ fn groups(cfg: &Config, site: &str) -> Vec<Group> {
         .find(|i| i.site == site && matches!(i.kind, Kind::StageGauge(_)))
         .map(|i| i.id.clone());
     let mut out = Vec::new();
-    for c in o.clusters.iter().filter(|c| c.site == site) {
+    for c in o.nests.iter().filter(|c| c.site == site) {
         let stage = o
             .blankets
             .iter()
@@ -55,7 +55,7 @@ fn groups(cfg: &Config, site: &str) -> Vec<Group> {
             .map(|b| b.river_gauge.clone())
             .or_else(|| site_stage.clone());
         out.push(Group {
-            title: format!("Cluster {}", c.id),
+            title: format!("Nest {}", c.id),
             piezometers: c.piezometers.clone(),
             stage,
         });

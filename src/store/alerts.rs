@@ -39,7 +39,7 @@ pub struct NoticeRow {
     pub t_ms: i64,
     pub created_ms: i64,
     pub recipients: Vec<String>,
-    /// `waiting` (group wait), `queued` (in an outbox message), `silenced`, `no_recipients`.
+    /// `waiting` (bundle window), `queued` (in an outbox message), `silenced`, `no_recipients`.
     pub status: String,
     pub outbox: Option<i64>,
 }
@@ -76,6 +76,39 @@ pub struct SilenceRow {
     pub until_ms: i64,
     pub reason: String,
     pub who: String,
+    /// Also silences the most severe level of a rule (`--all-levels`).
+    pub all_levels: bool,
+}
+
+/// An open alert whose rule is no longer configured.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OrphanAlert {
+    pub id: i64,
+    pub rule: String,
+    pub site: String,
+    pub level: String,
+    pub unit: String,
+}
+
+/// One step in an alert's history.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EventRow {
+    pub alert: i64,
+    pub rule: String,
+    pub site: String,
+    /// `raised`, `escalated`, `de_escalated`, `reminded`, `escalation_notified`,
+    /// `acknowledged`, `silenced`, `resolved`, `closed`.
+    pub kind: String,
+    /// The level after the event (the level cleared, for `resolved` and `closed`).
+    pub level: String,
+    pub value: Option<f64>,
+    pub unit: String,
+    /// Time of the value that caused it (or of the evaluation).
+    pub t_ms: i64,
+    /// Evaluation time it was recorded at.
+    pub recorded_ms: i64,
+    /// Who, why, what was silenced or closed.
+    pub detail: String,
 }
 
 /// Everything one evaluation decided, written in one transaction.
@@ -94,6 +127,10 @@ pub struct AlertWrites {
     pub messages: Vec<OutboxRow>,
     /// Acknowledgements now applied to their rule state.
     pub acks_applied: Vec<i64>,
+    /// The alerts' history.
+    pub events: Vec<EventRow>,
+    /// Rules gone from the configuration: their stored state is deleted.
+    pub removed_rules: Vec<String>,
     /// Time of the evaluation (rule state `updated_ms`, ack `applied_ms`).
     pub now_ms: i64,
 }
@@ -109,6 +146,8 @@ impl AlertWrites {
             && self.composed.is_empty()
             && self.messages.is_empty()
             && self.acks_applied.is_empty()
+            && self.events.is_empty()
+            && self.removed_rules.is_empty()
     }
 
     /// Append another evaluation's writes (replay batches several).
@@ -121,6 +160,8 @@ impl AlertWrites {
         self.composed.extend(o.composed);
         self.messages.extend(o.messages);
         self.acks_applied.extend(o.acks_applied);
+        self.events.extend(o.events);
+        self.removed_rules.extend(o.removed_rules);
         self.now_ms = self.now_ms.max(o.now_ms);
     }
 }
@@ -210,6 +251,29 @@ pub(super) fn write(tx: &Transaction<'_>, w: &AlertWrites) -> Result<(), StoreEr
     for id in &w.acks_applied {
         st.execute(params![id, w.now_ms])?;
     }
+    let mut st = tx.prepare_cached(
+        "INSERT INTO alert_events (alert, rule, site, kind, level, value, unit, t_ms,
+            recorded_ms, detail)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
+    )?;
+    for e in &w.events {
+        st.execute(params![
+            e.alert,
+            e.rule,
+            e.site,
+            e.kind,
+            e.level,
+            e.value,
+            e.unit,
+            e.t_ms,
+            e.recorded_ms,
+            e.detail
+        ])?;
+    }
+    let mut st = tx.prepare_cached("DELETE FROM rule_states WHERE rule = ?1")?;
+    for r in &w.removed_rules {
+        st.execute([r])?;
+    }
     Ok(())
 }
 
@@ -242,7 +306,7 @@ impl Store {
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
-    /// Notices still waiting out their group wait, oldest first.
+    /// Notices still waiting out their bundle window, oldest first.
     ///
     /// # Errors
     /// SQLite errors.
@@ -311,8 +375,8 @@ impl Store {
     /// SQLite errors.
     pub fn active_silences(&self, now_ms: i64) -> Result<Vec<SilenceRow>, StoreError> {
         let mut st = self.conn.prepare_cached(
-            "SELECT id, rule, object, until_ms, reason, who FROM silences WHERE until_ms > ?1
-             ORDER BY id",
+            "SELECT id, rule, object, until_ms, reason, who, all_levels FROM silences
+             WHERE until_ms > ?1 ORDER BY id",
         )?;
         let rows = st.query_map([now_ms], |r| {
             Ok(SilenceRow {
@@ -322,9 +386,47 @@ impl Store {
                 until_ms: r.get(3)?,
                 reason: r.get(4)?,
                 who: r.get(5)?,
+                all_levels: r.get(6)?,
             })
         })?;
         Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// The history of `alert`, oldest first.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn alert_events(&self, alert: i64) -> Result<Vec<EventRow>, StoreError> {
+        let mut st = self.conn.prepare_cached(
+            "SELECT alert, rule, site, kind, level, value, unit, t_ms, recorded_ms, detail
+             FROM alert_events WHERE alert = ?1 ORDER BY id",
+        )?;
+        let rows = st.query_map([alert], event_row)?;
+        Ok(rows.collect::<Result<_, _>>()?)
+    }
+
+    /// Open alerts whose rule is not among `rules`.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn orphaned_alerts(&self, rules: &[&str]) -> Result<Vec<OrphanAlert>, StoreError> {
+        let mut st = self.conn.prepare(
+            "SELECT id, rule, site, level, unit FROM alerts WHERE resolved_ms IS NULL ORDER BY id",
+        )?;
+        let rows = st.query_map([], |r| {
+            Ok(OrphanAlert {
+                id: r.get(0)?,
+                rule: r.get(1)?,
+                site: r.get(2)?,
+                level: r.get(3)?,
+                unit: r.get(4)?,
+            })
+        })?;
+        let all: Vec<OrphanAlert> = rows.collect::<Result<_, _>>()?;
+        Ok(all
+            .into_iter()
+            .filter(|a| !rules.contains(&a.rule.as_str()))
+            .collect())
     }
 
     /// The last `n` values (time, value) of a quantity, newest last: a reading quantity of an
@@ -369,4 +471,20 @@ impl Store {
         v.reverse();
         Ok(v)
     }
+}
+
+/// An `alert_events` row (columns in `EventRow` order).
+pub(crate) fn event_row(r: &rusqlite::Row<'_>) -> rusqlite::Result<EventRow> {
+    Ok(EventRow {
+        alert: r.get(0)?,
+        rule: r.get(1)?,
+        site: r.get(2)?,
+        kind: r.get(3)?,
+        level: r.get(4)?,
+        value: r.get(5)?,
+        unit: r.get(6)?,
+        t_ms: r.get(7)?,
+        recorded_ms: r.get(8)?,
+        detail: r.get(9)?,
+    })
 }

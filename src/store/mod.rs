@@ -23,7 +23,7 @@ use rusqlite::{params, Connection, OptionalExtension};
 use crate::config::Config;
 use crate::quality::{Flags, Reason};
 
-pub use alerts::{AckRow, AlertRow, AlertWrites, NoticeRow, OutboxRow, SilenceRow};
+pub use alerts::{AckRow, AlertRow, AlertWrites, EventRow, NoticeRow, OutboxRow, SilenceRow};
 pub use models::{InstrumentSpan, ModelRow, SeedReading};
 pub use reports::{Attachment, ReportMessage};
 pub use schema::SCHEMA_VERSION;
@@ -39,6 +39,15 @@ pub enum StoreError {
         found: i64,
         supported: i64,
     },
+}
+
+/// Flags found for a reading after it was stored: a spike is confirmed by the reading after it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FlagUpdate {
+    pub instrument: String,
+    pub t_ms: i64,
+    /// Added to the reading's flags.
+    pub flags: Flags,
 }
 
 /// One reading ready to store: raw fields, reduced values and quality.
@@ -61,7 +70,7 @@ pub struct ReadingRow {
     pub flags: Flags,
 }
 
-/// One derived value: a quantity of an object (cluster, toe check, reach, section...) at a
+/// One derived value: a quantity of an object (nest, toe check, reach, section...) at a
 /// time, computed from the readings named in `inputs`. `value` is `None` when it could not be
 /// computed; `reason` says why (missing, stale or flagged input; not applicable).
 #[derive(Debug, Clone, PartialEq)]
@@ -224,7 +233,7 @@ impl Store {
         derived: &[DerivedRow],
         quarantined: &[QuarantineRow],
     ) -> Result<BatchStats, StoreError> {
-        self.write_batch_with(readings, derived, quarantined, &AlertWrites::default())
+        self.write_batch_flagged(readings, derived, quarantined, &[], &AlertWrites::default())
     }
 
     /// `write_batch` plus the alerting rows the batch caused (rule states, alerts, notices,
@@ -238,6 +247,22 @@ impl Store {
         readings: &[ReadingRow],
         derived: &[DerivedRow],
         quarantined: &[QuarantineRow],
+        alerts: &AlertWrites,
+    ) -> Result<BatchStats, StoreError> {
+        self.write_batch_flagged(readings, derived, quarantined, &[], alerts)
+    }
+
+    /// `write_batch_with`, and flags added to readings stored earlier (or in this batch): a
+    /// reading whose flags change is queued for export again.
+    ///
+    /// # Errors
+    /// SQLite errors; nothing of the batch is stored then.
+    pub fn write_batch_flagged(
+        &mut self,
+        readings: &[ReadingRow],
+        derived: &[DerivedRow],
+        quarantined: &[QuarantineRow],
+        flag_updates: &[FlagUpdate],
         alerts: &AlertWrites,
     ) -> Result<BatchStats, StoreError> {
         let tx = self.conn.transaction()?;
@@ -275,6 +300,16 @@ impl Store {
                     if let Some(c) = duplicates::conflict(&tx, r)? {
                         conflicts.push((r.instrument.as_str(), c));
                     }
+                }
+            }
+            let mut up = tx.prepare_cached(
+                "UPDATE readings SET flags = flags | ?3
+                 WHERE instrument = ?1 AND t_ms = ?2 AND (flags | ?3) != flags",
+            )?;
+            for f in flag_updates {
+                let n = up.execute(params![f.instrument, f.t_ms, f.flags.0])?;
+                if n == 1 && self.queue.readings {
+                    export::enqueue(&tx, export::Series::Reading, &f.instrument, "", f.t_ms)?;
                 }
             }
             let mut d = tx.prepare_cached(

@@ -41,6 +41,8 @@ pub struct SeedReading {
     pub total_head_m: Option<f64>,
     pub temperature_c: Option<f64>,
     pub flags: Flags,
+    /// The raw value as the logger sent it (the flatline check).
+    pub raw: f64,
 }
 
 /// The time span of an instrument's stored readings.
@@ -158,7 +160,7 @@ impl Store {
         since_ms: i64,
     ) -> Result<Vec<SeedReading>, StoreError> {
         let mut st = self.conn.prepare_cached(
-            "SELECT t_ms, total_head_m, temperature_c, flags FROM readings
+            "SELECT t_ms, total_head_m, temperature_c, flags, raw FROM readings
              WHERE instrument = ?1 AND t_ms >= ?2 AND (flags & ?3) = 0 ORDER BY t_ms",
         )?;
         let ahead = Flags::TIME_AHEAD.0;
@@ -168,6 +170,7 @@ impl Store {
                 total_head_m: r.get(1)?,
                 temperature_c: r.get(2)?,
                 flags: Flags(r.get(3)?),
+                raw: r.get(4)?,
             })
         })?;
         Ok(rows.collect::<Result<_, _>>()?)

@@ -5,7 +5,7 @@
 
 use rusqlite::{params, OptionalExtension};
 
-use super::{Store, StoreError};
+use super::{SilenceRow, Store, StoreError};
 
 /// An outbox message as the worker sends it.
 #[derive(Debug, Clone, PartialEq)]
@@ -388,19 +388,19 @@ impl Store {
     ///
     /// # Errors
     /// SQLite errors.
-    pub fn add_silence(
-        &self,
-        rule: Option<&str>,
-        object: Option<&str>,
-        until_ms: i64,
-        reason: &str,
-        who: &str,
-        now_ms: i64,
-    ) -> Result<i64, StoreError> {
+    pub fn add_silence(&self, s: &SilenceRow, now_ms: i64) -> Result<i64, StoreError> {
         self.conn.execute(
-            "INSERT INTO silences (rule, object, until_ms, reason, who, created_ms)
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
-            params![rule, object, until_ms, reason, who, now_ms],
+            "INSERT INTO silences (rule, object, until_ms, reason, who, created_ms, all_levels)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+            params![
+                s.rule,
+                s.object,
+                s.until_ms,
+                s.reason,
+                s.who,
+                now_ms,
+                s.all_levels
+            ],
         )?;
         Ok(self.conn.last_insert_rowid())
     }

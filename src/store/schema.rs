@@ -58,7 +58,7 @@ const MIGRATIONS: &[&str] = &[
     ) WITHOUT ROWID;",
     // 3: alerting. Rule states (phase, runs, pending/clearing timers, notice timers) as JSON;
     // alerts; acknowledgements and silences (written by the CLI, applied by the service);
-    // notices (one per rule action, waiting out the group wait) and the mail outbox.
+    // notices (one per rule action, waiting out the bundle window) and the mail outbox.
     "CREATE TABLE rule_states (
         rule TEXT PRIMARY KEY,
         state TEXT NOT NULL,
@@ -202,7 +202,26 @@ const MIGRATIONS: &[&str] = &[
         value TEXT NOT NULL,
         updated_ms INTEGER NOT NULL
     );",
-    // 8: the fate of each recipient of an outbox message: one refused address must not
+    // 8: alert history as events (raised, escalated, de-escalated, acknowledged, silenced,
+    // reminded, escalation notified, resolved, closed), each with its level, value and time;
+    // silences that also cover the most severe level (`--all-levels`).
+    "CREATE TABLE alert_events (
+        id INTEGER PRIMARY KEY,
+        alert INTEGER NOT NULL,
+        rule TEXT NOT NULL,
+        site TEXT NOT NULL,
+        kind TEXT NOT NULL,
+        level TEXT NOT NULL,
+        value REAL,
+        unit TEXT NOT NULL,
+        t_ms INTEGER NOT NULL,
+        recorded_ms INTEGER NOT NULL,
+        detail TEXT NOT NULL DEFAULT ''
+    );
+    CREATE INDEX alert_events_alert ON alert_events (alert, id);
+    CREATE INDEX alert_events_site_time ON alert_events (site, t_ms);
+    ALTER TABLE silences ADD COLUMN all_levels INTEGER NOT NULL DEFAULT 0;",
+    // 9: the fate of each recipient of an outbox message: one refused address must not
     // silence the others, so delivery is judged (and dead-lettered) recipient by recipient.
     // A recipient without a row is still to be served.
     "CREATE TABLE outbox_recipients (

@@ -6,7 +6,7 @@
 //! in derived quantities, and stage is interpolated across gaps up to
 //! `STAGE_GAP_INTERVALS` gauge intervals. The fitting itself is `domain::{response, hst}`.
 
-use crate::config::{Config, HstSpec, ResponseSpec};
+use crate::config::{Config, HstSpec, StageResponseSpec};
 use crate::derive::excluding_flags;
 use crate::domain::hst::{fit_hst, HstObservation, MIN_RECORD_DAYS};
 use crate::domain::response::{fit_response, LagSearch, StageSeries};
@@ -26,7 +26,7 @@ pub enum FitError {
 
 /// Every configured model id, response models first, in configuration order.
 pub fn model_ids(cfg: &Config) -> Vec<String> {
-    let r = cfg.trends.responses.iter().map(|r| r.id.clone());
+    let r = cfg.trends.stage_responses.iter().map(|r| r.id.clone());
     r.chain(cfg.trends.hst.iter().map(|h| h.id.clone()))
         .collect()
 }
@@ -60,7 +60,7 @@ fn last_reading(store: &Store, id: &str) -> Result<i64, FitError> {
 fn response(
     store: &Store,
     cfg: &Config,
-    r: &ResponseSpec,
+    r: &StageResponseSpec,
     fitted_ms: i64,
 ) -> Result<(ModelRow, LiveModel), FitError> {
     let end = last_reading(store, &r.piezometer)? + 1;
@@ -180,13 +180,13 @@ pub fn fit_and_store(
     id: &str,
     fitted_ms: i64,
 ) -> Result<ModelRow, FitError> {
-    let fitted = if let Some(r) = cfg.trends.responses.iter().find(|r| r.id == id) {
+    let fitted = if let Some(r) = cfg.trends.stage_responses.iter().find(|r| r.id == id) {
         response(store, cfg, r, fitted_ms)?
     } else if let Some(h) = cfg.trends.hst.iter().find(|h| h.id == id) {
         hst(store, cfg, h, fitted_ms)?
     } else {
         return Err(FitError::Data(format!(
-            "no [[response]] or [[hst]] model with id {id:?} (configured: {})",
+            "no [[stage_response]] or [[hst]] model with id {id:?} (configured: {})",
             model_ids(cfg).join(", ")
         )));
     };

@@ -55,6 +55,8 @@ struct InstrumentState {
     /// First and newest reading time seen (including the store, at start).
     first_ms: Option<i64>,
     last_ms: Option<i64>,
+    /// Time and head of the newest health-checked reading (the one a spike verdict concerns).
+    last_head: Option<(i64, f64)>,
     /// Reading time the rates were last computed at: readings closer together than the
     /// interval update the windows, but the rates are recomputed at most once per interval.
     last_rate_ms: Option<i64>,
@@ -86,7 +88,7 @@ fn health_config(st: &SiteTrends, kind: &Kind, interval_ms: i64) -> HealthConfig
         },
         flatline: FlatlineConfig {
             count: h.flatline_count,
-            tolerance: h.flatline_tolerance_m,
+            tolerance: h.flatline_tolerance_raw,
         },
         interval_ms,
         no_data_factor: h.no_data_factor,
@@ -98,7 +100,8 @@ fn health_config(st: &SiteTrends, kind: &Kind, interval_ms: i64) -> HealthConfig
     }
 }
 
-/// The reading flags for the health flags the tracker raised.
+/// The reading flags for the health flags the tracker raised (a confirmed spike comes
+/// separately, for the reading before).
 fn to_flags(h: HealthFlags) -> Flags {
     let mut f = Flags::empty();
     for (hf, rf) in [
@@ -170,6 +173,7 @@ impl Watcher {
                     no_data_factor: st.health.no_data_factor,
                     first_ms: None,
                     last_ms: None,
+                    last_head: None,
                     last_rate_ms: None,
                 },
             );
@@ -191,6 +195,11 @@ impl Watcher {
         self.fitted = Some(rx);
     }
 
+    /// Hand over the channel of models fitted elsewhere (to a rebuilt watcher, on reload).
+    pub fn take_fits(&mut self) -> Option<Receiver<Fitted>> {
+        self.fitted.take()
+    }
+
     /// Install a fitted model, or record why it could not be fitted.
     pub fn install(&mut self, fitted: Fitted) {
         self.models.install(fitted);
@@ -203,15 +212,27 @@ impl Watcher {
 
     /// Health-check a new reading and add the flags it earns to `row.flags`. Only a reading
     /// newer than the instrument's newest is checked (redeliveries and late readings are not).
-    pub fn check(&mut self, row: &mut ReadingRow) {
-        let Some(st) = self.instruments.get_mut(&row.instrument) else {
-            return;
-        };
+    /// Returns the time and head of the instrument's previous reading when this one confirms
+    /// it an isolated spike (see `domain::health`): the caller rejects that reading.
+    pub fn check(&mut self, row: &mut ReadingRow) -> Option<(i64, f64)> {
+        let st = self.instruments.get_mut(&row.instrument)?;
         let newer = st.last_ms.is_none_or(|l| row.t_ms > l);
-        if let (true, Some(h), Some(head)) = (newer, st.health.as_mut(), row.total_head_m) {
-            let temp = row.temperature_c;
-            row.flags.insert(to_flags(h.update(row.t_ms, head, temp)));
+        let (true, Some(h), Some(head)) = (newer, st.health.as_mut(), row.total_head_m) else {
+            return None;
+        };
+        let before = st.last_head;
+        let verdict = h.update(row.t_ms, head, row.raw, row.temperature_c);
+        row.flags.insert(to_flags(verdict.flags));
+        st.last_head = Some((row.t_ms, head));
+        let t = verdict.spike_at?;
+        // The rejected reading leaves the rate windows and the stage memory it entered.
+        for (_, w) in &mut st.windows {
+            w.remove(t);
         }
+        if let Some(m) = self.stages.get_mut(&row.instrument) {
+            m.remove(t);
+        }
+        Some(before.filter(|b| b.0 == t).unwrap_or((t, f64::NAN)))
     }
 
     /// Remember a reading from the store without deriving anything (start-up seeding); the
@@ -221,14 +242,18 @@ impl Watcher {
         instrument: &str,
         t_ms: i64,
         head_m: Option<f64>,
+        raw: f64,
         temperature_c: Option<f64>,
         flags: Flags,
     ) {
         let Some(st) = self.instruments.get_mut(instrument) else {
             return;
         };
-        if let (Some(h), Some(head)) = (st.health.as_mut(), head_m) {
-            h.update(t_ms, head, temperature_c);
+        // A rejected reading (a confirmed spike) stays out of the health window.
+        let clean = !flags.contains(Flags::SPIKE);
+        if let (Some(h), Some(head), true) = (st.health.as_mut(), head_m, clean) {
+            h.update(t_ms, head, raw, temperature_c);
+            st.last_head = Some((t_ms, head));
         }
         Self::remember(st, &mut self.stages, instrument, t_ms, head_m, flags);
     }

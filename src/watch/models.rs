@@ -9,7 +9,7 @@ use std::sync::Arc;
 
 use serde_json::{json, Value};
 
-use crate::config::{Config, HstSpec, ResponseSpec};
+use crate::config::{Config, HstSpec, StageResponseSpec};
 use crate::domain::hst::{HstModel, MIN_RECORD_DAYS};
 use crate::domain::response::{StageResponse, StageSeries};
 use crate::quality::Flags;
@@ -45,6 +45,11 @@ pub struct StageMemory {
 }
 
 impl StageMemory {
+    /// Forget the reading at `t_ms` (rejected after it was taken).
+    pub fn remove(&mut self, t_ms: i64) {
+        self.points.remove(&t_ms);
+    }
+
     pub fn push(&mut self, t_ms: i64, m: f64) {
         self.points.insert(t_ms, m);
         if let Some((&newest, _)) = self.points.last_key_value() {
@@ -78,7 +83,7 @@ impl StageMemory {
 
 /// The models configured, each with the model in use or the reason there is none.
 pub struct ModelSlots {
-    responses: Vec<(ResponseSpec, Result<StageResponse, String>)>,
+    responses: Vec<(StageResponseSpec, Result<StageResponse, String>)>,
     hst: Vec<(HstSpec, Result<HstModel, String>)>,
     /// Modelled instrument → indices into `responses` and `hst` (so a reading costs a lookup,
     /// not a scan of every model).
@@ -98,7 +103,7 @@ impl ModelSlots {
         let t = &cfg.trends;
         let mut by_instrument: HashMap<String, (Vec<usize>, Vec<usize>)> = HashMap::new();
         let mut by_id = HashMap::new();
-        for (k, r) in t.responses.iter().enumerate() {
+        for (k, r) in t.stage_responses.iter().enumerate() {
             by_instrument
                 .entry(r.piezometer.clone())
                 .or_default()
@@ -119,7 +124,7 @@ impl ModelSlots {
             by_id,
             responses: cfg
                 .trends
-                .responses
+                .stage_responses
                 .iter()
                 .map(|r| (r.clone(), Err(not_fitted(&r.id))))
                 .collect(),

@@ -28,7 +28,7 @@ const RETRY_MS: i64 = 60_000;
 fn interval_ms(cfg: &Config, id: &str) -> i64 {
     let r = cfg
         .trends
-        .responses
+        .stage_responses
         .iter()
         .find(|r| r.id == id)
         .map(|r| r.refit_s);

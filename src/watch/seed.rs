@@ -27,7 +27,7 @@ fn lookback_ms(cfg: &Config, instrument: &str) -> i64 {
         .unwrap_or(0);
     let lag = cfg
         .trends
-        .responses
+        .stage_responses
         .iter()
         .filter(|r| r.stage_gauge == instrument)
         .map(|r| r.lag_max_s * 1000 + 4 * interval_ms)
@@ -57,6 +57,7 @@ pub fn from_store(
                 &span.instrument,
                 r.t_ms,
                 r.total_head_m,
+                r.raw,
                 r.temperature_c,
                 r.flags,
             );

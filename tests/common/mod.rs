@@ -185,8 +185,16 @@ pub fn river_alerts(
             t_ms: t,
             value: Some(*head),
             unit: "m".into(),
+            reason: None,
         };
-        writes.extend(ev.evaluate(&[obs], t));
+        // The toe piezometer reports too (its no-data rule stays quiet).
+        let pz = seepd::alerts::Observation {
+            object: "AB-PZ-1A".into(),
+            quantity: "engineering_value".into(),
+            unit: "digits".into(),
+            ..obs.clone()
+        };
+        writes.extend(ev.evaluate(&[obs, pz], t));
     }
     store.write_alerts(&writes).unwrap();
     writes

@@ -220,7 +220,7 @@ pub fn header(msg: &str, name: &str) -> Option<String> {
 }
 
 /// The example configuration (see `example_config`) with alerting made fast for tests: `[smtp]`
-/// plain to `smtp_port` on 127.0.0.1, no group wait, 1 s retry, and `edits` (find, replace)
+/// plain to `smtp_port` on 127.0.0.1, no bundle window, 1 s retry, and `edits` (find, replace)
 /// applied to the levee site file.
 pub fn alert_config(
     dir: &Path,
@@ -240,7 +240,7 @@ pub fn alert_config(
         let p = cfg.join(f);
         let mut text = std::fs::read_to_string(&p)
             .unwrap()
-            .replace("group_wait_s = 30", "group_wait_s = 0");
+            .replace("bundle_window_s = 30", "bundle_window_s = 0");
         if f.starts_with("levee") {
             for (a, b) in edits {
                 assert!(

@@ -101,8 +101,8 @@ fn every_duration_and_count_is_bounded() {
         (levee, "tolerance_s = 5400", format!("tolerance_s = {huge}")),
         (
             levee,
-            "repeat_interval_s = 14400",
-            "repeat_interval_s = 9223372036854775".into(),
+            "remind_every_s = 14400",
+            "remind_every_s = 9223372036854775".into(),
         ),
         (
             levee,

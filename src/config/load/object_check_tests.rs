@@ -34,7 +34,7 @@ const SITE: [&str; 53] = [
     "interval_s = 60",                                                              // 25
     "range = [0.0, 20.0]",                                                          // 26
     "stage_gauge = { water_body = \"river\", mode = \"elevation\", unit = \"m\" }", // 27
-    "[[cluster]]",                                                                  // 28
+    "[[nest]]",                                                                     // 28
     "id = \"C1\"",                                                                  // 29
     "piezometers = [\"P1\", \"P2\"]",                                               // 30
     "[[toe]]",                                                                      // 31
@@ -79,8 +79,8 @@ fn base_objects_load_with_defaults() {
     };
     let o = &cfg.objects;
     // Default tolerance: 1.5 × the largest input interval, rounded up to whole seconds.
-    assert_eq!(o.clusters[0].tolerance_s, 182); // P2: 121 s
-    assert_eq!(o.clusters[0].deadband, 0.02);
+    assert_eq!(o.nests[0].tolerance_s, 182); // P2: 121 s
+    assert_eq!(o.nests[0].deadband, 0.02);
     assert_eq!(o.toes[0].tolerance_s, 90); // P1: 60 s
     assert_eq!(o.toes[0].fs_target, 1.6);
     assert_eq!(o.blankets[0].tolerance_s, 90); // G1
@@ -100,7 +100,7 @@ fn base_objects_load_with_defaults() {
 #[test]
 fn object_checks() {
     let cases: &[(usize, &str, usize, &str)] = &[
-        (29, "#", 28, "missing key \"id\" in [[cluster]]"),
+        (29, "#", 28, "missing key \"id\" in [[nest]]"),
         (
             30,
             "piezometers = [\"P1\"]",
@@ -149,7 +149,7 @@ fn object_checks() {
             33,
             "not an instrument in any site file; expected the id of a piezometer",
         ),
-        (33, "piezometer = \"C1\"", 33, "is a [[cluster]] object"),
+        (33, "piezometer = \"C1\"", 33, "is a [[nest]] object"),
         (
             34,
             "ground_elevation = 11.0\nwater_level = 11.5\nwater_gauge = \"G1\"",
@@ -341,13 +341,13 @@ fn object_checks() {
             49,
             "id = \"C1\"",
             49,
-            "section id \"C1\" is already used by a [[cluster]] at",
+            "section id \"C1\" is already used by a [[nest]] at",
         ),
         (
             53,
-            "piezometers = [\"P1\", \"P2\"]\n[[clusters]]",
+            "piezometers = [\"P1\", \"P2\"]\n[[nests]]",
             54,
-            "did you mean \"cluster\"",
+            "did you mean \"nest\"",
         ),
     ];
     for (n, text, line, needle) in cases {

@@ -5,8 +5,7 @@ use std::path::Path;
 
 use super::*;
 use crate::config::model::{
-    BlanketReach, Cluster, CriticalGradientFrom, LandsideCase, Level, RiversideCase, Section,
-    ToeCheck,
+    BlanketReach, CriticalGradientFrom, LandsideCase, Level, Nest, RiversideCase, Section, ToeCheck,
 };
 
 use super::test_dir::problems;
@@ -19,7 +18,7 @@ fn example_objects_load_in_si() {
         Err(p) => panic!("example config has problems:\n{p}"),
     };
     let o = &cfg.objects;
-    let cluster = |id: &str, a: &str, b: &str| Cluster {
+    let nest = |id: &str, a: &str, b: &str| Nest {
         id: id.into(),
         site: "ash-bend".into(),
         piezometers: vec![a.into(), b.into()],
@@ -27,10 +26,10 @@ fn example_objects_load_in_si() {
         tolerance_s: 5400,
     };
     assert_eq!(
-        o.clusters,
+        o.nests,
         [
-            cluster("AB-N1", "AB-PZ-1A", "AB-PZ-1B"),
-            cluster("AB-N2", "AB-PZ-2A", "AB-PZ-2B")
+            nest("AB-N1", "AB-PZ-1A", "AB-PZ-1B"),
+            nest("AB-N2", "AB-PZ-2A", "AB-PZ-2B")
         ]
     );
     let toe = |id: &str, pz: &str, critical, fs_target| ToeCheck {
@@ -98,7 +97,7 @@ fn example_objects_load_in_si() {
     );
     let s = summary(&cfg);
     assert!(s.contains("7 instruments, 5 objects"), "{s}");
-    assert!(s.contains("[[cluster]] 2: AB-N1, AB-N2"), "{s}");
+    assert!(s.contains("[[nest]] 2: AB-N1, AB-N2"), "{s}");
     assert!(s.contains("[[toe]] 2: AB-TOE-1, AB-TOE-2"), "{s}");
     assert!(s.contains("[[blanket]] 1: AB-R2"), "{s}");
     assert!(s.contains("[[section]] 1: TH-S1"), "{s}");
@@ -130,7 +129,7 @@ water_body = "river"
 mode = "elevation"
 unit = "m"
 
-[[cluster]]
+[[nest]]
 id = "A-N1"
 piezometers = ["A-PZ", "A-NOPE"]
 
@@ -196,7 +195,7 @@ fn every_object_problem_in_two_files_is_reported_at_its_line() {
     let msg = |i: usize| got[i].2.as_str();
     assert_eq!(
         msg(0),
-        "cluster \"A-N1\": key \"piezometers\" names \"A-NOPE\", which is not an instrument in \
+        "nest \"A-N1\": key \"piezometers\" names \"A-NOPE\", which is not an instrument in \
          any site file; expected the id of a piezometer (vibrating_wire, pressure_transducer, or \
          standpipe with tip_elevation) of site \"a\""
     );

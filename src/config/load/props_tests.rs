@@ -33,7 +33,7 @@ fn tomlish() -> impl Strategy<Value = String> {
         Just("[site]\n"),
         Just("[[instrument]]\n"),
         Just("[instrument.standpipe]\n"),
-        Just("[[cluster]]\n"),
+        Just("[[nest]]\n"),
         Just("[[rule]]\n"),
         Just("[[rule.level]]\n"),
         Just("[health]\n"),

@@ -43,7 +43,17 @@ fn example_configuration_has_its_rules_contacts_and_no_relay() {
     let cfg = load_dir_with(&dir, &no_env).expect("example config loads");
     let a = &cfg.alerting;
     assert!(a.smtp.is_none());
-    assert_eq!(a.rules.len(), 4);
+    // Four rules, and a "safety value unavailable" watch for each of the two on derived
+    // objects (toe factor of safety, section exit elevation).
+    assert_eq!(a.rules.len(), 6);
+    let watch = a
+        .rules
+        .iter()
+        .find(|r| r.id == "ash-bend-toe-fs:unavailable")
+        .expect("unavailable watch");
+    assert_eq!(watch.spec.check, Check::Unavailable);
+    assert_eq!(watch.spec.levels[0].name, "watch");
+    assert_eq!(watch.spec.levels[0].bound, 3.0 * 3600.0);
     let toe = a
         .rules
         .iter()
@@ -67,7 +77,7 @@ fn example_configuration_has_its_rules_contacts_and_no_relay() {
     // 3 × interval_s 3600 s.
     assert_eq!(silent.spec.levels[0].bound, 10_800.0);
     let site = a.site("ash-bend");
-    assert_eq!(site.policy.group_wait_ms, 30_000);
+    assert_eq!(site.policy.bundle_window_ms, 30_000);
     assert_eq!(
         site.recipients("concern", true, true),
         [

@@ -1,5 +1,5 @@
 //! The validated settings of trends, stage-response and HST models, and sensor health: per site
-//! `[trends]` and `[health]`, and the `[[response]]` and `[[hst]]` model tables.
+//! `[trends]` and `[health]`, and the `[[stage_response]]` and `[[hst]]` model tables.
 //!
 //! Already checked and in SI units (durations in seconds, heads in metres); read by `watch`.
 //! Nothing here parses or does I/O (that is `config::trends`).
@@ -22,17 +22,18 @@ pub struct HealthSettings {
     pub spike_k: f64,
     /// Smallest departure from the median that can be a spike, metres of head.
     pub spike_floor_m: f64,
-    /// Consecutive readings that must be identical for a flatline.
+    /// Consecutive readings whose raw values must be identical for a flatline.
     pub flatline_count: usize,
-    /// Largest spread of heads (max − min) that still counts as identical, m.
-    pub flatline_tolerance_m: f64,
+    /// Largest spread of raw values (max − min) that still counts as identical, in the raw
+    /// value's own unit (Hz, digits, mA, kPa, m...).
+    pub flatline_tolerance_raw: f64,
     /// An instrument is silent after this many expected intervals without a reading.
     pub no_data_factor: f64,
     /// Plausible thermistor temperatures of vibrating-wire sensors, °C.
     pub thermistor_range_c: (f64, f64),
     /// Largest plausible thermistor change between consecutive readings, °C.
     pub thermistor_max_jump_c: f64,
-    /// Use flagged readings in derived quantities anyway (default false: they are left out).
+    /// Use rejected readings (confirmed spikes) in derived quantities anyway (default false).
     pub use_flagged: bool,
 }
 
@@ -43,7 +44,7 @@ impl Default for HealthSettings {
             spike_k: 4.0,
             spike_floor_m: 0.5,
             flatline_count: 24,
-            flatline_tolerance_m: 0.0,
+            flatline_tolerance_raw: 0.0,
             no_data_factor: 3.0,
             thermistor_range_c: (-30.0, 60.0),
             thermistor_max_jump_c: 5.0,
@@ -83,9 +84,10 @@ impl SiteTrends {
     }
 }
 
-/// A lagged stage-response model `h = a + b·stage(t − lag)` of one piezometer (`[[response]]`).
+/// A lagged stage-response model `h = a + b·stage(t − lag)` of one piezometer
+/// (`[[stage_response]]`).
 #[derive(Debug, Clone, PartialEq)]
-pub struct ResponseSpec {
+pub struct StageResponseSpec {
     /// Model id (unique among instruments, objects and models).
     pub id: String,
     pub site: String,
@@ -119,7 +121,7 @@ pub struct HstSpec {
 pub struct Trends {
     /// One entry per site (defaults when the site file has no `[trends]`/`[health]`).
     pub sites: Vec<SiteTrends>,
-    pub responses: Vec<ResponseSpec>,
+    pub stage_responses: Vec<StageResponseSpec>,
     pub hst: Vec<HstSpec>,
 }
 

@@ -63,7 +63,7 @@ pub(crate) fn resolve(
 
 fn with_tolerance(mut o: Object, t: i64) -> Object {
     match &mut o {
-        Object::Cluster(c) => c.tolerance_s = t,
+        Object::Nest(c) => c.tolerance_s = t,
         Object::Toe(c) => c.tolerance_s = t,
         Object::Blanket(c) => c.tolerance_s = t,
         Object::Section(c) => c.tolerance_s = t,

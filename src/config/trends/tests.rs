@@ -4,7 +4,7 @@
 use std::path::Path;
 
 use crate::config::load::{load_dir, load_dir_with, Problems};
-use crate::config::model::{HealthSettings, HstSpec, ResponseSpec, SiteTrends};
+use crate::config::model::{HealthSettings, HstSpec, SiteTrends, StageResponseSpec};
 use crate::config::Config;
 
 const SERVICE: &str = "[[subscription]]\npattern = \"t/{logger}/json\"\nformat = \"json\"\n";
@@ -70,8 +70,8 @@ fn example_settings_load() {
     assert_eq!(t.sites[0], SiteTrends::defaults(&t.sites[0].site));
     assert_eq!(t.sites[1], SiteTrends::defaults(&t.sites[1].site));
     assert_eq!(
-        t.responses,
-        [ResponseSpec {
+        t.stage_responses,
+        [StageResponseSpec {
             id: "AB-RESP-1B".into(),
             site: "ash-bend".into(),
             piezometer: "AB-PZ-1B".into(),
@@ -101,7 +101,7 @@ fn written_settings_in_site_units() {
     let text = site(
         "[trends]\nrate_windows = [\"7d\", \"6h\"]\nmax_points = 50\n\
          [health]\nspike_floor = 1.0\nflatline_tolerance = 0.01\nuse_flagged = true\n\
-         [[response]]\nid = \"R\"\npiezometer = \"PZ\"\nstage_gauge = \"G\"\nlag_range_h = [2, 12]\nlag_step_h = 0.5\n",
+         [[stage_response]]\nid = \"R\"\npiezometer = \"PZ\"\nstage_gauge = \"G\"\nlag_range_h = [2, 12]\nlag_step_h = 0.5\n",
     );
     let cfg = load(&text).unwrap_or_else(|p| panic!("{p}"));
     let s = &cfg.trends.sites[0];
@@ -114,13 +114,14 @@ fn written_settings_in_site_units() {
     assert_eq!(s.max_points, 50);
     // Feet to metres: 1 ft = 0.3048 m exactly (NIST SP 811) [pub].
     assert!((s.health.spike_floor_m - 0.3048).abs() < 1e-12);
-    assert!((s.health.flatline_tolerance_m - 0.003048).abs() < 1e-12);
+    // The flatline tolerance is in the raw value's own unit: not converted.
+    assert_eq!(s.health.flatline_tolerance_raw, 0.01);
     assert!(s.health.use_flagged);
     assert_eq!(
         s.health.spike_window,
         HealthSettings::default().spike_window
     );
-    let r = &cfg.trends.responses[0];
+    let r = &cfg.trends.stage_responses[0];
     assert_eq!(
         (r.lag_min_s, r.lag_max_s, r.lag_step_s),
         (7200, 43_200, 1800)
@@ -137,7 +138,7 @@ fn every_problem_is_located() {
         "spike_k = 0\n",                      // 29
         "no_data_factor = 0.5\n",             // 30
         "spike_windw = 5\n",                  // 31
-        "[[response]]\n",                     // 32
+        "[[stage_response]]\n",               // 32
         "id = \"PZ\"\n",                      // 33
         "piezometer = \"G\"\n",               // 34
         "stage_gauge = \"NOPE\"\n",           // 35
@@ -160,7 +161,10 @@ fn every_problem_is_located() {
             31,
             "unknown key \"spike_windw\" in [health]; did you mean \"spike_window\"?",
         ),
-        (33, "response id \"PZ\" is already used by an instrument"),
+        (
+            33,
+            "stage_response id \"PZ\" is already used by an instrument",
+        ),
         (34, "key \"piezometer\" names \"G\", a stage_gauge"),
         (
             35,

@@ -24,10 +24,10 @@ fn check_11_nested_pair_upward() {
 }
 
 #[test]
-fn cluster_sorts_tips_and_forms_adjacent_and_overall() {
+fn nest_sorts_tips_and_forms_adjacent_and_overall() {
     // Given out of order: 80 m, 95 m, 90 m.
     let tips = [tip(80.0, 104.0), tip(95.0, 101.2), tip(90.0, 102.7)];
-    let g = cluster_gradients(&tips, 0.02).unwrap();
+    let g = nest_gradients(&tips, 0.02).unwrap();
     assert_eq!(g.adjacent.len(), 2);
     assert_eq!(g.adjacent[0].lower.tip_elevation_m, 80.0);
     assert_eq!(g.adjacent[0].upper.tip_elevation_m, 90.0);
@@ -44,18 +44,18 @@ fn deadband_gives_no_direction() {
     assert_eq!(direction(-0.01, 0.01), Direction::None);
     assert_eq!(direction(-0.011, 0.01), Direction::Downward);
     assert_eq!(direction(0.0, 0.0), Direction::None);
-    let g = cluster_gradients(&[tip(95.0, 100.0), tip(90.0, 100.02)], 0.01).unwrap();
+    let g = nest_gradients(&[tip(95.0, 100.0), tip(90.0, 100.02)], 0.01).unwrap();
     assert_eq!(g.overall.direction, Direction::None);
 }
 
 #[test]
 fn errors_are_typed() {
     assert_eq!(
-        cluster_gradients(&[tip(90.0, 100.0)], 0.0),
+        nest_gradients(&[tip(90.0, 100.0)], 0.0),
         Err(GradientError::TooFewTips { count: 1 })
     );
     assert_eq!(
-        cluster_gradients(&[], 0.0),
+        nest_gradients(&[], 0.0),
         Err(GradientError::TooFewTips { count: 0 })
     );
     assert!(matches!(
@@ -63,7 +63,7 @@ fn errors_are_typed() {
         Err(GradientError::CoincidentTips { .. })
     ));
     assert!(matches!(
-        cluster_gradients(&[tip(80.0, 1.0), tip(90.0, 1.0), tip(90.0005, 2.0)], 0.0),
+        nest_gradients(&[tip(80.0, 1.0), tip(90.0, 1.0), tip(90.0005, 2.0)], 0.0),
         Err(GradientError::CoincidentTips { .. })
     ));
     assert_eq!(
@@ -71,7 +71,7 @@ fn errors_are_typed() {
         Err(GradientError::NonFinite)
     );
     assert_eq!(
-        cluster_gradients(&[tip(80.0, 1.0), tip(90.0, 1.0)], -0.1),
+        nest_gradients(&[tip(80.0, 1.0), tip(90.0, 1.0)], -0.1),
         Err(GradientError::BadDeadband(-0.1))
     );
 }
@@ -101,7 +101,7 @@ fn property_sign_follows_head_order() {
     }
 }
 
-// Property: for a random cluster, the overall gradient is the thickness-weighted mean of the
+// Property: for a random nest, the overall gradient is the thickness-weighted mean of the
 // adjacent gradients (heads telescope), so adjacent and overall are consistent.
 #[test]
 fn property_overall_is_weighted_mean_of_adjacent() {
@@ -118,7 +118,7 @@ fn property_overall_is_weighted_mean_of_adjacent() {
         if rng.unit() < 0.5 {
             tips.reverse();
         }
-        let g = cluster_gradients(&tips, 0.0).unwrap();
+        let g = nest_gradients(&tips, 0.0).unwrap();
         assert_eq!(g.adjacent.len(), n - 1);
         let total_dz = g.overall.upper.tip_elevation_m - g.overall.lower.tip_elevation_m;
         let weighted: f64 = g

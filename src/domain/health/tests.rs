@@ -36,10 +36,27 @@ fn clean(i: usize) -> (i64, f64, Option<f64>) {
     (T0 + i as i64 * HOUR_MS, head, Some(temp))
 }
 
-/// Run `series` through a fresh tracker and return the flags of each reading.
-fn run(series: &[(i64, f64, Option<f64>)]) -> Vec<HealthFlags> {
+/// Run `series` through a fresh tracker (the head doubling as the raw value) and return the
+/// flags of each reading, a confirmed spike put back on the reading it concerns; also the index
+/// of the reading whose arrival confirmed each spike.
+fn run_with_delay(series: &[(i64, f64, Option<f64>)]) -> (Vec<HealthFlags>, Vec<(usize, usize)>) {
     let mut tr = HealthTracker::new(config(), T0).expect("valid config");
-    series.iter().map(|&(t, v, c)| tr.update(t, v, c)).collect()
+    let mut flags = Vec::new();
+    let mut confirmed = Vec::new();
+    for (i, &(t, v, c)) in series.iter().enumerate() {
+        let verdict = tr.update(t, v, v, c);
+        flags.push(verdict.flags);
+        if let Some(at) = verdict.spike_at {
+            let j = series.iter().position(|s| s.0 == at).expect("a known time");
+            flags[j].insert(HealthFlags::SPIKE);
+            confirmed.push((j, i));
+        }
+    }
+    (flags, confirmed)
+}
+
+fn run(series: &[(i64, f64, Option<f64>)]) -> Vec<HealthFlags> {
+    run_with_delay(series).0
 }
 
 /// Indices of readings that carry `flag`.
@@ -62,7 +79,7 @@ fn clean_series_raises_no_flag() {
     assert!(raised.is_empty(), "unexpected flags: {raised:?}");
     let mut tr = HealthTracker::new(config(), T0).expect("valid config");
     for &(t, v, c) in &series {
-        tr.update(t, v, c);
+        tr.update(t, v, v, c);
     }
     assert!(!tr.no_data(series[499].0 + HOUR_MS));
     let times: Vec<i64> = series.iter().map(|s| s.0).collect();
@@ -91,8 +108,43 @@ fn spike_flags_an_isolated_jump() {
     let mut series: Vec<_> = (0..100).map(clean).collect();
     series[50].1 += 0.3;
     series[70].1 -= 0.25;
-    let flags = run(&series);
+    let (flags, confirmed) = run_with_delay(&series);
     assert_eq!(flagged(&flags, HealthFlags::SPIKE), vec![50, 70]);
+    // The verdict comes with the next reading: a delay of one reading.
+    assert_eq!(confirmed, vec![(50, 51), (70, 71)]);
+}
+
+#[test]
+fn a_flood_rise_shared_with_the_trend_is_never_a_spike() {
+    // Flat for 30 h, then rising 0.25 m/h for 24 h (5 × the floor of 0.05 m per reading), a
+    // crest, and a recession at 0.05 m/h, with the clean series' wobble on top.
+    let stage = |h: f64| {
+        if h < 30.0 {
+            0.0
+        } else if h < 54.0 {
+            0.25 * (h - 30.0)
+        } else if h < 66.0 {
+            6.0
+        } else {
+            (6.0 - 0.05 * (h - 66.0)).max(0.0)
+        }
+    };
+    let series: Vec<_> = (0..240)
+        .map(|i| {
+            let (t, v, c) = clean(i);
+            (t, v + stage(i as f64), c)
+        })
+        .collect();
+    let flags = run(&series);
+    assert!(flagged(&flags, HealthFlags::SPIKE).is_empty());
+    // The same flood with a 1 m spike at the crest: only that reading.
+    let mut spiked = series.clone();
+    spiked[60].1 += 1.0;
+    assert_eq!(flagged(&run(&spiked), HealthFlags::SPIKE), vec![60]);
+    // And a downward spike on the steepest part of the rise.
+    let mut spiked = series;
+    spiked[40].1 -= 1.0;
+    assert_eq!(flagged(&run(&spiked), HealthFlags::SPIKE), vec![40]);
 }
 
 #[test]
@@ -104,51 +156,51 @@ fn spike_waits_for_a_full_window() {
 }
 
 #[test]
-fn a_genuine_step_stops_being_a_spike() {
-    // Head steps up 0.5 m at reading 50 and stays there: flagged at first, accepted once the
-    // new level fills half the window.
+fn a_genuine_step_is_never_a_spike() {
+    // Head steps up 0.5 m at reading 50 and stays there (a repair, a valve): the next reading
+    // does not come back, so the excursion is not isolated.
     let series: Vec<_> = (0..120)
         .map(|i| {
             let (t, v, c) = clean(i);
             (t, if i >= 50 { v + 0.5 } else { v }, c)
         })
         .collect();
-    let spikes = flagged(&run(&series), HealthFlags::SPIKE);
-    assert_eq!(spikes.first(), Some(&50));
-    assert!(spikes.iter().all(|&i| i < 50 + 13), "{spikes:?}");
+    assert!(flagged(&run(&series), HealthFlags::SPIKE).is_empty());
 }
 
 #[test]
-fn zero_mad_uses_the_absolute_floor() {
-    // A quantised, perfectly steady history: MAD = 0.
-    let history = [100.00; 24];
-    assert!(
-        !is_spike(&history, 100.01, 3.0, 0.05),
-        "1 cm is within the floor"
+fn a_steady_history_uses_the_absolute_floor() {
+    // A quantised, perfectly steady history: the spread of the rates is 0, so the floor decides.
+    let steady = |i: usize| (T0 + i as i64 * HOUR_MS, 100.0, None);
+    let mut series: Vec<_> = (0..40).map(steady).collect();
+    series[30].1 = 100.04;
+    series[35].1 = 100.06;
+    assert_eq!(
+        flagged(&run(&series), HealthFlags::SPIKE),
+        vec![35],
+        "4 cm within the 5 cm floor"
     );
-    assert!(
-        is_spike(&history, 100.06, 3.0, 0.05),
-        "6 cm exceeds the floor"
-    );
-    // MAD = 0 and no floor: any change would be a spike.
-    assert!(is_spike(&history, 100.001, 3.0, 0.0));
-    // Scaled MAD: history alternating ±1 around 0 has MAD 1, σ̂ 1.4826, threshold 4.4478.
-    let alt: Vec<f64> = (0..24)
-        .map(|i| if i % 2 == 0 { 1.0 } else { -1.0 })
-        .collect();
-    assert!(!is_spike(&alt, 4.4, 3.0, 0.0));
-    assert!(is_spike(&alt, 4.5, 3.0, 0.0));
-    assert!(!is_spike(&[], 1e9, 3.0, 0.0));
 }
 
 #[test]
 fn flatline_after_count_identical_readings() {
     let mut series: Vec<_> = (0..60).map(clean).collect();
-    // Logger stuck from reading 30 on: the same value, with wobble below the tolerance.
+    // Logger stuck from reading 30 on: the same raw value, with wobble below the tolerance.
     for (k, s) in series.iter_mut().enumerate().skip(30) {
         s.1 = 101.234 + if k % 2 == 0 { 4e-5 } else { 0.0 };
     }
     let flags = run(&series);
+    // A steady head read by a working sensor moves in its last digits: no flatline.
+    let steady: Vec<_> = (0..60)
+        .map(|i| {
+            (
+                T0 + i as i64 * HOUR_MS,
+                101.0 + 0.001 * (i % 3) as f64,
+                None,
+            )
+        })
+        .collect();
+    assert!(flagged(&run(&steady), HealthFlags::FLATLINE).is_empty());
     // The 12th identical reading is index 41.
     assert_eq!(
         flagged(&flags, HealthFlags::FLATLINE),
@@ -169,12 +221,12 @@ fn no_data_after_factor_times_interval() {
     assert!(!tr.no_data(T0 + 3 * HOUR_MS));
     assert!(tr.no_data(T0 + 3 * HOUR_MS + 1));
     let t = T0 + 10 * HOUR_MS;
-    tr.update(t, 100.0, Some(11.0));
+    tr.update(t, 100.0, 100.0, Some(11.0));
     assert_eq!(tr.last_reading_ms(), Some(t));
     assert!(!tr.no_data(t + 3 * HOUR_MS));
     assert!(tr.no_data(t + 3 * HOUR_MS + 1));
     // A late reading does not move the last time back.
-    tr.update(t - 5 * HOUR_MS, 100.0, Some(11.0));
+    tr.update(t - 5 * HOUR_MS, 100.0, 100.0, Some(11.0));
     assert_eq!(tr.last_reading_ms(), Some(t));
     assert!(no_data(0, 7_201, 1_000, 7.2));
     assert!(!no_data(0, 7_200, 1_000, 7.2));
@@ -214,11 +266,9 @@ fn thermistor_range_and_jump() {
     series[20].2 = Some(17.5); // jump of ~6.5 °C from the previous reading
     series[25].2 = None; // no temperature: nothing to judge
     let flags = run(&series);
-    // 10: out of range; 11: jump back from 75 °C; 20: jump up; 21: jump back down.
-    assert_eq!(
-        flagged(&flags, HealthFlags::THERMISTOR),
-        vec![10, 11, 20, 21]
-    );
+    // 10: out of range (and no reference for the next check, so 11 is clean); 20: jump up;
+    // 21: jump back down.
+    assert_eq!(flagged(&flags, HealthFlags::THERMISTOR), vec![10, 20, 21]);
     let cfg = ThermistorConfig::default();
     assert!(thermistor_anomaly(-31.0, None, &cfg));
     assert!(!thermistor_anomaly(12.0, Some(8.0), &cfg));
@@ -232,7 +282,7 @@ fn sensor_without_thermistor_ignores_temperature() {
         ..config()
     };
     let mut tr = HealthTracker::new(cfg, T0).expect("valid config");
-    assert!(tr.update(T0, 100.0, Some(500.0)).is_empty());
+    assert!(tr.update(T0, 100.0, 100.0, Some(500.0)).flags.is_empty());
 }
 
 #[test]

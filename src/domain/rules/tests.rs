@@ -29,7 +29,7 @@ fn fs_spec() -> Spec {
             level("concern", Direction::Below, 1.6),
             level("act", Direction::Below, 1.3),
         ],
-        repeat_ms: None,
+        remind_every_ms: None,
         escalate_after_ms: None,
     }
 }
@@ -199,7 +199,7 @@ fn reminders_over_ten_days_are_ceil_of_ten_days_over_the_interval() {
     // [derived] notices (raise + reminders) in [0, 10 d) = ceil(10 d / R).
     for repeat in [6 * HOUR, 7 * HOUR, 25 * HOUR, 10 * DAY] {
         let mut spec = fs_spec();
-        spec.repeat_ms = Some(repeat);
+        spec.remind_every_ms = Some(repeat);
         let mut s = State::default();
         let mut notices = run(&spec, &mut s, &[(0, 1.9)]).len();
         let mut t = MIN;
@@ -218,7 +218,7 @@ fn reminders_over_ten_days_are_ceil_of_ten_days_over_the_interval() {
 #[test]
 fn acknowledged_alerts_get_no_reminders_until_they_escalate() {
     let mut spec = fs_spec();
-    spec.repeat_ms = Some(HOUR);
+    spec.remind_every_ms = Some(HOUR);
     let mut s = State::default();
     run(&spec, &mut s, &[(0, 1.9)]);
     s = acknowledge(&s);
@@ -259,7 +259,7 @@ fn no_data_rule_raises_on_silence_and_resolves_on_the_next_reading() {
     let spec = Spec {
         check: Check::NoData,
         levels: vec![level("watch", Direction::Above, 3.0 * 3600.0)],
-        repeat_ms: None,
+        remind_every_ms: None,
         escalate_after_ms: None,
     };
     let mut s = State::default();
@@ -293,4 +293,225 @@ fn state_round_trips_through_json() {
     let text = serde_json::to_string(&s).unwrap_or_default();
     let back: State = serde_json::from_str(&text).unwrap_or_default();
     assert_eq!(back, s);
+}
+
+// ---- The lifecycle table of README "Alerts / Lifecycle", one test per row. ----
+
+/// Hourly FS readings, persistence 2, escalation after 1 h, reminders every 4 h.
+fn hourly_spec() -> Spec {
+    let mut spec = fs_spec();
+    for l in &mut spec.levels {
+        l.persist_readings = 2;
+        l.deadband = 0.05;
+    }
+    spec.escalate_after_ms = Some(HOUR);
+    spec.remind_every_ms = Some(4 * HOUR);
+    spec
+}
+
+/// One observation at `t`, evaluated at `now` (the evaluation clock), with its actions.
+fn at(spec: &Spec, s: &mut State, t: i64, now: i64, v: f64) -> Vec<Action> {
+    let (next, a) = step(
+        spec,
+        s,
+        Some(Obs {
+            t_ms: t,
+            value: Some(v),
+        }),
+        now,
+    );
+    *s = next;
+    a
+}
+
+#[test]
+fn row_normal_to_pending_to_normal() {
+    let spec = hourly_spec();
+    let mut s = State::default();
+    assert!(at(&spec, &mut s, 0, 0, 1.9).is_empty());
+    assert_eq!(
+        s.phase,
+        Phase::Pending {
+            level: 0,
+            since_ms: 0
+        }
+    );
+    assert!(at(&spec, &mut s, HOUR, HOUR, 2.1).is_empty());
+    assert_eq!(s.phase, Phase::Normal);
+}
+
+#[test]
+fn row_pending_to_active_raises_and_no_timer_fires_with_the_raise() {
+    // Finding 2: hourly data, persist 2, escalate after 1 h: the raise comes alone, the
+    // escalation notice one hour of evaluation time later, never at the raise.
+    let spec = hourly_spec();
+    let mut s = State::default();
+    at(&spec, &mut s, 0, 0, 1.9);
+    assert_eq!(
+        at(&spec, &mut s, HOUR, HOUR, 1.9),
+        [Action::Raise { level: 0 }]
+    );
+    assert!(tick(&spec, &mut s, 2 * HOUR - 1).is_empty());
+    assert_eq!(
+        tick(&spec, &mut s, 2 * HOUR),
+        [Action::NotifyEscalation { level: 0 }]
+    );
+    // Live with readings stamped 30 days ago (a demo, a catch-up): the timers start at the
+    // evaluation time of the raise, so nothing else fires with it.
+    let mut s = State::default();
+    let now = 30 * DAY;
+    at(&spec, &mut s, 0, now, 1.9);
+    assert_eq!(
+        at(&spec, &mut s, HOUR, now + 200, 1.9),
+        [Action::Raise { level: 0 }]
+    );
+    assert!(tick(&spec, &mut s, now + 1000).is_empty());
+    assert_eq!(
+        tick(&spec, &mut s, now + 200 + HOUR),
+        [Action::NotifyEscalation { level: 0 }]
+    );
+}
+
+#[test]
+fn row_escalate_re_arms_the_escalation_timer_from_the_move() {
+    // Finding 2, live: acknowledged at watch, moved to concern; the escalation list is told
+    // escalate_after after the move, not 63 s after it.
+    let spec = hourly_spec();
+    let mut s = State::default();
+    at(&spec, &mut s, 0, 0, 1.9);
+    at(&spec, &mut s, HOUR, HOUR, 1.9);
+    s = acknowledge(&s);
+    assert!(tick(&spec, &mut s, 5 * HOUR).is_empty(), "acked: nothing");
+    at(&spec, &mut s, 5 * HOUR, 5 * HOUR, 1.5);
+    assert_eq!(
+        at(&spec, &mut s, 6 * HOUR, 6 * HOUR, 1.5),
+        [Action::Escalate { from: 0, to: 1 }]
+    );
+    assert!(!s.alert.unwrap().acked, "the ack was for watch");
+    assert!(tick(&spec, &mut s, 6 * HOUR + 63_000).is_empty());
+    assert_eq!(
+        tick(&spec, &mut s, 7 * HOUR),
+        [Action::NotifyEscalation { level: 1 }]
+    );
+}
+
+#[test]
+fn row_an_acknowledgement_holds_for_its_level_and_below() {
+    let spec = hourly_spec();
+    let mut s = State::default();
+    at(&spec, &mut s, 0, 0, 1.5);
+    at(&spec, &mut s, HOUR, HOUR, 1.5);
+    assert_eq!(s.active_level(), Some(1));
+    s = acknowledge(&s);
+    assert_eq!(s.alert.unwrap().acked_level, Some(1));
+    // Back to watch: de-escalate, still acknowledged: no reminder, no escalation.
+    let a = at(&spec, &mut s, 2 * HOUR, 2 * HOUR, 1.8);
+    assert_eq!(a, [Action::DeEscalate { from: 1, to: 0 }]);
+    assert!(s.alert.unwrap().acked);
+    assert!((3..20).all(|h| tick(&spec, &mut s, h * HOUR).is_empty()));
+    // Up to concern again: still within the acknowledged level.
+    at(&spec, &mut s, 20 * HOUR, 20 * HOUR, 1.5);
+    assert_eq!(
+        at(&spec, &mut s, 21 * HOUR, 21 * HOUR, 1.5),
+        [Action::Escalate { from: 0, to: 1 }]
+    );
+    assert!(s.alert.unwrap().acked);
+    assert!(tick(&spec, &mut s, 30 * HOUR).is_empty());
+}
+
+#[test]
+fn row_active_to_clearing_and_back_then_resolve() {
+    let mut spec = hourly_spec();
+    spec.levels[0].keep_active_ms = 2 * HOUR;
+    (spec.escalate_after_ms, spec.remind_every_ms) = (None, None);
+    let mut s = State::default();
+    at(&spec, &mut s, 0, 0, 1.9);
+    at(&spec, &mut s, HOUR, HOUR, 1.9);
+    assert!(at(&spec, &mut s, 2 * HOUR, 2 * HOUR, 2.1).is_empty());
+    assert!(matches!(s.phase, Phase::Clearing { level: 0, .. }));
+    assert!(at(&spec, &mut s, 3 * HOUR, 3 * HOUR, 1.9).is_empty());
+    assert_eq!(s.phase, Phase::Active { level: 0 });
+    at(&spec, &mut s, 4 * HOUR, 4 * HOUR, 2.1);
+    assert!(at(&spec, &mut s, 5 * HOUR, 5 * HOUR, 2.1).is_empty());
+    assert_eq!(
+        at(&spec, &mut s, 6 * HOUR, 6 * HOUR, 2.1),
+        [Action::Resolve { from: 0 }]
+    );
+    assert_eq!(s.phase, Phase::Normal);
+    assert!(s.alert.is_none());
+}
+
+#[test]
+fn row_reminders_while_not_acknowledged() {
+    let spec = hourly_spec();
+    let mut s = State::default();
+    at(&spec, &mut s, 0, 0, 1.9);
+    at(&spec, &mut s, HOUR, HOUR, 1.9);
+    tick(&spec, &mut s, 2 * HOUR);
+    assert_eq!(tick(&spec, &mut s, 5 * HOUR), [Action::Remind { level: 0 }]);
+}
+
+#[test]
+fn row_no_data_counts_silence_on_the_evaluation_clock() {
+    // Finding 8: readings stamped 30 days ago keep arriving; no alert.
+    let spec = Spec {
+        check: Check::NoData,
+        levels: vec![level("watch", Direction::Above, 3.0 * 3600.0)],
+        remind_every_ms: None,
+        escalate_after_ms: None,
+    };
+    let now = 30 * DAY;
+    let mut s = State::default();
+    assert!(tick(&spec, &mut s, now).is_empty());
+    for k in 0..100 {
+        let (next, a) = step(
+            &spec,
+            &s,
+            Some(Obs {
+                t_ms: k * HOUR,
+                value: Some(1.0),
+            }),
+            now + k * 200,
+        );
+        s = next;
+        assert!(a.is_empty(), "reading {k}: {a:?}");
+    }
+    // Silent on the evaluation clock: raise; any reading ends it, whatever its stamp.
+    assert_eq!(
+        tick(&spec, &mut s, now + 99 * 200 + 3 * HOUR + 1),
+        [Action::Raise { level: 0 }]
+    );
+    let (_, a) = step(
+        &spec,
+        &s,
+        Some(Obs {
+            t_ms: 0,
+            value: Some(1.0),
+        }),
+        now + 4 * HOUR,
+    );
+    assert_eq!(a, [Action::Resolve { from: 0 }]);
+}
+
+#[test]
+fn row_keep_active_on_ticks_runs_from_the_reading_time_by_the_time_passed() {
+    // Readings stamped 30 days ago (a catch-up): back inside at reading time 2 h; a tick one
+    // second later must not cut the 2 h keep-active short; one 2 h later ends it.
+    let mut spec = hourly_spec();
+    spec.levels[0].keep_active_ms = 2 * HOUR;
+    (spec.escalate_after_ms, spec.remind_every_ms) = (None, None);
+    let now = 30 * DAY;
+    let mut s = State::default();
+    at(&spec, &mut s, 0, now, 1.9);
+    at(&spec, &mut s, HOUR, now + 1000, 1.9);
+    assert!(at(&spec, &mut s, 2 * HOUR, now + 2000, 2.1).is_empty());
+    assert!(
+        tick(&spec, &mut s, now + 3000).is_empty(),
+        "keep-active holds"
+    );
+    assert!(tick(&spec, &mut s, now + 2000 + 2 * HOUR - 1).is_empty());
+    assert_eq!(
+        tick(&spec, &mut s, now + 2000 + 2 * HOUR),
+        [Action::Resolve { from: 0 }]
+    );
 }

@@ -1,0 +1,107 @@
+//! Configuration reload of a running service (SIGHUP, `systemctl reload`): read the directory
+//! again with the same checks as `seepd check`; refuse a configuration with problems (each one
+//! logged at file:line:column) and keep the running one; otherwise hand the new one to the
+//! writer thread, which rebuilds its engine (seeded from the database, like a start) and its
+//! rule evaluator (rule states, acknowledgements and silences carry over by rule id, since they
+//! live in the database; alerts of removed rules are closed).
+//!
+//! What a running process cannot change — `[service]`, `[mqtt]`, the subscriptions, `[smtp]`,
+//! `[export]` — stays as started; a reload that changes them says so (a restart applies them).
+//! Owns the check and the swap; the signal is `service`'s, the writer loop `ingest::mqtt`'s.
+
+use std::path::Path;
+use std::sync::mpsc::{Receiver, Sender};
+
+use std::sync::Arc;
+
+use crate::alerts::live::Live;
+use crate::alerts::Evaluator;
+use crate::config::{load_dir, Config, Problems};
+use crate::engine::Engine;
+use crate::store::Store;
+
+/// Sections only a restart applies, as (name, whether they differ).
+fn restart_only(running: &Config, new: &Config) -> Vec<&'static str> {
+    let differs =
+        |a: &dyn std::fmt::Debug, b: &dyn std::fmt::Debug| format!("{a:?}") != format!("{b:?}");
+    let mut out = Vec::new();
+    if differs(&running.service, &new.service) {
+        out.push("[service]");
+    }
+    if differs(&running.mqtt, &new.mqtt) {
+        out.push("[mqtt]");
+    }
+    if differs(&running.subscriptions, &new.subscriptions) {
+        out.push("[[subscription]]");
+    }
+    if differs(&running.alerting.smtp, &new.alerting.smtp) {
+        out.push("[smtp]");
+    }
+    if differs(&running.export, &new.export) {
+        out.push("[export]");
+    }
+    out
+}
+
+/// Read `dir` again for a service running `running`: the new configuration with the
+/// restart-only sections kept as running, and the names of those that changed.
+///
+/// # Errors
+/// Every problem of the directory, as `seepd check` reports them.
+pub fn check(dir: &Path, running: &Config) -> Result<(Config, Vec<&'static str>), Problems> {
+    let mut new = load_dir(dir)?;
+    let kept = restart_only(running, &new);
+    new.service = running.service.clone();
+    new.mqtt = running.mqtt.clone();
+    new.subscriptions = running.subscriptions.clone();
+    new.alerting.smtp = running.alerting.smtp.clone();
+    new.export = running.export.clone();
+    Ok((new, kept))
+}
+
+/// The writer thread's end of reloads: configurations checked and waiting to be applied.
+pub struct Reloads(Receiver<Arc<Config>>);
+
+/// Make the channel between the signal handler and the writer thread.
+pub fn channel() -> (Sender<Arc<Config>>, Reloads) {
+    let (tx, rx) = std::sync::mpsc::channel();
+    (tx, Reloads(rx))
+}
+
+impl Reloads {
+    /// The newest configuration waiting, if any (older ones are skipped).
+    pub fn take(&self) -> Option<Arc<Config>> {
+        self.0.try_iter().last()
+    }
+}
+
+/// Swap the writer's engine and rule evaluator for `cfg` (in the writer thread, between
+/// batches). The engine is rebuilt from the database like at a start (latest heads, barometer,
+/// trend and health windows, models); the model refits keep their channel. On a database error
+/// the running engine and rules stay and the error is logged.
+pub fn apply(cfg: Arc<Config>, store: &mut Store, engine: &mut Engine, alerts: &mut Live) {
+    let rebuilt = (|| -> anyhow::Result<(Engine, Evaluator)> {
+        store.sync_instruments(&cfg, chrono::Utc::now())?;
+        let mut e = crate::service::engine_for(&cfg, store)?;
+        if let Some(fits) = engine.watch_mut().take_fits() {
+            e.watch_mut().receive_fits(fits);
+        }
+        let ev = Evaluator::load(Arc::clone(&cfg), store)?;
+        Ok((e, ev))
+    })();
+    match rebuilt {
+        Ok((e, mut ev)) => {
+            *engine = e;
+            ev.set_silences(alerts.evaluator.silences().to_vec());
+            alerts.evaluator = ev;
+            tracing::info!(
+                instruments = cfg.instruments.len(),
+                rules = cfg.alerting.rules.len(),
+                "Configuration reloaded"
+            );
+        }
+        Err(e) => {
+            tracing::error!(error = %format!("{e:#}"), "Reload failed; the running configuration stays");
+        }
+    }
+}
