@@ -26,17 +26,14 @@ fn with_alert(dir: &Path) -> PathBuf {
 /// missing secret in the service file.
 fn break_config(cfg: &Path) {
     std::fs::write(cfg.join("dam-tarn.toml"), "[site\nid = \"tarn\"\n").unwrap();
-    let service = cfg.join("seepd.toml");
-    let text = std::fs::read_to_string(&service).unwrap();
-    std::fs::write(
-        &service,
-        text.replacen(
+    common::edit(
+        cfg,
+        "seepd.toml",
+        &[(
             "# username = \"seepd\"",
             "username = \"seepd\"\npassword_env = \"SEEPD_TEST_UNSET_PASSWORD\"",
-            1,
-        ),
-    )
-    .unwrap();
+        )],
+    );
 }
 
 #[test]
@@ -126,21 +123,20 @@ fn a_missing_database_is_an_error_and_is_not_created() {
 fn check_refuses_a_shutdown_deadline_that_would_overflow() {
     let dir = tempfile::tempdir().unwrap();
     let cfg = common::example_config(dir.path(), 1883);
-    let service = cfg.join("seepd.toml");
-    let text = std::fs::read_to_string(&service).unwrap();
+    let text = std::fs::read_to_string(cfg.join("seepd.toml")).unwrap();
     let line = text
         .lines()
         .position(|l| l.starts_with("shutdown_deadline_s"))
         .unwrap()
         + 1;
-    std::fs::write(
-        &service,
-        text.replace(
+    common::edit(
+        &cfg,
+        "seepd.toml",
+        &[(
             "shutdown_deadline_s = 10",
             "shutdown_deadline_s = 9223372036854775807",
-        ),
-    )
-    .unwrap();
+        )],
+    );
     let (code, out, err) = seepd(&["check", "--config", &cfg.display().to_string()]);
     assert_eq!(code, 78, "{out}\n{err}");
     assert!(

@@ -36,13 +36,11 @@ fn reading(
 fn a_reading_stamped_ahead_does_not_hide_the_readings_after_it() {
     let dir = tempfile::tempdir().unwrap();
     let cfg_dir = common::example_config(dir.path(), 1883);
-    let service = cfg_dir.join("seepd.toml");
-    let text = std::fs::read_to_string(&service).unwrap();
-    std::fs::write(
-        &service,
-        text.replace("max_future_s = 600", "max_future_s = 7200"),
-    )
-    .unwrap();
+    common::edit(
+        &cfg_dir,
+        "seepd.toml",
+        &[("max_future_s = 600", "max_future_s = 7200")],
+    );
     let cfg = Arc::new(seepd::config::load_dir(&cfg_dir).unwrap());
     let mut engine = Engine::new(Arc::clone(&cfg));
     let mut rules = Evaluator::new(Arc::clone(&cfg));
@@ -126,16 +124,14 @@ fn a_small_clock_skew_is_not_flagged_and_clock_skew_s_is_bounded() {
     );
     assert!(out.readings[0].flags.contains(Flags::TIME_AHEAD));
     // clock_skew_s beyond max_future_s is a configuration problem.
-    let service = cfg_dir.join("seepd.toml");
-    let text = std::fs::read_to_string(&service).unwrap();
-    std::fs::write(
-        &service,
-        text.replace(
+    common::edit(
+        &cfg_dir,
+        "seepd.toml",
+        &[(
             "max_future_s = 600",
             "max_future_s = 600\nclock_skew_s = 900",
-        ),
-    )
-    .unwrap();
+        )],
+    );
     let problems = seepd::config::load_dir(&cfg_dir).unwrap_err();
     assert!(problems.to_string().contains("clock_skew_s"), "{problems}");
 }

@@ -83,7 +83,7 @@ pub(crate) mod test_support {
 }
 
 #[cfg(test)]
-mod props;
+pub(crate) mod props;
 
 #[cfg(test)]
 mod tests {

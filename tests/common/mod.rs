@@ -157,6 +157,18 @@ pub fn seepd_bin() -> &'static str {
     env!("CARGO_BIN_EXE_seepd")
 }
 
+/// Edit `file` in the configuration directory `cfg`: each (find, replace) once, the text to
+/// find must be there.
+pub fn edit(cfg: &Path, file: &str, edits: &[(&str, &str)]) {
+    let path = cfg.join(file);
+    let mut text = std::fs::read_to_string(&path).unwrap();
+    for (find, replace) in edits {
+        assert!(text.contains(find), "{find:?} not in {file}");
+        text = text.replacen(find, replace, 1);
+    }
+    std::fs::write(&path, text).unwrap();
+}
+
 /// Run the seepd binary to completion: (exit code, stdout, stderr).
 pub fn seepd_output(args: &[&str]) -> (i32, String, String) {
     let out = Command::new(seepd_bin()).args(args).output().unwrap();

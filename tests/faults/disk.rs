@@ -153,18 +153,18 @@ fn scenario(dir: &tempfile::TempDir, full: Full, name: &str) {
     };
     let broker = Broker::start(dir.path());
     let cfg = example_config(dir.path(), broker.port);
-    let service = cfg.join("seepd.toml");
-    let text = std::fs::read_to_string(&service).unwrap();
-    let text = text
-        .replace(
-            &format!(
-                "database = \"{}\"",
-                dir.path().join("seepd.sqlite").display()
+    let (old_db, new_db) = (dir.path().join("seepd.sqlite"), db_dir.join("seepd.sqlite"));
+    edit(
+        &cfg,
+        "seepd.toml",
+        &[
+            (
+                &format!("database = \"{}\"", old_db.display()),
+                &format!("database = \"{}\"", new_db.display()),
             ),
-            &format!("database = \"{}\"", db_dir.join("seepd.sqlite").display()),
-        )
-        .replace("shutdown_deadline_s = 10", "shutdown_deadline_s = 4");
-    std::fs::write(&service, text).unwrap();
+            ("shutdown_deadline_s = 10", "shutdown_deadline_s = 4"),
+        ],
+    );
     let log = dir.path().join("seepd.log");
     let mut d = full.start(&cfg, &log);
     d.wait_connected(1);

@@ -19,17 +19,17 @@ const SLACK: Duration = Duration::from_millis(500);
 /// The configuration in `cfg` with `shutdown_deadline_s = DEADLINE_S` and the production
 /// reconnect backoff (up to 30 s).
 fn short_deadline(cfg: &Path) {
-    let service = cfg.join("seepd.toml");
-    let text = std::fs::read_to_string(&service).unwrap();
-    std::fs::write(
-        &service,
-        text.replace(
-            "shutdown_deadline_s = 10",
-            &format!("shutdown_deadline_s = {DEADLINE_S}"),
-        )
-        .replace("reconnect_max_ms = 1000", "reconnect_max_ms = 30000"),
-    )
-    .unwrap();
+    edit(
+        cfg,
+        "seepd.toml",
+        &[
+            (
+                "shutdown_deadline_s = 10",
+                &format!("shutdown_deadline_s = {DEADLINE_S}"),
+            ),
+            ("reconnect_max_ms = 1000", "reconnect_max_ms = 30000"),
+        ],
+    );
 }
 
 fn within(took: Duration, what: &str, log: &Path) {
@@ -133,9 +133,7 @@ fn mid_email(dir: &Path) -> (Option<i32>, Duration) {
     });
     let cfg = crate::common::smtp::alert_config(dir, broker.port, port, &[]);
     short_deadline(&cfg);
-    let service = cfg.join("seepd.toml");
-    let text = std::fs::read_to_string(&service).unwrap();
-    std::fs::write(&service, text.replace("timeout_s = 5", "timeout_s = 60")).unwrap();
+    edit(&cfg, "seepd.toml", &[("timeout_s = 5", "timeout_s = 60")]);
     let log = dir.join("seepd-mid-email.log");
     let mut d = Daemon::start(&cfg, &log);
     d.wait_connected(1);

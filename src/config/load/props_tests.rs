@@ -7,6 +7,7 @@ use proptest::prelude::*;
 
 use super::*;
 use crate::config::limits;
+use crate::ingest::decode::props::cases;
 
 const SERVICE: &str = "[[subscription]]\npattern = \"t/{logger}/json\"\nformat = \"json\"\n";
 
@@ -62,7 +63,7 @@ fn tomlish() -> impl Strategy<Value = String> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig::with_cases(128))]
+    #![proptest_config(ProptestConfig::with_cases(cases(128)))]
 
     #[test]
     fn any_site_text_loads_or_is_located(site in tomlish()) {

@@ -50,8 +50,17 @@ fn reading() -> impl Strategy<Value = (String, f64, i64)> {
     )
 }
 
+/// Cases per property: `default`, or `PROPTEST_CASES` for a longer run (shared with the other
+/// property tests).
+pub(crate) fn cases(default: u32) -> u32 {
+    std::env::var("PROPTEST_CASES")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(default)
+}
+
 proptest! {
-    #![proptest_config(ProptestConfig::with_cases(512))]
+    #![proptest_config(ProptestConfig::with_cases(cases(512)))]
 
     #[test]
     fn any_bytes_give_a_value_or_a_reason(
