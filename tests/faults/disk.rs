@@ -171,9 +171,11 @@ fn scenario(dir: &tempfile::TempDir, full: Full, name: &str) {
     let p = Publisher::connect(broker.port, "pub-disk");
     let t0 = chrono::Utc::now().timestamp() - 7 * 86_400;
     let count_db = || count(&db_dir, "readings", "1");
-    publish(&p, t0, 0, 300);
+    // A first few readings with room (under the file-size limit too: 1 MiB holds ~250).
+    let first = 100;
+    publish(&p, t0, 0, first);
     wait_for(Duration::from_secs(60), || {
-        (count_db() >= 300).then_some(())
+        (count_db() >= first).then_some(())
     })
     .unwrap_or_else(|| {
         panic!(
@@ -186,7 +188,7 @@ fn scenario(dir: &tempfile::TempDir, full: Full, name: &str) {
     // Full: commits fail, nothing more is stored or acknowledged; seepd stays up.
     full.fill();
     let n1 = 6_000;
-    publish(&p, t0, 300, n1);
+    publish(&p, t0, first, n1);
     let noticed = wait_for(Duration::from_secs(60), || {
         if let Some(status) = d.child.try_wait().unwrap() {
             panic!(
