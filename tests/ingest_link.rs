@@ -159,7 +159,9 @@ fn status_shows_the_outage_and_the_reconnection() {
     let mut broker = Broker::start(dir.path());
     let cfg = example_config(dir.path(), broker.port);
     let log = dir.path().join("seepd.log");
-    let _d = Daemon::start(&cfg, &log);
+    let d = Daemon::start(&cfg, &log);
+    // The database exists once the daemon has connected; asking before that is a race.
+    d.wait_connected(1);
     let up = wait_for(Duration::from_secs(20), || {
         let s = status(&cfg);
         s.contains("Broker: connected").then_some(s)
