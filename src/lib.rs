@@ -17,6 +17,7 @@ pub mod export;
 pub mod fit_cmd;
 pub mod ingest;
 pub mod notify;
+pub mod present;
 pub mod quality;
 pub mod reload;
 pub mod replay;
