@@ -122,6 +122,16 @@ pub fn shown_rate_per_day(per_s_si: f64, quantity: &str, unit_si: &str, u: Displ
     }
 }
 
+/// A duration in words: seconds, minutes, hours or days ("40 min", "5.0 h", "3.2 days").
+pub fn duration(s: i64) -> String {
+    match s {
+        s if s < 120 => format!("{s} s"),
+        s if s < 7_200 => format!("{} min", s / 60),
+        s if s < 172_800 => format!("{:.1} h", s as f64 / 3600.0),
+        s => format!("{:.1} days", s as f64 / 86_400.0),
+    }
+}
+
 fn join(v: String, unit: &str) -> String {
     if unit.is_empty() || v == "—" {
         v
