@@ -212,7 +212,7 @@ pub struct Site {
 }
 
 /// Where an instrument sits.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct Location {
     pub reach: Option<String>,
     pub section: Option<String>,

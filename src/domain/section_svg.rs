@@ -126,15 +126,6 @@ impl Frame {
     }
 }
 
-/// Tick values within [lo, hi] (1-2-5 steps).
-pub(crate) fn ticks(lo: f64, hi: f64, target: f64) -> Vec<f64> {
-    ticks_within(lo, hi, target)
-        .marks
-        .into_iter()
-        .map(|m| m.0)
-        .collect()
-}
-
 /// Data ranges with a margin, never empty.
 fn frame(input: &SectionInput, result: &SectionResult, options: &SvgOptions) -> Frame {
     let stations = input.ground.iter().map(|p| p.station_m);

@@ -44,7 +44,8 @@ pub fn digits(m: Measure, u: DisplayUnits) -> Digits {
             }
         }
         Measure::Gradient | Measure::FactorOfSafety | Measure::Ratio => 2,
-        Measure::Temperature | Measure::Percent => 1,
+        Measure::Temperature | Measure::Percent | Measure::Position => 1,
+        Measure::Duration => 0,
         Measure::FlowPerLength => return Digits::Significant(3),
         Measure::Other => return Digits::Significant(4),
     })
@@ -85,6 +86,9 @@ pub fn with_digits(v: f64, d: Digits) -> String {
 pub fn shown_bare(v_si: f64, m: Measure, u: DisplayUnits) -> String {
     if m == Measure::FactorOfSafety && v_si > FS_DISPLAY_CAP {
         return format!("> {}", fixed(FS_DISPLAY_CAP, 0));
+    }
+    if m == Measure::Duration && v_si.is_finite() {
+        return duration(v_si.round() as i64);
     }
     with_digits(convert(v_si, m, u), digits(m, u))
 }
@@ -255,6 +259,10 @@ mod tests {
             "6.000 m per day"
         );
         assert_eq!(shown_change(0.1, "total_head", "m", SI), "+0.100 m");
+        // Durations in words; stations to 0.1.
+        assert_eq!(shown(14_400.0, "no_data", "s", SI), "4.0 h");
+        assert_eq!(shown_bare(1250.0, Measure::Position, SI), "1250.0");
+        assert_eq!(shown_bare(30.48, Measure::Position, US), "100.0");
         assert_eq!(shown_change(-0.3048, "total_head", "m", US), "-1.00 ft");
     }
 

@@ -26,6 +26,10 @@ pub enum Measure {
     Temperature,
     /// A percentage.
     Percent,
+    /// Stations, offsets and distances along the ground (stored m), to 0.1 m or 0.1 ft.
+    Position,
+    /// A duration (stored s), shown in words.
+    Duration,
     /// Anything else: shown in its stored unit.
     Other,
 }
@@ -39,6 +43,7 @@ pub fn measure_of(quantity: &str, unit_si: &str) -> Measure {
         "m/day" => Measure::LengthPerDay,
         "degC" | "°C" => Measure::Temperature,
         "%" => Measure::Percent,
+        "s" => Measure::Duration,
         "-" | "" if quantity.contains("factor_of_safety") => Measure::FactorOfSafety,
         "-" | "" if quantity.contains("gradient") => Measure::Gradient,
         "-" | "" => Measure::Ratio,
@@ -50,7 +55,9 @@ pub fn measure_of(quantity: &str, unit_si: &str) -> Measure {
 pub fn convert(v_si: f64, m: Measure, u: DisplayUnits) -> f64 {
     match (u, m) {
         (DisplayUnits::Si, _) => v_si,
-        (DisplayUnits::Us, Measure::Length | Measure::LengthPerDay) => v_si / M_PER_FT,
+        (DisplayUnits::Us, Measure::Length | Measure::Position | Measure::LengthPerDay) => {
+            v_si / M_PER_FT
+        }
         (DisplayUnits::Us, Measure::Pressure) => v_si / KPA_PER_PSI,
         (DisplayUnits::Us, Measure::FlowPerLength) => v_si / (M_PER_FT * M_PER_FT),
         (DisplayUnits::Us, Measure::Temperature) => v_si * 9.0 / 5.0 + 32.0,
@@ -67,16 +74,16 @@ pub fn convert_difference(dv_si: f64, m: Measure, u: DisplayUnits) -> f64 {
 }
 
 /// The unit label shown beside a value; `stored` is used for `Measure::Other`.
-pub fn unit_label<'a>(m: Measure, u: DisplayUnits, stored: &'a str) -> &'a str {
+pub fn unit_label(m: Measure, u: DisplayUnits, stored: &str) -> &str {
     let si = u == DisplayUnits::Si;
     match m {
-        Measure::Length => pick(si, "m", "ft"),
+        Measure::Length | Measure::Position => pick(si, "m", "ft"),
         Measure::Pressure => pick(si, "kPa", "psi"),
         Measure::FlowPerLength => pick(si, "m³/s per m", "ft³/s per ft"),
         Measure::LengthPerDay => pick(si, "m/day", "ft/day"),
         Measure::Temperature => pick(si, "°C", "°F"),
         Measure::Percent => "%",
-        Measure::Gradient | Measure::FactorOfSafety | Measure::Ratio => "",
+        Measure::Gradient | Measure::FactorOfSafety | Measure::Ratio | Measure::Duration => "",
         Measure::Other => stored,
     }
 }

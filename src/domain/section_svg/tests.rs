@@ -120,7 +120,11 @@ fn ticks_are_nice_and_cover_the_range() {
     assert_eq!(tick_step(100.0, 8.0), 20.0);
     assert_eq!(tick_step(7.0, 6.0), 2.0);
     assert_eq!(tick_step(0.3, 6.0), 0.05);
-    let t = ticks(93.2, 118.7, 6.0);
+    let t: Vec<f64> = crate::present::format::ticks_within(93.2, 118.7, 6.0)
+        .marks
+        .into_iter()
+        .map(|m| m.0)
+        .collect();
     assert_eq!(t.first().copied(), Some(95.0));
     assert_eq!(t.last().copied(), Some(115.0));
     assert_eq!(xml_escape("a<b>&\"'"), "a&lt;b&gt;&amp;&quot;&apos;");
