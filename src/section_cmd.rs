@@ -38,10 +38,7 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
                 if age_s > s.tolerance_s {
                     let mut st = stale.borrow_mut();
                     if !st.iter().any(|(i, _)| i == inst) {
-                        st.push((
-                            inst.to_string(),
-                            format!("stale, {} old", crate::present::format::duration(age_s)),
-                        ));
+                        st.push((inst.to_string(), crate::present::format::duration(age_s)));
                     }
                 }
                 Ok(h)
@@ -52,13 +49,17 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
     };
     let input = section_input(cfg, s, head).map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
     let result = analyse(&input).map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
-    let marks = stale.into_inner();
-    let note = if marks.is_empty() {
+    let ages = stale.into_inner();
+    let note = if ages.is_empty() {
         String::new()
     } else {
-        let list: Vec<String> = marks.iter().map(|(i, m)| format!("{i} {m}")).collect();
-        format!("latest heads drawn: {}", list.join(", "))
+        let list: Vec<String> = ages.iter().map(|(i, a)| format!("{i} {a}")).collect();
+        format!("stale heads drawn, with their age: {}", list.join(", "))
     };
+    let marks = ages
+        .into_iter()
+        .map(|(i, a)| (i, format!("stale, {a} old")))
+        .collect();
     let title = format!("Section {id} at {}", at.format("%Y-%m-%d %H:%M UTC"));
     Ok(render_section_svg(
         &input,

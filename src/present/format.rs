@@ -126,6 +126,25 @@ pub fn shown_rate_per_day(per_s_si: f64, quantity: &str, unit_si: &str, u: Displ
     }
 }
 
+/// `v` rounded to 12 significant figures, for machine output read by people (replay NDJSON):
+/// arithmetic noise in the last bits (`97.42699999999999`) goes, every meaningful digit stays.
+pub fn clean(v: f64) -> f64 {
+    if v == 0.0 || !v.is_finite() {
+        return v;
+    }
+    let e = 11 - v.abs().log10().floor() as i32;
+    if !(-290..=290).contains(&e) {
+        return v;
+    }
+    if e >= 0 {
+        let k = 10f64.powi(e);
+        (v * k).round() / k
+    } else {
+        let k = 10f64.powi(-e);
+        (v / k).round() * k
+    }
+}
+
 /// A duration in words: seconds, minutes, hours or days ("40 min", "5.0 h", "3.2 days").
 pub fn duration(s: i64) -> String {
     match s {
@@ -264,6 +283,17 @@ mod tests {
         assert_eq!(shown_bare(1250.0, Measure::Position, SI), "1250.0");
         assert_eq!(shown_bare(30.48, Measure::Position, US), "100.0");
         assert_eq!(shown_change(-0.3048, "total_head", "m", US), "-1.00 ft");
+    }
+
+    #[test]
+    fn clean_drops_arithmetic_noise_only() {
+        assert_eq!(clean(97.42699999999999).to_string(), "97.427");
+        assert_eq!(clean(0.9144000000000001).to_string(), "0.9144");
+        assert_eq!(clean(7.039999999999999).to_string(), "7.04");
+        assert_eq!(clean(2.345_678_901_23e-5), 2.345_678_901_23e-5);
+        assert_eq!(clean(123_456.789_012_3), 123_456.789_012);
+        assert_eq!(clean(-1.0000000000000002), -1.0);
+        assert!(clean(f64::NAN).is_nan());
     }
 
     #[test]

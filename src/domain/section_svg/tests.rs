@@ -84,7 +84,7 @@ fn us_units_label_feet_and_stale_inputs_carry_their_age() {
     let result = analyse(&input).unwrap();
     let options = SvgOptions {
         units: crate::config::DisplayUnits::Us,
-        note: "latest heads drawn: P-2 stale, 5.0 h old".into(),
+        note: "stale heads drawn, with their age: P-2 5.0 h".into(),
         marks: vec![("P-2".into(), "stale, 5.0 h old".into())],
         ..SvgOptions::default()
     };
@@ -95,7 +95,7 @@ fn us_units_label_feet_and_stale_inputs_carry_their_age() {
     assert!(svg.contains("Station (ft)") && svg.contains("Elevation (ft)"));
     assert!(!svg.contains(" m<") && !svg.contains("(m)"), "{svg}");
     assert!(svg.contains("(stale, 5.0 h old)"));
-    assert!(svg.contains("latest heads drawn: P-2 stale"));
+    assert!(svg.contains("with their age: P-2 5.0 h"));
 }
 
 #[test]
