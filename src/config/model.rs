@@ -539,6 +539,13 @@ pub struct LandwardDistance {
     pub label: String,
 }
 
+impl LandwardDistance {
+    /// The quantity reported at this distance: `expected_excess_head_at_50ft`.
+    pub fn quantity(&self) -> String {
+        format!("expected_excess_head_at_{}", self.label)
+    }
+}
+
 /// An instrumented cross-section: ground polyline, pool gauge upstream, tail water downstream,
 /// piezometers at (station, tip elevation) from their instrument locations.
 #[derive(Debug, Clone, PartialEq)]

@@ -194,7 +194,7 @@ pub fn blanket_ratio(b: &BlanketReach) -> Option<f64> {
 
 /// Name of the expected excess head at a distance landward of the toe.
 fn at_distance(x: &LandwardDistance) -> String {
-    format!("expected_excess_head_at_{}", x.label)
+    x.quantity()
 }
 
 /// Blanket theory for a reach: the expected toe excess head, exit gradient, residual-head ratio

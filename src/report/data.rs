@@ -5,7 +5,7 @@
 use chrono::{DateTime, Utc};
 use rusqlite::{params, Connection, OptionalExtension};
 
-use crate::config::{Config, DisplayUnits, Instrument, Kind, Location};
+use crate::config::{Config, DisplayUnits, Instrument, Kind, LandwardDistance, Location};
 use crate::quality::Flags;
 
 /// Statistics of one instrument's main quantity over the period.
@@ -90,6 +90,9 @@ pub struct ReportData {
     pub sections: Vec<DerivedStats>,
     /// Nest gradients.
     pub gradients: Vec<DerivedStats>,
+    /// Blanket-theory reaches: net head, expected and measured excess heads (also landward of
+    /// the toe), expected exit gradient and underseepage.
+    pub blankets: Vec<DerivedStats>,
     /// Quarantine in the period (whole service): reason → count.
     pub quarantine: Vec<(String, i64)>,
 }
@@ -254,6 +257,7 @@ pub fn gather(
         toes: Vec::new(),
         sections: Vec::new(),
         gradients: Vec::new(),
+        blankets: Vec::new(),
         quarantine: Vec::new(),
     };
     for i in cfg.instruments.values().filter(|i| i.site == site) {
@@ -278,6 +282,19 @@ pub fn gather(
     for c in o.nests.iter().filter(|x| x.site == site) {
         data.gradients
             .push(derived_stats(conn, &c.id, "vertical_gradient", f, t)?);
+    }
+    for b in o.blankets.iter().filter(|x| x.site == site) {
+        let at: Vec<String> = b.distances.iter().map(LandwardDistance::quantity).collect();
+        let fixed = [
+            "net_head",
+            "expected_excess_head",
+            "measured_excess_head",
+            "expected_exit_gradient",
+            "expected_flow",
+        ];
+        for q in fixed.iter().copied().chain(at.iter().map(String::as_str)) {
+            data.blankets.push(derived_stats(conn, &b.id, q, f, t)?);
+        }
     }
     let mut st = conn.prepare(
         "SELECT reason, count(*) FROM quarantine WHERE received_ms >= ?1 AND received_ms < ?2

@@ -137,7 +137,10 @@ fn derived_table(s: &mut String, rows: &[DerivedStats], tz: Tz, u: DisplayUnits)
     s.push_str("<table><tr><th class=\"l\">Object</th><th class=\"l\">Quantity</th><th>Latest</th><th>at</th><th>Minimum</th><th>at</th><th>Maximum</th><th>at</th><th class=\"l ids\">ids</th></tr>\n");
     for d in rows {
         let v = |x: Option<(i64, f64)>| {
-            x.map_or_else(|| "—".into(), |(_, v)| shown(v, &d.quantity, &d.unit, u))
+            x.map_or_else(
+                || "—".into(),
+                |(_, v)| esc(&shown(v, &d.quantity, &d.unit, u)),
+            )
         };
         // The largest factor of safety of a period says nothing about safety: not shown.
         let fs = measure_of(&d.quantity, &d.unit) == Measure::FactorOfSafety;
@@ -223,6 +226,11 @@ pub fn render(d: &ReportData, x: &Extras) -> String {
         s.push_str("<h2>Vertical gradients</h2>\n");
         derived_table(&mut s, &d.gradients, tz, u);
         s.push_str("<p class=\"note\">Positive gradients mean upward flow.</p>\n");
+    }
+    if !d.blankets.is_empty() {
+        s.push_str("<h2>Blanket theory (expected underseepage heads)</h2>\n");
+        derived_table(&mut s, &d.blankets, tz, u);
+        s.push_str("<p class=\"note\">Expected values from blanket theory for the river stage at the time; measured excess head from the toe piezometer.</p>\n");
     }
     if !d.sections.is_empty() {
         s.push_str("<h2>Sections</h2>\n");
