@@ -201,8 +201,9 @@ pub fn ticks(lo: f64, hi: f64, target: f64) -> Ticks {
         (lo - 0.5, lo + 0.5)
     };
     let step = tick_step(hi - lo, target);
-    let k0 = (lo / step - 1e-9).floor() as i64;
-    let k1 = (hi / step + 1e-9).ceil() as i64;
+    // Within a hair of a whole step counts as on it (no extra empty step).
+    let k0 = (lo / step + 1e-9).floor() as i64;
+    let k1 = (hi / step - 1e-9).ceil() as i64;
     marks(k0, k1, step)
 }
 
@@ -320,7 +321,8 @@ mod tests {
             (99.9, 99.9),
         ] {
             let t = ticks(lo, hi, 6.0);
-            assert!(t.lo <= lo && t.hi >= hi, "{lo}..{hi}: {t:?}");
+            let hair = t.step * 1e-6;
+            assert!(t.lo <= lo + hair && t.hi >= hi - hair, "{lo}..{hi}: {t:?}");
             assert!(t.marks.len() >= 2 && t.marks.len() <= 13, "{t:?}");
             for (v, label) in &t.marks {
                 assert!(is_round(*v, t.step), "{v} step {}", t.step);
@@ -339,6 +341,9 @@ mod tests {
             labels,
             ["94.5", "95.0", "95.5", "96.0", "96.5", "97.0", "97.5"]
         );
+        // A range ending on a whole step ends there.
+        let t = ticks(0.8, 10.0, 6.0);
+        assert_eq!((t.lo, t.hi), (0.0, 10.0));
         let w = ticks_within(0.0, 3.0, 6.0);
         assert_eq!(w.lo, 0.0);
         assert_eq!(w.hi, 3.0);

@@ -194,7 +194,8 @@ pub fn render(c: &Chart) -> String {
         .flat_map(|se| se.points.iter().map(|p| p.1))
         .chain(c.levels.iter().map(|l| cap(l.value)))
         .chain(c.zero_line.then_some(0.0));
-    let Some(t) = range(values).map(|(lo, hi)| ticks(lo, hi, 6.0)) else {
+    let span = range(values).map(|(lo, hi)| (lo, c.cap.map_or(hi, |m| hi.min(m))));
+    let Some(t) = span.map(|(lo, hi)| ticks(lo, hi, 6.0)) else {
         let _ = writeln!(
             s,
             r#"<text x="{}" y="{}" text-anchor="middle">No data in this period</text>"#,
@@ -280,13 +281,15 @@ pub fn render(c: &Chart) -> String {
             yy + 13.0
         );
     }
-    for l in &c.levels {
+    for (k, l) in c.levels.iter().enumerate() {
         let yy = y(cap(l.value));
+        // Labels side by side, so close levels do not write over each other.
+        let lx = LEFT + 4.0 + (k % 4) as f64 * pw / 4.0;
         let _ = writeln!(
             s,
             r##"<line x1="{LEFT}" y1="{yy:.1}" x2="{:.1}" y2="{yy:.1}" stroke="#b00" stroke-dasharray="6 4"/><text x="{:.1}" y="{:.1}" fill="#b00">{}</text>"##,
             LEFT + pw,
-            LEFT + 4.0,
+            lx,
             yy - 3.0,
             xml_escape(&l.label)
         );

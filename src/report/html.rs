@@ -18,8 +18,8 @@ use crate::present::{kind_name, measure_of, quantity_name, Measure};
 
 const CSS: &str = "body{font-family:'DejaVu Sans',Arial,sans-serif;font-size:12px;color:#111;margin:24px;max-width:1000px}\
 h1{font-size:20px;margin:0 0 4px 0}h2{font-size:15px;margin:22px 0 6px 0;border-bottom:1px solid #999}\
-table{border-collapse:collapse;margin:6px 0;width:100%}th,td{border:1px solid #bbb;padding:3px 6px;text-align:right}\
-td{white-space:nowrap}td.l{white-space:normal}th{background:#eee}td.l,th.l{text-align:left}.caution{border:2px solid #b00;padding:6px 10px;margin:10px 0;background:#fff6f6}\
+table{border-collapse:collapse;margin:6px 0;width:100%;font-size:11px}th,td{border:1px solid #bbb;padding:3px 6px;text-align:right}\
+th{background:#eee}td.l,th.l{text-align:left}.caution{border:2px solid #b00;padding:6px 10px;margin:10px 0;background:#fff6f6}\
 .ids{font-size:9px;color:#666}.summary li{margin:2px 0}.meta td{border:none;text-align:left;padding:1px 8px 1px 0}.note{color:#555}.sign td{border:none;padding:18px 12px 2px 0;text-align:left}\
 svg{max-width:100%;height:auto}@media print{body{margin:10mm}h2{break-after:avoid}svg,table{break-inside:avoid}}";
 
