@@ -423,6 +423,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             let files =
                 crate::report::generate(&cfg, &store, &site, from, to, chrono::Utc::now(), &out)?;
             println!("{}", files.html.display());
+            files.pdf.iter().for_each(|p| println!("{}", p.display()));
             for c in files.csv {
                 println!("{}", c.display());
             }

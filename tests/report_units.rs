@@ -63,7 +63,7 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
     let now = Utc.with_ymd_and_hms(2026, 4, 3, 8, 0, 0).unwrap();
     let (docs, summary) =
         seepd::report::render_report(&cfg, &store, "ash-bend", from, to, now).unwrap();
-    let html = &docs[0].text;
+    let html = &docs[0].text();
     seepd::xml_check::check_xml(html).unwrap();
 
     // Units in words and in every table header and axis.
@@ -104,11 +104,11 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
         .find(|d| d.name.ends_with("_derived.csv"))
         .unwrap();
     assert!(
-        derived.text.contains("expected_excess_head_at_50ft"),
+        derived.text().contains("expected_excess_head_at_50ft"),
         "{}",
-        derived.text
+        derived.text()
     );
-    assert!(!derived.text.contains("_at_15.24"));
+    assert!(!derived.text().contains("_at_15.24"));
     // The summary in feet.
     let river = summary
         .iter()
@@ -133,6 +133,52 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
         assert!(body.contains("Automated screening only"), "{body}");
         assert!(body.contains("Alerts in this period"), "{body}");
     }
+
+    // The PDF: the caution, the tables and the summary in feet, on US Letter; attached.
+    let pdf = docs
+        .iter()
+        .find(|d| d.name.ends_with(".pdf"))
+        .expect("a PDF");
+    assert_eq!(pdf.content_type, "application/pdf");
+    let path = dir.path().join(&pdf.name);
+    std::fs::write(&path, &pdf.data).unwrap();
+    let out = std::process::Command::new("pdftotext")
+        .args(["-layout"])
+        .arg(&path)
+        .arg("-")
+        .output()
+        .expect("pdftotext (poppler-utils; tests/run.sh installs it)");
+    assert!(out.status.success());
+    let text = String::from_utf8_lossy(&out.stdout);
+    for part in [
+        "Automated screening only",
+        "engineer of record",
+        "Instruments and where they are",
+        "Tip elevation (ft)",
+        "Latest (ft)",
+        "Toe checks",
+        "Reviewed by:",
+        "Page 1 of",
+        &format!("{max_ft} ft"),
+    ] {
+        assert!(text.contains(part), "the PDF text lacks {part:?}:\n{text}");
+    }
+    let info = std::process::Command::new("pdfinfo")
+        .arg(&path)
+        .output()
+        .unwrap();
+    assert!(String::from_utf8_lossy(&info.stdout).contains("612 x 792 pts (letter)"));
+    let attached: Vec<(String, String)> = c
+        .prepare("SELECT name, content_type FROM outbox_attachments WHERE outbox = ?1")
+        .unwrap()
+        .query_map([id], |r| Ok((r.get(0)?, r.get(1)?)))
+        .unwrap()
+        .collect::<Result<_, _>>()
+        .unwrap();
+    assert!(
+        attached.contains(&(pdf.name.clone(), "application/pdf".into())),
+        "{attached:?}"
+    );
 
     // An alert email on the river stage: feet, per day, words.
     let cfg2 = seepd::config::load_dir(&cfg_dir).unwrap();

@@ -55,12 +55,15 @@ pub fn rows(
     })?;
     for e in events {
         let (e, object, quantity) = e?;
-        let mut v = value(e.value, &quantity, &e.unit, units);
-        if e.unit == "s" && quantity != "no_data" {
-            v = format!("no value for {v}");
-        }
+        let v = value(e.value, &quantity, &e.unit, units);
         let kind = cfg.instruments.get(&object).map(|i| i.kind.name());
         let words = quantity_name(&quantity, kind).to_lowercase();
+        // An age (s) on a safety value is how long it has had no value.
+        let (words, v) = if e.unit == "s" && quantity != "no_data" {
+            (format!("{words}:"), format!("no value for {v}"))
+        } else {
+            (words, v)
+        };
         let detail = if e.detail.is_empty() {
             format!("alert #{}: {words} {v}", e.alert)
         } else {

@@ -7,6 +7,8 @@ pub mod chart;
 pub mod csv;
 pub mod data;
 pub mod html;
+#[cfg(feature = "pdf")]
+pub mod pdf;
 pub mod schedule;
 pub mod scheduler;
 pub mod summary;
@@ -31,6 +33,8 @@ use data::ReportData;
 #[derive(Debug, Clone)]
 pub struct ReportFiles {
     pub html: PathBuf,
+    /// The PDF (built with the `pdf` feature).
+    pub pdf: Option<PathBuf>,
     pub csv: Vec<PathBuf>,
 }
 
@@ -377,12 +381,19 @@ pub fn build(
     Ok((data, extras))
 }
 
-/// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and text.
+/// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and bytes.
 #[derive(Debug, Clone)]
 pub struct Document {
     pub name: String,
     pub content_type: &'static str,
-    pub text: String,
+    pub data: Vec<u8>,
+}
+
+impl Document {
+    /// The document as text (HTML, CSV); a binary one (PDF) reads with replacement characters.
+    pub fn text(&self) -> std::borrow::Cow<'_, str> {
+        String::from_utf8_lossy(&self.data)
+    }
 }
 
 /// Render the report for `site` over [from, to): the HTML document first, then the CSV tables.
@@ -423,8 +434,14 @@ pub fn render_report(
     let mut docs = vec![Document {
         name: format!("{stem}.html"),
         content_type: "text/html; charset=utf-8",
-        text: doc,
+        data: doc.into_bytes(),
     }];
+    #[cfg(feature = "pdf")]
+    docs.push(Document {
+        name: format!("{stem}.pdf"),
+        content_type: "application/pdf",
+        data: pdf::render(&data, &extras)?,
+    });
     for (name, text) in [
         ("instruments", csv::instruments(&data)),
         ("derived", csv::derived(&data)),
@@ -433,7 +450,7 @@ pub fn render_report(
         docs.push(Document {
             name: format!("{stem}_{name}.csv"),
             content_type: "text/csv; charset=utf-8",
-            text,
+            data: text.into_bytes(),
         });
     }
     Ok((docs, summary))
@@ -448,7 +465,7 @@ pub fn write_files(docs: &[Document], out: &Path) -> anyhow::Result<Vec<PathBuf>
     let mut paths = Vec::new();
     for d in docs {
         let p = out.join(&d.name);
-        std::fs::write(&p, &d.text).with_context(|| format!("writing {}", p.display()))?;
+        std::fs::write(&p, &d.data).with_context(|| format!("writing {}", p.display()))?;
         paths.push(p);
     }
     Ok(paths)
@@ -468,12 +485,19 @@ pub fn generate(
     out: &Path,
 ) -> anyhow::Result<ReportFiles> {
     let docs = render_files(cfg, store, site, from, to, now)?;
-    let mut paths = write_files(&docs, out)?.into_iter();
-    let html = paths
+    let paths = write_files(&docs, out)?;
+    let with = |ext: &'static str| {
+        paths
+            .iter()
+            .filter(move |p| p.extension().is_some_and(|e| e == ext))
+    };
+    let html = with("html")
         .next()
+        .cloned()
         .ok_or_else(|| anyhow::anyhow!("no HTML document was rendered"))?;
     Ok(ReportFiles {
         html,
-        csv: paths.collect(),
+        pdf: with("pdf").next().cloned(),
+        csv: with("csv").cloned().collect(),
     })
 }

@@ -139,7 +139,7 @@ pub fn queue_one(
             .map(|d| Attachment {
                 name: d.name,
                 content_type: d.content_type.to_string(),
-                data: d.text.into_bytes(),
+                data: d.data,
             })
             .collect(),
     };
