@@ -189,7 +189,7 @@ impl Layout {
     }
     /// A boxed paragraph in red ink (the caution).
     fn boxed(&mut self, text: &str) {
-        let lines = wrap(text, BODY, self.inner() - 12.0);
+        let lines = wrap(text, BODY, self.inner() - 24.0);
         let h = lines.len() as f32 * BODY * 1.35 + 10.0;
         self.room(h + 6.0);
         let top = self.y;
