@@ -6,6 +6,7 @@
 
 pub mod alerts;
 pub mod background;
+pub mod backoff;
 pub mod cli;
 pub mod config;
 #[cfg(feature = "demo-broker")]
@@ -23,8 +24,10 @@ pub mod replay;
 pub mod scenario;
 pub mod section_cmd;
 pub mod service;
+pub mod shutdown;
 pub mod status;
 pub mod store;
+pub mod timetext;
 pub mod xml_check;
 
 /// The caution every alert email and report carries.

@@ -5,7 +5,6 @@
 //! ingestion) and the shutdown signal; the work itself is in `ingest::mqtt`, `alerts`,
 //! `notify`, `report::scheduler` and `export`.
 
-use std::future::Future;
 use std::sync::Arc;
 
 use anyhow::Context as _;
@@ -21,6 +20,7 @@ use crate::ingest::link::LinkState;
 use crate::ingest::progress::Counters;
 use crate::notify::Worker;
 use crate::report::scheduler::Scheduler;
+use crate::shutdown::Shutdown;
 use crate::store::export::QueueMode;
 use crate::store::Store;
 
@@ -71,14 +71,20 @@ pub fn engine_for(cfg: &Arc<Config>, store: &Store) -> anyhow::Result<Engine> {
     Ok(engine)
 }
 
-/// Run the service until `shutdown` resolves.
+/// The service's shutdown, with the configured deadline.
+#[must_use]
+pub fn shutdown_for(cfg: &Config) -> Shutdown {
+    Shutdown::new(Duration::from_secs(cfg.service.shutdown_deadline_s))
+}
+
+/// Run the service until `shutdown` is requested; every part stops within its deadline.
 ///
 /// # Errors
-/// Database or TLS set-up errors.
+/// Database or TLS set-up errors; a part that did not stop in time (`DeadlinePassed`).
 pub async fn run(
     cfg: Arc<Config>,
     counters: Arc<Counters>,
-    shutdown: impl Future<Output = ()>,
+    shutdown: Shutdown,
 ) -> anyhow::Result<()> {
     survive_file_size_limit();
     let (store, mut engine) = open(&cfg)?;
@@ -94,7 +100,11 @@ pub async fn run(
     );
     let evaluator = Evaluator::load(Arc::clone(&cfg), &store)?;
     let worker = match &cfg.alerting.smtp {
-        Some(smtp) => Some(Worker::spawn(&cfg.service.database, smtp.clone())?),
+        Some(smtp) => Some(Worker::spawn(
+            &cfg.service.database,
+            smtp.clone(),
+            &shutdown,
+        )?),
         None => {
             if !cfg.alerting.rules.is_empty() {
                 tracing::warn!("Rules are configured but [smtp] is not: alert messages stay in the outbox (see `seepd alerts`)");
@@ -108,20 +118,14 @@ pub async fn run(
         Some(Scheduler::spawn(
             Arc::clone(&cfg),
             worker.as_ref().map(Worker::waker),
+            &shutdown,
         )?)
     };
     let (reload_tx, reloads) = crate::reload::channel();
     let live = Live::new(evaluator, worker.as_ref().map(Worker::waker)).with_reloads(reloads);
     let hangups = tokio::spawn(on_hangup(Arc::clone(&cfg), reload_tx));
-    let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
-    let exporter = start_export(&cfg, stop_rx);
+    let exporter = start_export(&cfg, &shutdown);
     let link = LinkState::shared(&cfg.mqtt, Utc::now());
-    let stop_sent = std::sync::OnceLock::new();
-    let forward = async {
-        shutdown.await;
-        let _ = stop_sent.set(tokio::time::Instant::now());
-        let _ = stop_tx.send(true);
-    };
     let result = crate::ingest::mqtt::run(
         Arc::clone(&cfg),
         store,
@@ -129,25 +133,23 @@ pub async fn run(
         live,
         counters,
         link,
-        forward,
+        shutdown.clone(),
     )
     .await;
-    let _ = stop_sent.set(tokio::time::Instant::now());
-    let _ = stop_tx.send(true);
+    // Ingestion ended (stopped, or failed): everything else stops too, within the one
+    // deadline counted from the request.
+    shutdown.request();
     refits.abort();
     hangups.abort();
-    // Everything stops within one deadline counted from the stop request.
-    let deadline_len = Duration::from_secs(cfg.service.shutdown_deadline_s);
-    let end = *stop_sent.get_or_init(tokio::time::Instant::now) + deadline_len;
-    let left = || end.saturating_duration_since(tokio::time::Instant::now());
     let mut late = false;
     if let Some(r) = reports {
-        late |= !r.stop(left());
+        late |= !r.join();
     }
     if let Some(w) = worker {
-        late |= !w.stop(left());
+        late |= !w.join();
     }
     if let Some(task) = exporter {
+        let end = tokio::time::Instant::from_std(shutdown.end());
         match tokio::time::timeout_at(end, task).await {
             Ok(Ok(Ok(()))) => {}
             Ok(Ok(Err(e))) => tracing::error!(error = %format!("{e:#}"), "Export worker failed"),
@@ -160,7 +162,7 @@ pub async fn run(
     }
     result?;
     if late {
-        return Err(crate::ingest::mqtt::DeadlinePassed(deadline_len.as_secs()).into());
+        return Err(crate::ingest::mqtt::DeadlinePassed(shutdown.deadline().as_secs()).into());
     }
     Ok(())
 }
@@ -182,12 +184,15 @@ fn survive_file_size_limit() {
 /// Spawn the export worker when `[export]` is configured and enabled.
 fn start_export(
     cfg: &Arc<Config>,
-    stop: tokio::sync::watch::Receiver<bool>,
+    stop: &Shutdown,
 ) -> Option<tokio::task::JoinHandle<anyhow::Result<()>>> {
     cfg.export.as_ref().filter(|e| e.enabled)?;
     #[cfg(feature = "influx")]
     {
-        Some(tokio::spawn(crate::export::run(Arc::clone(cfg), stop)))
+        Some(tokio::spawn(crate::export::run(
+            Arc::clone(cfg),
+            stop.clone(),
+        )))
     }
     #[cfg(not(feature = "influx"))]
     {

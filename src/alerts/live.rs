@@ -116,8 +116,9 @@ impl Live {
     }
 
     /// Apply acknowledgements and silences, step every rule's timers, commit (retrying until
-    /// the commit succeeds, like a batch), wake the mail worker.
-    pub fn tick(&mut self, store: &mut Store) {
+    /// the commit succeeds, like a batch, or the shutdown: the timers are stepped again at the
+    /// next start), wake the mail worker.
+    pub fn tick(&mut self, store: &mut Store, shutdown: &crate::shutdown::Shutdown) {
         self.last_tick = Instant::now();
         if self.evaluator.is_empty() {
             return;
@@ -138,11 +139,13 @@ impl Live {
             return;
         }
         self.before_commit(&w);
-        let mut wait = Duration::from_millis(100);
+        let mut backoff = crate::ingest::writer::commit_backoff();
         while let Err(e) = store.write_alerts(&w) {
             tracing::error!(error = %e, "Commit of alert state failed; retrying");
-            std::thread::sleep(wait);
-            wait = (wait * 2).min(Duration::from_secs(5));
+            if shutdown.sleep_blocking(backoff.fail()) {
+                tracing::warn!("Shutdown: the rules' timers are stepped again at the next start");
+                return;
+            }
         }
         self.committed(&w);
     }
