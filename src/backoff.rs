@@ -31,6 +31,13 @@ impl Backoff {
         self.min.saturating_mul(1 << exp).min(self.max)
     }
 
+    /// The retry schedule of a failed database commit (the disk may come back: full, or a
+    /// file-size limit): 100 ms doubling to 5 s.
+    #[must_use]
+    pub fn commit() -> Backoff {
+        Backoff::new(Duration::from_millis(100), Duration::from_secs(5))
+    }
+
     /// Count a failure and return how long to wait before the next try.
     pub fn fail(&mut self) -> Duration {
         self.failures = self.failures.saturating_add(1);

@@ -2,7 +2,7 @@
 //! report scheduler and the export worker until a signal.
 //!
 //! Owns start-up order (store, rule states, mail worker, report scheduler, export worker,
-//! ingestion) and the shutdown signal; the work itself is in `ingest::mqtt`, `alerts`,
+//! ingestion) and the order of stopping; the work itself is in `ingest::mqtt`, `alerts`,
 //! `notify`, `report::scheduler` and `export`.
 
 use std::sync::Arc;
@@ -39,36 +39,8 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
             derived: e.derived,
         });
     }
-    let engine = engine_for(cfg, &store)?;
+    let engine = Engine::seeded(cfg, &store)?;
     Ok((store, engine))
-}
-
-/// An engine for `cfg` with its barometer memory, latest heads and trend state seeded from
-/// `store` (at start, and on a reload).
-///
-/// # Errors
-/// Database errors.
-pub fn engine_for(cfg: &Arc<Config>, store: &Store) -> anyhow::Result<Engine> {
-    let now = Utc::now();
-    let mut engine = Engine::new(Arc::clone(cfg));
-    let since = now.timestamp_millis() - cfg.service.barometer_max_age_s * 1000 * 2;
-    for b in engine.barometers() {
-        for (t, p) in store.barometer_since(&b, since)? {
-            engine.remember_barometer(&b, t, p);
-        }
-    }
-    for l in store.latest_all()? {
-        if let Some(head_m) = l.total_head_m {
-            let head = crate::derive::Head {
-                t_ms: l.t_ms,
-                head_m,
-                flags: l.flags,
-            };
-            engine.seed_head(&l.instrument, head);
-        }
-    }
-    crate::watch::seed::from_store(engine.watch_mut(), cfg, store, now.timestamp_millis())?;
-    Ok(engine)
 }
 
 /// The service's shutdown, with the configured deadline.
@@ -252,28 +224,5 @@ async fn on_hangup(started: Arc<Config>, tx: std::sync::mpsc::Sender<Arc<Config>
     #[cfg(not(unix))]
     {
         let _ = (started, tx);
-    }
-}
-
-/// Resolves on SIGINT or SIGTERM.
-pub async fn signal() {
-    #[cfg(unix)]
-    {
-        use tokio::signal::unix::{signal, SignalKind};
-        match signal(SignalKind::terminate()) {
-            Ok(mut term) => {
-                tokio::select! {
-                    _ = tokio::signal::ctrl_c() => {}
-                    _ = term.recv() => {}
-                }
-            }
-            Err(_) => {
-                let _ = tokio::signal::ctrl_c().await;
-            }
-        }
-    }
-    #[cfg(not(unix))]
-    {
-        let _ = tokio::signal::ctrl_c().await;
     }
 }

@@ -149,9 +149,32 @@ impl Shutdown {
     pub fn request_on_signal(&self) {
         let me = self.clone();
         tokio::spawn(async move {
-            crate::service::signal().await;
+            signal().await;
             me.request();
         });
+    }
+}
+
+/// Resolves on SIGINT or SIGTERM.
+pub async fn signal() {
+    #[cfg(unix)]
+    {
+        use tokio::signal::unix::{signal, SignalKind};
+        match signal(SignalKind::terminate()) {
+            Ok(mut term) => {
+                tokio::select! {
+                    _ = tokio::signal::ctrl_c() => {}
+                    _ = term.recv() => {}
+                }
+            }
+            Err(_) => {
+                let _ = tokio::signal::ctrl_c().await;
+            }
+        }
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = tokio::signal::ctrl_c().await;
     }
 }
 

@@ -1,7 +1,7 @@
 //! The one reader of times written by people — command-line options, the `installed` key of an
 //! instrument, a silence's expiry: an RFC 3339 date-time, or a date (midnight UTC), or for an
 //! expiry a span from now (`+30m`, `+4h`, `+2d`). Timestamps inside payloads are the
-//! decoders' (`ingest::decode::time`).
+//! decoders' (`payload::decode::time`).
 
 use chrono::{DateTime, NaiveDate, Utc};
 

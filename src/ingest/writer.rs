@@ -42,11 +42,6 @@ pub struct Arrived {
     pub generation: u64,
 }
 
-/// Retry schedule of a failed commit (the disk may come back: full, or a file-size limit).
-pub fn commit_backoff() -> crate::backoff::Backoff {
-    crate::backoff::Backoff::new(Duration::from_millis(100), Duration::from_secs(5))
-}
-
 /// State shared by the network task and the writer thread.
 #[derive(Debug, Default)]
 pub struct Flow {
@@ -214,7 +209,7 @@ impl Writer {
     /// Process one batch and commit it, retrying the commit until it succeeds (nothing is
     /// acknowledged meanwhile). False when shutdown came first and nothing was committed.
     fn commit(&mut self, batch: &[Arrived], qlog: &mut QuarantineLog) -> bool {
-        crate::alerts::live::pause_point("writer_batch");
+        crate::testpoint::pause_point("writer_batch");
         let mut out = Outcome::default();
         for a in batch {
             let msg = Message {
@@ -233,7 +228,7 @@ impl Writer {
             flag_updates,
         } = out;
         self.alerts.before_commit(&aw);
-        let mut backoff = commit_backoff();
+        let mut backoff = crate::backoff::Backoff::commit();
         let stats = loop {
             match self.store.write_batch_flagged(
                 &readings,

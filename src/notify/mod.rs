@@ -92,7 +92,7 @@ pub fn deliver_due(
             .map(|(r, _)| r.as_str())
             .collect();
         if !accepted.is_empty() {
-            crate::alerts::live::pause_point("after_send");
+            crate::testpoint::pause_point("after_send");
             tracing::info!(message_id = %m.message_id, to = %accepted.join(","), "Alert message accepted by the mail relay");
             pass.sent += 1;
         }
