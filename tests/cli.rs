@@ -244,3 +244,26 @@ fn output_into_a_closed_pipe_ends_quietly() {
     assert_eq!(out.status.code(), Some(0), "{err}");
     assert!(!err.contains("panicked"), "{err}");
 }
+
+/// The two-command start: `seepd demo` brings up its embedded broker, the service and the
+/// simulated loggers, stores readings and stops cleanly after the days asked for.
+#[test]
+fn demo_runs_its_embedded_broker_and_stops_cleanly() {
+    let (code, out, err) = seepd(&["demo", "--seconds-per-day", "1", "--days", "1"]);
+    assert_eq!(code, 0, "{out}\n{err}");
+    assert!(out.contains("embedded broker on 127.0.0.1:"), "{out}");
+    assert!(out.contains("Demo stopped cleanly"), "{out}");
+    // The last summary line: "--- N messages, M readings stored, ...".
+    let stored: u64 = out
+        .lines()
+        .rev()
+        .find_map(|l| {
+            l.split(", ")
+                .nth(1)?
+                .strip_suffix(" readings stored")?
+                .parse()
+                .ok()
+        })
+        .unwrap_or(0);
+    assert!(stored > 100, "{out}");
+}
