@@ -253,10 +253,7 @@ fn send_all(store: &Store, smtp: &crate::config::Smtp) -> anyhow::Result<()> {
             break;
         }
         std::thread::sleep(std::time::Duration::from_secs(smtp.retry_min_s.min(10)));
-        store.conn().execute(
-            "UPDATE outbox SET next_attempt_ms = 0 WHERE status = 'pending'",
-            [],
-        )?;
+        store.make_pending_due()?;
     }
     Ok(())
 }

@@ -203,18 +203,7 @@ fn print_summary(db: &std::path::Path, counters: &Counters) {
             }
         }
     }
-    let active: Vec<(String, String, String)> = store
-        .conn()
-        .prepare("SELECT rule, level, object FROM alerts WHERE resolved_ms IS NULL ORDER BY id")
-        .and_then(|mut st| {
-            st.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?
-                .collect::<Result<Vec<_>, _>>()
-        })
-        .unwrap_or_default();
-    let raised: i64 = store
-        .conn()
-        .query_row("SELECT count(*) FROM alerts", [], |r| r.get(0))
-        .unwrap_or(0);
+    let (raised, active) = store.alert_summary().unwrap_or_default();
     s.push_str(&format!(
         "  alerts: {raised} raised so far, {} active",
         active.len()

@@ -14,6 +14,7 @@ pub mod outbox;
 pub mod reports;
 mod schema;
 mod state;
+pub mod summary;
 
 use std::path::Path;
 
