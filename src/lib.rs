@@ -27,6 +27,7 @@ pub mod reload;
 pub mod replay;
 pub mod scenario;
 pub mod section_cmd;
+pub mod section_svg;
 pub mod service;
 pub mod shutdown;
 pub mod status;

@@ -10,7 +10,7 @@ use chrono::{DateTime, Utc};
 use crate::config::Config;
 use crate::derive::section_input;
 use crate::domain::section::analyse;
-use crate::domain::section_svg::{render_section_svg, SvgOptions};
+use crate::section_svg::{render_section_svg, SvgOptions};
 use crate::store::Store;
 
 /// Render section `id` at time `at` from `store`.

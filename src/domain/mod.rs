@@ -11,7 +11,6 @@ pub mod lsq;
 pub mod response;
 pub mod rules;
 pub mod section;
-pub mod section_svg;
 pub mod toe;
 pub mod trend;
 pub mod units;

@@ -10,7 +10,7 @@ use std::fmt::Write as _;
 use chrono::{TimeZone, Utc};
 use chrono_tz::Tz;
 
-use crate::domain::section_svg::xml_escape;
+use crate::section_svg::xml_escape;
 use crate::present::format::{ticks, Ticks};
 
 /// One plotted line.

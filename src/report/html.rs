@@ -8,7 +8,7 @@ use chrono_tz::Tz;
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
 use crate::config::DisplayUnits;
-use crate::domain::section_svg::xml_escape as esc;
+use crate::section_svg::xml_escape as esc;
 use crate::present::format::{
     digits, duration, fixed, shown, shown_bare, with_digits, FS_CAP_RULE,
 };

@@ -19,7 +19,7 @@ use super::html::local;
 use super::schedule::{last_due, next_due, period};
 use crate::background::{Background, Signals, Waker};
 use crate::config::{Config, ReportSchedule};
-use crate::domain::section_svg::xml_escape as esc;
+use crate::section_svg::xml_escape as esc;
 use crate::shutdown::Shutdown;
 use crate::store::{Attachment, ReportMessage, Store};
 
