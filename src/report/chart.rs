@@ -10,8 +10,8 @@ use std::fmt::Write as _;
 use chrono::{TimeZone, Utc};
 use chrono_tz::Tz;
 
-use crate::section_svg::xml_escape;
 use crate::present::format::{ticks, Ticks};
+use crate::section_svg::xml_escape;
 
 /// One plotted line.
 #[derive(Debug, Clone)]

@@ -8,13 +8,13 @@ use chrono_tz::Tz;
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
 use crate::config::DisplayUnits;
-use crate::section_svg::xml_escape as esc;
 use crate::present::format::{
     digits, duration, fixed, shown, shown_bare, with_digits, FS_CAP_RULE,
 };
 use crate::present::labels::system_name;
 use crate::present::units::{convert_difference, unit_label};
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
+use crate::section_svg::xml_escape as esc;
 
 const CSS: &str = "body{font-family:'DejaVu Sans',Arial,sans-serif;font-size:12px;color:#111;margin:24px;max-width:1000px}\
 h1{font-size:20px;margin:0 0 4px 0}h2{font-size:15px;margin:22px 0 6px 0;border-bottom:1px solid #999}\
