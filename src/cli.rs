@@ -163,6 +163,11 @@ pub enum Command {
         #[arg(long, value_name = "MODEL")]
         id: Option<String>,
     },
+    /// Manage the people who may sign in to the web pages (`[http]`).
+    User {
+        #[command(subcommand)]
+        action: crate::web::user_cmd::UserAction,
+    },
     /// Run a self-contained demo: embedded broker, the service and simulated loggers.
     Demo {
         /// Seconds of wall time per simulated day.
@@ -498,6 +503,14 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             let code = crate::fit_cmd::run(&cfg, &store, id.as_deref(), &mut out)?;
             print!("{out}");
             Ok(code)
+        }
+        Command::User { action } => {
+            let (db, _) = match operator(action.on()) {
+                Ok(found) => found,
+                Err(code) => return Ok(code),
+            };
+            print!("{}", crate::web::user_cmd::run(&db, &action)?);
+            Ok(0)
         }
         Command::Demo {
             seconds_per_day,

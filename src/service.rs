@@ -116,6 +116,19 @@ pub async fn run(
     let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
     let exporter = start_export(&cfg, stop_rx);
     let link = LinkState::shared(&cfg.mqtt, Utc::now());
+    let web = crate::web::start(
+        crate::web::Parts {
+            cfg: Arc::clone(&cfg),
+            link: Arc::clone(&link),
+            counters: Arc::clone(&counters),
+        },
+        {
+            let mut stop = stop_tx.subscribe();
+            async move {
+                let _ = stop.wait_for(|s| *s).await;
+            }
+        },
+    )?;
     let stop_sent = std::sync::OnceLock::new();
     let forward = async {
         shutdown.await;
@@ -156,6 +169,12 @@ pub async fn run(
                 late = true;
                 tracing::error!("Export worker did not stop before the shutdown deadline; unsent points stay queued");
             }
+        }
+    }
+    if let Some(task) = web {
+        if tokio::time::timeout_at(end, task).await.is_err() {
+            late = true;
+            tracing::error!("Web pages did not stop before the shutdown deadline");
         }
     }
     result?;
