@@ -31,7 +31,7 @@ pub mod user_cmd;
 pub mod words;
 
 use std::future::Future;
-use std::sync::atomic::{AtomicI64, Ordering};
+use std::sync::atomic::{AtomicI64, AtomicU64, Ordering};
 use std::sync::Arc;
 use std::time::Duration;
 
@@ -57,6 +57,8 @@ pub struct Web {
     /// When the message count last grew (ms since the epoch; 0: no commit since start) — the
     /// writer counts after each commit, so this is the last commit time to within the poll.
     pub last_commit_ms: AtomicI64,
+    /// The message count when `last_commit_ms` was set.
+    seen_messages: AtomicU64,
     pub sessions: auth::Sessions,
 }
 
@@ -92,6 +94,7 @@ pub fn start(
     let local = listener.local_addr()?;
     let server = axum::Server::from_tcp(listener)?;
     token::install_links(&http.public_base_url, key.clone(), http.ack_link_valid_h);
+    let parts_messages = parts.counters.snapshot().0;
     let web = Arc::new(Web {
         cfg: parts.cfg,
         http,
@@ -99,6 +102,7 @@ pub fn start(
         link: parts.link,
         counters: parts.counters,
         last_commit_ms: AtomicI64::new(0),
+        seen_messages: AtomicU64::new(parts_messages),
         sessions: auth::Sessions::default(),
     });
     if !local.ip().is_loopback() {
@@ -139,23 +143,26 @@ pub fn routes(web: Shared) -> Router {
         .with_state(web)
 }
 
-/// Note when the committed message count grows.
+/// Note when the committed message count grows (also noted on every question, so that an
+/// answer right after a commit is exact).
 async fn watch_commits(web: Shared) {
-    let mut seen = web.counters.snapshot().0;
     loop {
         tokio::time::sleep(COMMIT_POLL).await;
-        let now = web.counters.snapshot().0;
-        if now != seen {
-            seen = now;
-            web.last_commit_ms
-                .store(Utc::now().timestamp_millis(), Ordering::Relaxed);
-        }
+        web.note_commits(Utc::now().timestamp_millis());
     }
 }
 
 impl Web {
+    fn note_commits(&self, now_ms: i64) {
+        let now = self.counters.snapshot().0;
+        if self.seen_messages.swap(now, Ordering::Relaxed) != now {
+            self.last_commit_ms.store(now_ms, Ordering::Relaxed);
+        }
+    }
+
     /// Seconds since the last commit, if there was one since start.
     pub fn commit_age_s(&self, now_ms: i64) -> Option<f64> {
+        self.note_commits(now_ms);
         let t = self.last_commit_ms.load(Ordering::Relaxed);
         (t > 0).then(|| (now_ms - t).max(0) as f64 / 1000.0)
     }
