@@ -124,10 +124,7 @@ fn summary(web: &Web, a: &super::db::Alert) -> String {
             ),
         ],
     ];
-    format!(
-        "<div class=\"card warn\">{}</div>",
-        html::table(&["", ""], &rows)
-    )
+    format!("<div class=\"card warn\">{}</div>", html::kv(&rows))
 }
 
 /// GET /ack/:token — the confirmation page; changes nothing.

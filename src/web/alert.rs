@@ -89,7 +89,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
             ),
         ],
         vec![
-            "Value when raised or last changed".into(),
+            "Value when raised".into(),
             escape(&words::value(a.value, &a.unit, units)),
         ],
         vec![
@@ -102,6 +102,20 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         ],
         vec!["State".into(), state],
     ];
+    if let Some(e) = events.iter().rev().find(|e| e.value.is_some()) {
+        rows.insert(
+            3,
+            vec![
+                "Latest value in its history".into(),
+                format!(
+                    "{} <span class=\"note\">({}, {})</span>",
+                    escape(&words::value(e.value, &e.unit, units)),
+                    escape(&words::event(&e.kind)),
+                    escape(&html::time(e.t_ms, tz))
+                ),
+            ],
+        );
+    }
     if let Some(l) = level_spec {
         rows.push(vec![
             "Bound".into(),
@@ -124,7 +138,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         } else {
             "warn"
         },
-        html::table(&["", ""], &rows)
+        html::kv(&rows)
     );
 
     if a.resolved_ms.is_none() {
@@ -166,19 +180,26 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
     let rows: Vec<Vec<String>> = events
         .iter()
         .map(|e| {
+            let detail = if e.detail.is_empty() {
+                String::new()
+            } else {
+                format!("<br><span class=\"note\">{}</span>", escape(&e.detail))
+            };
             vec![
-                escape(&html::time(e.recorded_ms, tz)),
-                escape(&words::event(&e.kind)),
+                escape(&html::time(e.t_ms, tz)),
+                format!("{}{detail}", escape(&words::event(&e.kind))),
                 html::level(&e.level, web.top_level(&a.rule, &e.level)),
-                escape(&words::value(e.value, &e.unit, units)),
-                escape(&e.detail),
+                format!(
+                    "<span class=\"num\">{}</span>",
+                    escape(&words::value(e.value, &e.unit, units))
+                ),
             ]
         })
         .collect();
     let _ = write!(
         b,
-        "<h2>History</h2>{}",
-        html::table(&["When", "What", "Level", "Value", "Detail"], &rows)
+        "<h2>History</h2><p class=\"note\">Times are those of the values that caused each step.</p>{}",
+        html::table(&["When", "What", "Level", "Value"], &rows)
     );
     html::respond(
         StatusCode::OK,

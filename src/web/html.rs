@@ -20,11 +20,13 @@ header a{color:#fff}header .who{margin-left:auto;font-size:.9rem}\
 main{padding:.6rem .8rem;max-width:60rem;margin:auto}\
 h1{font-size:1.3rem;margin:.6rem 0}h2{font-size:1.1rem;margin:1rem 0 .4rem;border-bottom:1px solid #ccc}\
 table{border-collapse:collapse;width:100%;margin:.3rem 0 .8rem;font-size:.95rem}\
-th,td{text-align:left;padding:.3rem .4rem;border-bottom:1px solid #ddd;vertical-align:top}\
-th{font-weight:600;background:#eef1f3}\
-.lvl{display:inline-block;padding:.05rem .45rem;border-radius:.3rem;font-weight:700;border:2px solid #333;background:#fff}\
+th,td{text-align:left;padding:.3rem .4rem;border-bottom:1px solid #ddd;vertical-align:top;overflow-wrap:anywhere}\
+table.kv th{background:none;width:38%}.num{white-space:nowrap}\
+th{font-weight:600;background:#eef1f3;overflow-wrap:normal}\
+.lvl{display:inline-block;white-space:nowrap;overflow-wrap:normal;padding:.05rem .45rem;border-radius:.3rem;font-weight:700;border:2px solid #333;background:#fff}\
 .lvl-top{background:#000;color:#fff}\
 .card{background:#fff;border:1px solid #ccc;border-radius:.4rem;padding:.5rem .7rem;margin:.5rem 0}\
+ul.alerts{list-style:none;padding:0;margin:.3rem 0}ul.alerts li{padding:.45rem 0;border-top:1px solid #ddd}\
 .warn{border-left:.35rem solid #b00020}.ok{border-left:.35rem solid #2e7d32}.note{color:#555;font-size:.9rem}\
 form{margin:.4rem 0}label{display:block;margin:.35rem 0 .1rem;font-weight:600}\
 input,select,textarea{font-size:1rem;padding:.45rem;width:100%;max-width:28rem;border:1px solid #888;border-radius:.3rem}\
@@ -119,6 +121,20 @@ pub fn level(name: &str, top: bool) -> String {
 /// A time in the zone `tz` to the minute (UTC beside it).
 pub fn time(t_ms: i64, tz: chrono_tz::Tz) -> String {
     crate::alerts::render::time(t_ms, tz)
+}
+
+/// A two-column table of [label, value] rows (both already escaped), without a header.
+pub fn kv(rows: &[Vec<String>]) -> String {
+    let mut s = String::from("<table class=\"kv\">");
+    for r in rows {
+        let (k, v) = (
+            r.first().map_or("", String::as_str),
+            r.get(1).map_or("", String::as_str),
+        );
+        let _ = write!(s, "<tr><th>{k}</th><td>{v}</td></tr>");
+    }
+    s.push_str("</table>");
+    s
 }
 
 /// A table from a header row and rows of already-escaped cells.

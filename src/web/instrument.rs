@@ -147,7 +147,7 @@ pub async fn page(
             let _ = write!(
                 b,
                 "<h2>Latest reading</h2><div class=\"card\">{}</div>",
-                html::table(&["", ""], &rows)
+                html::kv(&rows)
             );
         }
     }

@@ -75,44 +75,35 @@ fn site_block(b: &mut String, web: &super::Web, site: &crate::config::Site, d: &
     if alerts.is_empty() {
         b.push_str("<div class=\"card ok\"><p>No open alerts.</p></div>");
     } else {
-        let rows: Vec<Vec<String>> = alerts
+        let items: String = alerts
             .iter()
             .map(|a| {
-                vec![
-                    format!(
-                        "<a href=\"/alerts/{}\">{}</a>",
-                        a.id,
-                        html::level(&a.level, web.top_level(&a.rule, &a.level))
+                let acked = match (&a.acked_by, a.acked_ms) {
+                    (Some(by), Some(t)) => format!(
+                        "acknowledged by {} {}",
+                        escape(by),
+                        escape(&words::age(now_ms - t))
                     ),
-                    format!(
-                        "<a href=\"/alerts/{}\">{} — {}</a>",
-                        a.id,
-                        escape(&a.object),
-                        escape(&words::quantity(&a.quantity))
-                    ),
+                    _ => "<strong>not acknowledged</strong>".into(),
+                };
+                format!(
+                    "<li><a href=\"/alerts/{id}\">{} {} — {}</a><br>raised at {}, {} \
+                     <span class=\"note\">({})</span><br>{acked}</li>",
+                    html::level(&a.level, web.top_level(&a.rule, &a.level)),
+                    escape(&a.object),
+                    escape(&words::quantity(&a.quantity)),
                     escape(&words::value(a.value, &a.unit, units)),
-                    format!(
-                        "{}<br><span class=\"note\">{}</span>",
-                        escape(&html::time(a.raised_ms, tz)),
-                        escape(&words::age(now_ms - a.raised_ms))
-                    ),
-                    match (&a.acked_by, a.acked_ms) {
-                        (Some(by), Some(t)) => format!(
-                            "{} <span class=\"note\">{}</span>",
-                            escape(by),
-                            escape(&words::age(now_ms - t))
-                        ),
-                        _ => "<strong>not acknowledged</strong>".into(),
-                    },
-                ]
+                    escape(&words::age(now_ms - a.raised_ms)),
+                    escape(&html::time(a.raised_ms, tz)),
+                    id = a.id,
+                )
             })
             .collect();
         let _ = write!(
             b,
-            "<div class=\"card warn\"><strong>{} open alert{}</strong>{}</div>",
+            "<div class=\"card warn\"><strong>{} open alert{}</strong><ul class=\"alerts\">{items}</ul></div>",
             alerts.len(),
             if alerts.len() == 1 { "" } else { "s" },
-            html::table(&["Level", "What", "Value", "Since", "Acknowledged"], &rows)
         );
     }
     // Safety quantities of the site's objects, most important quantity first.
@@ -280,6 +271,6 @@ fn service_block(b: &mut String, web: &super::Web, d: &Data, now_ms: i64) {
         b,
         "<h2>The service</h2><div class=\"card {}\">{}</div>",
         if warn { "warn" } else { "ok" },
-        html::table(&["", ""], &rows)
+        html::kv(&rows)
     );
 }

@@ -47,8 +47,30 @@ pub fn request(
     head.push_str("\r\n");
     s.write_all(head.as_bytes()).unwrap();
     s.write_all(body).unwrap();
+    // Read the head, then exactly Content-Length bytes when given (some servers keep the
+    // connection open despite `Connection: close`), else to the end.
     let mut raw = Vec::new();
-    s.read_to_end(&mut raw).unwrap();
+    let mut buf = [0u8; 16384];
+    loop {
+        let n = s.read(&mut buf).unwrap();
+        raw.extend_from_slice(&buf[..n]);
+        let Some(split) = raw.windows(4).position(|w| w == b"\r\n\r\n") else {
+            if n == 0 {
+                break;
+            }
+            continue;
+        };
+        let head = String::from_utf8_lossy(&raw[..split]).to_ascii_lowercase();
+        let length = head
+            .lines()
+            .find_map(|l| l.strip_prefix("content-length:"))
+            .and_then(|v| v.trim().parse::<usize>().ok());
+        match length {
+            Some(len) if raw.len() >= split + 4 + len => break,
+            _ if n == 0 => break,
+            _ => {}
+        }
+    }
     parse(&raw)
 }
 
