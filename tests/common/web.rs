@@ -106,10 +106,7 @@ fn parse(raw: &[u8]) -> Answer {
 
 fn unchunk(mut b: &[u8]) -> Vec<u8> {
     let mut out = Vec::new();
-    loop {
-        let Some(eol) = b.windows(2).position(|w| w == b"\r\n") else {
-            break;
-        };
+    while let Some(eol) = b.windows(2).position(|w| w == b"\r\n") {
         let size = usize::from_str_radix(
             String::from_utf8_lossy(&b[..eol])
                 .split(';')
