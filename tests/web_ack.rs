@@ -9,7 +9,7 @@ mod web;
 
 use std::time::Duration;
 
-use common::smtp::{alert_config, Opts, SmtpServer};
+use common::smtp::SmtpServer;
 use common::*;
 
 const TOPIC: &str = "demo/AB-LOG1/json";
@@ -53,30 +53,14 @@ fn link_for(smtp: &SmtpServer, level: &str, n: usize) -> String {
 
 #[test]
 fn the_email_link_acknowledges_only_by_post_and_only_at_its_level() {
-    let dir = tempfile::tempdir().unwrap();
-    let broker = Broker::start(dir.path());
-    let smtp = SmtpServer::start(dir.path(), Opts::default());
-    let cfg = alert_config(
-        dir.path(),
-        broker.port,
-        smtp.port,
-        &[
-            ("remind_every_s = 14400", "remind_every_s = 0"),
-            ("escalate_after_s = 3600", "escalate_after_s = 0"),
-        ],
-    );
-    let port = free_port();
-    web::add_http(&cfg, port, "");
-    let log = dir.path().join("seepd.log");
-    let d = Daemon::start(&cfg, &log);
-    d.wait_connected(1);
-    web::wait_up(port);
+    let r = web::mail_rig();
+    let (dir, broker, smtp, log, port) = (&r.dir, &r.broker, &r.smtp, &r.log, r.port);
     let p = Publisher::connect(broker.port, "pub-web-ack");
     let mut t_s = chrono::Utc::now().timestamp() - 60;
 
     // Watch level (head 95.5 m > 95.0 m), twice for persistence: alert 1 and its email.
     river(&p, &mut t_s, &[5.5, 5.5]);
-    let watch = link_for(&smtp, "WATCH", 1);
+    let watch = link_for(smtp, "WATCH", 1);
 
     // A GET (as a mail scanner would) shows the confirmation page and changes nothing.
     for _ in 0..3 {
@@ -122,7 +106,7 @@ fn the_email_link_acknowledges_only_by_post_and_only_at_its_level() {
 
     // Concern level (97.0 m): the alert escalates; the watch link no longer acknowledges.
     river(&p, &mut t_s, &[7.0, 7.0]);
-    let concern = link_for(&smtp, "CONCERN", 2);
+    let concern = link_for(smtp, "CONCERN", 2);
     assert_ne!(concern, watch);
     let a = web::post_form(port, &watch, &[], &[("who", "old link"), ("note", "")]);
     assert_eq!(a.status, 409, "{}", a.body);
@@ -166,7 +150,6 @@ fn the_email_link_acknowledges_only_by_post_and_only_at_its_level() {
     assert_eq!(acked(dir.path(), 1).0, 1);
 
     // The key never reaches the log.
-    let text = std::fs::read_to_string(&log).unwrap();
+    let text = std::fs::read_to_string(log).unwrap();
     assert!(!text.contains(key_hex.trim()));
-    drop(d);
 }

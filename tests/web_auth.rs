@@ -30,12 +30,7 @@ fn raise(rig: &Rig) {
 #[test]
 fn pages_need_a_session_and_changes_need_its_csrf_token() {
     let port = free_port();
-    let rig = Rig::start_with(|dir, mqtt| {
-        let cfg = example_config(dir, mqtt);
-        web::add_http(&cfg, port, "");
-        cfg
-    });
-    web::wait_up(port);
+    let rig = web::page_rig(port, "");
     web::add_user(seepd_bin(), &rig.cfg, "alice", PASSWORD);
     raise(&rig);
 
@@ -199,12 +194,7 @@ fn pages_need_a_session_and_changes_need_its_csrf_token() {
 #[test]
 fn anonymous_read_access_shows_pages_but_changes_nothing() {
     let port = free_port();
-    let rig = Rig::start_with(|dir, mqtt| {
-        let cfg = example_config(dir, mqtt);
-        web::add_http(&cfg, port, "allow_anonymous = true");
-        cfg
-    });
-    web::wait_up(port);
+    let rig = web::page_rig(port, "allow_anonymous = true");
     raise(&rig);
     let page = web::get(port, "/alerts/1", None);
     assert_eq!(page.status, 200);

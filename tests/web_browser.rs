@@ -14,7 +14,6 @@ mod web;
 use std::path::PathBuf;
 use std::time::Duration;
 
-use common::smtp::{alert_config, Opts, SmtpServer};
 use common::*;
 
 const TOPIC: &str = "demo/AB-LOG1/json";
@@ -38,25 +37,9 @@ fn save(b: &browser::Browser, name: &str, for_docs: bool) {
 
 #[test]
 fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
-    let dir = tempfile::tempdir().unwrap();
-    let broker = Broker::start(dir.path());
-    let smtp = SmtpServer::start(dir.path(), Opts::default());
-    let cfg = alert_config(
-        dir.path(),
-        broker.port,
-        smtp.port,
-        &[
-            ("remind_every_s = 14400", "remind_every_s = 0"),
-            ("escalate_after_s = 3600", "escalate_after_s = 0"),
-        ],
-    );
-    let port = free_port();
-    web::add_http(&cfg, port, "");
-    let log = dir.path().join("seepd.log");
-    let d = Daemon::start(&cfg, &log);
-    d.wait_connected(1);
-    web::wait_up(port);
-    web::add_user(seepd_bin(), &cfg, "alice", PASSWORD);
+    let r = web::mail_rig();
+    let (dir, broker, smtp, cfg, port) = (&r.dir, &r.broker, &r.smtp, &r.cfg, r.port);
+    web::add_user(seepd_bin(), cfg, "alice", PASSWORD);
 
     // Two days of hourly river stage rising from 2.0 m to 5.6 m depth (95.6 m: watch level).
     let p = Publisher::connect(broker.port, "pub-web-browser");
@@ -118,7 +101,6 @@ fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     assert!(!src.contains("not acknowledged"), "{src}");
     assert!(src.contains("alice"));
     drop(b);
-    drop(d);
 }
 
 /// The demo's flood (the invented sites, `seepd::demo::sim`) published through Mosquitto up to
@@ -127,12 +109,7 @@ fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
 #[test]
 fn the_demo_flood_at_phone_width() {
     let port = free_port();
-    let rig = Rig::start_with(|dir, mqtt| {
-        let cfg = example_config(dir, mqtt);
-        web::add_http(&cfg, port, "allow_anonymous = true");
-        cfg
-    });
-    web::wait_up(port);
+    let rig = web::page_rig(port, "allow_anonymous = true");
     let config = seepd::config::load_dir(&rig.cfg).unwrap_or_else(|p| panic!("{p}"));
     let hours: u32 = 66;
     let now = chrono::Utc::now();

@@ -66,12 +66,7 @@ fn metric(m: &BTreeMap<String, f64>, key: &str) -> f64 {
 #[test]
 fn health_ready_and_metrics_follow_readings_and_the_broker() {
     let port = free_port();
-    let mut rig = Rig::start_with(|dir, mqtt| {
-        let cfg = example_config(dir, mqtt);
-        web::add_http(&cfg, port, "");
-        cfg
-    });
-    web::wait_up(port);
+    let mut rig = web::page_rig(port, "");
 
     // Pages need a sign-in; health endpoints do not.
     let a = web::get(port, "/", None);

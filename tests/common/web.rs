@@ -267,3 +267,59 @@ pub fn sign_in(port: u16, name: &str, password: &str) -> String {
     assert_eq!(a.status, 303, "sign-in: {}", a.body);
     session_cookie(&a).expect("a session cookie")
 }
+
+/// seepd on the example configuration with `[http]` on `port` (plus `extra` keys), connected
+/// to a broker of its own, the pages answering.
+pub fn page_rig(port: u16, extra: &str) -> super::common::Rig {
+    let rig = super::common::Rig::start_with(|dir, mqtt| {
+        let cfg = super::common::example_config(dir, mqtt);
+        add_http(&cfg, port, extra);
+        cfg
+    });
+    wait_up(port);
+    rig
+}
+
+/// seepd with the pages on, a broker and an SMTP server of its own; a quiet policy (no
+/// reminders, no escalation). Fields drop in order: the daemon first, the directory last.
+pub struct MailRig {
+    pub daemon: super::common::Daemon,
+    pub smtp: super::common::smtp::SmtpServer,
+    pub broker: super::common::Broker,
+    pub cfg: std::path::PathBuf,
+    pub log: std::path::PathBuf,
+    /// The pages' port.
+    pub port: u16,
+    pub dir: tempfile::TempDir,
+}
+
+pub fn mail_rig() -> MailRig {
+    use super::common::smtp::{alert_config, Opts, SmtpServer};
+    let dir = tempfile::tempdir().unwrap();
+    let broker = super::common::Broker::start(dir.path());
+    let smtp = SmtpServer::start(dir.path(), Opts::default());
+    let cfg = alert_config(
+        dir.path(),
+        broker.port,
+        smtp.port,
+        &[
+            ("remind_every_s = 14400", "remind_every_s = 0"),
+            ("escalate_after_s = 3600", "escalate_after_s = 0"),
+        ],
+    );
+    let port = super::common::free_port();
+    add_http(&cfg, port, "");
+    let log = dir.path().join("seepd.log");
+    let daemon = super::common::Daemon::start(&cfg, &log);
+    daemon.wait_connected(1);
+    wait_up(port);
+    MailRig {
+        daemon,
+        smtp,
+        broker,
+        cfg,
+        log,
+        port,
+        dir,
+    }
+}
