@@ -92,7 +92,7 @@ pub fn start(
         .map_err(|e| anyhow::anyhow!("[http] bind {}: {e}", http.bind))?;
     listener.set_nonblocking(true)?;
     let local = listener.local_addr()?;
-    let server = axum::Server::from_tcp(listener)?;
+    let listener = tokio::net::TcpListener::from_std(listener)?;
     token::install_links(&http.public_base_url, key.clone(), http.ack_link_valid_h);
     let parts_messages = parts.counters.snapshot().0;
     let web = Arc::new(Web {
@@ -112,8 +112,7 @@ pub fn start(
     let watcher = tokio::spawn(watch_commits(Arc::clone(&web)));
     let app = routes(web);
     Ok(Some(tokio::spawn(async move {
-        let served = server
-            .serve(app.into_make_service())
+        let served = axum::serve(listener, app.into_make_service())
             .with_graceful_shutdown(shutdown)
             .await;
         watcher.abort();
