@@ -27,18 +27,26 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         Err(r) => return r,
     };
     let now_ms = Utc::now().timestamp_millis();
-    let from_ms = now_ms - PLOT_DAYS * 86_400_000;
+    let span_ms = PLOT_DAYS * 86_400_000;
     let data = web
         .read(move |s| {
             let Some(a) = super::db::alert(s.conn(), id)? else {
                 return Ok(None);
             };
             let events = s.alert_events(id)?;
-            let points = instrument::series(s, &a.object, &a.quantity, from_ms, now_ms + 1)?;
-            Ok(Some((a, events, points)))
+            // The plot ends now; when nothing was stored in its period, at the alert's last
+            // event (so that the values behind it are shown).
+            let mut end_ms = now_ms + 1;
+            let mut points =
+                instrument::series(s, &a.object, &a.quantity, end_ms - span_ms, end_ms)?;
+            if let (true, Some(e)) = (points.is_empty(), events.last()) {
+                end_ms = e.t_ms + 3_600_000;
+                points = instrument::series(s, &a.object, &a.quantity, end_ms - span_ms, end_ms)?;
+            }
+            Ok(Some((a, events, points, end_ms)))
         })
         .await;
-    let (a, events, points) = match data {
+    let (a, events, points, end_ms) = match data {
         Ok(Some(x)) => x,
         Ok(None) => {
             return html::message(
@@ -160,7 +168,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
     });
     let svg = chart::render(&Chart {
         title: format!(
-            "{} — {}, last {PLOT_DAYS} days",
+            "{} — {}, {PLOT_DAYS} days",
             a.object,
             words::quantity(&a.quantity)
         ),
@@ -171,11 +179,16 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         }],
         stage: None,
         levels,
-        from_ms: now_ms - PLOT_DAYS * 86_400_000,
-        to_ms: now_ms,
+        from_ms: end_ms - span_ms,
+        to_ms: end_ms,
         tz,
     });
-    let _ = write!(b, "<h2>Last {PLOT_DAYS} days</h2>{svg}");
+    let heading = if end_ms > now_ms {
+        format!("Last {PLOT_DAYS} days")
+    } else {
+        format!("The {PLOT_DAYS} days to its last event")
+    };
+    let _ = write!(b, "<h2>{heading}</h2>{svg}");
 
     let rows: Vec<Vec<String>> = events
         .iter()

@@ -74,16 +74,22 @@ pub async fn page(
     };
     let days = p.days.filter(|d| PERIODS.contains(d)).unwrap_or(7);
     let now_ms = Utc::now().timestamp_millis();
-    let from_ms = now_ms - days * 86_400_000;
+    let span_ms = days * 86_400_000;
     let id2 = id.clone();
     let data = web
         .read(move |s| {
             let latest = super::db::latest_reading(s.conn(), &id2)?;
-            let rows = super::db::readings_between(s.conn(), &id2, from_ms, now_ms + 1)?;
-            Ok((latest, rows))
+            // The period ends now; for an instrument silent longer than the period, at its
+            // latest reading (an empty plot would show nothing of what it last said).
+            let end_ms = match &latest {
+                Some(r) if r.t_ms < now_ms - span_ms => r.t_ms + 1,
+                _ => now_ms + 1,
+            };
+            let rows = super::db::readings_between(s.conn(), &id2, end_ms - span_ms, end_ms)?;
+            Ok((latest, rows, end_ms))
         })
         .await;
-    let (latest, rows) = match data {
+    let (latest, rows, end_ms) = match data {
         Ok(x) => x,
         Err(e) => return super::failed(&e, &viewer.frame()),
     };
@@ -199,7 +205,14 @@ pub async fn page(
         })
         .collect();
     let svg = chart::render(&Chart {
-        title: format!("{id} — {}, last {days} days", words::quantity(quantity)),
+        title: if end_ms > now_ms {
+            format!("{id} — {}, last {days} days", words::quantity(quantity))
+        } else {
+            format!(
+                "{id} — {}, the {days} days to its latest reading",
+                words::quantity(quantity)
+            )
+        },
         y_label: unit,
         series: vec![Series {
             label: words::quantity(quantity),
@@ -207,8 +220,8 @@ pub async fn page(
         }],
         stage: None,
         levels,
-        from_ms,
-        to_ms: now_ms,
+        from_ms: end_ms - span_ms,
+        to_ms: end_ms,
         tz,
     });
     let _ = write!(
