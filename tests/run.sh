@@ -15,6 +15,7 @@ command -v victoria-metrics >/dev/null 2>&1 || [ -x /usr/bin/victoria-metrics ] 
 # The web pages' browser tests: headless Chromium driven over WebDriver.
 command -v chromium >/dev/null 2>&1 || need+=(chromium)
 command -v chromedriver >/dev/null 2>&1 || need+=(chromium-driver)
+command -v pdftotext >/dev/null 2>&1 && command -v pdftoppm >/dev/null 2>&1 || need+=(poppler-utils)
 if [ ${#need[@]} -gt 0 ]; then
   echo "tests/run.sh: installing ${need[*]}"
   SUDO=""

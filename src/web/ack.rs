@@ -113,7 +113,7 @@ fn summary(web: &Web, a: &super::db::Alert) -> String {
         ],
         vec![
             "Value".into(),
-            escape(&words::value(a.value, &a.unit, units)),
+            escape(&words::value(a.value, &a.quantity, &a.unit, units)),
         ],
         vec![
             "Since".into(),

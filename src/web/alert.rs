@@ -14,7 +14,8 @@ use chrono::Utc;
 use serde::Deserialize;
 
 use super::html::{self, escape};
-use super::{instrument, words, Shared};
+use super::instrument::{self, beyond};
+use super::{words, Shared};
 use crate::report::chart::{self, Chart, LevelLine, Series};
 
 /// The plot on the alert page covers this many days before now.
@@ -98,7 +99,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         ],
         vec![
             "Value when raised".into(),
-            escape(&words::value(a.value, &a.unit, units)),
+            escape(&words::value(a.value, &a.quantity, &a.unit, units)),
         ],
         vec![
             "Since".into(),
@@ -117,7 +118,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
                 "Latest value in its history".into(),
                 format!(
                     "{} <span class=\"note\">({}, {})</span>",
-                    escape(&words::value(e.value, &e.unit, units)),
+                    escape(&words::value(e.value, &a.quantity, &e.unit, units)),
                     escape(&words::event(&e.kind)),
                     escape(&html::time(e.t_ms, tz))
                 ),
@@ -130,7 +131,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
             escape(&format!(
                 "{} {}",
                 l.direction.name(),
-                words::value(Some(l.bound), &a.unit, units)
+                words::value(Some(l.bound), &a.quantity, &a.unit, units)
             )),
         ]);
         rows.push(vec![
@@ -163,6 +164,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
             .map(|l| LevelLine {
                 label: l.name.clone(),
                 value: l.bound,
+                beyond: beyond(l.direction),
             })
             .collect()
     });
@@ -179,6 +181,9 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         }],
         stage: None,
         levels,
+        stage_axis: String::new(),
+        cap: None,
+        zero_line: false,
         from_ms: end_ms - span_ms,
         to_ms: end_ms,
         tz,
@@ -204,7 +209,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
                 html::level(&e.level, web.top_level(&a.rule, &e.level)),
                 format!(
                     "<span class=\"num\">{}</span>",
-                    escape(&words::value(e.value, &e.unit, units))
+                    escape(&words::value(e.value, &a.quantity, &e.unit, units))
                 ),
             ]
         })

@@ -48,6 +48,14 @@ pub fn series(
     })
 }
 
+/// The shading side of a rule level's line on a chart.
+pub fn beyond(d: crate::domain::rules::Direction) -> crate::report::chart::Beyond {
+    match d {
+        crate::domain::rules::Direction::Above => crate::report::chart::Beyond::Above,
+        crate::domain::rules::Direction::Below => crate::report::chart::Beyond::Below,
+    }
+}
+
 #[derive(Deserialize)]
 pub struct Period {
     days: Option<i64>,
@@ -113,7 +121,7 @@ pub async fn page(
                     .collect::<Vec<_>>()
                     .join(", ")
             };
-            let opt = |v: Option<f64>, u: &str| words::value(v, u, units);
+            let opt = |v: Option<f64>, q: &str, u: &str| words::value(v, q, u, units);
             let rows = vec![
                 vec![
                     "Time".into(),
@@ -126,28 +134,33 @@ pub async fn page(
                 ],
                 vec![
                     "Raw value (as the logger sent it)".into(),
-                    escape(&crate::alerts::render::num(r.raw)),
+                    escape(&r.raw.to_string()),
                 ],
                 vec![
                     "Engineering value".into(),
-                    escape(&format!(
-                        "{} {}",
-                        crate::alerts::render::num(r.eng_value),
-                        r.eng_unit
-                    )),
+                    escape(&format!("{} {}", r.eng_value, r.eng_unit)),
                 ],
                 vec![
                     "Temperature".into(),
                     escape(&r.temperature_c.map_or("none".into(), |t| {
-                        format!("{} °C", crate::alerts::render::num(t))
+                        format!("{} °C", crate::present::format::fixed(t, 1))
                     })),
                 ],
                 vec![
                     "Barometric pressure used".into(),
-                    escape(&r.baro_kpa.map_or("none".into(), |p| opt(Some(p), "kPa"))),
+                    escape(
+                        &r.baro_kpa
+                            .map_or("none".into(), |p| opt(Some(p), "pressure", "kPa")),
+                    ),
                 ],
-                vec!["Pore pressure".into(), escape(&opt(r.pressure_kpa, "kPa"))],
-                vec!["Total head".into(), escape(&opt(r.total_head_m, "m"))],
+                vec![
+                    "Pore pressure".into(),
+                    escape(&opt(r.pressure_kpa, "pressure", "kPa")),
+                ],
+                vec![
+                    "Total head".into(),
+                    escape(&opt(r.total_head_m, "total_head", "m")),
+                ],
                 vec!["Flags".into(), escape(&flags)],
             ];
             let _ = write!(
@@ -188,6 +201,7 @@ pub async fn page(
             r.spec.levels.iter().map(|l| LevelLine {
                 label: l.name.clone(),
                 value: l.bound,
+                beyond: beyond(l.direction),
             })
         })
         .collect();
@@ -220,6 +234,9 @@ pub async fn page(
         }],
         stage: None,
         levels,
+        stage_axis: String::new(),
+        cap: None,
+        zero_line: false,
         from_ms: end_ms - span_ms,
         to_ms: end_ms,
         tz,
@@ -243,11 +260,7 @@ pub async fn page(
                             &l.name,
                             r.spec.levels.last().is_some_and(|x| x.name == l.name),
                         ),
-                        escape(&format!(
-                            "{} {}",
-                            l.direction.name(),
-                            crate::alerts::render::num(l.bound)
-                        )),
+                        escape(&format!("{} {}", l.direction.name(), l.bound)),
                         escape(&l.response),
                     ]
                 })

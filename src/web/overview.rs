@@ -92,7 +92,7 @@ fn site_block(b: &mut String, web: &super::Web, site: &crate::config::Site, d: &
                     html::level(&a.level, web.top_level(&a.rule, &a.level)),
                     escape(&a.object),
                     escape(&words::quantity(&a.quantity)),
-                    escape(&words::value(a.value, &a.unit, units)),
+                    escape(&words::value(a.value, &a.quantity, &a.unit, units)),
                     escape(&words::age(now_ms - a.raised_ms)),
                     escape(&html::time(a.raised_ms, tz)),
                     id = a.id,
@@ -124,7 +124,7 @@ fn site_block(b: &mut String, web: &super::Web, site: &crate::config::Site, d: &
             .iter()
             .map(|x| {
                 let value = match (&x.value, &x.reason) {
-                    (Some(_), _) => escape(&words::value(x.value, &x.unit, units)),
+                    (Some(_), _) => escape(&words::value(x.value, &x.quantity, &x.unit, units)),
                     (None, Some(r)) => format!(
                         "<strong>no value</strong><br><span class=\"note\">{}</span>",
                         escape(r)

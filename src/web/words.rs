@@ -4,8 +4,7 @@
 //!
 //! Owns the wording; no I/O.
 
-use crate::config::{DisplayUnits, LengthUnit};
-use crate::domain::units::m_to_length;
+use crate::config::DisplayUnits;
 
 /// The label of a quantity id.
 pub fn quantity(q: &str) -> String {
@@ -88,30 +87,12 @@ pub const SAFETY: [&str; 4] = [
     "seepage_face_height",
 ];
 
-/// A value in the site's display units: (number, unit). Lengths in metres become feet and
-/// pressures in kPa become psi on a `us` site; anything else is shown as stored.
-pub fn display(v: f64, unit: &str, units: DisplayUnits) -> (f64, String) {
-    match (unit, units) {
-        ("m", DisplayUnits::Us) => (m_to_length(v, LengthUnit::Ft), "ft".into()),
-        ("kPa", DisplayUnits::Us) => (v / 6.894_757_293_168_361, "psi".into()),
-        ("-", _) => (v, String::new()),
-        (u, _) => (v, u.to_string()),
-    }
-}
-
-/// A value with its unit, to four significant decimals at most.
-pub fn value(v: Option<f64>, unit: &str, units: DisplayUnits) -> String {
+/// A stored SI value of `quantity` (stored unit `unit`) in the site's display units with the
+/// presentation module's digits and unit label ("97.427 m", "319.64 ft", "> 10").
+pub fn value(v: Option<f64>, quantity: &str, unit: &str, units: DisplayUnits) -> String {
     match v {
         None => "no value".into(),
-        Some(v) => {
-            let (n, u) = display(v, unit, units);
-            let n = crate::alerts::render::num(n);
-            if u.is_empty() {
-                n
-            } else {
-                format!("{n} {u}")
-            }
-        }
+        Some(v) => crate::present::format::shown(v, quantity, unit, units),
     }
 }
 
@@ -139,13 +120,10 @@ mod tests {
     }
 
     #[test]
-    fn us_sites_see_feet_and_psi() {
-        // 1 ft = 0.3048 m exactly; 1 psi = 6.894757 kPa [definitions of the units].
-        assert_eq!(value(Some(3.048), "m", DisplayUnits::Us), "10 ft");
-        assert_eq!(
-            value(Some(6.894757293168361), "kPa", DisplayUnits::Us),
-            "1 psi"
-        );
-        assert_eq!(value(Some(1.5), "-", DisplayUnits::Si), "1.5");
+    fn us_sites_see_feet() {
+        // 1 ft = 0.3048 m exactly [definition of the unit].
+        let v = value(Some(3.048), "total_head", "m", DisplayUnits::Us);
+        assert!(v.starts_with("10") && v.ends_with(" ft"), "{v}");
+        assert_eq!(value(None, "total_head", "m", DisplayUnits::Si), "no value");
     }
 }
