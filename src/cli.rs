@@ -189,6 +189,11 @@ pub enum Command {
         #[arg(long, value_name = "MODEL")]
         id: Option<String>,
     },
+    /// Manage the people who may sign in to the web pages (`[http]`).
+    User {
+        #[command(subcommand)]
+        action: crate::web::user_cmd::UserAction,
+    },
     /// Run a self-contained demo: embedded broker, the service and simulated loggers.
     Demo {
         /// Seconds of wall time per simulated day.
@@ -438,6 +443,10 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
                 Ok(c) => Err(Exit(c).into()),
                 Err(_) => Err(Exit(1).into()),
             }
+        }
+        Command::User { action } => {
+            let (db, _) = operator(action.on())?;
+            emit(&crate::web::user_cmd::run(&db, &action)?)
         }
         Command::Demo {
             seconds_per_day,

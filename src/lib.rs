@@ -43,3 +43,4 @@ follow the emergency action plan, local regulations and the direction of the eng
 A quiet report is not evidence of a safe structure.";
 pub mod report;
 pub mod watch;
+pub mod web;

@@ -98,6 +98,17 @@ pub async fn run(
     let hangups = tokio::spawn(on_hangup(Arc::clone(&cfg), reload_tx));
     let exporter = start_export(&cfg, &shutdown);
     let link = LinkState::shared(&cfg.mqtt, Utc::now());
+    let web = crate::web::start(
+        crate::web::Parts {
+            cfg: Arc::clone(&cfg),
+            link: Arc::clone(&link),
+            counters: Arc::clone(&counters),
+        },
+        {
+            let stop = shutdown.clone();
+            async move { stop.wait().await }
+        },
+    )?;
     let result = crate::ingest::mqtt::run(
         Arc::clone(&cfg),
         store,
@@ -130,6 +141,13 @@ pub async fn run(
                 late = true;
                 tracing::error!("Export worker did not stop before the shutdown deadline; unsent points stay queued");
             }
+        }
+    }
+    if let Some(task) = web {
+        let end = tokio::time::Instant::from_std(shutdown.end());
+        if tokio::time::timeout_at(end, task).await.is_err() {
+            late = true;
+            tracing::error!("Web pages did not stop before the shutdown deadline");
         }
     }
     result?;

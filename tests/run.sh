@@ -11,6 +11,10 @@ command -v mosquitto_sub >/dev/null 2>&1 || need+=(mosquitto-clients)
 command -v openssl >/dev/null 2>&1 || need+=(openssl)
 /usr/bin/python3 -c 'import scipy' >/dev/null 2>&1 || need+=(python3-scipy)
 command -v victoria-metrics >/dev/null 2>&1 || [ -x /usr/bin/victoria-metrics ] || need+=(victoria-metrics)
+/usr/bin/python3 -c 'import prometheus_client' >/dev/null 2>&1 || need+=(python3-prometheus-client)
+# The web pages' browser tests: headless Chromium driven over WebDriver.
+command -v chromium >/dev/null 2>&1 || need+=(chromium)
+command -v chromedriver >/dev/null 2>&1 || need+=(chromium-driver)
 command -v pdftotext >/dev/null 2>&1 && command -v pdftoppm >/dev/null 2>&1 || need+=(poppler-utils)
 if [ ${#need[@]} -gt 0 ]; then
   echo "tests/run.sh: installing ${need[*]}"

@@ -202,12 +202,18 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
             }
         }
         let _ = writeln!(text, "Response:    {}", it.level.response);
+        let ack_link = (it.kind != "resolve")
+            .then(|| crate::web::token::ack_link(it.alert, &it.level.name, it.t_ms))
+            .flatten();
         if it.kind != "resolve" {
             let _ = writeln!(
                 text,
                 "Acknowledge: seepd ack {} --config DIR --by NAME",
                 it.alert
             );
+        }
+        if let Some(link) = &ack_link {
+            let _ = writeln!(text, "Acknowledge in a browser: {link}");
         }
         let _ = writeln!(text);
 
@@ -256,6 +262,14 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
             let _ = write!(
                 html,
                 "<p>Acknowledge: <code>seepd ack {} --config DIR --by NAME</code></p>",
+                it.alert
+            );
+        }
+        if let Some(link) = &ack_link {
+            let _ = write!(
+                html,
+                "<p><a href=\"{0}\">Acknowledge alert {1} in a browser</a></p>",
+                escape(link),
                 it.alert
             );
         }

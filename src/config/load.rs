@@ -149,6 +149,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         subscriptions,
         smtp,
         export,
+        http,
     }) = service
     else {
         return Err(one(&service_path, "service file could not be read"));
@@ -168,6 +169,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         export,
         trends,
         reports: Vec::new(),
+        http,
     };
     let mut alerting = Vec::new();
     for (_, sf) in sites {

@@ -42,6 +42,8 @@ pub struct Config {
     pub trends: Trends,
     /// Scheduled reports of all sites (`[[report]]`).
     pub reports: Vec<ReportSchedule>,
+    /// The on-call web pages (`[http]`), when configured.
+    pub http: Option<crate::web::config::Http>,
 }
 
 impl Config {

@@ -25,6 +25,8 @@ pub(crate) struct ServiceFile {
     pub subscriptions: Vec<Subscription>,
     /// The mail relay, if configured (and valid).
     pub smtp: Option<super::alerting::Smtp>,
+    /// The on-call web pages (`[http]`, read by `web::config`), when present and valid.
+    pub http: Option<crate::web::config::Http>,
 }
 
 /// Where the loader looks up environment variables (the process environment, or a test's map).
@@ -42,7 +44,10 @@ pub(crate) fn resolve(dir: &Path, p: &str) -> PathBuf {
 
 /// Read the service file's root table.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) -> ServiceFile {
-    root.check_keys(cx, &["service", "mqtt", "subscription", "smtp", "export"]);
+    root.check_keys(
+        cx,
+        &["service", "mqtt", "subscription", "smtp", "export", "http"],
+    );
     let service = match root.sub(cx, "service", "[service]") {
         Some(mut t) => {
             t.what = "[service]".into();
@@ -91,12 +96,17 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
         t.what = "[smtp]".into();
         super::smtp::read(cx, &t, dir, env)
     });
+    let http = root.sub(cx, "http", "[http]").and_then(|mut t| {
+        t.what = "[http]".into();
+        crate::web::config::read(cx, &t)
+    });
     ServiceFile {
         service,
         export,
         mqtt,
         subscriptions,
         smtp,
+        http,
     }
 }
 

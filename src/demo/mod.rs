@@ -34,11 +34,18 @@ pub async fn run(
     cfg.mqtt.port = port;
     cfg.mqtt.host = "127.0.0.1".into();
     cfg.service.database = dir.join("demo.sqlite");
+    cfg.http = Some(demo_http()?);
     let cfg = Arc::new(cfg);
     println!(
         "seepd demo: embedded broker on 127.0.0.1:{port}; database {}",
         cfg.service.database.display()
     );
+    if let Some(h) = &cfg.http {
+        println!(
+            "Web pages: {}/  (open to anyone on this machine; no sign-in in the demo)",
+            h.public_base_url
+        );
+    }
     println!("Invented site, invented data. Press Ctrl-C to stop.\n");
 
     let counters = Arc::new(Counters::default());
@@ -99,6 +106,23 @@ pub async fn run(
         cfg.service.database.display()
     );
     Ok(())
+}
+
+/// The demo's web pages: loopback, port 8480 when free (else any free port), readable
+/// without signing in.
+fn demo_http() -> anyhow::Result<crate::web::config::Http> {
+    let listener = std::net::TcpListener::bind("127.0.0.1:8480")
+        .or_else(|_| std::net::TcpListener::bind("127.0.0.1:0"))
+        .context("finding a free port for the web pages")?;
+    let bind = listener.local_addr()?;
+    drop(listener);
+    Ok(crate::web::config::Http {
+        bind,
+        public_base_url: format!("http://{bind}"),
+        allow_anonymous: true,
+        ack_link_valid_h: 72,
+        ready_commit_age_s: None,
+    })
 }
 
 fn tempfile_dir() -> anyhow::Result<std::path::PathBuf> {

@@ -1,0 +1,276 @@
+//! The instrument page: the latest reading with its raw value, the reduction (engineering
+//! value, pore pressure, total head, temperature and barometer used) and flags; a plot of the
+//! total head (or the engineering value) over a selectable period; the rules on it and their
+//! levels. Also `series`, the stored values of any (object, quantity) for plots.
+//!
+//! Owns that page.
+
+use std::fmt::Write as _;
+
+use axum::extract::{Path, Query, State};
+use axum::http::{HeaderMap, StatusCode};
+use axum::response::Response;
+use chrono::Utc;
+use serde::Deserialize;
+
+use super::html::{self, escape};
+use super::{words, Shared};
+use crate::report::chart::{self, Chart, LevelLine, Series};
+use crate::store::Store;
+
+/// Periods offered for the plot, in days.
+const PERIODS: [i64; 5] = [1, 3, 7, 30, 90];
+
+/// Stored values of `quantity` of `object` with `from_ms <= t < to_ms`: reading columns for
+/// an instrument's own quantities, the derived table for anything else.
+///
+/// # Errors
+/// SQLite errors.
+pub fn series(
+    s: &Store,
+    object: &str,
+    quantity: &str,
+    from_ms: i64,
+    to_ms: i64,
+) -> anyhow::Result<Vec<(i64, f64)>> {
+    let pick: Option<fn(&super::db::Reading) -> Option<f64>> = match quantity {
+        "total_head" => Some(|r| r.total_head_m),
+        "engineering_value" => Some(|r| Some(r.eng_value)),
+        "pressure" => Some(|r| r.pressure_kpa),
+        _ => None,
+    };
+    Ok(match pick {
+        Some(f) => super::db::readings_between(s.conn(), object, from_ms, to_ms)?
+            .iter()
+            .filter_map(|r| f(r).map(|v| (r.t_ms, v)))
+            .collect(),
+        None => super::db::derived_between(s.conn(), object, quantity, from_ms, to_ms)?,
+    })
+}
+
+/// The shading side of a rule level's line on a chart.
+pub fn beyond(d: crate::domain::rules::Direction) -> crate::report::chart::Beyond {
+    match d {
+        crate::domain::rules::Direction::Above => crate::report::chart::Beyond::Above,
+        crate::domain::rules::Direction::Below => crate::report::chart::Beyond::Below,
+    }
+}
+
+#[derive(Deserialize)]
+pub struct Period {
+    days: Option<i64>,
+}
+
+/// GET /instruments/:id?days=N
+pub async fn page(
+    State(web): State<Shared>,
+    Path(id): Path<String>,
+    Query(p): Query<Period>,
+    headers: HeaderMap,
+) -> Response {
+    let viewer = match web.viewer(&headers, &format!("/instruments/{id}")) {
+        Ok(v) => v,
+        Err(r) => return r,
+    };
+    let Some(inst) = web.cfg.instruments.get(&id).cloned() else {
+        return html::message(
+            StatusCode::NOT_FOUND,
+            "No such instrument",
+            &format!("There is no instrument {id:?} in the configuration."),
+            &viewer.frame(),
+        );
+    };
+    let days = p.days.filter(|d| PERIODS.contains(d)).unwrap_or(7);
+    let now_ms = Utc::now().timestamp_millis();
+    let span_ms = days * 86_400_000;
+    let id2 = id.clone();
+    let data = web
+        .read(move |s| {
+            let latest = super::db::latest_reading(s.conn(), &id2)?;
+            // The period ends now; for an instrument silent longer than the period, at its
+            // latest reading (an empty plot would show nothing of what it last said).
+            let end_ms = match &latest {
+                Some(r) if r.t_ms < now_ms - span_ms => r.t_ms + 1,
+                _ => now_ms + 1,
+            };
+            let rows = super::db::readings_between(s.conn(), &id2, end_ms - span_ms, end_ms)?;
+            Ok((latest, rows, end_ms))
+        })
+        .await;
+    let (latest, rows, end_ms) = match data {
+        Ok(x) => x,
+        Err(e) => return super::failed(&e, &viewer.frame()),
+    };
+    let tz = web.tz(&inst.site);
+    let units = web.units(&inst.site);
+    let mut b = format!(
+        "<h1>{} <span class=\"note\">{}</span></h1>",
+        escape(&id),
+        escape(&inst.kind.name().replace('_', " "))
+    );
+    match &latest {
+        None => b.push_str("<div class=\"card warn\"><p>No reading stored yet.</p></div>"),
+        Some(r) => {
+            let flags = r.flags.names();
+            let flags = if flags.is_empty() {
+                "none".to_string()
+            } else {
+                flags
+                    .iter()
+                    .map(|f| words::flag(f))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            let opt = |v: Option<f64>, q: &str, u: &str| words::value(v, q, u, units);
+            let rows = vec![
+                vec![
+                    "Time".into(),
+                    format!(
+                        "{} <span class=\"note\">({}; arrived {})</span>",
+                        escape(&html::time(r.t_ms, tz)),
+                        escape(&words::age(now_ms - r.t_ms)),
+                        escape(&words::age(now_ms - r.arrival_ms))
+                    ),
+                ],
+                vec![
+                    "Raw value (as the logger sent it)".into(),
+                    escape(&r.raw.to_string()),
+                ],
+                vec![
+                    "Engineering value".into(),
+                    escape(&format!("{} {}", r.eng_value, r.eng_unit)),
+                ],
+                vec![
+                    "Temperature".into(),
+                    escape(&r.temperature_c.map_or("none".into(), |t| {
+                        format!("{} °C", crate::present::format::fixed(t, 1))
+                    })),
+                ],
+                vec![
+                    "Barometric pressure used".into(),
+                    escape(
+                        &r.baro_kpa
+                            .map_or("none".into(), |p| opt(Some(p), "pressure", "kPa")),
+                    ),
+                ],
+                vec![
+                    "Pore pressure".into(),
+                    escape(&opt(r.pressure_kpa, "pressure", "kPa")),
+                ],
+                vec![
+                    "Total head".into(),
+                    escape(&opt(r.total_head_m, "total_head", "m")),
+                ],
+                vec!["Flags".into(), escape(&flags)],
+            ];
+            let _ = write!(
+                b,
+                "<h2>Latest reading</h2><div class=\"card\">{}</div>",
+                html::kv(&rows)
+            );
+        }
+    }
+    // The plot: total head when the instrument has one, else the engineering value.
+    let heads: Vec<(i64, f64)> = rows
+        .iter()
+        .filter_map(|r| r.total_head_m.map(|h| (r.t_ms, h)))
+        .collect();
+    let (quantity, points, unit) = if heads.is_empty() {
+        let unit = rows.first().map_or(String::new(), |r| r.eng_unit.clone());
+        (
+            "engineering_value",
+            rows.iter().map(|r| (r.t_ms, r.eng_value)).collect(),
+            unit,
+        )
+    } else {
+        ("total_head", heads, "m".to_string())
+    };
+    let rules: Vec<&crate::config::Rule> = web
+        .cfg
+        .alerting
+        .rules
+        .iter()
+        .filter(|r| r.object == id)
+        .collect();
+    let levels: Vec<LevelLine> = rules
+        .iter()
+        .filter(|r| {
+            r.quantity == quantity && r.spec.check == crate::domain::rules::Check::Threshold
+        })
+        .flat_map(|r| {
+            r.spec.levels.iter().map(|l| LevelLine {
+                label: l.name.clone(),
+                value: l.bound,
+                beyond: beyond(l.direction),
+            })
+        })
+        .collect();
+    let picker: Vec<String> = PERIODS
+        .iter()
+        .map(|d| {
+            if *d == days {
+                format!("<strong>{d} d</strong>")
+            } else {
+                format!(
+                    "<a href=\"/instruments/{}?days={d}\">{d} d</a>",
+                    escape(&id)
+                )
+            }
+        })
+        .collect();
+    let svg = chart::render(&Chart {
+        title: if end_ms > now_ms {
+            format!("{id} — {}, last {days} days", words::quantity(quantity))
+        } else {
+            format!(
+                "{id} — {}, the {days} days to its latest reading",
+                words::quantity(quantity)
+            )
+        },
+        y_label: unit,
+        series: vec![Series {
+            label: words::quantity(quantity),
+            points,
+        }],
+        stage: None,
+        levels,
+        stage_axis: String::new(),
+        cap: None,
+        zero_line: false,
+        from_ms: end_ms - span_ms,
+        to_ms: end_ms,
+        tz,
+    });
+    let _ = write!(
+        b,
+        "<h2>Plot</h2><p class=\"noprint\">Period: {}</p>{svg}",
+        picker.join(" · ")
+    );
+    if rules.is_empty() {
+        b.push_str("<h2>Rules</h2><p>No rule watches this instrument.</p>");
+    } else {
+        let rows: Vec<Vec<String>> = rules
+            .iter()
+            .flat_map(|r| {
+                r.spec.levels.iter().map(move |l| {
+                    vec![
+                        escape(&r.id),
+                        escape(&words::quantity(&r.quantity)),
+                        html::level(
+                            &l.name,
+                            r.spec.levels.last().is_some_and(|x| x.name == l.name),
+                        ),
+                        escape(&format!("{} {}", l.direction.name(), l.bound)),
+                        escape(&l.response),
+                    ]
+                })
+            })
+            .collect();
+        let _ = write!(
+            b,
+            "<h2>Rules</h2>{}",
+            html::table(&["Rule", "Quantity", "Level", "Bound", "Response"], &rows)
+        );
+    }
+    html::respond(StatusCode::OK, html::page(&id, &viewer.frame(), &b))
+}

@@ -1,0 +1,112 @@
+//! `seepd user add|remove|list`: the people who may sign in to the web pages, kept in the
+//! database's `web_users` table with argon2 password hashes. The password is read from
+//! standard input (one line), never from the command line, and never printed.
+//!
+//! Owns those commands' wording.
+
+use std::path::Path;
+
+use anyhow::{bail, Context as _};
+use chrono::Utc;
+
+/// `seepd user add NAME`: read the password from `input`, store its hash.
+///
+/// # Errors
+/// An empty or short password, a bad name, database errors.
+pub fn add(db: &Path, name: &str, input: &mut dyn std::io::BufRead) -> anyhow::Result<String> {
+    let name = name.trim();
+    if name.is_empty() || name.len() > 100 || name.chars().any(char::is_control) {
+        bail!("user name {name:?}: expected 1 to 100 printable characters");
+    }
+    let mut line = String::new();
+    input
+        .read_line(&mut line)
+        .context("reading the password from standard input")?;
+    let password = line.trim_end_matches(['\r', '\n']);
+    if password.chars().count() < 10 {
+        bail!("the password must be at least 10 characters (read from standard input, one line)");
+    }
+    let hash = super::auth::hash_password(password)?;
+    let store = super::db::open(db)?;
+    let existed = super::db::put_user(store.conn(), name, &hash, Utc::now().timestamp_millis())?;
+    Ok(if existed {
+        format!("User {name}: password changed.\n")
+    } else {
+        format!("User {name} added; they can sign in to the web pages.\n")
+    })
+}
+
+/// `seepd user remove NAME` (their open sessions end at the next restart or after 12 h).
+///
+/// # Errors
+/// Unknown user, database errors.
+pub fn remove(db: &Path, name: &str) -> anyhow::Result<String> {
+    let store = super::db::open(db)?;
+    if !super::db::remove_user(store.conn(), name)? {
+        bail!("there is no user {name:?}");
+    }
+    Ok(format!("User {name} removed.\n"))
+}
+
+/// `seepd user list`
+///
+/// # Errors
+/// Database errors.
+pub fn list(db: &Path) -> anyhow::Result<String> {
+    let store = super::db::open(db)?;
+    let users = super::db::users(store.conn())?;
+    if users.is_empty() {
+        return Ok("No users (add one with `seepd user add NAME`).\n".into());
+    }
+    Ok(users.iter().map(|u| format!("{u}\n")).collect())
+}
+
+/// Read a password line from standard input.
+pub fn stdin() -> std::io::StdinLock<'static> {
+    std::io::stdin().lock()
+}
+
+/// The `seepd user` subcommands.
+#[derive(clap::Subcommand, Debug)]
+pub enum UserAction {
+    /// Add a user, or change their password (read from standard input, one line).
+    Add {
+        name: String,
+        #[command(flatten)]
+        on: crate::cli::Operator,
+    },
+    /// Remove a user.
+    Remove {
+        name: String,
+        #[command(flatten)]
+        on: crate::cli::Operator,
+    },
+    /// List the users.
+    List {
+        #[command(flatten)]
+        on: crate::cli::Operator,
+    },
+}
+
+impl UserAction {
+    /// Where the database is.
+    pub fn on(&self) -> &crate::cli::Operator {
+        match self {
+            UserAction::Add { on, .. }
+            | UserAction::Remove { on, .. }
+            | UserAction::List { on } => on,
+        }
+    }
+}
+
+/// Run `action` on the database `db`.
+///
+/// # Errors
+/// As `add`, `remove` and `list`.
+pub fn run(db: &Path, action: &UserAction) -> anyhow::Result<String> {
+    match action {
+        UserAction::Add { name, .. } => add(db, name, &mut stdin()),
+        UserAction::Remove { name, .. } => remove(db, name),
+        UserAction::List { .. } => list(db),
+    }
+}
