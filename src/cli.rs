@@ -192,7 +192,7 @@ pub enum Command {
     /// Manage the people who may sign in to the web pages (`[http]`).
     User {
         #[command(subcommand)]
-        action: crate::web::user_cmd::UserAction,
+        action: UserAction,
     },
     /// Run a self-contained demo: embedded broker, the service and simulated loggers.
     Demo {
@@ -215,6 +215,52 @@ pub struct Operator {
     /// The database (default: the one the configuration names).
     #[arg(long, value_name = "FILE")]
     db: Option<PathBuf>,
+}
+
+/// The `seepd user` subcommands.
+#[derive(clap::Subcommand, Debug)]
+pub enum UserAction {
+    /// Add a user, or change their password (read from standard input, one line).
+    Add {
+        name: String,
+        #[command(flatten)]
+        on: Operator,
+    },
+    /// Remove a user.
+    Remove {
+        name: String,
+        #[command(flatten)]
+        on: Operator,
+    },
+    /// List the users.
+    List {
+        #[command(flatten)]
+        on: Operator,
+    },
+}
+
+impl UserAction {
+    /// Where the database is.
+    pub fn on(&self) -> &Operator {
+        match self {
+            UserAction::Add { on, .. }
+            | UserAction::Remove { on, .. }
+            | UserAction::List { on } => on,
+        }
+    }
+}
+
+/// Run `action` on the database `db`.
+///
+/// # Errors
+/// As `user_cmd::add`, `remove` and `list`.
+fn user(db: &Path, action: &UserAction) -> anyhow::Result<String> {
+    use crate::web::user_cmd;
+    match action {
+        UserAction::Add { name, .. } => user_cmd::add(db, name, &mut user_cmd::stdin()),
+        UserAction::Remove { name, .. } => user_cmd::remove(db, name),
+        UserAction::List { .. } => user_cmd::list(db),
+    }
 }
 
 /// Replay input formats.
@@ -446,7 +492,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
         }
         Command::User { action } => {
             let (db, _) = operator(action.on())?;
-            emit(&crate::web::user_cmd::run(&db, &action)?)
+            emit(&user(&db, &action)?)
         }
         Command::Demo {
             seconds_per_day,

@@ -4,6 +4,7 @@
 //! an incoming message into stored rows by calling the domain and is shared by `run` and
 //! `replay`; `ingest`, `store` and `demo` are adapters; `cli` parses arguments.
 
+pub mod ack_token;
 pub mod alerts;
 pub mod background;
 pub mod backoff;

@@ -86,7 +86,7 @@ fn the_email_link_acknowledges_only_by_post_and_only_at_its_level() {
         .step_by(2)
         .map(|i| u8::from_str_radix(&key_hex.trim()[i..i + 2], 16).unwrap())
         .collect();
-    let key = seepd::web::token::Key::from_bytes(&key_bytes);
+    let key = seepd::ack_token::Key::from_bytes(&key_bytes);
     let expired = format!(
         "/ack/{}",
         key.sign(1, "watch", chrono::Utc::now().timestamp() - 60)

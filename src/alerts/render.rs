@@ -203,7 +203,7 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
         }
         let _ = writeln!(text, "Response:    {}", it.level.response);
         let ack_link = (it.kind != "resolve")
-            .then(|| crate::web::token::ack_link(it.alert, &it.level.name, it.t_ms))
+            .then(|| crate::ack_token::ack_link(it.alert, &it.level.name, it.t_ms))
             .flatten();
         if it.kind != "resolve" {
             let _ = writeln!(

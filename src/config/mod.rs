@@ -6,14 +6,15 @@
 
 pub mod alerting;
 mod export;
+pub mod http;
 mod kinds;
 pub mod limits;
 pub mod load;
 mod locate;
 pub mod model;
 mod objects;
-pub(crate) mod problem;
-pub(crate) mod reader;
+mod problem;
+mod reader;
 pub mod reloads;
 mod renamed;
 mod reports;

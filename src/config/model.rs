@@ -43,7 +43,7 @@ pub struct Config {
     /// Scheduled reports of all sites (`[[report]]`).
     pub reports: Vec<ReportSchedule>,
     /// The on-call web pages (`[http]`), when configured.
-    pub http: Option<crate::web::config::Http>,
+    pub http: Option<crate::config::http::Http>,
 }
 
 impl Config {

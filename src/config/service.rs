@@ -26,7 +26,7 @@ pub(crate) struct ServiceFile {
     /// The mail relay, if configured (and valid).
     pub smtp: Option<super::alerting::Smtp>,
     /// The on-call web pages (`[http]`, read by `web::config`), when present and valid.
-    pub http: Option<crate::web::config::Http>,
+    pub http: Option<crate::config::http::Http>,
 }
 
 /// Where the loader looks up environment variables (the process environment, or a test's map).
@@ -98,7 +98,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
     });
     let http = root.sub(cx, "http", "[http]").and_then(|mut t| {
         t.what = "[http]".into();
-        crate::web::config::read(cx, &t)
+        crate::config::http::read(cx, &t)
     });
     ServiceFile {
         service,

@@ -110,13 +110,13 @@ pub async fn run(
 
 /// The demo's web pages: loopback, port 8480 when free (else any free port), readable
 /// without signing in.
-fn demo_http() -> anyhow::Result<crate::web::config::Http> {
+fn demo_http() -> anyhow::Result<crate::config::http::Http> {
     let listener = std::net::TcpListener::bind("127.0.0.1:8480")
         .or_else(|_| std::net::TcpListener::bind("127.0.0.1:0"))
         .context("finding a free port for the web pages")?;
     let bind = listener.local_addr()?;
     drop(listener);
-    Ok(crate::web::config::Http {
+    Ok(crate::config::http::Http {
         bind,
         public_base_url: format!("http://{bind}"),
         allow_anonymous: true,

@@ -16,8 +16,8 @@ use chrono::Utc;
 use serde::Deserialize;
 
 use super::html::{self, escape, Frame};
-use super::token::{AckClaim, Refused};
 use super::{words, Shared, Web};
+use crate::ack_token::{AckClaim, Refused};
 
 /// The longest name and note taken.
 const MAX_TEXT: usize = 500;

@@ -66,7 +66,7 @@ impl Viewer {
 /// The random source or the hasher failed.
 pub fn hash_password(password: &str) -> anyhow::Result<String> {
     let mut salt = [0u8; 16];
-    super::token::random(&mut salt)?;
+    crate::ack_token::random(&mut salt)?;
     let salt = SaltString::encode_b64(&salt).map_err(|e| anyhow::anyhow!("salt: {e}"))?;
     Ok(Argon2::default()
         .hash_password(password.as_bytes(), &salt)
@@ -87,7 +87,7 @@ fn password_ok(password: &str, hash: &str) -> bool {
 fn random_hex() -> String {
     let mut b = [0u8; 32];
     // Without a random source there can be no session: an empty id never matches a lookup.
-    if super::token::random(&mut b).is_err() {
+    if crate::ack_token::random(&mut b).is_err() {
         return String::new();
     }
     b.iter().map(|x| format!("{x:02x}")).collect()

@@ -19,14 +19,12 @@
 pub mod ack;
 pub mod alert;
 pub mod auth;
-pub mod config;
 pub mod db;
 pub mod health;
 pub mod html;
 pub mod instrument;
 pub mod overview;
 pub mod quarantine;
-pub mod token;
 pub mod user_cmd;
 pub mod words;
 
@@ -47,9 +45,9 @@ use crate::ingest::progress::Counters;
 pub struct Web {
     pub cfg: Arc<Config>,
     /// `cfg.http`, unpacked (the server runs only when it is set).
-    pub http: config::Http,
+    pub http: crate::config::http::Http,
     /// Signs acknowledgement links and checks them.
-    pub key: token::Key,
+    pub key: crate::ack_token::Key,
     /// The broker link as the network task sees it.
     pub link: SharedLink,
     /// Ingest totals since start.
@@ -87,13 +85,13 @@ pub fn start(
     let Some(http) = parts.cfg.http.clone() else {
         return Ok(None);
     };
-    let key = token::Key::load_or_create(&parts.cfg.service.database)?;
+    let key = crate::ack_token::Key::load_or_create(&parts.cfg.service.database)?;
     let listener = std::net::TcpListener::bind(http.bind)
         .map_err(|e| anyhow::anyhow!("[http] bind {}: {e}", http.bind))?;
     listener.set_nonblocking(true)?;
     let local = listener.local_addr()?;
     let listener = tokio::net::TcpListener::from_std(listener)?;
-    token::install_links(&http.public_base_url, key.clone(), http.ack_link_valid_h);
+    crate::ack_token::install_links(&http.public_base_url, key.clone(), http.ack_link_valid_h);
     let parts_messages = parts.counters.snapshot().0;
     let web = Arc::new(Web {
         cfg: parts.cfg,
@@ -116,7 +114,7 @@ pub fn start(
             .with_graceful_shutdown(shutdown)
             .await;
         watcher.abort();
-        token::remove_links();
+        crate::ack_token::remove_links();
         match served {
             Ok(()) => tracing::info!("Web pages stopped"),
             Err(e) => tracing::error!(error = %e, "Web server failed"),

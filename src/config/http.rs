@@ -7,9 +7,9 @@
 
 use std::net::SocketAddr;
 
-use crate::config::limits;
-use crate::config::problem::Cx;
-use crate::config::reader::Tbl;
+use super::limits;
+use super::problem::Cx;
+use super::reader::Tbl;
 
 /// Keys of `[http]`.
 const KEYS: [&str; 5] = [
