@@ -55,6 +55,7 @@ impl std::error::Error for Problems {}
 ///
 /// Counts from the start of `text`: for one-off use. A file with many lookups builds a
 /// `LineIndex` once instead (linear overall, where this would be quadratic).
+#[cfg(test)]
 pub(crate) fn line_col(text: &str, offset: usize) -> (usize, usize) {
     LineIndex::new(text).line_col(text, offset)
 }
