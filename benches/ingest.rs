@@ -14,7 +14,8 @@
 //!
 //! Run: `cargo bench --bench ingest` (`SEEPD_BENCH_PART=live|replay` for one part;
 //! `SEEPD_BENCH_N` the backlog, default 30,000 messages; `SEEPD_BENCH_REPLAY_N` the replay
-//! readings, default 1,000,000). Figures go to the README.
+//! readings, default 1,000,000; `SEEPD_BENCH_DIR` keeps the files there). Figures go to the
+//! README.
 
 #[path = "../tests/common/mod.rs"]
 mod common;
@@ -35,12 +36,15 @@ fn env_n(name: &str, default: usize) -> usize {
 
 fn main() {
     let part = std::env::var("SEEPD_BENCH_PART").unwrap_or_default();
-    let dir = tempfile::tempdir().expect("tempdir");
+    let tmp = tempfile::tempdir().expect("tempdir");
+    // SEEPD_BENCH_DIR keeps the inputs, configurations and databases (to profile on them).
+    let root =
+        std::env::var_os("SEEPD_BENCH_DIR").map_or_else(|| tmp.path().to_path_buf(), Into::into);
     if part.is_empty() || part == "live" {
-        live(dir.path(), env_n("SEEPD_BENCH_N", 30_000));
+        live(&root, env_n("SEEPD_BENCH_N", 30_000));
     }
     if part.is_empty() || part == "replay" {
-        replay(dir.path(), env_n("SEEPD_BENCH_REPLAY_N", 1_000_000));
+        replay(&root, env_n("SEEPD_BENCH_REPLAY_N", 1_000_000));
     }
 }
 
