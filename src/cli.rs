@@ -379,6 +379,9 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             let cfg = load(&config)?;
             let files = crate::report::generate(&cfg, &db.open(&cfg)?, &site, from, to, now, &out)?;
             let mut list = format!("{}\n", files.html.display());
+            if let Some(p) = &files.pdf {
+                list.push_str(&format!("{}\n", p.display()));
+            }
             for c in files.csv {
                 list.push_str(&format!("{}\n", c.display()));
             }

@@ -20,6 +20,7 @@ pub mod ingest;
 pub mod model;
 pub mod notify;
 pub mod payload;
+pub mod present;
 pub mod quality;
 pub mod reduce;
 pub mod reload;

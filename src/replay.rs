@@ -6,6 +6,7 @@
 //! decoder takes, with the instrument id in the `instrument` field), `csv`
 //! (`time,instrument,value[,temperature]` per line) and `senml` (one SenML pack per line).
 
+use crate::present::format::clean;
 use std::io::{BufRead, Write};
 use std::sync::Arc;
 
@@ -315,7 +316,7 @@ fn flush(
                 id: &r.instrument,
                 quantity,
                 time: &time,
-                value,
+                value: clean(value),
                 unit,
                 flags: &flags,
             })?;
@@ -331,7 +332,7 @@ fn flush(
             id: &d.object,
             quantity: &d.quantity,
             time: &time_of.1,
-            value: d.value,
+            value: d.value.map(clean),
             unit: d.unit,
             reason: d.reason.as_deref(),
             inputs: &d.inputs,
@@ -362,9 +363,9 @@ fn flush(
             id: &t.object,
             quantity: &t.quantity,
             time: &time,
-            value: t.value,
+            value: t.value.map(clean),
             unit: &t.unit,
-            bound: t.bound,
+            bound: clean(t.bound),
             direction: t.direction,
         })?;
     }

@@ -100,14 +100,14 @@ fn broker_line(store: &Store, now: DateTime<Utc>) -> Result<String, StoreError> 
             "Broker: connected to {} since {} ({})",
             l.broker,
             time(l.since_ms),
-            span(for_s)
+            crate::present::format::duration(for_s)
         )
     } else {
         format!(
             "Broker: NOT CONNECTED to {} since {} ({}; {} failed attempts)",
             l.broker,
             time(l.since_ms),
-            span(for_s),
+            crate::present::format::duration(for_s),
             l.attempts
         )
     };
@@ -121,14 +121,4 @@ fn broker_line(store: &Store, now: DateTime<Utc>) -> Result<String, StoreError> 
         time(recorded_ms)
     );
     Ok(line)
-}
-
-/// A duration in words: seconds, minutes, hours or days.
-fn span(s: i64) -> String {
-    match s {
-        s if s < 120 => format!("{s} s"),
-        s if s < 7_200 => format!("{} min", s / 60),
-        s if s < 172_800 => format!("{:.1} h", s as f64 / 3600.0),
-        s => format!("{:.1} days", s as f64 / 86_400.0),
-    }
 }

@@ -206,14 +206,37 @@ fn section_svg_from_a_replayed_database() {
     for id in ["TH-PZ-1", "TH-PZ-2", "TH-PZ-3", "Section TH-S1"] {
         assert!(svg.contains(id), "{id} missing");
     }
-    // Two days later the inputs are stale: a clear error, not a drawing.
-    let out = Command::new(common::seepd_bin())
-        .args(["section", "--config"])
-        .arg(&cfg)
-        .args(["--id", "TH-S1", "--at", "2026-05-05T00:00:00Z", "--db"])
-        .arg(&db)
-        .output()
-        .unwrap();
-    assert!(!out.status.success());
-    assert!(String::from_utf8_lossy(&out.stderr).contains("stale"));
+    // Two days later the inputs are stale: still drawn from the latest heads, each stale one
+    // marked with its age (a silent gauge must not hide the drawing); without --at the same.
+    for at in [Some("2026-05-05T00:00:00Z"), None] {
+        let mut cmd = Command::new(common::seepd_bin());
+        cmd.args(["section", "--config"])
+            .arg(&cfg)
+            .args(["--id", "TH-S1", "--db"])
+            .arg(&db);
+        if let Some(at) = at {
+            cmd.args(["--at", at]);
+        }
+        let out = cmd.output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let svg = String::from_utf8(out.stdout).unwrap();
+        seepd::xml_check::check_xml(&svg).unwrap();
+        assert!(
+            svg.contains("stale heads drawn, with their age: TH-POOL "),
+            "{svg}"
+        );
+        assert!(svg.contains("TH-PZ-1") && svg.contains("(stale, "), "{svg}");
+        if at.is_some() {
+            // The readings are of 2026-05-03 00:00: two days before.
+            assert!(svg.contains("TH-POOL 2.0 days"), "{svg}");
+            assert!(
+                svg.contains("TH-PZ-1 211.000 m (stale, 2.0 days old)"),
+                "{svg}"
+            );
+        }
+    }
 }

@@ -11,6 +11,7 @@ command -v mosquitto_sub >/dev/null 2>&1 || need+=(mosquitto-clients)
 command -v openssl >/dev/null 2>&1 || need+=(openssl)
 /usr/bin/python3 -c 'import scipy' >/dev/null 2>&1 || need+=(python3-scipy)
 command -v victoria-metrics >/dev/null 2>&1 || [ -x /usr/bin/victoria-metrics ] || need+=(victoria-metrics)
+command -v pdftotext >/dev/null 2>&1 && command -v pdftoppm >/dev/null 2>&1 || need+=(poppler-utils)
 if [ ${#need[@]} -gt 0 ]; then
   echo "tests/run.sh: installing ${need[*]}"
   SUDO=""

@@ -215,6 +215,7 @@ fn alert_timeline_of_the_flood() {
         START_MS,
         START_MS + 240 * HOUR_MS,
         chrono_tz::UTC,
+        seepd::config::DisplayUnits::Si,
     )
     .unwrap();
     let river: Vec<(&str, &str)> = rows

@@ -15,7 +15,8 @@ use crate::domain::rules::{Phase, State};
 use crate::store::outbox::AckOutcome;
 use crate::store::{SilenceRow, Store};
 
-use super::render::num;
+use crate::config::DisplayUnits;
+use crate::present::{quantity_name, shown};
 
 /// Operator listings show UTC (they span sites).
 fn time(t_ms: i64) -> String {
@@ -47,6 +48,12 @@ pub fn report_db(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow:
     let open = store.open_alerts()?;
     let _ = writeln!(s, "Active alerts ({}):", open.len());
     for a in &open {
+        let units = cfg
+            .and_then(|c| c.sites.iter().find(|x| x.id == a.site))
+            .map_or(DisplayUnits::Si, |x| x.display_units);
+        let kind = cfg
+            .and_then(|c| c.instruments.get(&a.object))
+            .map(|i| i.kind.name());
         // The current level; the value and level of each step are in the history below.
         let _ = write!(
             s,
@@ -55,7 +62,7 @@ pub fn report_db(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow:
             a.level,
             a.site,
             a.object,
-            a.quantity,
+            quantity_name(&a.quantity, kind).to_lowercase(),
             time(a.raised_ms),
             a.rule
         );
@@ -67,7 +74,10 @@ pub fn report_db(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow:
         }
         // Its history, in order: each step with its own level and value.
         for e in store.alert_events(a.id)? {
-            let value = e.value.map_or_else(|| "no value".into(), num);
+            let value = e.value.map_or_else(
+                || "no value".into(),
+                |v| shown(v, &a.quantity, &e.unit, units),
+            );
             let detail = if e.detail.is_empty() {
                 String::new()
             } else {
@@ -75,12 +85,11 @@ pub fn report_db(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow:
             };
             let _ = writeln!(
                 s,
-                "      {}  {:<20} {:<10} {} {}{detail}",
+                "      {}  {:<20} {:<10} {}{detail}",
                 time(e.t_ms),
                 e.kind,
                 e.level,
-                value,
-                e.unit
+                value
             );
         }
     }

@@ -558,6 +558,12 @@ impl Evaluator {
             .find(|s| s.id == site)
             .and_then(|s| s.time_zone.parse().ok())
             .unwrap_or(chrono_tz::UTC);
+        let units = self
+            .cfg
+            .sites
+            .iter()
+            .find(|s| s.id == site)
+            .map_or(crate::config::DisplayUnits::Si, |s| s.display_units);
         let empty = VecDeque::new();
         let recent: Vec<Vec<(i64, f64)>> = group
             .iter()
@@ -593,6 +599,12 @@ impl Evaluator {
                     t_ms: n.t_ms,
                     recent,
                     tz,
+                    units,
+                    instrument_kind: self
+                        .cfg
+                        .instruments
+                        .get(&w.rule.object)
+                        .map(|i| i.kind.name()),
                 })
             })
             .collect();

@@ -1,7 +1,8 @@
 //! Alert email rendering: subject, plain text and HTML of one message holding one or more
 //! notices (alerts that fired together). Pure text building; no I/O.
 //!
-//! Every message carries the value against its bound, the direction, the recent rate and the
+//! Numbers, units and names come from `present` in the site's display units (stored values
+//! stay SI). Every message carries the value against its bound, the direction, the recent rate and the
 //! last readings, the response text, a status-page link, how to acknowledge, and the caution.
 
 use chrono_tz::Tz;
@@ -9,7 +10,10 @@ use std::fmt::Write as _;
 
 use chrono::{TimeZone, Utc};
 
+use crate::config::DisplayUnits;
 use crate::domain::rules::{Check, Direction, LevelSpec};
+use crate::present::format::{duration, shown, shown_rate_per_day};
+use crate::present::quantity_name;
 
 /// The caution every message carries.
 pub const CAUTION: &str = "Automated screening only. Verify in the field before acting; follow \
@@ -38,17 +42,10 @@ pub struct Item<'a> {
     pub recent: &'a [(i64, f64)],
     /// The site's time zone: times are shown in it (and in UTC).
     pub tz: Tz,
-}
-
-/// A number without needless digits.
-pub fn num(v: f64) -> String {
-    let s = format!("{v:.4}");
-    let s = s.trim_end_matches('0').trim_end_matches('.');
-    if s == "-0" {
-        "0".into()
-    } else {
-        s.to_string()
-    }
+    /// The site's display units.
+    pub units: DisplayUnits,
+    /// The watched instrument's kind identifier (None for a derived object), for its words.
+    pub instrument_kind: Option<&'static str>,
 }
 
 /// A time to the minute in the site's time zone, with UTC beside it unless the zone is UTC.
@@ -69,14 +66,6 @@ pub fn time(t_ms: i64, tz: Tz) -> String {
     )
 }
 
-fn with_unit(v: f64, unit: &str) -> String {
-    if unit.is_empty() {
-        num(v)
-    } else {
-        format!("{} {unit}", num(v))
-    }
-}
-
 fn headline(kind: &str, level: &str) -> String {
     let level = level.to_uppercase();
     match kind {
@@ -91,13 +80,23 @@ fn headline(kind: &str, level: &str) -> String {
 }
 
 impl Item<'_> {
+    /// A stored value of the watched quantity as a person reads it.
+    fn with_unit(&self, v: f64) -> String {
+        shown(v, self.quantity, self.unit, self.units)
+    }
+
+    /// The watched quantity in words.
+    fn words(&self) -> String {
+        quantity_name(self.quantity, self.instrument_kind).to_lowercase()
+    }
+
     fn subject_part(&self) -> String {
         let value = match (self.check, self.value) {
-            (Check::NoData, Some(age_s)) => format!("no data for {:.1} h", age_s / 3600.0),
+            (Check::NoData, Some(age_s)) => format!("no data for {}", duration(age_s as i64)),
             (Check::Unavailable, Some(age_s)) => {
-                format!("safety value unavailable for {:.1} h", age_s / 3600.0)
+                format!("safety value unavailable for {}", duration(age_s as i64))
             }
-            (_, Some(v)) => with_unit(v, self.unit),
+            (_, Some(v)) => self.with_unit(v),
             (_, None) => "no value".into(),
         };
         format!(
@@ -105,7 +104,7 @@ impl Item<'_> {
             headline(self.kind, &self.level.name),
             self.site_id,
             self.object,
-            self.quantity,
+            self.words(),
             value
         )
     }
@@ -118,47 +117,42 @@ impl Item<'_> {
         };
         if *self.check == Check::Unavailable {
             return format!(
-                "safety value unavailable: no value for {:.1} h (limit {:.1} h) because its inputs could not be used; see `seepd alerts` for the reason",
-                v / 3600.0,
-                l.bound / 3600.0
+                "safety value unavailable: no value for {} (limit {}) because its inputs could not be used; see `seepd alerts` for the reason",
+                duration(v as i64),
+                duration(l.bound as i64)
             );
         }
         if *self.check == Check::NoData {
             return format!(
-                "no reading for {:.1} h; the limit is {:.1} h (the instrument's interval times the rule's factor)",
-                v / 3600.0,
-                l.bound / 3600.0
+                "no reading for {}; the limit is {} (the instrument's interval times the rule's factor)",
+                duration(v as i64),
+                duration(l.bound as i64)
             );
         }
         let clear = match l.direction {
-            Direction::Above => format!("below {}", num(l.bound - l.deadband)),
-            Direction::Below => format!("above {}", num(l.bound + l.deadband)),
+            Direction::Above => format!("below {}", self.with_unit(l.bound - l.deadband)),
+            Direction::Below => format!("above {}", self.with_unit(l.bound + l.deadband)),
         };
         format!(
             "{} at {} — bound: {} {} ({} level); the level clears {} (deadband {})",
-            with_unit(v, self.unit),
+            self.with_unit(v),
             time(self.t_ms, self.tz),
             l.direction.name(),
-            with_unit(l.bound, self.unit),
+            self.with_unit(l.bound),
             l.name,
             clear,
-            num(l.deadband)
+            shown(l.deadband, self.quantity, self.unit, self.units)
         )
     }
 
-    /// Rate over the recent values, per hour.
+    /// Rate over the recent values, per day.
     fn rate(&self) -> String {
         match (self.recent.first(), self.recent.last()) {
             (Some(&(t0, v0)), Some(&(t1, v1))) if t1 > t0 => {
-                let per_h = (v1 - v0) / ((t1 - t0) as f64 / 3_600_000.0);
-                let unit = if self.unit.is_empty() {
-                    String::new()
-                } else {
-                    format!(" {}", self.unit)
-                };
+                let per_s = (v1 - v0) / ((t1 - t0) as f64 / 1000.0);
                 format!(
-                    "{}{unit} per hour over the last {} values ({} to {})",
-                    num(per_h),
+                    "{} over the last {} values ({} to {})",
+                    shown_rate_per_day(per_s, self.quantity, self.unit, self.units),
                     self.recent.len(),
                     time(t0, self.tz),
                     time(t1, self.tz)
@@ -195,14 +189,16 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
         let _ = writeln!(
             text,
             "Watching:    {} {} (rule {})",
-            it.object, it.quantity, it.rule
+            it.object,
+            it.words(),
+            it.rule
         );
         let _ = writeln!(text, "Value:       {}", it.against_bound());
         if *it.check == Check::Threshold {
             let _ = writeln!(text, "Recent rate: {}", it.rate());
             let _ = writeln!(text, "Last values:");
             for &(t, v) in it.recent.iter().rev() {
-                let _ = writeln!(text, "  {}  {}", time(t, it.tz), with_unit(v, it.unit));
+                let _ = writeln!(text, "  {}  {}", time(t, it.tz), it.with_unit(v));
             }
         }
         let _ = writeln!(text, "Response:    {}", it.level.response);
@@ -226,7 +222,7 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
             escape(it.site_name),
             escape(it.site_id),
             escape(it.object),
-            escape(it.quantity),
+            escape(&it.words()),
             escape(it.rule),
             escape(&it.against_bound())
         );
@@ -251,7 +247,7 @@ pub fn render(items: &mut [Item<'_>], status_url: &str) -> (String, String, Stri
                     html,
                     "<tr><td>{}</td><td>{}</td></tr>",
                     escape(&time(t, it.tz)),
-                    escape(&with_unit(v, it.unit))
+                    escape(&it.with_unit(v))
                 );
             }
             html.push_str("</table>");

@@ -212,7 +212,7 @@ pub struct Site {
 }
 
 /// Where an instrument sits.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct Location {
     pub reach: Option<String>,
     pub section: Option<String>,
@@ -506,9 +506,25 @@ pub struct BlanketReach {
     pub blanket_thickness_m: f64,
     pub riverside: RiversideCase,
     pub landside: LandsideCase,
-    /// Distances landward of the toe (m) at which the expected head is reported.
-    pub distances_m: Vec<f64>,
+    /// Distances landward of the toe at which the expected head is reported.
+    pub distances: Vec<LandwardDistance>,
     pub tolerance_s: i64,
+}
+
+/// A distance landward of a blanket reach's toe, with the name its quantity carries.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LandwardDistance {
+    pub m: f64,
+    /// The configured value as written with the site's length unit (`50ft`, `12.5m`), so a
+    /// quantity is named `expected_excess_head_at_50ft`, never from a converted float.
+    pub label: String,
+}
+
+impl LandwardDistance {
+    /// The quantity reported at this distance: `expected_excess_head_at_50ft`.
+    pub fn quantity(&self) -> String {
+        format!("expected_excess_head_at_{}", self.label)
+    }
 }
 
 /// An instrumented cross-section: ground polyline, pool gauge upstream, tail water downstream,

@@ -3,8 +3,8 @@
 //! unusable every quantity of the object is returned without a value and with the reason.
 
 use crate::config::{
-    BlanketReach, Config, CriticalGradientFrom, LandsideCase, Level, Nest, RiversideCase, Section,
-    ToeCheck,
+    BlanketReach, Config, CriticalGradientFrom, LandsideCase, LandwardDistance, Level, Nest,
+    RiversideCase, Section, ToeCheck,
 };
 use crate::domain::blanket::{self, BlanketConfig, Landside, Riverside};
 use crate::domain::gradient::{nest_gradients, Direction, Tip};
@@ -193,8 +193,8 @@ pub fn blanket_ratio(b: &BlanketReach) -> Option<f64> {
 }
 
 /// Name of the expected excess head at a distance landward of the toe.
-fn at_distance(x_m: f64) -> String {
-    format!("expected_excess_head_at_{x_m}m")
+fn at_distance(x: &LandwardDistance) -> String {
+    x.quantity()
 }
 
 /// Blanket theory for a reach: the expected toe excess head, exit gradient, residual-head ratio
@@ -216,7 +216,7 @@ pub(super) fn blanket(b: &BlanketReach, inp: &Inputs<'_>) -> Computed {
     .iter()
     .map(|(n, u)| (n.to_string(), *u))
     .collect();
-    all.extend(b.distances_m.iter().map(|x| (at_distance(*x), "m")));
+    all.extend(b.distances.iter().map(|x| (at_distance(x), "m")));
     if b.toe_piezometer.is_some() {
         all.extend(MEASURED.iter().map(|(n, u)| (n.to_string(), *u)));
     }
@@ -256,10 +256,10 @@ pub(super) fn blanket(b: &BlanketReach, inp: &Inputs<'_>) -> Computed {
             Quantity::some("expected_residual_ratio", sol.residual_head_ratio, "-"),
             Quantity::some("expected_flow", sol.flow_m2_s, "m2/s"),
         ];
-        for x in &b.distances_m {
-            qs.push(match sol.head_landward_m(*x) {
-                Some(v) => Quantity::some(at_distance(*x), v, "m"),
-                None => Quantity::none(at_distance(*x), "m", "beyond the landside blanket"),
+        for x in &b.distances {
+            qs.push(match sol.head_landward_m(x.m) {
+                Some(v) => Quantity::some(at_distance(x), v, "m"),
+                None => Quantity::none(at_distance(x), "m", "beyond the landside blanket"),
             });
         }
         match measured {

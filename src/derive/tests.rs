@@ -5,8 +5,8 @@ use std::sync::Arc;
 
 use super::*;
 use crate::config::{
-    BlanketReach, CriticalGradientFrom, LandsideCase, Nest, Objects, RiversideCase, Section,
-    ToeCheck,
+    BlanketReach, CriticalGradientFrom, LandsideCase, LandwardDistance, Nest, Objects,
+    RiversideCase, Section, ToeCheck,
 };
 
 fn config(objects: Objects) -> Arc<Config> {
@@ -184,7 +184,10 @@ fn blanket_check_value_6() {
             blanket_thickness_m: 3.0,
             riverside: RiversideCase::OpenEntranceAt { l1_m: 100.0 },
             landside: LandsideCase::Endless,
-            distances_m: vec![100.0],
+            distances: vec![LandwardDistance {
+                m: 100.0,
+                label: "100m".into(),
+            }],
             tolerance_s: 3600,
         }],
         ..Objects::default()

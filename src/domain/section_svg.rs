@@ -7,9 +7,12 @@
 
 use std::fmt::Write;
 
+use crate::config::DisplayUnits;
 use crate::domain::section::{
     SectionInput, SectionPiezometer, SectionResult, StationPoint, SAME_STATION_M,
 };
+use crate::present::format::{shown_bare, ticks_within};
+use crate::present::units::{convert, unit_label, Measure};
 
 /// Size and title of the drawing.
 #[derive(Debug, Clone, PartialEq)]
@@ -20,6 +23,12 @@ pub struct SvgOptions {
     pub width_px: f64,
     /// Height of the drawing, px.
     pub height_px: f64,
+    /// Units of the axes and labels (the geometry stays in metres).
+    pub units: DisplayUnits,
+    /// A line under the title (e.g. which heads are stale); empty for none.
+    pub note: String,
+    /// Instrument id → words added to its label (e.g. "stale, 5.0 h old").
+    pub marks: Vec<(String, String)>,
 }
 
 impl Default for SvgOptions {
@@ -28,6 +37,9 @@ impl Default for SvgOptions {
             title: "Section".into(),
             width_px: 900.0,
             height_px: 480.0,
+            units: DisplayUnits::Si,
+            note: String::new(),
+            marks: Vec::new(),
         }
     }
 }
@@ -71,9 +83,22 @@ struct Frame {
     e_max: f64,
     width_px: f64,
     height_px: f64,
+    units: DisplayUnits,
 }
 
 impl Frame {
+    /// A length (stored m) with its display unit: "97.43 m", "319.64 ft".
+    fn len(&self, v_m: f64) -> String {
+        format!(
+            "{} {}",
+            shown_bare(v_m, Measure::Length, self.units),
+            unit_label(Measure::Length, self.units, "m")
+        )
+    }
+    /// Display-unit value → metres.
+    fn to_m(&self, v: f64) -> f64 {
+        v / convert(1.0, Measure::Length, self.units)
+    }
     fn x(&self, station_m: f64) -> f64 {
         LEFT_PX + (station_m - self.s_min) / (self.s_max - self.s_min) * self.plot_w()
     }
@@ -101,35 +126,6 @@ impl Frame {
     }
 }
 
-/// A "nice" tick step (1, 2 or 5 × 10ⁿ) giving about `target` intervals over `span`.
-fn tick_step(span: f64, target: f64) -> f64 {
-    let raw = (span / target).max(f64::MIN_POSITIVE);
-    let magnitude = 10f64.powf(raw.log10().floor());
-    let fraction = raw / magnitude;
-    let nice = if fraction <= 1.0 {
-        1.0
-    } else if fraction <= 2.0 {
-        2.0
-    } else if fraction <= 5.0 {
-        5.0
-    } else {
-        10.0
-    };
-    nice * magnitude
-}
-
-/// Tick values within [lo, hi].
-pub(crate) fn ticks(lo: f64, hi: f64, target: f64) -> Vec<f64> {
-    let step = tick_step(hi - lo, target);
-    let mut v = (lo / step).ceil() * step;
-    let mut out = Vec::new();
-    while v <= hi + step * 1e-9 && out.len() < 100 {
-        out.push(if v.abs() < step * 1e-9 { 0.0 } else { v });
-        v += step;
-    }
-    out
-}
-
 /// Data ranges with a margin, never empty.
 fn frame(input: &SectionInput, result: &SectionResult, options: &SvgOptions) -> Frame {
     let stations = input.ground.iter().map(|p| p.station_m);
@@ -153,6 +149,7 @@ fn frame(input: &SectionInput, result: &SectionResult, options: &SvgOptions) -> 
         e_max: e_hi + pad,
         width_px: options.width_px,
         height_px: options.height_px,
+        units: options.units,
     }
 }
 
@@ -186,9 +183,14 @@ pub fn render_section_svg(
     );
     let _ = writeln!(
         svg,
-        r#"<text x="{LEFT_PX:.0}" y="42" font-size="11">Vertical exaggeration {:.1}x; pool {:.2} m</text>"#,
+        r#"<text x="{LEFT_PX:.0}" y="42" font-size="11">Vertical exaggeration {:.1}x; pool {}{}</text>"#,
         f.vertical_exaggeration(),
-        input.pool_m
+        f.len(input.pool_m),
+        if options.note.is_empty() {
+            String::new()
+        } else {
+            format!("; {}", xml_escape(&options.note))
+        }
     );
     axes(&mut svg, &f);
     ground_and_water(&mut svg, &f, input, result);
@@ -197,7 +199,7 @@ pub fn render_section_svg(
         r#"<polyline class="phreatic" points="{}" fill="none" stroke="{PHREATIC}" stroke-width="2" stroke-dasharray="8 4"/>"#,
         f.points(&result.phreatic)
     );
-    piezometers(&mut svg, &f, input, result);
+    piezometers(&mut svg, &f, input, result, &options.marks);
     if let Some(exit) = result.exit {
         let (x, y) = (f.x(exit.station_m), f.y(exit.elevation_m));
         let _ = writeln!(
@@ -206,11 +208,11 @@ pub fn render_section_svg(
         );
         let _ = writeln!(
             svg,
-            r#"<text x="{:.2}" y="{:.2}" fill="{EXIT}" font-weight="bold">exit {:.2} m at {:.1} m</text>"#,
+            r#"<text x="{:.2}" y="{:.2}" fill="{EXIT}" font-weight="bold">exit {} at station {}</text>"#,
             x + 10.0,
             y + 20.0,
-            exit.elevation_m,
-            exit.station_m
+            f.len(exit.elevation_m),
+            f.len(exit.station_m)
         );
     }
     legend(&mut svg, &f);
@@ -221,25 +223,26 @@ pub fn render_section_svg(
 fn axes(svg: &mut String, f: &Frame) {
     let (left, right, bottom) = (LEFT_PX, LEFT_PX + f.plot_w(), f.bottom());
     let _ = writeln!(svg, r#"<g class="axes" font-size="11">"#);
-    for s in ticks(f.s_min, f.s_max, 8.0) {
-        let x = f.x(s);
+    let k = convert(1.0, Measure::Length, f.units);
+    for (v, label) in ticks_within(f.s_min * k, f.s_max * k, 8.0).marks {
+        let x = f.x(f.to_m(v));
         let _ = writeln!(
             svg,
             r#"<line x1="{x:.2}" y1="{TOP_PX:.2}" x2="{x:.2}" y2="{bottom:.2}" stroke="{GRID}" stroke-width="0.5"/><line x1="{x:.2}" y1="{bottom:.2}" x2="{x:.2}" y2="{:.2}" stroke="{INK}"/><text x="{x:.2}" y="{:.2}" text-anchor="middle">{}</text>"#,
             bottom + 5.0,
             bottom + 18.0,
-            trim(s)
+            label
         );
     }
-    for e in ticks(f.e_min, f.e_max, 6.0) {
-        let y = f.y(e);
+    for (v, label) in ticks_within(f.e_min * k, f.e_max * k, 6.0).marks {
+        let y = f.y(f.to_m(v));
         let _ = writeln!(
             svg,
             r#"<line x1="{left:.2}" y1="{y:.2}" x2="{right:.2}" y2="{y:.2}" stroke="{GRID}" stroke-width="0.5"/><line x1="{:.2}" y1="{y:.2}" x2="{left:.2}" y2="{y:.2}" stroke="{INK}"/><text x="{:.2}" y="{:.2}" text-anchor="end">{}</text>"#,
             left - 5.0,
             left - 8.0,
             y + 4.0,
-            trim(e)
+            label
         );
     }
     let _ = writeln!(
@@ -250,22 +253,18 @@ fn axes(svg: &mut String, f: &Frame) {
     );
     let _ = writeln!(
         svg,
-        r#"<text x="{:.2}" y="{:.2}" text-anchor="middle" font-size="12">Station (m)</text>"#,
+        r#"<text x="{:.2}" y="{:.2}" text-anchor="middle" font-size="12">Station ({u})</text>"#,
         left + f.plot_w() / 2.0,
-        bottom + 40.0
+        bottom + 40.0,
+        u = unit_label(Measure::Length, f.units, "m")
     );
     let _ = writeln!(
         svg,
-        r#"<text x="18" y="{y:.2}" text-anchor="middle" font-size="12" transform="rotate(-90 18 {y:.2})">Elevation (m)</text>"#,
-        y = TOP_PX + f.plot_h() / 2.0
+        r#"<text x="18" y="{y:.2}" text-anchor="middle" font-size="12" transform="rotate(-90 18 {y:.2})">Elevation ({u})</text>"#,
+        y = TOP_PX + f.plot_h() / 2.0,
+        u = unit_label(Measure::Length, f.units, "m")
     );
     svg.push_str("</g>\n");
-}
-
-/// A tick label without trailing zeros.
-fn trim(v: f64) -> String {
-    let s = format!("{v:.2}");
-    s.trim_end_matches('0').trim_end_matches('.').to_string()
 }
 
 fn ground_and_water(svg: &mut String, f: &Frame, input: &SectionInput, result: &SectionResult) {
@@ -296,12 +295,12 @@ fn ground_and_water(svg: &mut String, f: &Frame, input: &SectionInput, result: &
     }
     let _ = writeln!(
         svg,
-        r#"<line class="pool-level" x1="{:.2}" y1="{y:.2}" x2="{:.2}" y2="{y:.2}" stroke="{WATER}" stroke-width="2"/><text x="{:.2}" y="{:.2}" fill="{WATER}">pool {:.2} m</text>"#,
+        r#"<line class="pool-level" x1="{:.2}" y1="{y:.2}" x2="{:.2}" y2="{y:.2}" stroke="{WATER}" stroke-width="2"/><text x="{:.2}" y="{:.2}" fill="{WATER}">pool {}</text>"#,
         f.x(first.station_m),
         f.x(contact_m),
         f.x(first.station_m) + 4.0,
         f.y(input.pool_m) - 5.0,
-        input.pool_m,
+        f.len(input.pool_m),
         y = f.y(input.pool_m)
     );
     // Ground: soil fill down to the plot bottom, then the surface line.
@@ -326,14 +325,21 @@ fn ground_and_water(svg: &mut String, f: &Frame, input: &SectionInput, result: &
         let (x1, x2, y) = (f.x(result.toe.station_m), f.x(last.station_m), f.y(tail_m));
         let _ = writeln!(
             svg,
-            r#"<line class="tail-water" x1="{x1:.2}" y1="{y:.2}" x2="{x2:.2}" y2="{y:.2}" stroke="{WATER}" stroke-width="2"/><text x="{:.2}" y="{:.2}" text-anchor="end" fill="{WATER}">tail water {tail_m:.2} m</text>"#,
+            r#"<line class="tail-water" x1="{x1:.2}" y1="{y:.2}" x2="{x2:.2}" y2="{y:.2}" stroke="{WATER}" stroke-width="2"/><text x="{:.2}" y="{:.2}" text-anchor="end" fill="{WATER}">tail water {}</text>"#,
             x2 - 4.0,
-            y - 5.0
+            y - 5.0,
+            f.len(tail_m)
         );
     }
 }
 
-fn piezometers(svg: &mut String, f: &Frame, input: &SectionInput, result: &SectionResult) {
+fn piezometers(
+    svg: &mut String,
+    f: &Frame,
+    input: &SectionInput,
+    result: &SectionResult,
+    marks: &[(String, String)],
+) {
     let _ = writeln!(svg, r#"<g class="piezometers" font-size="11">"#);
     let drawn: Vec<&SectionPiezometer> = input
         .piezometers
@@ -362,11 +368,15 @@ fn piezometers(svg: &mut String, f: &Frame, input: &SectionInput, result: &Secti
         let dry = p.head_m < p.tip_elevation_m;
         let colour = if used { PHREATIC } else { "#777777" };
         let (x, y_tip, y_head) = (f.x(p.station_m), f.y(p.tip_elevation_m), f.y(p.head_m));
-        let label = if dry {
-            format!("{} dry", xml_escape(&p.id))
+        let mut label = if dry {
+            format!("{} dry", p.id)
         } else {
-            format!("{} {:.2} m", xml_escape(&p.id), p.head_m)
+            format!("{} {}", p.id, f.len(p.head_m))
         };
+        for (_, m) in marks.iter().filter(|(id, _)| *id == p.id) {
+            label = format!("{label} ({m})");
+        }
+        let label = xml_escape(&label);
         let top = if dry { y_tip } else { y_head };
         let _ = writeln!(
             svg,

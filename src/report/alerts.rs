@@ -10,13 +10,17 @@ use chrono_tz::Tz;
 use rusqlite::{params, Connection};
 
 use super::html::local;
-use crate::config::Config;
+use crate::config::{Config, DisplayUnits};
+use crate::present::{quantity_name, shown};
 
 /// One table row: (time ms, [time, event, object / rule, level, detail]).
 type Row = (i64, [String; 5]);
 
-fn value(v: Option<f64>, unit: &str) -> String {
-    v.map_or_else(|| "no value".to_string(), |v| format!("{v:.3} {unit}"))
+fn value(v: Option<f64>, quantity: &str, unit: &str, units: DisplayUnits) -> String {
+    v.map_or_else(
+        || "no value".to_string(),
+        |v| shown(v, quantity, unit, units),
+    )
 }
 
 /// Alerts, acknowledgements and silences of `site` in [from_ms, to_ms), oldest first.
@@ -30,6 +34,7 @@ pub fn rows(
     from_ms: i64,
     to_ms: i64,
     tz: Tz,
+    units: DisplayUnits,
 ) -> rusqlite::Result<Vec<[String; 5]>> {
     let mut out: Vec<Row> = Vec::new();
     // Every step of every alert of the site in the period, in the order it happened, with
@@ -50,15 +55,19 @@ pub fn rows(
     })?;
     for e in events {
         let (e, object, quantity) = e?;
-        let detail = if e.detail.is_empty() {
-            format!("alert #{}: {quantity} {}", e.alert, value(e.value, &e.unit))
+        let v = value(e.value, &quantity, &e.unit, units);
+        let kind = cfg.instruments.get(&object).map(|i| i.kind.name());
+        let words = quantity_name(&quantity, kind).to_lowercase();
+        // An age (s) on a safety value is how long it has had no value.
+        let (words, v) = if e.unit == "s" && quantity != "no_data" {
+            (format!("{words}:"), format!("no value for {v}"))
         } else {
-            format!(
-                "alert #{}: {quantity} {}; {}",
-                e.alert,
-                value(e.value, &e.unit),
-                e.detail
-            )
+            (words, v)
+        };
+        let detail = if e.detail.is_empty() {
+            format!("alert #{}: {words} {v}", e.alert)
+        } else {
+            format!("alert #{}: {words} {v}; {}", e.alert, e.detail)
         };
         out.push((
             e.t_ms,

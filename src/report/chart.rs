@@ -1,5 +1,7 @@
-//! Time-history charts as short hand-written SVG: several series on the left axis (heads, m),
-//! an optional stage series on a second axis, horizontal level lines, dates in the site's time
+//! Time-history charts as short hand-written SVG: several series on the left axis (heads,
+//! gradients, factors of safety, in display units), an optional stage series on a second axis,
+//! rule levels as dashed lines with the side beyond them shaded, an optional display cap and
+//! zero line, round 1-2-5 ticks on axes extended to whole steps, dates in the site's time
 //! zone. Long series are thinned to a min/max per pixel column so a month of hourly data for
 //! many instruments stays small.
 
@@ -8,7 +10,8 @@ use std::fmt::Write as _;
 use chrono::{TimeZone, Utc};
 use chrono_tz::Tz;
 
-use crate::domain::section_svg::{ticks, xml_escape};
+use crate::domain::section_svg::xml_escape;
+use crate::present::format::{ticks, Ticks};
 
 /// One plotted line.
 #[derive(Debug, Clone)]
@@ -18,11 +21,23 @@ pub struct Series {
     pub points: Vec<(i64, f64)>,
 }
 
+/// Which side of a level line is beyond it (shaded).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Beyond {
+    /// Not shaded.
+    Neither,
+    /// Values above the line are beyond it.
+    Above,
+    /// Values below the line are beyond it.
+    Below,
+}
+
 /// A horizontal reference line (e.g. a rule level).
 #[derive(Debug, Clone)]
 pub struct LevelLine {
     pub label: String,
     pub value: f64,
+    pub beyond: Beyond,
 }
 
 /// A chart to draw.
@@ -34,6 +49,13 @@ pub struct Chart {
     /// Second axis (stage).
     pub stage: Option<Series>,
     pub levels: Vec<LevelLine>,
+    /// The second axis's title, e.g. "River stage (ft)".
+    pub stage_axis: String,
+    /// Values above this are drawn at it (the axis stops there); said under the title.
+    pub cap: Option<f64>,
+    /// Always include this value in the axis (e.g. 0 for gradients, with "upward"/"downward"
+    /// marked either side of it).
+    pub zero_line: bool,
     pub from_ms: i64,
     pub to_ms: i64,
     pub tz: Tz,
@@ -106,7 +128,7 @@ fn range(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     if lo > hi {
         return None;
     }
-    let pad = ((hi - lo) * 0.08).max(0.05);
+    let pad = ((hi - lo) * 0.05).max(0.02);
     Some((lo - pad, hi + pad))
 }
 
@@ -155,19 +177,25 @@ pub fn render(c: &Chart) -> String {
         r#"<text x="{LEFT}" y="18" font-size="13" font-weight="bold">{}</text>"#,
         xml_escape(&c.title)
     );
+    let cap = |v: f64| c.cap.map_or(v, |m| v.min(m));
     let series: Vec<Series> = c
         .series
         .iter()
         .map(|se| Series {
             label: se.label.clone(),
-            points: thin(&se.points, from, to, pw as usize),
+            points: thin(&se.points, from, to, pw as usize)
+                .into_iter()
+                .map(|(t, v)| (t, cap(v)))
+                .collect(),
         })
         .collect();
     let values = series
         .iter()
         .flat_map(|se| se.points.iter().map(|p| p.1))
-        .chain(c.levels.iter().map(|l| l.value));
-    let Some((lo, hi)) = range(values) else {
+        .chain(c.levels.iter().map(|l| cap(l.value)))
+        .chain(c.zero_line.then_some(0.0));
+    let span = range(values).map(|(lo, hi)| (lo, c.cap.map_or(hi, |m| hi.min(m))));
+    let Some(t) = span.map(|(lo, hi)| ticks(lo, hi, 6.0)) else {
         let _ = writeln!(
             s,
             r#"<text x="{}" y="{}" text-anchor="middle">No data in this period</text>"#,
@@ -177,16 +205,37 @@ pub fn render(c: &Chart) -> String {
         s.push_str("</svg>\n");
         return s;
     };
+    if let Some(m) = c.cap {
+        let _ = writeln!(
+            s,
+            r##"<text x="{:.1}" y="18" text-anchor="end" fill="#555">values above {m} drawn at {m}</text>"##,
+            LEFT + pw
+        );
+    }
+    let Ticks { lo, hi, .. } = t;
     let y = |v: f64| TOP + (hi - v) / (hi - lo) * ph;
+    for l in &c.levels {
+        let yy = y(cap(l.value));
+        let (y0, y1) = match l.beyond {
+            Beyond::Neither => continue,
+            Beyond::Above => (TOP, yy),
+            Beyond::Below => (yy, TOP + ph),
+        };
+        let _ = writeln!(
+            s,
+            r##"<rect x="{LEFT}" y="{y0:.1}" width="{pw}" height="{:.1}" fill="#d62728" fill-opacity="0.07"/>"##,
+            (y1 - y0).max(0.0)
+        );
+    }
     let _ = writeln!(
         s,
         r##"<rect x="{LEFT}" y="{TOP}" width="{pw}" height="{ph}" fill="none" stroke="#444"/>"##
     );
-    for v in ticks(lo, hi, 6.0) {
-        let yy = y(v);
+    for (v, label) in &t.marks {
+        let yy = y(*v);
         let _ = writeln!(
             s,
-            r##"<line x1="{LEFT}" y1="{yy:.1}" x2="{:.1}" y2="{yy:.1}" stroke="#ddd"/><text x="{:.1}" y="{:.1}" text-anchor="end">{v}</text>"##,
+            r##"<line x1="{LEFT}" y1="{yy:.1}" x2="{:.1}" y2="{yy:.1}" stroke="#ddd"/><text x="{:.1}" y="{:.1}" text-anchor="end">{label}</text>"##,
             LEFT + pw,
             LEFT - 6.0,
             yy + 4.0
@@ -220,38 +269,53 @@ pub fn render(c: &Chart) -> String {
         H - 14.0,
         xml_escape(c.tz.name())
     );
-    for l in &c.levels {
-        let yy = y(l.value);
+    if c.zero_line {
+        let yy = y(0.0);
+        let _ = writeln!(
+            s,
+            r##"<line x1="{LEFT}" y1="{yy:.1}" x2="{:.1}" y2="{yy:.1}" stroke="#444"/><text x="{:.1}" y="{:.1}" text-anchor="end" fill="#444">upward flow ↑</text><text x="{:.1}" y="{:.1}" text-anchor="end" fill="#444">downward flow ↓</text>"##,
+            LEFT + pw,
+            LEFT + pw - 4.0,
+            yy - 4.0,
+            LEFT + pw - 4.0,
+            yy + 13.0
+        );
+    }
+    for (k, l) in c.levels.iter().enumerate() {
+        let yy = y(cap(l.value));
+        // Labels side by side, so close levels do not write over each other.
+        let lx = LEFT + 4.0 + (k % 4) as f64 * pw / 4.0;
         let _ = writeln!(
             s,
             r##"<line x1="{LEFT}" y1="{yy:.1}" x2="{:.1}" y2="{yy:.1}" stroke="#b00" stroke-dasharray="6 4"/><text x="{:.1}" y="{:.1}" fill="#b00">{}</text>"##,
             LEFT + pw,
-            LEFT + 4.0,
+            lx,
             yy - 3.0,
             xml_escape(&l.label)
         );
     }
     if let Some(stage) = &c.stage {
         let pts = thin(&stage.points, from, to, pw as usize);
-        if let Some((slo, shi)) = range(pts.iter().map(|p| p.1)) {
+        if let Some(st) = range(pts.iter().map(|p| p.1)).map(|(a, b)| ticks(a, b, 6.0)) {
+            let (slo, shi) = (st.lo, st.hi);
             let sy = |v: f64| TOP + (shi - v) / (shi - slo) * ph;
             polyline(&mut s, &pts, &x, &sy, STAGE, "4 3");
-            for v in ticks(slo, shi, 6.0) {
+            for (v, label) in &st.marks {
                 let _ = writeln!(
                     s,
-                    r##"<text x="{:.1}" y="{:.1}" fill="{STAGE}">{v}</text>"##,
+                    r##"<text x="{:.1}" y="{:.1}" fill="{STAGE}">{label}</text>"##,
                     LEFT + pw + 6.0,
-                    sy(v) + 4.0
+                    sy(*v) + 4.0
                 );
             }
             let _ = writeln!(
                 s,
-                r#"<text x="{:.1}" y="{:.1}" transform="rotate(90 {:.1} {:.1})" text-anchor="middle" fill="{STAGE}">{} (m)</text>"#,
+                r#"<text x="{:.1}" y="{:.1}" transform="rotate(90 {:.1} {:.1})" text-anchor="middle" fill="{STAGE}">{}</text>"#,
                 W - 12.0,
                 TOP + ph / 2.0,
                 W - 12.0,
                 TOP + ph / 2.0,
-                xml_escape(&stage.label)
+                xml_escape(&c.stage_axis)
             );
         }
     }
@@ -343,7 +407,11 @@ mod tests {
             levels: vec![LevelLine {
                 label: "level a".into(),
                 value: 1.5,
+                beyond: Beyond::Above,
             }],
+            stage_axis: "River (m)".into(),
+            cap: None,
+            zero_line: false,
             from_ms: 0,
             to_ms: 3_600_000,
             tz: chrono_tz::UTC,

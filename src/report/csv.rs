@@ -68,7 +68,7 @@ fn row(s: &mut String, i: &InstrumentStats) {
 pub const DERIVED_HEADER: &str =
     "object,quantity,unit,latest_time,latest,min_time,min,max_time,max";
 
-/// `derived.csv`: toe checks, sections and nest gradients.
+/// `derived.csv`: toe checks, sections, nest gradients and blanket-theory reaches.
 pub fn derived(d: &ReportData) -> String {
     let mut s = String::from(DERIVED_HEADER);
     s.push('\n');
@@ -77,6 +77,7 @@ pub fn derived(d: &ReportData) -> String {
         .iter()
         .chain(&d.sections)
         .chain(&d.gradients)
+        .chain(&d.blankets)
         .collect();
     for x in all {
         let _ = writeln!(

@@ -5,7 +5,7 @@
 use chrono::{DateTime, Utc};
 use rusqlite::{params, Connection, OptionalExtension};
 
-use crate::config::{Config, Instrument, Kind};
+use crate::config::{Config, DisplayUnits, Instrument, Kind, LandwardDistance, Location};
 use crate::quality::Flags;
 
 /// Statistics of one instrument's main quantity over the period.
@@ -26,6 +26,11 @@ pub struct InstrumentStats {
     pub max: Option<(i64, f64)>,
     /// Readings carrying any quality flag.
     pub flagged: i64,
+    /// Where it is (reach, section, station, offset), as configured.
+    pub location: Location,
+    pub tip_elevation_m: Option<f64>,
+    pub installed_ms: i64,
+    pub interval_s: u64,
     /// Flag name → count.
     pub flag_counts: Vec<(&'static str, i64)>,
 }
@@ -71,6 +76,8 @@ pub struct ReportData {
     pub from: DateTime<Utc>,
     pub to: DateTime<Utc>,
     pub generated: DateTime<Utc>,
+    /// The site's display system.
+    pub units: DisplayUnits,
     /// Piezometers and standpipes.
     pub piezometers: Vec<InstrumentStats>,
     /// Stage gauges.
@@ -83,6 +90,9 @@ pub struct ReportData {
     pub sections: Vec<DerivedStats>,
     /// Nest gradients.
     pub gradients: Vec<DerivedStats>,
+    /// Blanket-theory reaches: net head, expected and measured excess heads (also landward of
+    /// the toe), expected exit gradient and underseepage.
+    pub blankets: Vec<DerivedStats>,
     /// Quarantine in the period (whole service): reason → count.
     pub quarantine: Vec<(String, i64)>,
 }
@@ -147,6 +157,10 @@ pub fn instrument_stats(
         min: None,
         max: None,
         flagged: 0,
+        location: i.location.clone(),
+        tip_elevation_m: i.tip_elevation_m,
+        installed_ms: i.installed.timestamp_millis(),
+        interval_s: i.interval_s,
         flag_counts: Flags::NAMES.iter().map(|(_, n)| (*n, 0)).collect(),
     };
     while let Some(r) = rows.next()? {
@@ -236,12 +250,14 @@ pub fn gather(
         from,
         to,
         generated: now,
+        units: s.display_units,
         piezometers: Vec::new(),
         stages: Vec::new(),
         others: Vec::new(),
         toes: Vec::new(),
         sections: Vec::new(),
         gradients: Vec::new(),
+        blankets: Vec::new(),
         quarantine: Vec::new(),
     };
     for i in cfg.instruments.values().filter(|i| i.site == site) {
@@ -266,6 +282,19 @@ pub fn gather(
     for c in o.nests.iter().filter(|x| x.site == site) {
         data.gradients
             .push(derived_stats(conn, &c.id, "vertical_gradient", f, t)?);
+    }
+    for b in o.blankets.iter().filter(|x| x.site == site) {
+        let at: Vec<String> = b.distances.iter().map(LandwardDistance::quantity).collect();
+        let fixed = [
+            "net_head",
+            "expected_excess_head",
+            "measured_excess_head",
+            "expected_exit_gradient",
+            "expected_flow",
+        ];
+        for q in fixed.iter().copied().chain(at.iter().map(String::as_str)) {
+            data.blankets.push(derived_stats(conn, &b.id, q, f, t)?);
+        }
     }
     let mut st = conn.prepare(
         "SELECT reason, count(*) FROM quarantine WHERE received_ms >= ?1 AND received_ms < ?2
@@ -293,6 +322,27 @@ pub fn series(
          AND {column} IS NOT NULL ORDER BY t_ms"
     ))?;
     let rows = st.query_map(params![i.id, from_ms, to_ms], |r| {
+        Ok((r.get(0)?, r.get(1)?))
+    })?;
+    rows.collect()
+}
+
+/// Values of a derived quantity of `object` in [from, to), time ms and value, for plots.
+///
+/// # Errors
+/// SQLite errors.
+pub fn derived_series(
+    conn: &Connection,
+    object: &str,
+    quantity: &str,
+    from_ms: i64,
+    to_ms: i64,
+) -> rusqlite::Result<Vec<(i64, f64)>> {
+    let mut st = conn.prepare_cached(
+        "SELECT t_ms, value FROM derived WHERE object = ?1 AND quantity = ?2 AND t_ms >= ?3
+         AND t_ms < ?4 AND value IS NOT NULL ORDER BY t_ms",
+    )?;
+    let rows = st.query_map(params![object, quantity, from_ms, to_ms], |r| {
         Ok((r.get(0)?, r.get(1)?))
     })?;
     rows.collect()

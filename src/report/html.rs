@@ -7,13 +7,20 @@ use chrono::{TimeZone, Utc};
 use chrono_tz::Tz;
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
+use crate::config::DisplayUnits;
 use crate::domain::section_svg::xml_escape as esc;
+use crate::present::format::{
+    digits, duration, fixed, shown, shown_bare, with_digits, FS_CAP_RULE,
+};
+use crate::present::labels::system_name;
+use crate::present::units::{convert_difference, unit_label};
+use crate::present::{kind_name, measure_of, quantity_name, Measure};
 
 const CSS: &str = "body{font-family:'DejaVu Sans',Arial,sans-serif;font-size:12px;color:#111;margin:24px;max-width:1000px}\
 h1{font-size:20px;margin:0 0 4px 0}h2{font-size:15px;margin:22px 0 6px 0;border-bottom:1px solid #999}\
-table{border-collapse:collapse;margin:6px 0;width:100%}th,td{border:1px solid #bbb;padding:3px 6px;text-align:right}\
+table{border-collapse:collapse;margin:6px 0;width:100%;font-size:11px}th,td{border:1px solid #bbb;padding:3px 6px;text-align:right}\
 th{background:#eee}td.l,th.l{text-align:left}.caution{border:2px solid #b00;padding:6px 10px;margin:10px 0;background:#fff6f6}\
-.meta td{border:none;text-align:left;padding:1px 8px 1px 0}.note{color:#555}.sign td{border:none;padding:18px 12px 2px 0;text-align:left}\
+.ids{font-size:9px;color:#666}.summary li{margin:2px 0}.meta td{border:none;text-align:left;padding:1px 8px 1px 0}.note{color:#555}.sign td{border:none;padding:18px 12px 2px 0;text-align:left}\
 svg{max-width:100%;height:auto}@media print{body{margin:10mm}h2{break-after:avoid}svg,table{break-inside:avoid}}";
 
 /// Format a UTC millisecond time in the report's time zone.
@@ -24,65 +31,136 @@ pub fn local(t_ms: i64, tz: Tz) -> String {
         .unwrap_or_default()
 }
 
-fn num(v: Option<f64>, digits: usize) -> String {
-    v.map(|v| format!("{v:.digits$}"))
-        .unwrap_or_else(|| "—".into())
-}
-
 fn when(v: Option<(i64, f64)>, tz: Tz) -> String {
     v.map(|(t, _)| local(t, tz)).unwrap_or_else(|| "—".into())
 }
 
 /// The pieces the HTML needs besides the data.
 pub struct Extras {
-    /// (title, inline SVG) time-history charts.
+    /// (title, inline SVG) charts: safety plots first, then time histories.
     pub charts: Vec<(String, String)>,
     /// (caption, inline SVG or an explanation) section drawings.
     pub sections: Vec<(String, Result<String, String>)>,
     /// Alerts, acknowledgements and silences in the period, as table rows (already text).
     pub alerts: Option<Vec<[String; 5]>>,
+    /// Summary sentences (also in the report email's body).
+    pub summary: Vec<String>,
     pub caution: &'static str,
     pub version: &'static str,
 }
 
-fn stats_table(s: &mut String, rows: &[InstrumentStats], tz: Tz) {
-    s.push_str("<table><tr><th class=\"l\">Instrument</th><th class=\"l\">Kind</th><th>Latest</th><th>at</th><th>Minimum</th><th>at</th><th>Maximum</th><th>at</th><th>Change</th><th>Readings</th><th>Complete %</th><th class=\"l\">Status</th></tr>\n");
+/// A value of an instrument's main quantity, number only (the unit is in the header).
+fn bare(v: Option<f64>, i: &InstrumentStats, u: DisplayUnits) -> String {
+    v.map_or_else(
+        || "—".into(),
+        |v| shown_bare(v, measure_of(i.quantity, i.unit), u),
+    )
+}
+
+fn stats_table(s: &mut String, rows: &[InstrumentStats], tz: Tz, u: DisplayUnits) {
+    let unit = rows
+        .first()
+        .map(|i| unit_label(measure_of(i.quantity, i.unit), u, i.unit))
+        .unwrap_or("");
+    let what = rows
+        .first()
+        .map(|i| quantity_name(i.quantity, Some(i.kind)))
+        .unwrap_or_default();
+    let _ = writeln!(
+        s,
+        "<table><tr><th class=\"l\">Instrument</th><th class=\"l\">Kind</th><th>Latest ({unit})</th><th>at</th><th>Minimum ({unit})</th><th>at</th><th>Maximum ({unit})</th><th>at</th><th>Change ({unit})</th><th>Readings</th><th>Complete %</th><th class=\"l\">Status</th></tr>"
+    );
     for i in rows {
+        let m = measure_of(i.quantity, i.unit);
+        let change = i.change().map_or_else(
+            || "—".into(),
+            |c| with_digits(convert_difference(c, m, u), digits(m, u)),
+        );
         let _ = writeln!(
             s,
             "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
             esc(&i.id),
-            i.kind,
-            num(i.latest.map(|x| x.1), 3),
+            esc(&kind_name(i.kind)),
+            bare(i.latest.map(|x| x.1), i, u),
             when(i.latest, tz),
-            num(i.min.map(|x| x.1), 3),
+            bare(i.min.map(|x| x.1), i, u),
             when(i.min, tz),
-            num(i.max.map(|x| x.1), 3),
+            bare(i.max.map(|x| x.1), i, u),
             when(i.max, tz),
-            num(i.change(), 3),
+            change,
             i.readings,
-            num(i.completeness_pct(), 1),
+            i.completeness_pct().map_or_else(|| "—".into(), |c| fixed(c, 1)),
             i.status()
+        );
+    }
+    s.push_str("</table>\n");
+    if !rows.is_empty() {
+        let _ = writeln!(
+            s,
+            "<p class=\"note\">Values: {} ({unit}). Change = last − first reading in the period.</p>",
+            esc(&what.to_lowercase())
+        );
+    }
+}
+
+/// Where the instruments are: kind, reach, section, station, offset, tip elevation, installed,
+/// reading interval.
+fn locations_table(s: &mut String, d: &ReportData, tz: Tz) {
+    let u = d.units;
+    let l = unit_label(Measure::Length, u, "m");
+    let len = |v: Option<f64>| v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Length, u));
+    let pos =
+        |v: Option<f64>| v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Position, u));
+    let _ = writeln!(
+        s,
+        "<table><tr><th class=\"l\">Instrument</th><th class=\"l\">Kind</th><th class=\"l\">Reach</th><th class=\"l\">Section</th><th>Station ({l})</th><th>Offset ({l})</th><th>Tip elevation ({l})</th><th>Installed</th><th>Reading every</th></tr>"
+    );
+    for i in d.piezometers.iter().chain(&d.stages).chain(&d.others) {
+        let _ = writeln!(
+            s,
+            "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            esc(&i.id),
+            esc(&kind_name(i.kind)),
+            esc(i.location.reach.as_deref().unwrap_or("—")),
+            esc(i.location.section.as_deref().unwrap_or("—")),
+            pos(i.location.station_m),
+            pos(i.location.offset_m),
+            len(i.tip_elevation_m),
+            local(i.installed_ms, tz),
+            duration(i.interval_s as i64)
         );
     }
     s.push_str("</table>\n");
 }
 
-fn derived_table(s: &mut String, rows: &[DerivedStats], tz: Tz) {
-    s.push_str("<table><tr><th class=\"l\">Object</th><th class=\"l\">Quantity</th><th>Latest</th><th>at</th><th>Minimum</th><th>at</th><th>Maximum</th><th>at</th></tr>\n");
+fn derived_table(s: &mut String, rows: &[DerivedStats], tz: Tz, u: DisplayUnits) {
+    s.push_str("<table><tr><th class=\"l\">Object</th><th class=\"l\">Quantity</th><th>Latest</th><th>at</th><th>Minimum</th><th>at</th><th>Maximum</th><th>at</th><th class=\"l ids\">ids</th></tr>\n");
     for d in rows {
+        let v = |x: Option<(i64, f64)>| {
+            x.map_or_else(
+                || "—".into(),
+                |(_, v)| esc(&shown(v, &d.quantity, &d.unit, u)),
+            )
+        };
+        // The largest factor of safety of a period says nothing about safety: not shown.
+        let fs = measure_of(&d.quantity, &d.unit) == Measure::FactorOfSafety;
+        let (max, max_at) = if fs {
+            ("not shown".to_string(), String::new())
+        } else {
+            (v(d.max), when(d.max, tz))
+        };
         let _ = writeln!(
             s,
-            "<tr><td class=\"l\">{}</td><td class=\"l\">{}{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l ids\">{}</td></tr>",
             esc(&d.object),
-            esc(&d.quantity),
-            if d.unit.is_empty() || d.unit == "-" { String::new() } else { format!(" ({})", esc(&d.unit)) },
-            num(d.latest.map(|x| x.1), 3),
+            esc(&quantity_name(&d.quantity, None)),
+            v(d.latest),
             when(d.latest, tz),
-            num(d.min.map(|x| x.1), 3),
+            v(d.min),
             when(d.min, tz),
-            num(d.max.map(|x| x.1), 3),
-            when(d.max, tz),
+            max,
+            max_at,
+            esc(&d.quantity),
         );
     }
     s.push_str("</table>\n");
@@ -97,13 +175,14 @@ pub fn render(d: &ReportData, x: &Extras) -> String {
     let _ = writeln!(s, "<h1>{}</h1>", esc(&title));
     let _ = writeln!(
         s,
-        "<table class=\"meta\"><tr><td>Site</td><td>{} ({})</td></tr><tr><td>Period</td><td>{} to {}</td></tr><tr><td>Time zone</td><td>{}</td></tr><tr><td>Generated</td><td>{}</td></tr><tr><td>Data completeness</td><td>{}</td></tr></table>",
+        "<table class=\"meta\"><tr><td>Site</td><td>{} ({})</td></tr><tr><td>Period</td><td>{} to {}</td></tr><tr><td>Time zone</td><td>{}</td></tr><tr><td>Generated</td><td>{}</td></tr><tr><td>Units</td><td>{}</td></tr><tr><td>Data completeness</td><td>{}</td></tr></table>",
         esc(&d.site_name),
         esc(&d.site_id),
         local(d.from.timestamp_millis(), tz),
         local(d.to.timestamp_millis(), tz),
         esc(&d.time_zone),
         local(d.generated.timestamp_millis(), tz),
+        system_name(d.units),
         d.completeness_pct().map(|c| format!("{c:.1} % of expected readings")).unwrap_or_else(|| "no readings expected".into())
     );
     let _ = writeln!(
@@ -111,34 +190,51 @@ pub fn render(d: &ReportData, x: &Extras) -> String {
         "<div class=\"caution\"><b>Caution.</b> {}</div>",
         esc(x.caution)
     );
+    s.push_str("<h2>Summary</h2>\n<ul class=\"summary\">\n");
+    for line in &x.summary {
+        let _ = writeln!(s, "<li>{}</li>", esc(line));
+    }
+    s.push_str("</ul>\n");
     if d.is_empty() {
         s.push_str("<p><b>No readings were stored for this site in this period.</b> The tables below are empty; check the loggers, the broker and the quarantine summary.</p>\n");
     }
+    s.push_str("<h2>Instruments and where they are</h2>\n");
+    locations_table(&mut s, d, tz);
+    let u = d.units;
     s.push_str("<h2>Piezometers</h2>\n");
-    stats_table(&mut s, &d.piezometers, tz);
-    s.push_str("<p class=\"note\">Values are total heads (piezometric elevations), m. Change = last − first reading in the period.</p>\n");
+    stats_table(&mut s, &d.piezometers, tz, u);
     s.push_str("<h2>Pool and river stage</h2>\n");
-    stats_table(&mut s, &d.stages, tz);
+    stats_table(&mut s, &d.stages, tz, u);
     if !d.others.is_empty() {
         s.push_str("<h2>Other instruments</h2>\n");
-        stats_table(&mut s, &d.others, tz);
+        stats_table(&mut s, &d.others, tz, u);
     }
-    s.push_str("<h2>Time histories</h2>\n");
+    s.push_str("<h2>Plots</h2>\n");
     for (t, svg) in &x.charts {
         let _ = writeln!(s, "<div title=\"{}\">{svg}</div>", esc(t));
     }
     if !d.toes.is_empty() {
         s.push_str("<h2>Toe checks</h2>\n");
-        derived_table(&mut s, &d.toes, tz);
-        s.push_str("<p class=\"note\">Exit gradient i = h_o/z_t (positive upward); FS = i_c/i, not applicable (—) while i ≤ 0. The minimum factor of safety in the period and its time are in the Minimum columns.</p>\n");
+        derived_table(&mut s, &d.toes, tz, u);
+        let _ = writeln!(
+            s,
+            "<p class=\"note\">Exit gradient i = h_o/z_t (positive upward); FS = i_c/i, not applicable (—) while i ≤ 0. The lowest factor of safety in the period and its time are in the Minimum columns; its maximum is not shown (it says nothing about safety). {}</p>",
+            esc(FS_CAP_RULE)
+        );
     }
     if !d.gradients.is_empty() {
         s.push_str("<h2>Vertical gradients</h2>\n");
-        derived_table(&mut s, &d.gradients, tz);
+        derived_table(&mut s, &d.gradients, tz, u);
+        s.push_str("<p class=\"note\">Positive gradients mean upward flow.</p>\n");
+    }
+    if !d.blankets.is_empty() {
+        s.push_str("<h2>Blanket theory (expected underseepage heads)</h2>\n");
+        derived_table(&mut s, &d.blankets, tz, u);
+        s.push_str("<p class=\"note\">Expected values from blanket theory for the river stage at the time; measured excess head from the toe piezometer.</p>\n");
     }
     if !d.sections.is_empty() {
         s.push_str("<h2>Sections</h2>\n");
-        derived_table(&mut s, &d.sections, tz);
+        derived_table(&mut s, &d.sections, tz, u);
         for (caption, svg) in &x.sections {
             let _ = writeln!(s, "<h3>{}</h3>", esc(caption));
             match svg {

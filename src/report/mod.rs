@@ -7,8 +7,11 @@ pub mod chart;
 pub mod csv;
 pub mod data;
 pub mod html;
+#[cfg(feature = "pdf")]
+pub mod pdf;
 pub mod schedule;
 pub mod scheduler;
+pub mod summary;
 
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
@@ -17,17 +20,21 @@ use anyhow::Context as _;
 use chrono::{DateTime, Utc};
 use chrono_tz::Tz;
 
-use crate::config::{Config, Kind};
-use crate::domain::rules::Check;
+use crate::config::{Config, DisplayUnits, Kind};
+use crate::domain::rules::{Check, Direction};
+use crate::present::units::{convert, unit_label};
+use crate::present::{measure_of, Measure, FS_DISPLAY_CAP};
 use crate::store::Store;
 
-use chart::{Chart, LevelLine, Series};
+use chart::{Beyond, Chart, LevelLine, Series};
 use data::ReportData;
 
 /// The files a report consists of.
 #[derive(Debug, Clone)]
 pub struct ReportFiles {
     pub html: PathBuf,
+    /// The PDF (built with the `pdf` feature).
+    pub pdf: Option<PathBuf>,
     pub csv: Vec<PathBuf>,
 }
 
@@ -85,21 +92,195 @@ fn groups(cfg: &Config, site: &str) -> Vec<Group> {
     out
 }
 
-/// Rule levels drawn on a chart of `piezometers`: each level bound of every threshold rule on
-/// the total head of one of them, labelled `rule-id: level-name`.
-fn level_lines(cfg: &Config, piezometers: &[String]) -> Vec<LevelLine> {
+/// Rule levels drawn on a chart of `quantity` for `objects`: each level bound of every
+/// threshold rule on one of them, in display units, labelled `rule-id: level-name`, the side
+/// beyond the bound shaded.
+fn level_lines(
+    cfg: &Config,
+    objects: &[String],
+    (quantity, unit_si): (&str, &str),
+    units: DisplayUnits,
+) -> Vec<LevelLine> {
+    let m = measure_of(quantity, unit_si);
     cfg.alerting
         .rules
         .iter()
-        .filter(|r| r.quantity == "total_head" && r.spec.check == Check::Threshold)
-        .filter(|r| piezometers.contains(&r.object))
+        .filter(|r| r.quantity == quantity && r.spec.check == Check::Threshold)
+        .filter(|r| objects.contains(&r.object))
         .flat_map(|r| {
             r.spec.levels.iter().map(|l| LevelLine {
                 label: format!("{}: {}", r.id, l.name),
-                value: l.bound,
+                value: convert(l.bound, m, units),
+                beyond: match l.direction {
+                    Direction::Above => Beyond::Above,
+                    Direction::Below => Beyond::Below,
+                },
             })
         })
         .collect()
+}
+
+/// Points of a stored SI series in display units.
+fn to_display(points: Vec<(i64, f64)>, m: Measure, units: DisplayUnits) -> Vec<(i64, f64)> {
+    points
+        .into_iter()
+        .map(|(t, v)| (t, convert(v, m, units)))
+        .collect()
+}
+
+/// A chart's frame: title, axis label and the period; series and levels are filled in.
+fn chart(title: String, y_label: String, f: i64, t: i64, tz: Tz) -> Chart {
+    Chart {
+        title,
+        y_label,
+        series: Vec::new(),
+        stage: None,
+        levels: Vec::new(),
+        stage_axis: String::new(),
+        cap: None,
+        zero_line: false,
+        from_ms: f,
+        to_ms: t,
+        tz,
+    }
+}
+
+/// The stage series of gauge `id` in display units, with its axis title.
+fn stage_of(
+    cfg: &Config,
+    store: &Store,
+    id: Option<&String>,
+    (f, t): (i64, i64),
+    units: DisplayUnits,
+) -> anyhow::Result<(Option<Series>, String)> {
+    let Some(i) = id.and_then(|id| cfg.instruments.get(id)) else {
+        return Ok((None, String::new()));
+    };
+    let points = to_display(data::series(store.conn(), i, f, t)?, Measure::Length, units);
+    let axis = format!("{} water level ({})", i.id, length_unit(units));
+    Ok((
+        Some(Series {
+            label: format!("{} (water level)", i.id),
+            points,
+        }),
+        axis,
+    ))
+}
+
+fn length_unit(units: DisplayUnits) -> &'static str {
+    unit_label(Measure::Length, units, "m")
+}
+
+/// The safety plots of a site: factor of safety and exit gradient at the toes against their
+/// rule levels, vertical gradients with the flow direction marked, and each blanket reach's
+/// measured excess head against the blanket-theory expectation with the river on a second
+/// axis.
+fn safety_charts(
+    cfg: &Config,
+    store: &Store,
+    site: &str,
+    (f, t): (i64, i64),
+    tz: Tz,
+    units: DisplayUnits,
+) -> anyhow::Result<Vec<(String, Chart)>> {
+    let o = &cfg.objects;
+    let conn = store.conn();
+    let mut out = Vec::new();
+    let toes: Vec<String> = o
+        .toes
+        .iter()
+        .filter(|x| x.site == site)
+        .map(|x| x.id.clone())
+        .collect();
+    let derived = |objects: &[String], q: &str, m: Measure| -> anyhow::Result<Vec<Series>> {
+        let mut v = Vec::new();
+        for id in objects {
+            v.push(Series {
+                label: id.clone(),
+                points: to_display(data::derived_series(conn, id, q, f, t)?, m, units),
+            });
+        }
+        Ok(v)
+    };
+    if !toes.is_empty() {
+        let mut c = chart(
+            "Factor of safety against heave at the toes".into(),
+            "Factor of safety".into(),
+            f,
+            t,
+            tz,
+        );
+        c.series = derived(&toes, "factor_of_safety", Measure::FactorOfSafety)?;
+        c.levels = level_lines(cfg, &toes, ("factor_of_safety", "-"), units);
+        if c.levels.is_empty() {
+            c.levels.push(LevelLine {
+                label: "FS = 1".into(),
+                value: 1.0,
+                beyond: Beyond::Below,
+            });
+        }
+        c.cap = Some(FS_DISPLAY_CAP);
+        out.push(("Factor of safety".to_string(), c));
+        let mut c = chart(
+            "Exit gradient at the toes".into(),
+            "Exit gradient (+ upward)".into(),
+            f,
+            t,
+            tz,
+        );
+        c.series = derived(&toes, "exit_gradient", Measure::Gradient)?;
+        c.levels = level_lines(cfg, &toes, ("exit_gradient", "-"), units);
+        out.push(("Exit gradient".to_string(), c));
+    }
+    let nests: Vec<String> = o
+        .nests
+        .iter()
+        .filter(|x| x.site == site)
+        .map(|x| x.id.clone())
+        .collect();
+    if !nests.is_empty() {
+        let mut c = chart(
+            "Vertical gradients in the nests".into(),
+            "Vertical gradient (+ upward)".into(),
+            f,
+            t,
+            tz,
+        );
+        c.series = derived(&nests, "vertical_gradient", Measure::Gradient)?;
+        c.levels = level_lines(cfg, &nests, ("vertical_gradient", "-"), units);
+        c.zero_line = true;
+        out.push(("Vertical gradients".to_string(), c));
+    }
+    for b in o.blankets.iter().filter(|x| x.site == site) {
+        let mut c = chart(
+            format!(
+                "Excess head at the toe of {}: measured and expected (blanket theory)",
+                b.id
+            ),
+            format!("Excess head ({})", length_unit(units)),
+            f,
+            t,
+            tz,
+        );
+        for (q, label) in [
+            ("measured_excess_head", "measured"),
+            ("expected_excess_head", "expected"),
+        ] {
+            c.series.push(Series {
+                label: label.into(),
+                points: to_display(
+                    data::derived_series(conn, &b.id, q, f, t)?,
+                    Measure::Length,
+                    units,
+                ),
+            });
+        }
+        let (stage, axis) = stage_of(cfg, store, Some(&b.river_gauge), (f, t), units)?;
+        c.stage = stage;
+        c.stage_axis = axis;
+        out.push((format!("Excess head {}", b.id), c));
+    }
+    Ok(out)
 }
 
 /// The times to draw a section at: the period's highest pool, and its end.
@@ -144,37 +325,36 @@ pub fn build(
     now: DateTime<Utc>,
 ) -> anyhow::Result<(ReportData, html::Extras)> {
     let data = data::gather(cfg, store.conn(), site, from, to, now)?;
+    let units = data.units;
     let tz: Tz = data.time_zone.parse().unwrap_or(chrono_tz::UTC);
     let (f, t) = (from.timestamp_millis(), to.timestamp_millis());
     let mut charts = Vec::new();
+    for (title, c) in safety_charts(cfg, store, site, (f, t), tz, units)? {
+        charts.push((title, chart::render(&c)));
+    }
     for g in groups(cfg, site) {
-        let mut series = Vec::new();
+        let mut c = chart(
+            g.title.clone(),
+            format!("Total head ({})", length_unit(units)),
+            f,
+            t,
+            tz,
+        );
         for id in &g.piezometers {
             if let Some(i) = cfg.instruments.get(id) {
-                series.push(Series {
+                c.series.push(Series {
                     label: id.clone(),
-                    points: data::series(store.conn(), i, f, t)?,
+                    points: to_display(
+                        data::series(store.conn(), i, f, t)?,
+                        Measure::Length,
+                        units,
+                    ),
                 });
             }
         }
-        let stage = match g.stage.as_ref().and_then(|id| cfg.instruments.get(id)) {
-            Some(i) => Some(Series {
-                label: i.id.clone(),
-                points: data::series(store.conn(), i, f, t)?,
-            }),
-            None => None,
-        };
-        let chart = Chart {
-            title: g.title.clone(),
-            y_label: "Total head (m)".into(),
-            series,
-            stage,
-            levels: level_lines(cfg, &g.piezometers),
-            from_ms: f,
-            to_ms: t,
-            tz,
-        };
-        charts.push((g.title, chart::render(&chart)));
+        (c.stage, c.stage_axis) = stage_of(cfg, store, g.stage.as_ref(), (f, t), units)?;
+        c.levels = level_lines(cfg, &g.piezometers, ("total_head", "m"), units);
+        charts.push((g.title, chart::render(&c)));
     }
     let mut sections = Vec::new();
     for s in cfg.objects.sections.iter().filter(|s| s.site == site) {
@@ -187,22 +367,33 @@ pub fn build(
             sections.push((caption, svg));
         }
     }
+    let alerts = alerts::rows(cfg, store.conn(), site, f, t, tz, units)?;
+    let previous = data::gather(cfg, store.conn(), site, from - (to - from), from, now)?;
+    let summary = summary::lines(cfg, &data, &previous, &alerts);
     let extras = html::Extras {
         charts,
         sections,
-        alerts: Some(alerts::rows(cfg, store.conn(), site, f, t, tz)?),
+        alerts: Some(alerts),
+        summary,
         caution: crate::CAUTION,
         version: env!("CARGO_PKG_VERSION"),
     };
     Ok((data, extras))
 }
 
-/// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and text.
+/// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and bytes.
 #[derive(Debug, Clone)]
 pub struct Document {
     pub name: String,
     pub content_type: &'static str,
-    pub text: String,
+    pub data: Vec<u8>,
+}
+
+impl Document {
+    /// The document as text (HTML, CSV); a binary one (PDF) reads with replacement characters.
+    pub fn text(&self) -> std::borrow::Cow<'_, str> {
+        String::from_utf8_lossy(&self.data)
+    }
 }
 
 /// Render the report for `site` over [from, to): the HTML document first, then the CSV tables.
@@ -217,8 +408,25 @@ pub fn render_files(
     to: DateTime<Utc>,
     now: DateTime<Utc>,
 ) -> anyhow::Result<Vec<Document>> {
+    Ok(render_report(cfg, store, site, from, to, now)?.0)
+}
+
+/// Render the report's documents (as [`render_files`]) and its summary sentences (for the
+/// body of the report email).
+///
+/// # Errors
+/// Unknown site, database errors, or a generated document that is not well-formed.
+pub fn render_report(
+    cfg: &Config,
+    store: &Store,
+    site: &str,
+    from: DateTime<Utc>,
+    to: DateTime<Utc>,
+    now: DateTime<Utc>,
+) -> anyhow::Result<(Vec<Document>, Vec<String>)> {
     anyhow::ensure!(to > from, "the period is empty: --to must be after --from");
     let (data, extras) = build(cfg, store, site, from, to, now)?;
+    let summary = extras.summary.clone();
     let doc = html::render(&data, &extras);
     crate::xml_check::check_xml(&doc)
         .map_err(|e| anyhow::anyhow!("generated HTML is not well-formed: {e}"))?;
@@ -226,8 +434,14 @@ pub fn render_files(
     let mut docs = vec![Document {
         name: format!("{stem}.html"),
         content_type: "text/html; charset=utf-8",
-        text: doc,
+        data: doc.into_bytes(),
     }];
+    #[cfg(feature = "pdf")]
+    docs.push(Document {
+        name: format!("{stem}.pdf"),
+        content_type: "application/pdf",
+        data: pdf::render(&data, &extras)?,
+    });
     for (name, text) in [
         ("instruments", csv::instruments(&data)),
         ("derived", csv::derived(&data)),
@@ -236,10 +450,10 @@ pub fn render_files(
         docs.push(Document {
             name: format!("{stem}_{name}.csv"),
             content_type: "text/csv; charset=utf-8",
-            text,
+            data: text.into_bytes(),
         });
     }
-    Ok(docs)
+    Ok((docs, summary))
 }
 
 /// Write rendered documents into `out` (created if needed); returns their paths in order.
@@ -251,7 +465,7 @@ pub fn write_files(docs: &[Document], out: &Path) -> anyhow::Result<Vec<PathBuf>
     let mut paths = Vec::new();
     for d in docs {
         let p = out.join(&d.name);
-        std::fs::write(&p, &d.text).with_context(|| format!("writing {}", p.display()))?;
+        std::fs::write(&p, &d.data).with_context(|| format!("writing {}", p.display()))?;
         paths.push(p);
     }
     Ok(paths)
@@ -271,12 +485,19 @@ pub fn generate(
     out: &Path,
 ) -> anyhow::Result<ReportFiles> {
     let docs = render_files(cfg, store, site, from, to, now)?;
-    let mut paths = write_files(&docs, out)?.into_iter();
-    let html = paths
+    let paths = write_files(&docs, out)?;
+    let with = |ext: &'static str| {
+        paths
+            .iter()
+            .filter(move |p| p.extension().is_some_and(|e| e == ext))
+    };
+    let html = with("html")
         .next()
+        .cloned()
         .ok_or_else(|| anyhow::anyhow!("no HTML document was rendered"))?;
     Ok(ReportFiles {
         html,
-        csv: paths.collect(),
+        pdf: with("pdf").next().cloned(),
+        csv: with("csv").cloned().collect(),
     })
 }

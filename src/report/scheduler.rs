@@ -85,7 +85,7 @@ pub fn queue_one(
     if store.report_done(&s.id, f)? {
         return Ok(None);
     }
-    let docs = super::render_files(cfg, store, &s.site, from, to, now)?;
+    let (docs, summary) = super::render_report(cfg, store, &s.site, from, to, now)?;
     if let Some(dir) = &s.out_dir {
         if let Err(e) = super::write_files(&docs, dir) {
             tracing::error!(report = %s.id, error = %format!("{e:#}"), "Cannot keep the report files in out_dir; emailing them anyway");
@@ -100,19 +100,27 @@ pub fn queue_one(
     let names: Vec<&str> = docs.iter().map(|d| d.name.as_str()).collect();
     let (lf, lt) = (local(f, tz), local(t, tz));
     let text = format!(
-        "Scheduled instrumentation report \"{}\" for {site_name} ({}).\nPeriod: {lf} to {lt} ({}).\nAttached: {}.\n\nCaution: {}\n",
+        "Scheduled instrumentation report \"{}\" for {site_name} ({}).\nPeriod: {lf} to {lt} ({}).\n\nSummary:\n{}\nAttached: {}.\n\nCaution: {}\n",
         s.id,
         s.site,
         tz.name(),
+        summary
+            .iter()
+            .map(|l| format!("- {l}\n"))
+            .collect::<String>(),
         names.join(", "),
         crate::CAUTION
     );
     let html = format!(
-        "<html><body><p>Scheduled instrumentation report <b>{}</b> for {} ({}).</p><p>Period: {lf} to {lt} ({}).</p><p>Attached: {}.</p><p><b>Caution.</b> {}</p></body></html>",
+        "<html><body><p>Scheduled instrumentation report <b>{}</b> for {} ({}).</p><p>Period: {lf} to {lt} ({}).</p><p><b>Summary</b></p><ul>{}</ul><p>Attached: {}.</p><p><b>Caution.</b> {}</p></body></html>",
         esc(&s.id),
         esc(site_name),
         esc(&s.site),
         esc(tz.name()),
+        summary
+            .iter()
+            .map(|l| format!("<li>{}</li>", esc(l)))
+            .collect::<String>(),
         esc(&names.join(", ")),
         esc(crate::CAUTION)
     );
@@ -132,7 +140,7 @@ pub fn queue_one(
             .map(|d| Attachment {
                 name: d.name,
                 content_type: d.content_type.to_string(),
-                data: d.text.into_bytes(),
+                data: d.data,
             })
             .collect(),
     };

@@ -85,7 +85,7 @@ fn base_objects_load_with_defaults() {
     assert_eq!(o.toes[0].fs_target, 1.6);
     assert_eq!(o.blankets[0].tolerance_s, 90); // G1
     assert_eq!(o.blankets[0].riverside, RiversideCase::NoBlanket);
-    assert!(o.blankets[0].distances_m.is_empty());
+    assert!(o.blankets[0].distances.is_empty());
     assert_eq!(o.sections[0].tolerance_s, 182);
     assert_eq!(o.sections[0].tail, None);
     // k_blanket_m_s = 0 is allowed with impervious blankets on both sides.
@@ -403,7 +403,9 @@ fn feet_site_objects_are_converted_to_metres() {
     assert!(close(b.blanket_thickness_m, 0.3048), "{b:?}");
     assert!(matches!(b.riverside, RiversideCase::OpenEntranceAt { l1_m } if close(l1_m, 304.8)));
     assert!(matches!(b.landside, LandsideCase::OpenExitAt { l3_m } if close(l3_m, 152.4)));
-    assert!(close(b.distances_m[1], 30.48) && b.distances_m[0] == 0.0);
+    assert!(close(b.distances[1].m, 30.48) && b.distances[0].m == 0.0);
+    // The quantity is named from the value as written, not from the converted metres.
+    assert_eq!(b.distances[1].label, "100ft");
     // Permeabilities carry their unit in the key and are not converted.
     assert_eq!((b.k_foundation_m_s, b.k_blanket_m_s), (1e-3, 1e-6));
     let s = &cfg.objects.sections[0];

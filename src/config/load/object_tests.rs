@@ -5,7 +5,8 @@ use std::path::Path;
 
 use super::*;
 use crate::config::model::{
-    BlanketReach, CriticalGradientFrom, LandsideCase, Level, Nest, RiversideCase, Section, ToeCheck,
+    BlanketReach, CriticalGradientFrom, LandsideCase, LandwardDistance, Level, Nest, RiversideCase,
+    Section, ToeCheck,
 };
 
 use super::test_dir::problems;
@@ -72,7 +73,12 @@ fn example_objects_load_in_si() {
             blanket_thickness_m: 2.5,
             riverside: RiversideCase::OpenEntranceAt { l1_m: 100.0 },
             landside: LandsideCase::Endless,
-            distances_m: vec![25.0, 50.0, 100.0],
+            distances: [25, 50, 100]
+                .map(|d| LandwardDistance {
+                    m: f64::from(d),
+                    label: format!("{d}m"),
+                })
+                .to_vec(),
             tolerance_s: 5400,
         }]
     );

@@ -6,7 +6,7 @@
 
 use super::values::{name, Reader, Rule};
 use super::Want;
-use crate::config::model::{BlanketReach, LandsideCase, RiversideCase};
+use crate::config::model::{BlanketReach, LandsideCase, LandwardDistance, RiversideCase};
 use crate::config::problem::Cx;
 use crate::config::reader::finite;
 
@@ -134,10 +134,13 @@ pub(super) fn blanket(
         blanket_thickness_m: z_bl?,
         riverside: riverside?,
         landside: landside?,
-        distances_m: distances
+        distances: distances
             .unwrap_or_default()
             .into_iter()
-            .map(|(d, _)| d * r.m)
+            .map(|(d, _)| LandwardDistance {
+                m: d * r.m,
+                label: format!("{d}{}", if r.m == 1.0 { "m" } else { "ft" }),
+            })
             .collect(),
         tolerance_s: 0,
     })

@@ -3,6 +3,7 @@
 
 use super::*;
 use crate::domain::section::{analyse, SectionPiezometer};
+use crate::present::format::tick_step;
 use crate::xml_check::check_xml;
 
 fn sample() -> SectionInput {
@@ -67,14 +68,34 @@ fn svg_is_well_formed_and_has_the_parts() {
     assert_eq!(svg.matches("class=\"head\"").count(), 3);
     // Text escaped; labels and units present.
     assert!(svg.contains("Section A–A&apos; &lt;east reach&gt; &amp; toe"));
-    assert!(svg.contains("P&lt;1&gt; &amp; &quot;A&quot; 110.00 m"));
+    assert!(svg.contains("P&lt;1&gt; &amp; &quot;A&quot; 110.000 m"));
     assert!(svg.contains("P-4 dry"));
     assert!(svg.contains("Station (m)") && svg.contains("Elevation (m)"));
-    assert!(svg.contains("pool 112.00 m") && svg.contains("tail water 100.50 m"));
-    assert!(svg.contains("exit 109.25 m at 57.5 m"));
+    assert!(svg.contains("pool 112.000 m") && svg.contains("tail water 100.500 m"));
+    assert!(svg.contains("exit 109.250 m at station 57.500 m"), "{svg}");
     assert!(svg.contains("<title>"));
     // Every coordinate is a number.
     assert!(!svg.contains("NaN") && !svg.contains("inf"));
+}
+
+#[test]
+fn us_units_label_feet_and_stale_inputs_carry_their_age() {
+    let input = sample();
+    let result = analyse(&input).unwrap();
+    let options = SvgOptions {
+        units: crate::config::DisplayUnits::Us,
+        note: "stale heads drawn, with their age: P-2 5.0 h".into(),
+        marks: vec![("P-2".into(), "stale, 5.0 h old".into())],
+        ..SvgOptions::default()
+    };
+    let svg = render_section_svg(&input, &result, &options);
+    check_xml(&svg).unwrap_or_else(|e| panic!("{e}\n{svg}"));
+    // 112 m / 0.3048 = 367.45 ft (exact foot).
+    assert!(svg.contains("pool 367.45 ft"), "{svg}");
+    assert!(svg.contains("Station (ft)") && svg.contains("Elevation (ft)"));
+    assert!(!svg.contains(" m<") && !svg.contains("(m)"), "{svg}");
+    assert!(svg.contains("(stale, 5.0 h old)"));
+    assert!(svg.contains("with their age: P-2 5.0 h"));
 }
 
 #[test]
@@ -99,7 +120,11 @@ fn ticks_are_nice_and_cover_the_range() {
     assert_eq!(tick_step(100.0, 8.0), 20.0);
     assert_eq!(tick_step(7.0, 6.0), 2.0);
     assert_eq!(tick_step(0.3, 6.0), 0.05);
-    let t = ticks(93.2, 118.7, 6.0);
+    let t: Vec<f64> = crate::present::format::ticks_within(93.2, 118.7, 6.0)
+        .marks
+        .into_iter()
+        .map(|m| m.0)
+        .collect();
     assert_eq!(t.first().copied(), Some(95.0));
     assert_eq!(t.last().copied(), Some(115.0));
     assert_eq!(xml_escape("a<b>&\"'"), "a&lt;b&gt;&amp;&quot;&apos;");

@@ -1,0 +1,667 @@
+//! The report as PDF (cargo feature `pdf`): the same content as the HTML — caution, summary,
+//! instrument locations, statistics, safety and time-history plots, section drawings, alert
+//! history, sign-off block — laid out by a small page layout of our own on A4 (SI sites) or
+//! US Letter (US sites), with a page header, a footer with page numbers, and DejaVu Sans
+//! embedded. Drawn with krilla; the SVG plots go through krilla-svg.
+//!
+//! Layout is pure (`Layout` collects pages of drawing operations); `render` draws them.
+
+use std::sync::Arc;
+
+use krilla::color::rgb;
+use krilla::geom::{PathBuilder, Point, Rect, Size};
+use krilla::num::NormalizedF32;
+use krilla::page::PageSettings;
+use krilla::paint::{Fill, Stroke};
+use krilla::text::{Font, TextDirection};
+use krilla::Document;
+use krilla_svg::{SurfaceExt, SvgSettings};
+
+use super::data::{DerivedStats, InstrumentStats, ReportData};
+use super::html::{local, Extras};
+use crate::config::DisplayUnits;
+use crate::present::format::{shown, shown_bare, FS_CAP_RULE};
+use crate::present::labels::system_name;
+use crate::present::units::unit_label;
+use crate::present::{kind_name, measure_of, quantity_name, Measure};
+
+/// DejaVu Sans (free licence, `assets/fonts/DejaVuSans-LICENSE.txt`), embedded.
+const FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+/// Average advance of DejaVu Sans, em (for right alignment and truncation).
+const ADVANCE_EM: f32 = 0.56;
+const MARGIN: f32 = 42.0;
+const BODY: f32 = 8.0;
+
+/// One drawing operation on a page (points, origin top left).
+#[derive(Debug, Clone)]
+enum Op {
+    Text {
+        x: f32,
+        y: f32,
+        size: f32,
+        text: String,
+        red: bool,
+    },
+    Line {
+        x1: f32,
+        y1: f32,
+        x2: f32,
+        y2: f32,
+    },
+    Frame {
+        x: f32,
+        y: f32,
+        w: f32,
+        h: f32,
+    },
+    Svg {
+        x: f32,
+        y: f32,
+        w: f32,
+        h: f32,
+        svg: usize,
+    },
+}
+
+/// Pages being filled top to bottom.
+struct Layout {
+    w: f32,
+    h: f32,
+    pages: Vec<Vec<Op>>,
+    y: f32,
+    svgs: Vec<String>,
+}
+
+/// Approximate advance of a character of DejaVu Sans, em.
+fn advance(c: char) -> f32 {
+    match c {
+        '0'..='9' => 0.636,
+        ' ' | '.' | ',' | ':' | ';' | '|' | 'i' | 'l' | 'j' => 0.32,
+        '-' | '(' | ')' | 'f' | 't' | 'r' => 0.4,
+        'A'..='Z' | 'm' | 'w' | '—' | '%' => 0.72,
+        _ => ADVANCE_EM,
+    }
+}
+
+fn width(text: &str, size: f32) -> f32 {
+    text.chars().map(advance).sum::<f32>() * size
+}
+
+/// `text` cut to fit `w` points, with an ellipsis.
+fn fit(text: &str, size: f32, w: f32) -> String {
+    if width(text, size) <= w {
+        return text.to_string();
+    }
+    let mut s = String::new();
+    for c in text.chars() {
+        if width(&s, size) + (advance(c) + 1.0) * size > w {
+            break;
+        }
+        s.push(c);
+    }
+    s.push('…');
+    s
+}
+
+/// Words of `text` in lines of at most `w` points.
+fn wrap(text: &str, size: f32, w: f32) -> Vec<String> {
+    let mut lines = Vec::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        let candidate = if line.is_empty() {
+            word.to_string()
+        } else {
+            format!("{line} {word}")
+        };
+        if width(&candidate, size) > w && !line.is_empty() {
+            lines.push(std::mem::take(&mut line));
+            line = word.to_string();
+        } else {
+            line = candidate;
+        }
+    }
+    if !line.is_empty() {
+        lines.push(line);
+    }
+    lines
+}
+
+impl Layout {
+    fn new(units: DisplayUnits) -> Layout {
+        // A4 for SI sites, US Letter for US customary ones.
+        let (w, h) = match units {
+            DisplayUnits::Si => (595.28, 841.89),
+            DisplayUnits::Us => (612.0, 792.0),
+        };
+        Layout {
+            w,
+            h,
+            pages: vec![Vec::new()],
+            y: MARGIN + 14.0,
+            svgs: Vec::new(),
+        }
+    }
+    fn inner(&self) -> f32 {
+        self.w - 2.0 * MARGIN
+    }
+    fn op(&mut self, op: Op) {
+        if let Some(p) = self.pages.last_mut() {
+            p.push(op);
+        }
+    }
+    /// Make room for `h` points, starting a new page when needed.
+    fn room(&mut self, h: f32) {
+        if self.y + h > self.h - MARGIN - 14.0 {
+            self.pages.push(Vec::new());
+            self.y = MARGIN + 14.0;
+        }
+    }
+    fn text(&mut self, x: f32, size: f32, text: &str) {
+        let y = self.y + size;
+        self.op(Op::Text {
+            x,
+            y,
+            size,
+            text: text.to_string(),
+            red: false,
+        });
+    }
+    fn heading(&mut self, text: &str) {
+        self.room(40.0);
+        self.y += 8.0;
+        self.text(MARGIN, 11.0, text);
+        self.y += 14.0;
+        let y = self.y;
+        self.op(Op::Line {
+            x1: MARGIN,
+            y1: y,
+            x2: self.w - MARGIN,
+            y2: y,
+        });
+        self.y += 4.0;
+    }
+    fn paragraph(&mut self, size: f32, text: &str, indent: f32) {
+        for line in wrap(text, size, self.inner() - indent) {
+            self.room(size * 1.35);
+            self.text(MARGIN + indent, size, &line);
+            self.y += size * 1.35;
+        }
+    }
+    /// A boxed paragraph in red ink (the caution).
+    fn boxed(&mut self, text: &str) {
+        let lines = wrap(text, BODY, self.inner() - 24.0);
+        let h = lines.len() as f32 * BODY * 1.35 + 10.0;
+        self.room(h + 6.0);
+        let top = self.y;
+        self.op(Op::Frame {
+            x: MARGIN,
+            y: top,
+            w: self.inner(),
+            h,
+        });
+        self.y += 5.0;
+        for line in lines {
+            let y = self.y + BODY;
+            self.op(Op::Text {
+                x: MARGIN + 6.0,
+                y,
+                size: BODY,
+                text: line,
+                red: true,
+            });
+            self.y += BODY * 1.35;
+        }
+        self.y = top + h + 6.0;
+    }
+    /// A table: headers and rows; column widths as fractions of the text width; the first
+    /// `left` columns left-aligned, the rest right-aligned. Headers repeat on a new page.
+    fn table(&mut self, headers: &[&str], widths: &[f32], left: usize, rows: &[Vec<String>]) {
+        let size = 6.8;
+        let row_h = size * 1.6;
+        let total: f32 = widths.iter().sum();
+        let xs: Vec<(f32, f32)> = widths
+            .iter()
+            .scan(MARGIN, |x, w| {
+                let cw = w / total * self.inner();
+                let start = *x;
+                *x += cw;
+                Some((start, cw))
+            })
+            .collect();
+        let head = |l: &mut Layout| {
+            l.room(row_h * 2.0);
+            for (k, h) in headers.iter().enumerate() {
+                let (x, cw) = xs[k];
+                let t = fit(h, size, cw - 4.0);
+                let tx = if k < left {
+                    x + 2.0
+                } else {
+                    x + cw - 2.0 - width(&t, size)
+                };
+                let y = l.y + size;
+                l.op(Op::Text {
+                    x: tx,
+                    y,
+                    size,
+                    text: t,
+                    red: false,
+                });
+            }
+            l.y += row_h;
+            let y = l.y - 2.0;
+            l.op(Op::Line {
+                x1: MARGIN,
+                y1: y,
+                x2: l.w - MARGIN,
+                y2: y,
+            });
+        };
+        head(self);
+        for r in rows {
+            if self.y + row_h > self.h - MARGIN - 14.0 {
+                self.room(f32::MAX / 4.0);
+                head(self);
+            }
+            for (k, cell) in r.iter().enumerate().take(xs.len()) {
+                let (x, cw) = xs[k];
+                let t = fit(cell, size, cw - 4.0);
+                let tx = if k < left {
+                    x + 2.0
+                } else {
+                    x + cw - 2.0 - width(&t, size)
+                };
+                let y = self.y + size;
+                self.op(Op::Text {
+                    x: tx,
+                    y,
+                    size,
+                    text: t,
+                    red: false,
+                });
+            }
+            self.y += row_h;
+        }
+        self.y += 6.0;
+    }
+    /// An SVG drawing scaled to the text width.
+    fn svg(&mut self, svg: &str, w_px: f32, h_px: f32) {
+        let w = self.inner();
+        let h = w * h_px / w_px;
+        self.room(h + 6.0);
+        self.svgs.push(svg.to_string());
+        let (x, y, svg) = (MARGIN, self.y, self.svgs.len() - 1);
+        self.op(Op::Svg { x, y, w, h, svg });
+        self.y += h + 6.0;
+    }
+}
+
+fn stats_rows(rows: &[InstrumentStats], d: &ReportData) -> Vec<Vec<String>> {
+    let tz = d.time_zone.parse().unwrap_or(chrono_tz::UTC);
+    let u = d.units;
+    rows.iter()
+        .map(|i| {
+            let m = measure_of(i.quantity, i.unit);
+            let v = |x: Option<(i64, f64)>| x.map_or_else(|| "—".into(), |x| shown_bare(x.1, m, u));
+            let at = |x: Option<(i64, f64)>| x.map_or_else(|| "—".into(), |x| local(x.0, tz));
+            vec![
+                i.id.clone(),
+                kind_name(i.kind),
+                v(i.latest),
+                at(i.latest),
+                v(i.min),
+                v(i.max),
+                at(i.max),
+                i.readings.to_string(),
+                i.completeness_pct()
+                    .map_or_else(|| "—".into(), |c| format!("{c:.1}")),
+                i.status().to_string(),
+            ]
+        })
+        .collect()
+}
+
+fn stats_table(l: &mut Layout, rows: &[InstrumentStats], d: &ReportData) {
+    let unit = rows
+        .first()
+        .map(|i| unit_label(measure_of(i.quantity, i.unit), d.units, i.unit))
+        .unwrap_or("");
+    let h = [
+        "Instrument".to_string(),
+        "Kind".into(),
+        format!("Latest ({unit})"),
+        "at".into(),
+        format!("Min ({unit})"),
+        format!("Max ({unit})"),
+        "at".into(),
+        "Readings".into(),
+        "Compl. %".into(),
+        "Status".into(),
+    ];
+    let h: Vec<&str> = h.iter().map(String::as_str).collect();
+    l.table(
+        &h,
+        &[1.0, 2.3, 1.0, 1.6, 0.9, 0.9, 1.6, 0.8, 0.9, 0.8],
+        2,
+        &stats_rows(rows, d),
+    );
+}
+
+fn derived_rows(rows: &[DerivedStats], d: &ReportData) -> Vec<Vec<String>> {
+    let tz = d.time_zone.parse().unwrap_or(chrono_tz::UTC);
+    rows.iter()
+        .map(|r| {
+            let v = |x: Option<(i64, f64)>| {
+                x.map_or_else(|| "—".into(), |x| shown(x.1, &r.quantity, &r.unit, d.units))
+            };
+            let at = |x: Option<(i64, f64)>| x.map_or_else(|| "—".into(), |x| local(x.0, tz));
+            let fs = measure_of(&r.quantity, &r.unit) == Measure::FactorOfSafety;
+            vec![
+                r.object.clone(),
+                quantity_name(&r.quantity, None),
+                v(r.latest),
+                v(r.min),
+                at(r.min),
+                if fs { "not shown".into() } else { v(r.max) },
+                if fs { String::new() } else { at(r.max) },
+            ]
+        })
+        .collect()
+}
+
+fn derived_table(l: &mut Layout, rows: &[DerivedStats], d: &ReportData) {
+    l.table(
+        &[
+            "Object", "Quantity", "Latest", "Minimum", "at", "Maximum", "at",
+        ],
+        &[0.9, 3.6, 1.1, 1.1, 1.5, 1.1, 1.5],
+        2,
+        &derived_rows(rows, d),
+    );
+}
+
+/// Size of an inline SVG from its `width`/`height` attributes (px).
+fn svg_size(svg: &str) -> (f32, f32) {
+    let attr = |name: &str| -> Option<f32> {
+        let head = &svg[..svg.find('>')?];
+        let at = head.find(&format!(" {name}=\""))? + name.len() + 3;
+        head[at..].split('"').next()?.parse().ok()
+    };
+    (
+        attr("width").unwrap_or(860.0),
+        attr("height").unwrap_or(320.0),
+    )
+}
+
+/// Lay the report out in pages.
+fn layout(d: &ReportData, x: &Extras) -> Layout {
+    let tz = d.time_zone.parse().unwrap_or(chrono_tz::UTC);
+    let mut l = Layout::new(d.units);
+    l.text(
+        MARGIN,
+        15.0,
+        &format!("Instrumentation report: {}", d.site_name),
+    );
+    l.y += 24.0;
+    for line in [
+        format!("Site: {} ({})", d.site_name, d.site_id),
+        format!(
+            "Period: {} to {} ({})",
+            local(d.from.timestamp_millis(), tz),
+            local(d.to.timestamp_millis(), tz),
+            d.time_zone
+        ),
+        format!("Generated: {}", local(d.generated.timestamp_millis(), tz)),
+        format!("Units: {}", system_name(d.units)),
+    ] {
+        l.paragraph(BODY, &line, 0.0);
+    }
+    l.y += 4.0;
+    l.boxed(&format!("Caution. {}", x.caution));
+    l.heading("Summary");
+    for s in &x.summary {
+        l.paragraph(BODY, &format!("• {s}"), 4.0);
+    }
+    l.heading("Instruments and where they are");
+    let len_u = unit_label(Measure::Length, d.units, "m");
+    let pos = |v: Option<f64>| {
+        v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Position, d.units))
+    };
+    let len =
+        |v: Option<f64>| v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Length, d.units));
+    let rows: Vec<Vec<String>> = d
+        .piezometers
+        .iter()
+        .chain(&d.stages)
+        .chain(&d.others)
+        .map(|i| {
+            vec![
+                i.id.clone(),
+                kind_name(i.kind),
+                i.location.reach.clone().unwrap_or_else(|| "—".into()),
+                pos(i.location.station_m),
+                pos(i.location.offset_m),
+                len(i.tip_elevation_m),
+                local(i.installed_ms, tz),
+            ]
+        })
+        .collect();
+    let h = [
+        "Instrument".to_string(),
+        "Kind".into(),
+        "Reach".into(),
+        format!("Station ({len_u})"),
+        format!("Offset ({len_u})"),
+        format!("Tip elevation ({len_u})"),
+        "Installed".into(),
+    ];
+    let h: Vec<&str> = h.iter().map(String::as_str).collect();
+    l.table(&h, &[1.2, 2.4, 0.7, 1.1, 1.1, 1.4, 1.5], 3, &rows);
+    l.heading("Piezometers");
+    stats_table(&mut l, &d.piezometers, d);
+    l.heading("Pool and river stage");
+    stats_table(&mut l, &d.stages, d);
+    if !d.others.is_empty() {
+        l.heading("Other instruments");
+        stats_table(&mut l, &d.others, d);
+    }
+    if !d.toes.is_empty() {
+        l.heading("Toe checks");
+        derived_table(&mut l, &d.toes, d);
+        l.paragraph(
+            7.0,
+            &format!("The lowest factor of safety and its time are in the Minimum columns; its maximum is not shown. {FS_CAP_RULE}"),
+            0.0,
+        );
+    }
+    if !d.gradients.is_empty() {
+        l.heading("Vertical gradients (+ upward)");
+        derived_table(&mut l, &d.gradients, d);
+    }
+    if !d.blankets.is_empty() {
+        l.heading("Blanket theory");
+        derived_table(&mut l, &d.blankets, d);
+    }
+    if !d.sections.is_empty() {
+        l.heading("Sections");
+        derived_table(&mut l, &d.sections, d);
+    }
+    l.heading("Plots");
+    for (_, svg) in &x.charts {
+        let (w, h) = svg_size(svg);
+        l.svg(svg, w, h);
+    }
+    for (caption, svg) in &x.sections {
+        l.room(40.0);
+        l.paragraph(BODY, caption, 0.0);
+        match svg {
+            Ok(svg) => {
+                let (w, h) = svg_size(svg);
+                l.svg(svg, w, h);
+            }
+            Err(why) => l.paragraph(BODY, &format!("Not drawn: {why}"), 0.0),
+        }
+    }
+    l.heading("Alerts, acknowledgements and silences");
+    match &x.alerts {
+        Some(rows) if !rows.is_empty() => {
+            let rows: Vec<Vec<String>> = rows.iter().map(|r| r.to_vec()).collect();
+            l.table(
+                &["Time", "Event", "Object / rule", "Level", "Detail"],
+                &[1.3, 1.2, 2.4, 0.7, 4.5],
+                5,
+                &rows,
+            );
+        }
+        Some(_) => l.paragraph(BODY, "None in this period.", 0.0),
+        None => l.paragraph(BODY, "This database holds no alert records.", 0.0),
+    }
+    // The sign-off block stays whole on the last page.
+    l.room(90.0);
+    l.y += 6.0;
+    l.boxed(&format!("Caution. {}", x.caution));
+    l.y += 18.0;
+    l.text(MARGIN, BODY, "Reviewed by: ______________________   Signature: ______________________   Date: ____________");
+    l.y += 20.0;
+    l.text(
+        MARGIN,
+        7.0,
+        &format!("Prepared automatically by seepd {}.", x.version),
+    );
+    l
+}
+
+fn fill(red: bool) -> Fill {
+    let c = if red {
+        rgb::Color::new(170, 0, 0)
+    } else {
+        rgb::Color::new(17, 17, 17)
+    };
+    Fill {
+        paint: c.into(),
+        opacity: NormalizedF32::ONE,
+        rule: Default::default(),
+    }
+}
+
+/// The report as a PDF document.
+///
+/// # Errors
+/// The embedded font cannot be read, or the PDF cannot be written.
+pub fn render(d: &ReportData, x: &Extras) -> anyhow::Result<Vec<u8>> {
+    let l = layout(d, x);
+    let font = Font::new(FONT.to_vec().into(), 0)
+        .ok_or_else(|| anyhow::anyhow!("the embedded font cannot be read"))?;
+    let mut opt = usvg::Options::default();
+    let mut db = usvg::fontdb::Database::new();
+    db.load_font_data(FONT.to_vec());
+    db.set_sans_serif_family("DejaVu Sans");
+    opt.fontdb = Arc::new(db);
+    opt.font_family = "DejaVu Sans".into();
+    let trees: Vec<Option<usvg::Tree>> = l
+        .svgs
+        .iter()
+        .map(|s| usvg::Tree::from_str(s, &opt).ok())
+        .collect();
+    let header = format!(
+        "Instrumentation report: {} — {} to {}",
+        d.site_name,
+        d.from.format("%Y-%m-%d"),
+        d.to.format("%Y-%m-%d")
+    );
+    let n = l.pages.len();
+    let mut doc = Document::new();
+    for (k, ops) in l.pages.iter().enumerate() {
+        let settings =
+            PageSettings::from_wh(l.w, l.h).ok_or_else(|| anyhow::anyhow!("bad page size"))?;
+        let mut page = doc.start_page_with(settings);
+        let mut s = page.surface();
+        let text = |s: &mut krilla::surface::Surface<'_>,
+                    x: f32,
+                    y: f32,
+                    size: f32,
+                    t: &str,
+                    red: bool| {
+            s.set_fill(Some(fill(red)));
+            s.draw_text(
+                Point::from_xy(x, y),
+                font.clone(),
+                size,
+                t,
+                false,
+                TextDirection::Auto,
+            );
+        };
+        // Header and footer on every page.
+        text(&mut s, MARGIN, MARGIN - 16.0, 7.0, &header, false);
+        let footer = format!("Page {} of {n}", k + 1);
+        text(
+            &mut s,
+            l.w - MARGIN - width(&footer, 7.0),
+            l.h - MARGIN + 16.0,
+            7.0,
+            &footer,
+            false,
+        );
+        text(
+            &mut s,
+            MARGIN,
+            l.h - MARGIN + 16.0,
+            7.0,
+            "Automated screening only; verify in the field.",
+            false,
+        );
+        for op in ops {
+            match op {
+                Op::Text {
+                    x,
+                    y,
+                    size,
+                    text: t,
+                    red,
+                } => text(&mut s, *x, *y, *size, t, *red),
+                Op::Line { x1, y1, x2, y2 } => {
+                    let mut pb = PathBuilder::new();
+                    pb.move_to(*x1, *y1);
+                    pb.line_to(*x2, *y2);
+                    if let Some(p) = pb.finish() {
+                        s.set_fill(None);
+                        s.set_stroke(Some(Stroke {
+                            width: 0.5,
+                            ..Default::default()
+                        }));
+                        s.draw_path(&p);
+                        s.set_stroke(None);
+                    }
+                }
+                Op::Frame { x, y, w, h } => {
+                    let mut pb = PathBuilder::new();
+                    if let Some(r) = Rect::from_xywh(*x, *y, *w, *h) {
+                        pb.push_rect(r);
+                    }
+                    if let Some(p) = pb.finish() {
+                        s.set_fill(None);
+                        s.set_stroke(Some(Stroke {
+                            paint: rgb::Color::new(170, 0, 0).into(),
+                            width: 1.5,
+                            ..Default::default()
+                        }));
+                        s.draw_path(&p);
+                        s.set_stroke(None);
+                    }
+                }
+                Op::Svg { x, y, w, h, svg } => {
+                    if let (Some(Some(tree)), Some(size)) = (trees.get(*svg), Size::from_wh(*w, *h))
+                    {
+                        s.push_transform(&krilla::geom::Transform::from_translate(*x, *y));
+                        s.draw_svg(tree, size, SvgSettings::default());
+                        s.pop();
+                    }
+                }
+            }
+        }
+        s.finish();
+        page.finish();
+    }
+    doc.finish()
+        .map_err(|e| anyhow::anyhow!("cannot write the PDF: {e:?}"))
+}
