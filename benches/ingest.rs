@@ -1,185 +1,238 @@
-//! Throughput benchmark (not a test): live ingest end to end against a real Mosquitto, next to
-//! `mosquitto_sub -q 1` draining the same queued stream, and `seepd replay` throughput.
+//! Throughput benchmark (not a test), on field-shaped data: hourly readings, each with its
+//! anchor measured in the same run.
 //!
-//! Run: `cargo bench --bench ingest` (env SEEPD_BENCH_N sets the stream length, default 20000).
-//! Figures go to the README.
+//! - live: a backlog of the example site's mix (both invented sites: vibrating-wire and
+//!   transducer piezometers, nests, toe checks, the blanket reach, a section, standpipe, gauges,
+//!   barometer, rules and models), one reading per message, hourly-spaced and with the
+//!   scenarios' faults, queued in a real Mosquitto (started here on a free port) while seepd is
+//!   down; then `mosquitto_sub -q 1` drains the same backlog from its own persistent session,
+//!   and seepd catches up (stored with `synchronous=FULL` and acknowledged, start-up included).
+//! - replay: `seepd replay --db` of hourly readings of an invented 200-instrument fleet
+//!   (`benches/fleet`), next to `benches/reference_pipeline.py` doing the same reductions and
+//!   gradients in Python, and a plain Python sqlite3 batched insert of the same readings; the
+//!   Python pipeline's values are checked against seepd's database.
+//!
+//! Run: `cargo bench --bench ingest` (`SEEPD_BENCH_PART=live|replay` for one part;
+//! `SEEPD_BENCH_N` the backlog, default 30,000 messages; `SEEPD_BENCH_REPLAY_N` the replay
+//! readings, default 1,000,000; `SEEPD_BENCH_DIR` keeps the files there). Figures go to the
+//! README.
 
 #[path = "../tests/common/mod.rs"]
 mod common;
+mod fleet;
 
+use std::path::Path;
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
 use common::*;
 
-/// Builds a message for a time (s).
-type Payload = Box<dyn Fn(i64) -> String>;
-
-fn main() {
-    let n: i64 = std::env::var("SEEPD_BENCH_N")
+fn env_n(name: &str, default: usize) -> usize {
+    std::env::var(name)
         .ok()
         .and_then(|s| s.parse().ok())
-        .unwrap_or(20_000);
-    let dir = tempfile::tempdir().unwrap();
-    let broker = Broker::start(dir.path());
-    let cfg = example_config(dir.path(), broker.port);
-    let topic = "demo/AB-LOG1/json";
-    let t0 = chrono::Utc::now().timestamp() - 30 * 86_400;
+        .unwrap_or(default)
+}
 
-    // Live ingest, two streams of one-reading messages:
-    // - a standpipe that feeds no derived object (reduction, health check, rates, completeness);
-    // - the river gauge, which also feeds the blanket-theory reach (14 derived values per
-    //   reading) and an alert rule: the most expensive instrument of the example site.
-    let log = dir.path().join("seepd.log");
-    let mut d = Daemon::start(&cfg, &log);
-    d.wait_connected(1);
-    d.terminate();
-    let p = Publisher::connect(broker.port, "bench-pub");
-    let rounds: [(&str, &str, Payload); 2] = [
-        (
-            "standpipe AB-SP-3 (no derived objects)",
-            "AB-SP-3",
-            Box::new(|t| format!(r#"{{"time": {t}, "channel": "5", "value": 4.0}}"#)),
-        ),
-        (
-            "river gauge AB-RIVER (blanket model + rule)",
-            "AB-RIVER",
-            Box::new(|t| river_json(t, 3.0)),
-        ),
-    ];
-    for (k, (label, instrument, payload)) in rounds.iter().enumerate() {
-        // mosquitto_sub draining the same queued QoS 1 stream from its persistent session.
-        let sub_id = format!("bench-sub-{k}");
-        let sub = |count: Option<i64>| {
-            let mut c = Command::new("mosquitto_sub");
-            c.args([
-                "-p",
-                &broker.port.to_string(),
-                "-q",
-                "1",
-                "-c",
-                "-i",
-                &sub_id,
-            ])
-            .args(["-t", "demo/+/json"])
-            .stdout(Stdio::null());
-            match count {
-                Some(n) => c.args(["-C", &n.to_string()]),
-                None => c.arg("-E"),
-            };
-            assert!(c
-                .status()
-                .expect("mosquitto_sub (package mosquitto-clients)")
-                .success());
-        };
-        sub(None);
-        let base = p.acked();
-        for i in 0..n {
-            p.send(topic, payload(t0 + i));
-        }
-        p.wait_acked(base + n as usize, Duration::from_secs(600));
-
-        let started = Instant::now();
-        sub(Some(n));
-        let sub_s = started.elapsed().as_secs_f64();
-
-        let started = Instant::now();
-        let mut d2 = Daemon::start(&cfg, &log);
-        let filter = format!("instrument = '{instrument}'");
-        wait_for(Duration::from_secs(600), || {
-            (count(dir.path(), "readings", &filter) >= n).then_some(())
-        })
-        .expect("seepd did not store the stream");
-        let seepd_s = started.elapsed().as_secs_f64();
-        d2.terminate();
-
-        let sub_rate = n as f64 / sub_s;
-        let seepd_rate = n as f64 / seepd_s;
-        println!("live ingest, {n} queued QoS 1 messages, {label}:");
-        println!("  mosquitto_sub -q 1 drain : {sub_rate:>10.0} msg/s ({sub_s:.2} s)");
-        println!("  seepd stored + acked     : {seepd_rate:>10.0} readings/s ({seepd_s:.2} s, incl. start-up)");
-        println!("  ratio                    : {:.2}", seepd_rate / sub_rate);
+fn main() {
+    let part = std::env::var("SEEPD_BENCH_PART").unwrap_or_default();
+    let tmp = tempfile::tempdir().expect("tempdir");
+    // SEEPD_BENCH_DIR keeps the inputs, configurations and databases (to profile on them).
+    let root =
+        std::env::var_os("SEEPD_BENCH_DIR").map_or_else(|| tmp.path().to_path_buf(), Into::into);
+    if part.is_empty() || part == "live" {
+        live(&root, env_n("SEEPD_BENCH_N", 30_000));
     }
-
-    // 3. Replay throughput: five instruments and the barometer their sealed gauges need, one
-    //    reading a minute each; on the instruments alone (reduction, health checks, rates and
-    //    completeness) and on the full example site (plus nests, toe checks, blanket theory,
-    //    the section, stage-response model and rules).
-    let rn: i64 = 200_000;
-    let input = dir.path().join("replay.ndjson");
-    let ids = [
-        "AB-BARO", "AB-PZ-1A", "AB-PZ-2B", "AB-SP-3", "TH-PZ-1", "TH-POOL",
-    ];
-    let vals = [101.0, 2800.0, 10.0, 4.0, 8000.0, 215.0];
-    let mut text = String::with_capacity(rn as usize * 80);
-    for i in 0..rn {
-        let k = (i % 6) as usize;
-        let extra = if k == 1 { ",\"temperature\":12.0" } else { "" };
-        text.push_str(&format!(
-            "{{\"time\":{},\"instrument\":\"{}\",\"value\":{}{extra}}}\n",
-            t0 + i / 6 * 60,
-            ids[k],
-            vals[k]
-        ));
-    }
-    std::fs::write(&input, text).unwrap();
-    let instruments_only = instruments_only_config(&cfg, &dir.path().join("instruments-only"));
-    for (label, config, db) in [
-        ("instruments only, in-memory", &instruments_only, None),
-        ("full example site, in-memory", &cfg, None),
-        (
-            "full example site, SQLite file",
-            &cfg,
-            Some(dir.path().join("replay.sqlite")),
-        ),
-    ] {
-        let mut cmd = Command::new(seepd_bin());
-        cmd.args(["replay", "--config"])
-            .arg(config)
-            .arg("--input")
-            .arg(&input)
-            .args(["--output", "/dev/null"]);
-        if let Some(db) = &db {
-            cmd.arg("--db").arg(db);
-        }
-        let started = Instant::now();
-        let st = cmd.stderr(Stdio::null()).status().unwrap();
-        assert!(st.success());
-        let s = started.elapsed().as_secs_f64();
-        println!(
-            "replay ({label}): {rn} readings in {s:.2} s = {:.0} readings/s",
-            rn as f64 / s
-        );
+    if part.is_empty() || part == "replay" {
+        replay(&root, env_n("SEEPD_BENCH_REPLAY_N", 1_000_000));
     }
 }
 
-/// A copy of the configuration with only the service file and the sites' instruments: every
-/// table after the instruments (objects, rules, models, reports) is cut.
-fn instruments_only_config(cfg: &std::path::Path, out: &std::path::Path) -> std::path::PathBuf {
-    std::fs::create_dir_all(out).unwrap();
-    for e in std::fs::read_dir(cfg).unwrap() {
-        let p = e.unwrap().path();
-        if p.extension().is_none_or(|x| x != "toml") {
-            continue;
-        }
-        let text = std::fs::read_to_string(&p).unwrap();
-        let mut kept = String::new();
-        let mut keep = true;
-        for line in text.lines() {
-            let t = line.trim();
-            if t.starts_with('[') {
-                let name = t.trim_matches(|c| c == '[' || c == ']');
-                keep = p.file_name().is_some_and(|n| n == "seepd.toml")
-                    || name == "site"
-                    || name == "instrument"
-                    || name.starts_with("instrument.");
-            }
-            if keep {
-                kept.push_str(line);
-                kept.push('\n');
-            }
-        }
-        std::fs::write(out.join(p.file_name().unwrap()), kept).unwrap();
+/// The example site's hourly readings, both scenarios merged in time order, extended to at least
+/// `n` readings; each as (topic, payload).
+fn example_mix(cfg: &seepd::config::Config, n: usize) -> Vec<(String, String)> {
+    let probe = seepd::scenario::dam_pool(0);
+    let per_hour = probe.drivers.len() + seepd::scenario::levee_flood(cfg, 0).drivers.len();
+    let hours = (n / per_hour + 2) as u32;
+    // Ending two hours ago, so that nothing is stamped ahead of the clock.
+    let now_h = chrono::Utc::now().timestamp() / 3600;
+    let start_ms = (now_h - i64::from(hours) - 2) * 3_600_000;
+    let mut levee = seepd::scenario::levee_flood(cfg, start_ms);
+    levee.hours = hours;
+    let mut dam = seepd::scenario::dam_pool(start_ms);
+    dam.hours = hours;
+    let mut all = Vec::new();
+    for s in [&levee, &dam] {
+        all.extend(seepd::scenario::raw::readings(s, cfg).expect("scenario readings"));
     }
-    out.to_path_buf()
+    all.sort_by_key(|r| r.t_ms); // stable: each scenario's order within an hour is kept
+    all.truncate(n);
+    all.into_iter()
+        .map(|r| {
+            let logger = cfg.instruments[&r.instrument]
+                .logger
+                .clone()
+                .unwrap_or_else(|| "LOG".into());
+            (format!("demo/{logger}/json"), r.ndjson())
+        })
+        .collect()
+}
+
+/// Live catch-up of a queued backlog of `n` messages vs `mosquitto_sub -q 1`.
+fn live(root: &Path, n: usize) {
+    let dir = root.join("live");
+    std::fs::create_dir_all(&dir).expect("dir");
+    let broker = Broker::start(&dir);
+    let cfg = example_config(&dir, broker.port);
+    let loaded = seepd::config::load_dir(&cfg).unwrap_or_else(|p| panic!("{p}"));
+    let messages = example_mix(&loaded, n);
+    let n = messages.len();
+
+    // Persistent sessions of seepd and mosquitto_sub exist before the backlog is queued.
+    let log = dir.join("seepd.log");
+    let mut d = Daemon::start(&cfg, &log);
+    d.wait_connected(1);
+    d.terminate();
+    let sub = |count: Option<usize>| {
+        let mut c = Command::new("mosquitto_sub");
+        c.args([
+            "-p",
+            &broker.port.to_string(),
+            "-q",
+            "1",
+            "-c",
+            "-i",
+            "bench-sub",
+        ])
+        .args(["-t", "demo/+/json"])
+        .stdout(Stdio::null());
+        match count {
+            Some(n) => c.args(["-C", &n.to_string()]),
+            None => c.arg("-E"),
+        };
+        let ok = c
+            .status()
+            .expect("mosquitto_sub (package mosquitto-clients)");
+        assert!(ok.success());
+    };
+    sub(None);
+    let p = Publisher::connect(broker.port, "bench-pub");
+    for (topic, payload) in &messages {
+        p.send(topic, payload.clone());
+    }
+    p.wait_acked(n, Duration::from_secs(1200));
+
+    let started = Instant::now();
+    sub(Some(n));
+    let sub_s = started.elapsed().as_secs_f64();
+
+    let started = Instant::now();
+    let mut d = Daemon::start(&cfg, &log);
+    wait_for(Duration::from_secs(1800), || {
+        let done = count(&dir, "readings", "1=1") + count(&dir, "quarantine", "1=1");
+        (done >= n as i64).then_some(())
+    })
+    .expect("seepd did not store the backlog");
+    let seepd_s = started.elapsed().as_secs_f64();
+    d.terminate();
+    let stored = count(&dir, "readings", "1=1");
+    let quarantined = count(&dir, "quarantine", "1=1");
+    let derived = count(&dir, "derived", "1=1");
+
+    let sub_rate = n as f64 / sub_s;
+    let seepd_rate = n as f64 / seepd_s;
+    println!("live catch-up, {n} queued QoS 1 messages, example site mix, hourly readings:");
+    println!("  mosquitto_sub -q 1 drain : {sub_rate:>9.0} msg/s ({sub_s:.2} s)");
+    println!(
+        "  seepd stored + acked     : {seepd_rate:>9.0} readings/s ({seepd_s:.2} s, incl. start-up; \
+         {stored} readings, {quarantined} quarantined, {derived} derived rows)"
+    );
+    println!("  ratio                    : {:.2}", seepd_rate / sub_rate);
+}
+
+/// `seepd replay --db` of `n` hourly readings of a 200-instrument fleet vs the Python anchors.
+fn replay(root: &Path, n: usize) {
+    let dir = root.join("replay");
+    let cfg = dir.join("config");
+    let insts = fleet::write(&cfg, 200, 1883);
+    let hours = (n / insts.len()).max(1) as i64;
+    let n = hours as usize * insts.len();
+    let t0 = (chrono::Utc::now().timestamp() / 3600 - hours - 2) * 3600;
+    let input = dir.join("replay.ndjson");
+    let mut text = String::with_capacity(n * 90);
+    for k in 0..hours {
+        for (i, inst) in insts.iter().enumerate() {
+            fleet::ndjson_line(&mut text, inst, i, k, t0);
+        }
+    }
+    std::fs::write(&input, text).expect("write input");
+    println!(
+        "replay, {n} hourly readings of {} instruments ({hours} h; nests, toe checks, rules):",
+        insts.len()
+    );
+
+    let db = dir.join("seepd-replay.sqlite");
+    let started = Instant::now();
+    let st = Command::new(seepd_bin())
+        .args(["replay", "--config"])
+        .arg(&cfg)
+        .arg("--input")
+        .arg(&input)
+        .arg("--db")
+        .arg(&db)
+        .args(["--output", "/dev/null"])
+        .stderr(Stdio::null())
+        .status()
+        .expect("seepd replay");
+    assert!(st.success());
+    let seepd_s = started.elapsed().as_secs_f64();
+    let seepd_rate = n as f64 / seepd_s;
+    println!(
+        "  seepd replay --db                      : {seepd_rate:>9.0} readings/s ({seepd_s:.2} s)"
+    );
+
+    let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("benches/reference_pipeline.py");
+    let python = |args: &[&Path]| -> f64 {
+        let started = Instant::now();
+        let out = Command::new("python3")
+            .arg(&script)
+            .args(args)
+            .stderr(Stdio::inherit())
+            .output()
+            .expect("python3");
+        let s = started.elapsed().as_secs_f64();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stdout)
+        );
+        // The pipeline's own timer stops before its check against seepd's database.
+        String::from_utf8_lossy(&out.stdout)
+            .split_whitespace()
+            .last()
+            .and_then(|x| x.parse().ok())
+            .unwrap_or(s)
+    };
+    let py = dir.join("python-pipeline.sqlite");
+    let pipe_s = python(&[
+        Path::new("pipeline"),
+        &cfg,
+        &input,
+        &py,
+        Path::new("--check"),
+        &db,
+    ]);
+    let pipe_rate = n as f64 / pipe_s;
+    println!("  Python reference pipeline (same reductions and gradients): {pipe_rate:>9.0} readings/s ({pipe_s:.2} s)");
+    let ins = dir.join("python-insert.sqlite");
+    let ins_s = python(&[Path::new("insert"), &input, &ins]);
+    let ins_rate = n as f64 / ins_s;
+    println!(
+        "  Python sqlite3 batched insert          : {ins_rate:>9.0} readings/s ({ins_s:.2} s)"
+    );
+    println!(
+        "  ratio seepd / Python pipeline          : {:.2}\n  ratio seepd / Python insert            : {:.2}",
+        seepd_rate / pipe_rate,
+        seepd_rate / ins_rate
+    );
 }

@@ -137,6 +137,21 @@ impl Engine {
         &self.watch
     }
 
+    /// Batch mode (the writer thread and replay): rates are computed once per instrument per
+    /// batch by `end_batch` (see `Watcher::set_batched`).
+    pub fn set_batched(&mut self, on: bool) {
+        self.watch.set_batched(on);
+    }
+
+    /// Close a batch (batch mode): the rates of the instruments that got readings in it, each
+    /// at its newest reading that is due one. Without batch mode, empty.
+    pub fn end_batch(&mut self) -> Outcome {
+        Outcome {
+            derived: self.watch.take_rates(),
+            ..Outcome::default()
+        }
+    }
+
     /// The trend and health state, to seed it or install models.
     pub fn watch_mut(&mut self) -> &mut Watcher {
         &mut self.watch

@@ -150,6 +150,8 @@ pub fn run_with(
     };
     let replay_cfg = Arc::new(replay_config(cfg, format));
     let mut engine = Engine::new(Arc::clone(&replay_cfg));
+    // Rates once per instrument per batch of `BATCH` lines, at its newest reading.
+    engine.set_batched(true);
     // Continue the trends, health state and models already in the database (if any).
     crate::watch::seed::from_store(
         engine.watch_mut(),
@@ -194,10 +196,12 @@ pub fn run_with(
             .extend(o.quarantined.into_iter().map(|q| (totals.lines, q)));
         pending += 1;
         if pending >= BATCH {
+            end_batch(&mut engine, &mut rows, &mut alerts);
             flush(store, &mut rows, &mut alerts, out, &mut totals)?;
             pending = 0;
         }
     }
+    end_batch(&mut engine, &mut rows, &mut alerts);
     let w = alerts.evaluator.flush(alerts.clock_ms.max(0));
     alerts.writes.extend(w);
     flush(store, &mut rows, &mut alerts, out, &mut totals)?;
@@ -206,6 +210,14 @@ pub fn run_with(
         send_all(store, &smtp)?;
     }
     Ok(totals)
+}
+
+/// The rates of the batch (computed once per instrument, at its newest reading), observed by the
+/// rules and added to the rows.
+fn end_batch(engine: &mut Engine, rows: &mut Rows, alerts: &mut Alerts) {
+    let o = engine.end_batch();
+    alerts.observe(&o);
+    rows.derived.extend(o.derived);
 }
 
 /// Replay's alerting: the evaluator run in the readings' time, its transitions (records) and,

@@ -16,7 +16,7 @@ use toml_edit::ImDocument;
 use super::alerting::Alerting;
 use super::model::{Config, Objects, PayloadFormat, Trends};
 use super::objects::{self, Known, Object};
-use super::problem::{whole_file, Cx};
+use super::problem::{whole_file, Cx, LineIndex};
 use super::reader::Tbl;
 use super::reports;
 use super::rules;
@@ -248,9 +248,11 @@ fn with_document<T>(
             return None;
         }
     };
+    let lines = LineIndex::new(&text);
     let mut cx = Cx {
         file: path,
         text: &text,
+        lines: &lines,
         problems,
     };
     let doc = match ImDocument::parse(text.as_str()) {

@@ -52,16 +52,47 @@ impl fmt::Display for Problems {
 impl std::error::Error for Problems {}
 
 /// 1-based (line, column) of a byte offset in `text`; columns count characters, not bytes.
+///
+/// Counts from the start of `text`: for one-off use. A file with many lookups builds a
+/// `LineIndex` once instead (linear overall, where this would be quadratic).
+#[cfg(test)]
 pub(crate) fn line_col(text: &str, offset: usize) -> (usize, usize) {
-    let mut offset = offset.min(text.len());
-    while !text.is_char_boundary(offset) {
-        offset -= 1;
+    LineIndex::new(text).line_col(text, offset)
+}
+
+/// Byte offsets of the start of every line of a text, for (line, column) lookups in
+/// O(log lines + line length) each.
+pub(crate) struct LineIndex {
+    /// `starts[k]` is the byte offset where line k + 1 begins; `starts[0] == 0`.
+    starts: Vec<usize>,
+}
+
+impl LineIndex {
+    /// Index `text` (one pass).
+    pub fn new(text: &str) -> Self {
+        let mut starts = vec![0];
+        starts.extend(
+            text.bytes()
+                .enumerate()
+                .filter(|&(_, b)| b == b'\n')
+                .map(|(i, _)| i + 1),
+        );
+        LineIndex { starts }
     }
-    let before = &text[..offset];
-    let line = before.matches('\n').count() + 1;
-    let line_start = before.rfind('\n').map_or(0, |i| i + 1);
-    let column = before[line_start..].chars().count() + 1;
-    (line, column)
+
+    /// 1-based (line, column) of a byte offset in `text` (the text this index was built from);
+    /// columns count characters, not bytes.
+    pub fn line_col(&self, text: &str, offset: usize) -> (usize, usize) {
+        let mut offset = offset.min(text.len());
+        while !text.is_char_boundary(offset) {
+            offset -= 1;
+        }
+        // The last line start at or before `offset` (starts[0] == 0, so there is one).
+        let line = self.starts.partition_point(|&s| s <= offset);
+        let line_start = self.starts[line - 1];
+        let column = text[line_start..offset].chars().count() + 1;
+        (line, column)
+    }
 }
 
 /// The file being checked and the problem list every check writes into.
@@ -70,6 +101,8 @@ pub(crate) struct Cx<'a> {
     pub file: &'a Path,
     /// The file's text, to turn spans into lines and columns.
     pub text: &'a str,
+    /// Line starts of `text` (built once per file: every lookup is then a binary search).
+    pub lines: &'a LineIndex,
     /// Where problems go (shared by all files of the directory).
     pub problems: &'a mut Vec<Problem>,
 }
@@ -88,7 +121,7 @@ impl Cx<'_> {
 
     /// 1-based line and column of a span's start.
     pub fn pos(&self, span: Option<Range<usize>>) -> (usize, usize) {
-        span.map_or((1, 1), |s| line_col(self.text, s.start))
+        span.map_or((1, 1), |s| self.lines.line_col(self.text, s.start))
     }
 }
 
@@ -114,6 +147,27 @@ mod tests {
         // "bé = " is 6 bytes but 5 characters: the value starts at column 6.
         let value = text.find('2').unwrap_or(0);
         assert_eq!(line_col(text, value), (2, 6));
+    }
+
+    #[test]
+    fn line_index_agrees_with_counting_from_the_start() {
+        let text = "a = 1\n\nbé = \"ü\"\r\n[t]\nx = 2";
+        let index = LineIndex::new(text);
+        for offset in 0..=text.len() + 3 {
+            let mut o = offset.min(text.len());
+            while !text.is_char_boundary(o) {
+                o -= 1;
+            }
+            let before = &text[..o];
+            let line = before.matches('\n').count() + 1;
+            let start = before.rfind('\n').map_or(0, |i| i + 1);
+            let column = before[start..].chars().count() + 1;
+            assert_eq!(
+                index.line_col(text, offset),
+                (line, column),
+                "offset {offset}"
+            );
+        }
     }
 
     #[test]

@@ -211,6 +211,8 @@ impl Writer {
     fn commit(&mut self, batch: &[Arrived], qlog: &mut QuarantineLog) -> bool {
         crate::testpoint::pause_point("writer_batch");
         let mut out = Outcome::default();
+        // Rates once per instrument per batch (a catch-up brings many readings of each).
+        self.engine.set_batched(true);
         for a in batch {
             let msg = Message {
                 topic: a.publish.topic.clone(),
@@ -220,6 +222,7 @@ impl Writer {
             };
             out.append(self.engine.process(&msg));
         }
+        out.append(self.engine.end_batch());
         let aw = self.alerts.evaluate_outcome(&out);
         let Outcome {
             readings,

@@ -193,3 +193,39 @@ fn readings_stamped_ahead_seed_nothing() {
     let seed = s.readings_since("P1", 0).unwrap();
     assert_eq!(seed.iter().map(|r| r.t_ms).collect::<Vec<_>>(), vec![1_000]);
 }
+
+#[test]
+fn a_derived_value_recomputed_in_the_same_batch_is_written_once_with_the_last_value() {
+    let mut s = Store::open_in_memory().unwrap();
+    let d = |object: &str, t_ms: i64, value: f64| DerivedRow {
+        object: object.into(),
+        quantity: "vertical_gradient".into(),
+        t_ms,
+        value: Some(value),
+        unit: "-",
+        reason: None,
+        inputs: vec!["P1".into(), "P2".into()],
+    };
+    let rows = [
+        d("N1", 1000, 0.1),
+        d("N2", 1000, 0.5),
+        d("N1", 1000, 0.2),
+        d("N1", 2000, 0.3),
+    ];
+    let st = s.write_batch(&[], &rows, &[]).unwrap();
+    assert_eq!(st.derived, 3, "one write per key");
+    let got: Vec<(String, i64, f64)> = s
+        .conn()
+        .prepare("SELECT object, t_ms, value FROM derived ORDER BY object, t_ms")
+        .unwrap()
+        .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+        .unwrap()
+        .collect::<Result<_, _>>()
+        .unwrap();
+    let want = vec![
+        ("N1".to_string(), 1000, 0.2),
+        ("N1".to_string(), 2000, 0.3),
+        ("N2".to_string(), 1000, 0.5),
+    ];
+    assert_eq!(got, want);
+}

@@ -60,6 +60,9 @@ struct InstrumentState {
     /// Reading time the rates were last computed at: readings closer together than the
     /// interval update the windows, but the rates are recomputed at most once per interval.
     last_rate_ms: Option<i64>,
+    /// In batch mode: the reading time whose rates are still to be computed at the end of the
+    /// batch, with the error of the window push of the newest reading, if any.
+    pending_rate: Option<(i64, Option<String>)>,
 }
 
 /// The watch state of the whole configuration.
@@ -74,6 +77,11 @@ pub struct Watcher {
     /// When watching began (start of `run`): silence of a never-read instrument counts from
     /// here or its install date, whichever is later.
     started_ms: Option<i64>,
+    /// Batch mode (`set_batched`): rates are computed once per instrument per batch, at its
+    /// newest reading, by `take_rates`.
+    batched: bool,
+    /// Instruments with a rate pending (batch mode), in the order they got one.
+    pending: Vec<String>,
 }
 
 /// The health settings of the domain for one instrument under its site's `[health]`.
@@ -175,6 +183,7 @@ impl Watcher {
                     last_ms: None,
                     last_head: None,
                     last_rate_ms: None,
+                    pending_rate: None,
                 },
             );
         }
@@ -186,7 +195,34 @@ impl Watcher {
             stages,
             fitted: None,
             started_ms: None,
+            batched: false,
+            pending: Vec::new(),
         }
+    }
+
+    /// Batch mode on or off. In batch mode `derive` leaves the rates out and `take_rates`
+    /// computes them once per instrument, at the newest reading of the batch that is due one:
+    /// a catch-up that brings many readings of an instrument in one commit pays for its
+    /// Theil–Sen windows once, not per reading. With at most one reading per instrument per
+    /// batch (real time) the rates are the same as without.
+    pub fn set_batched(&mut self, on: bool) {
+        self.batched = on;
+    }
+
+    /// The rates pending since the last call (batch mode), computed now on the windows as they
+    /// stand; each is stamped with the reading it belongs to.
+    pub fn take_rates(&mut self) -> Vec<DerivedRow> {
+        let mut out = Vec::new();
+        for id in std::mem::take(&mut self.pending) {
+            let Some(st) = self.instruments.get_mut(&id) else {
+                continue;
+            };
+            let Some((t_ms, pushed)) = st.pending_rate.take() else {
+                continue;
+            };
+            rates_into(&mut out, &id, st, t_ms, pushed.as_deref());
+        }
+        out
     }
 
     /// Take models fitted elsewhere (the refit schedule of `seepd run`) from `rx`; each is
@@ -322,6 +358,8 @@ impl Watcher {
             row.flags,
         );
         let mut out = Vec::new();
+        let clean = row.total_head_m.is_some() && row.flags.0 & st.exclude.0 == 0;
+        let pushed = pushed.map(|e| e.to_string());
         // Rates and completeness are reported at most once per interval (dense bursts such as
         // a replay or a catch-up do not pay for them on every reading). A flagged reading moves
         // the clock but reports no rate: the last rate stands and the reading carries its flag.
@@ -331,18 +369,22 @@ impl Watcher {
                 .is_none_or(|l| row.t_ms - l >= st.interval_ms || row.t_ms < l);
         if due {
             st.last_rate_ms = Some(row.t_ms);
-            let flagged = Flags(row.flags.0 & st.exclude.0);
-            if row.total_head_m.is_some() && flagged.is_empty() {
-                for (name, w) in &st.windows {
-                    let v = match &pushed {
-                        Some(e) => Err(e.to_string()),
-                        None => rate(w),
-                    };
-                    out.push(row_of(id, name.clone(), row.t_ms, v, "m/day"));
+            if clean && self.batched {
+                if st.pending_rate.is_none() {
+                    self.pending.push(row.instrument.clone());
                 }
+                st.pending_rate = Some((row.t_ms, pushed));
+            } else if clean {
+                rates_into(&mut out, id, st, row.t_ms, pushed.as_deref());
             }
             let pct = completeness(st, row.t_ms);
             out.push(row_of(id, "completeness_24h".into(), row.t_ms, pct, "%"));
+        } else if let (Some((t, _)), true, false) = (&st.pending_rate, clean, late) {
+            // Batch mode: a newer clean reading takes over the pending rate, so that a rate is
+            // always computed on the windows as they stood at the reading it is stamped with.
+            if row.t_ms > *t {
+                st.pending_rate = Some((row.t_ms, pushed));
+            }
         }
         let first_ms = st.first_ms;
         let excluded = Flags(row.flags.0 & st.exclude.0);
@@ -393,6 +435,24 @@ fn completeness(st: &InstrumentState, t_ms: i64) -> Result<f64, String> {
     let t = &st.recent_times;
     let count = t.partition_point(|&x| x < end) - t.partition_point(|&x| x < start);
     Ok((100.0 * count as f64 / expected as f64).min(100.0))
+}
+
+/// The `rate_*` rows of an instrument at `t_ms` from its windows as they stand (or the error of
+/// the window push of that reading, for every window).
+fn rates_into(
+    out: &mut Vec<DerivedRow>,
+    id: &str,
+    st: &InstrumentState,
+    t_ms: i64,
+    pushed: Option<&str>,
+) {
+    for (name, w) in &st.windows {
+        let v = match pushed {
+            Some(e) => Err(e.to_string()),
+            None => rate(w),
+        };
+        out.push(row_of(id, name.clone(), t_ms, v, "m/day"));
+    }
 }
 
 /// The Theil–Sen rate of a window in m/day, once its readings span a quarter of it.

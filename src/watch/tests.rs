@@ -263,3 +263,51 @@ fn hst_without_a_year_says_so() {
         "{why}"
     );
 }
+
+/// Batch mode: the rates come once per instrument per batch, stamped with its newest clean
+/// reading, and equal the rates computed at that reading without batch mode; completeness is
+/// still reported per due reading.
+#[test]
+fn batch_mode_rates_once_per_batch_at_the_newest_reading() {
+    let c = cfg();
+    let (mut plain, mut batched) = (Watcher::new(&c), Watcher::new(&c));
+    batched.set_batched(true);
+    let mut expected = Vec::new();
+    let mut got = Vec::new();
+    for batch in 0..5_i64 {
+        let mut completeness = 0;
+        for j in 0..50 {
+            let k = batch * 50 + j;
+            for id in ["AB-PZ-1A", "AB-PZ-2B"] {
+                let (_, d) = feed(&mut plain, id, T0 + k * H, clean(k), Some(12.0));
+                if j == 49 {
+                    expected.extend(d.into_iter().filter(|r| r.quantity.starts_with("rate_")));
+                }
+                let (_, d) = feed(&mut batched, id, T0 + k * H, clean(k), Some(12.0));
+                assert!(d.iter().all(|r| !r.quantity.starts_with("rate_")), "{d:?}");
+                completeness += d
+                    .iter()
+                    .filter(|r| r.quantity == "completeness_24h")
+                    .count();
+            }
+        }
+        assert_eq!(completeness, 100, "one completeness per due reading");
+        let rates = batched.take_rates();
+        // Three windows for each of the two instruments, all at the batch's last hour.
+        assert_eq!(rates.len(), 6, "{rates:?}");
+        assert!(rates.iter().all(|r| r.t_ms == T0 + (batch * 50 + 49) * H));
+        got.extend(rates);
+        assert!(batched.take_rates().is_empty(), "taken once");
+    }
+    let key = |r: &DerivedRow| (r.object.clone(), r.quantity.clone(), r.t_ms);
+    expected.sort_by_key(key);
+    got.sort_by_key(key);
+    assert_eq!(expected.len(), got.len());
+    for (e, g) in expected.iter().zip(&got) {
+        assert_eq!(key(e), key(g));
+        assert_eq!(e.value, g.value, "{e:?} vs {g:?}");
+        assert_eq!(e.reason, g.reason);
+    }
+    // Some rates exist once the windows have filled (not all errors).
+    assert!(got.iter().any(|r| r.value.is_some()));
+}
