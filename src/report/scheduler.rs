@@ -1,6 +1,7 @@
 //! The report scheduler of `seepd run`: a thread with its own database connection that, when a
 //! `[[report]]` falls due, renders the report for the period just ended and queues one outbox
-//! message with the HTML and CSV files attached (and keeps the files in `out_dir` if set).
+//! message with the HTML, PDF (feature `pdf`) and CSV files attached (and keeps the files in
+//! `out_dir` if set).
 //!
 //! Delivery guarantee: each period of each schedule is queued exactly once. The period is
 //! recorded in `report_runs` in the transaction that queues the message, so a restart neither
