@@ -22,6 +22,7 @@ pub mod reload;
 pub mod replay;
 pub mod scenario;
 pub mod section_cmd;
+pub mod seepage;
 pub mod service;
 pub mod status;
 pub mod store;
