@@ -20,7 +20,7 @@ use super::model::SectionModel;
 pub struct LocalSize {
     /// Centre of the refined spot.
     pub at: Point,
-    /// Radius within which `size_m` holds, m; beyond it the size grows by half the distance.
+    /// Radius within which `size_m` holds, m (the mesh then coarsens gradually away from it).
     pub radius_m: f64,
     /// Element size inside the radius, m.
     pub size_m: f64,
@@ -43,15 +43,6 @@ impl MeshOptions {
             element_size_m,
             local: Vec::new(),
         }
-    }
-
-    /// The target edge length at `p`, m.
-    #[must_use]
-    pub fn size_at(&self, p: Point) -> f64 {
-        self.local.iter().fold(self.element_size_m, |s, l| {
-            let grown = l.size_m + 0.5 * (p.dist(l.at) - l.radius_m).max(0.0);
-            s.min(grown)
-        })
     }
 }
 
@@ -153,24 +144,27 @@ fn key(p: &(Point, Point)) -> [f64; 4] {
     [p.0.x, p.0.y, p.1.x, p.1.y]
 }
 
-/// Points along a piece from `a` to `b` (both included) at most the local size apart.
-fn subdivide(a: Point, b: Point, opts: &MeshOptions) -> Vec<Point> {
-    let len = a.dist(b);
-    let mut ts = vec![0.0];
-    let mut t = 0.0;
-    while t < 1.0 {
-        let p = Point::new(a.x + t * (b.x - a.x), a.y + t * (b.y - a.y));
-        t += opts.size_at(p) / len;
-        ts.push(t.min(1.0));
+/// Free points on a square grid of spacing `size_m` within each local spot, keeping clear of
+/// the constraint pieces (a point almost on one would make a sliver).
+fn spot_points(opts: &MeshOptions, pieces: &[(Point, Point)], outline: &[Point]) -> Vec<Point> {
+    let mut out = Vec::new();
+    for l in &opts.local {
+        let n = (l.radius_m / l.size_m).ceil() as i64;
+        for i in -n..=n {
+            for j in -n..=n {
+                let p = Point::new(l.at.x + i as f64 * l.size_m, l.at.y + j as f64 * l.size_m);
+                if p.dist(l.at) <= l.radius_m
+                    && inside_ring(p, outline)
+                    && pieces
+                        .iter()
+                        .all(|(a, b)| dist_to_segment(p, *a, *b) > 0.4 * l.size_m)
+                {
+                    out.push(p);
+                }
+            }
+        }
     }
-    // Even out the last step: spread the pieces uniformly in count.
-    let n = ts.len() - 1;
-    if n > 1 && opts.local.is_empty() {
-        ts = (0..=n).map(|i| i as f64 / n as f64).collect();
-    }
-    ts.iter()
-        .map(|&t| Point::new(a.x + t * (b.x - a.x), a.y + t * (b.y - a.y)))
-        .collect()
+    out
 }
 
 /// Mesh `model` (assumed valid, see `validate`).
@@ -179,7 +173,12 @@ fn subdivide(a: Point, b: Point, opts: &MeshOptions) -> Vec<Point> {
 /// [`MeshError`] when the size is bad, the triangulation fails, or no element is inside.
 pub fn build_mesh(model: &SectionModel, opts: &MeshOptions) -> Result<Mesh, MeshError> {
     let size = opts.element_size_m;
-    if !(size.is_finite() && size > 0.0) || opts.local.iter().any(|l| !(l.size_m > 0.0)) {
+    if !(size.is_finite() && size > 0.0)
+        || opts
+            .local
+            .iter()
+            .any(|l| l.size_m.is_nan() || l.size_m <= 0.0)
+    {
         return Err(MeshError::Size(size));
     }
     let tol = model.tolerance();
@@ -187,14 +186,15 @@ pub fn build_mesh(model: &SectionModel, opts: &MeshOptions) -> Result<Mesh, Mesh
     let mut cdt: ConstrainedDelaunayTriangulation<Point2<f64>> =
         ConstrainedDelaunayTriangulation::new();
     let err = |e: spade::InsertionError| MeshError::Triangulation(format!("{e:?}"));
+    // Each straight piece is one constraint; the refinement splits it where needed (points
+    // placed on it by hand would be off it by round-off and leave slivers).
     for (a, b) in &pieces {
-        let pts = subdivide(*a, *b, opts);
-        let mut prev = cdt.insert(Point2::new(pts[0].x, pts[0].y)).map_err(err)?;
-        for p in &pts[1..] {
-            let h = cdt.insert(Point2::new(p.x, p.y)).map_err(err)?;
-            cdt.add_constraint_and_split(prev, h, |q| q);
-            prev = h;
-        }
+        let from = cdt.insert(Point2::new(a.x, a.y)).map_err(err)?;
+        let to = cdt.insert(Point2::new(b.x, b.y)).map_err(err)?;
+        cdt.add_constraint_and_split(from, to, |q| q);
+    }
+    for p in spot_points(opts, &pieces, &model.outline) {
+        cdt.insert(Point2::new(p.x, p.y)).map_err(err)?;
     }
     let min_size = opts.local.iter().fold(size, |s, l| s.min(l.size_m));
     let equilateral = 3f64.sqrt() / 4.0;

@@ -11,10 +11,13 @@
 //! `outputs` (heads, phreatic surface, exit point, gradients, flows), `stream` (stream
 //! function), `calibrate` (fit to piezometers).
 
+pub mod face;
 pub mod geometry;
 pub mod mesh;
 pub mod mesh_topology;
 pub mod model;
+pub mod outputs;
+pub mod solve;
 pub mod sparse;
 pub mod validate;
 

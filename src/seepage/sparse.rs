@@ -164,7 +164,7 @@ impl Precond {
                 l[k] = sum * inv_diag[j];
             }
             let pivot = l[d] - l[s..d].iter().map(|v| v * v).sum::<f64>();
-            if !(pivot > 1e-14 * a.val[d].abs()) {
+            if pivot.is_nan() || pivot <= 1e-14 * a.val[d].abs() {
                 ok = false;
                 break 'rows;
             }
@@ -239,7 +239,7 @@ pub fn pcg(a: &Csr, b: &[f64], x: &mut [f64], tol: f64) -> Result<usize, SolveEr
         }
         a.mul(&p, &mut ap);
         let pap = dot(&p, &ap);
-        if !(pap > 0.0) {
+        if pap.is_nan() || pap <= 0.0 {
             return Err(SolveError::Singular);
         }
         let alpha = rz / pap;
