@@ -6,6 +6,7 @@ use seepd::seepage::outputs::{
     exit_gradients, exit_points, phreatic_line, phreatic_segments, stretch_flows, total_flow,
 };
 use seepd::seepage::solve::{solve, Solution, SolveOptions};
+use seepd::seepage::stream::stream_function;
 use seepd::seepage::{
     build_mesh, validate, Boundary, BoundaryKind, ImperviousLine, LocalSize, Material, Mesh,
     MeshOptions, Point, SectionModel,
@@ -378,4 +379,41 @@ fn mesh_refinement_converges_at_the_expected_rate() {
         assert!(head_order > 1.5, "head error order {head_order}");
         assert!(flow_order > 1.0, "flow error order {flow_order}");
     }
+}
+
+/// Stream function on the same patch: exact `ψ = k·c·τ` up to a constant and sign (τ² = r − x
+/// in parabolic coordinates); the difference between the two impervious sides is the flow.
+#[test]
+fn stream_function_matches_the_exact_flow_lines() {
+    let (model, c) = parabolic_patch(0.5);
+    let mesh = build_mesh(&model, &MeshOptions::uniform(0.5)).expect("mesh");
+    let confined = SolveOptions {
+        unconfined: false,
+        ..SolveOptions::default()
+    };
+    let sol = solve(&model, &mesh, &confined).expect("solve");
+    let psi = stream_function(&model, &mesh, &sol, 1e-11).expect("stream function");
+    let exact: Vec<f64> = mesh
+        .nodes
+        .iter()
+        .map(|n| 1e-5 * c * (n.x.hypot(n.y) - n.x).sqrt())
+        .collect();
+    let q = 1e-5 * c * (1.8 - 0.5);
+    // Align sign and constant on two nodes with the extreme exact values.
+    let lo = (0..exact.len())
+        .min_by(|&a, &b| exact[a].total_cmp(&exact[b]))
+        .expect("nodes");
+    let hi = (0..exact.len())
+        .max_by(|&a, &b| exact[a].total_cmp(&exact[b]))
+        .expect("nodes");
+    let sign = (psi[hi] - psi[lo]).signum();
+    let worst = psi
+        .iter()
+        .zip(&exact)
+        .map(|(s, e)| (sign * (s - psi[lo]) - (e - exact[lo])).abs() / q)
+        .fold(0.0, f64::max);
+    eprintln!("stream function: largest error {worst:.2e} of the flow");
+    assert!(((psi[hi] - psi[lo]).abs() / q - 1.0).abs() < 0.01);
+    // Our own bound for drawing flow lines (lumped boundary flows make ~1 % at this size).
+    assert!(worst < 0.02, "largest error {worst} of the flow");
 }

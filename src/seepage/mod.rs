@@ -7,10 +7,12 @@
 //!
 //! Files: `geometry` (plane predicates), `model` (the section's data), `validate` (problems),
 //! `mesh` and `mesh_topology` (triangulation, cut impervious lines, boundary edges), `sparse`
-//! (matrix and conjugate gradients), `solve` (conditions, free surface, seepage face),
+//! (matrix and conjugate gradients), `solve` (conditions, assembly, free surface), `face`
+//! (seepage-face and drain switching),
 //! `outputs` (heads, phreatic surface, exit point, gradients, flows), `stream` (stream
 //! function), `calibrate` (fit to piezometers).
 
+pub mod calibrate;
 pub mod face;
 pub mod geometry;
 pub mod mesh;
@@ -19,9 +21,11 @@ pub mod model;
 pub mod outputs;
 pub mod solve;
 pub mod sparse;
+pub mod stream;
 pub mod validate;
 
 pub use geometry::Point;
 pub use mesh::{build_mesh, LocalSize, Mesh, MeshError, MeshOptions};
 pub use model::{Boundary, BoundaryKind, ImperviousLine, Material, SectionModel, Zone};
+pub use solve::{solve, NodeCondition, SeepageError, Solution, SolveOptions};
 pub use validate::{check_points, validate, Problem, Subject};

@@ -1,10 +1,10 @@
 //! The steady seepage solve: linear triangles with anisotropic permeability per zone, fixed
 //! heads from water and prescribed-head stretches, and for unconfined flow a fixed-mesh free
-//! surface found by iteration: elements above the phreatic surface keep only a small relative
-//! permeability (a residual-flow saturation function of the pressure head), and every possible
-//! seepage face or drain node is at atmospheric pressure exactly where water leaves the ground
-//! there (switched on when its head would exceed its elevation, off when it would take water
-//! in).
+//! surface found by iteration (a fixed mesh with residual flow): each element conducts by its
+//! wet fraction (the part of the triangle where the linear pressure head is not negative), the
+//! dry part keeping a small relative permeability `kr_min`; the relative permeabilities are
+//! under-relaxed in log space when the head change grows. Possible seepage faces and drains are
+//! at atmospheric pressure exactly where water leaves the ground (see `face`).
 //!
 //! Owns: node conditions, assembly, the outer iteration and nodal flows. Must not: mesh, locate
 //! points or post-process (see `outputs`).
