@@ -36,7 +36,8 @@ fn main() {
     let cfg = Arc::new(seepd::config::load_dir(&cfg_dir).unwrap_or_else(|p| panic!("{p}")));
     let e = cfg.export.clone().expect("export configured");
     let rt = tokio::runtime::Runtime::new().unwrap();
-    let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
+    let stop = seepd::shutdown::Shutdown::new(std::time::Duration::from_secs(5));
+    let stop_rx = stop.clone();
     let started = Instant::now();
     let worker = {
         let cfg = Arc::clone(&cfg);
@@ -50,7 +51,7 @@ fn main() {
     })
     .expect("backlog drained");
     let secs = started.elapsed().as_secs_f64();
-    let _ = stop_tx.send(true);
+    stop.request();
     rt.block_on(worker).unwrap().unwrap();
 
     let points: i64 = db(dir.path())

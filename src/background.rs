@@ -1,16 +1,17 @@
-//! A named background thread that can be woken early and asked to stop: the mail worker and the
-//! report scheduler run on it. Owns the wake-up channel (coalescing: one pending wake-up is
-//! enough), the stop flag and the bounded wait at shutdown; the work itself belongs to callers.
+//! A named background thread that can be woken early and stops on the service's shutdown: the
+//! mail worker and the report scheduler run on it. Owns the wake-up channel (coalescing: one
+//! pending wake-up is enough) and the bounded wait for the thread at shutdown; the stop request
+//! itself is the service's one `Shutdown`; the work belongs to callers.
 
-use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, RecvTimeoutError, SyncSender};
-use std::sync::Arc;
 use std::time::{Duration, Instant};
+
+use crate::shutdown::Shutdown;
 
 /// What the thread sees: wake-ups and the stop request.
 pub struct Signals {
     wake: Receiver<()>,
-    stop: Arc<AtomicBool>,
+    shutdown: Shutdown,
 }
 
 impl Signals {
@@ -25,7 +26,7 @@ impl Signals {
 
     /// Whether a stop was requested.
     pub fn stopping(&self) -> bool {
-        self.stop.load(Ordering::SeqCst)
+        self.shutdown.is_requested()
     }
 }
 
@@ -42,31 +43,33 @@ impl Waker {
 /// A running background thread.
 pub struct Background {
     wake: SyncSender<()>,
-    stop: Arc<AtomicBool>,
+    shutdown: Shutdown,
     thread: Option<std::thread::JoinHandle<()>>,
 }
 
 impl Background {
-    /// Start `work` on a thread called `name`.
+    /// Start `work` on a thread called `name`; it is woken when `shutdown` is requested.
     ///
     /// # Errors
     /// The thread cannot be spawned.
     pub fn spawn(
         name: &str,
+        shutdown: &Shutdown,
         work: impl FnOnce(&Signals) + Send + 'static,
     ) -> std::io::Result<Background> {
         let (wake, rx) = std::sync::mpsc::sync_channel(1);
-        let stop = Arc::new(AtomicBool::new(false));
         let signals = Signals {
             wake: rx,
-            stop: Arc::clone(&stop),
+            shutdown: shutdown.clone(),
         };
         let thread = std::thread::Builder::new()
             .name(name.into())
             .spawn(move || work(&signals))?;
+        let waker = Waker(wake.clone());
+        shutdown.on_request(move || waker.wake());
         Ok(Background {
             wake,
-            stop,
+            shutdown: shutdown.clone(),
             thread: Some(thread),
         })
     }
@@ -76,13 +79,12 @@ impl Background {
         Waker(self.wake.clone())
     }
 
-    /// Ask the thread to stop and wait up to `deadline` for it; a thread still busy then is
-    /// left to end with the process.
-    pub fn stop(mut self, deadline: Duration) -> bool {
-        self.stop.store(true, Ordering::SeqCst);
-        let _ = self.wake.try_send(());
+    /// Request the shutdown (if not yet) and wait for the thread until the shutdown's end;
+    /// false if it is still busy then (it is left to end with the process).
+    pub fn join(mut self) -> bool {
+        self.shutdown.request();
         if let Some(t) = self.thread.take() {
-            let end = Instant::now() + deadline;
+            let end = self.shutdown.end();
             while !t.is_finished() && Instant::now() < end {
                 std::thread::sleep(Duration::from_millis(20));
             }

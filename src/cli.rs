@@ -1,20 +1,24 @@
 //! Command-line interface: argument parsing and dispatch to the library. Exit codes: 0 success,
-//! 1 runtime failure, 2 usage (clap), 78 configuration error (EX_CONFIG).
+//! 1 runtime failure, 2 usage (clap), 78 configuration error (EX_CONFIG). Output goes through
+//! `emit`, which treats a closed pipe (`seepd alerts | head`) as the end of the output.
 
 use std::fs::File;
 use std::io::{BufReader, BufWriter, Write};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
 use std::sync::Arc;
 
 use anyhow::Context as _;
+use chrono::{DateTime, Utc};
 use clap::{Parser, Subcommand, ValueEnum};
 
 use crate::alerts;
 use crate::config::{self, Config, PayloadFormat};
 use crate::ingest::progress::Counters;
+use crate::shutdown::Shutdown;
 
 /// Exit code for a configuration error (sysexits EX_CONFIG).
-pub const EXIT_CONFIG: i32 = 78;
+pub const EXIT_CONFIG: u8 = 78;
 
 #[derive(Parser, Debug)]
 #[command(
@@ -27,22 +31,46 @@ pub struct Cli {
     pub command: Command,
 }
 
+/// `--config DIR`, for the commands that need a configuration that loads.
+#[derive(clap::Args, Debug)]
+pub struct ConfigDir {
+    /// The configuration directory (seepd.toml and the site files).
+    #[arg(long = "config", value_name = "DIR")]
+    pub dir: PathBuf,
+}
+
+/// `--db FILE`, for the commands that read the database.
+#[derive(clap::Args, Debug)]
+pub struct DbFile {
+    /// Database (default: the configured one).
+    #[arg(long = "db", value_name = "FILE")]
+    pub file: Option<PathBuf>,
+}
+
+impl DbFile {
+    /// Open the chosen database, or the configured one.
+    fn open(&self, cfg: &Config) -> anyhow::Result<crate::store::Store> {
+        let path = self.file.as_ref().unwrap_or(&cfg.service.database);
+        Ok(crate::store::Store::open(path)?)
+    }
+}
+
 #[derive(Subcommand, Debug)]
 pub enum Command {
     /// Run the service: subscribe to the broker and store reduced readings.
     Run {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        config: ConfigDir,
     },
     /// Validate a configuration directory; list every problem, or print a summary.
     Check {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        config: ConfigDir,
     },
     /// Run historical readings through the engine and write NDJSON records.
     Replay {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        config: ConfigDir,
         #[arg(long, value_name = "FILE")]
         input: PathBuf,
         #[arg(long, value_enum, default_value = "ndjson")]
@@ -102,39 +130,37 @@ pub enum Command {
     },
     /// Draw a cross-section (phreatic line, exit point) as SVG from the stored heads.
     Section {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        config: ConfigDir,
+        #[command(flatten)]
+        db: DbFile,
         /// Section id.
         #[arg(long)]
         id: String,
-        /// Time (RFC 3339); default: now (the latest heads).
-        #[arg(long)]
-        at: Option<String>,
-        /// Database (default: the configured one).
-        #[arg(long, value_name = "FILE")]
-        db: Option<PathBuf>,
+        /// Time (RFC 3339 or YYYY-MM-DD, UTC); default: now (the latest heads).
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        at: Option<DateTime<Utc>>,
         /// Output file (default: standard output).
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
     /// Write an instrumentation report (HTML with plots, CSV tables) for a site and period.
     Report {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        config: ConfigDir,
+        #[command(flatten)]
+        db: DbFile,
         #[arg(long)]
         site: String,
         /// Start (RFC 3339 or YYYY-MM-DD, UTC).
-        #[arg(long)]
-        from: String,
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        from: DateTime<Utc>,
         /// End, exclusive (RFC 3339 or YYYY-MM-DD, UTC).
-        #[arg(long)]
-        to: String,
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        to: DateTime<Utc>,
         /// Output directory.
         #[arg(long, value_name = "DIR")]
         out: PathBuf,
-        /// Database (default: the configured one).
-        #[arg(long, value_name = "FILE")]
-        db: Option<PathBuf>,
     },
     /// Show what the database holds: readings, quarantine counts, export backlog and lag.
     Status {
@@ -143,22 +169,22 @@ pub enum Command {
     },
     /// Send the stored readings and derived values of a time range to the export server.
     Export {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
-        /// Start of the range (RFC 3339, inclusive).
-        #[arg(long, value_name = "TIME", value_parser = rfc3339)]
-        from: chrono::DateTime<chrono::Utc>,
-        /// End of the range (RFC 3339, exclusive).
-        #[arg(long, value_name = "TIME", value_parser = rfc3339)]
-        to: chrono::DateTime<chrono::Utc>,
+        #[command(flatten)]
+        config: ConfigDir,
+        /// Start of the range (RFC 3339 or YYYY-MM-DD, inclusive).
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        from: DateTime<Utc>,
+        /// End of the range (RFC 3339 or YYYY-MM-DD, exclusive).
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        to: DateTime<Utc>,
     },
     /// Refit the stage-response and HST models now and keep them in the model history.
     Fit {
-        #[arg(long, value_name = "DIR")]
-        config: PathBuf,
+        #[command(flatten)]
+        config: ConfigDir,
         /// Database (default: the configured one); a replay database works too.
-        #[arg(long, value_name = "FILE")]
-        db: Option<PathBuf>,
+        #[command(flatten)]
+        db: DbFile,
         /// Fit only this model (default: every configured model).
         #[arg(long, value_name = "MODEL")]
         id: Option<String>,
@@ -204,21 +230,33 @@ impl From<ReplayFormat> for PayloadFormat {
     }
 }
 
-fn rfc3339(s: &str) -> Result<chrono::DateTime<chrono::Utc>, String> {
-    chrono::DateTime::parse_from_rfc3339(s)
-        .map(|t| t.with_timezone(&chrono::Utc))
-        .map_err(|e| format!("{e}; expected RFC 3339, e.g. 2026-03-01T00:00:00Z"))
+/// A command's end other than success: the exit code, its message already printed.
+#[derive(Debug, thiserror::Error)]
+#[error("exit {0}")]
+pub struct Exit(pub u8);
+
+/// Write `text` to standard output. A closed pipe (the reader went away, as `| head` does) ends
+/// the output quietly instead of panicking.
+///
+/// # Errors
+/// Other write errors.
+pub fn emit(text: &str) -> anyhow::Result<()> {
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(e.into()),
+        _ => Ok(()),
+    }
 }
 
-/// Load a configuration or print every problem and return the config exit code.
-fn load(dir: &std::path::Path) -> Result<Config, i32> {
-    let cfg = config::load_dir(dir).map_err(|problems| {
+/// Load a configuration, or print every problem and end with the config exit code.
+fn load(dir: &ConfigDir) -> anyhow::Result<Config> {
+    let cfg = config::load_dir(&dir.dir).map_err(|problems| {
         eprintln!("{problems}");
         eprintln!(
             "seepd: {} configuration problem(s); not starting",
             problems.0.len()
         );
-        EXIT_CONFIG
+        Exit(EXIT_CONFIG)
     })?;
     for w in cfg.alerting.warnings() {
         eprintln!("warning: {w}");
@@ -230,7 +268,7 @@ fn load(dir: &std::path::Path) -> Result<Config, i32> {
 /// with problems does not stop it: the problems are printed as a warning and the database is
 /// taken from `[service] database` (or `--db`). Exit 78 only when no database can be found;
 /// exit 1 when the database file does not exist (a new empty one would report "no alerts").
-fn operator(on: &Operator) -> Result<(PathBuf, Option<Config>), i32> {
+fn operator(on: &Operator) -> anyhow::Result<(PathBuf, Option<Config>)> {
     let cfg = match &on.config {
         None => None,
         Some(dir) => match config::load_dir(dir) {
@@ -252,9 +290,9 @@ fn operator(on: &Operator) -> Result<(PathBuf, Option<Config>), i32> {
         (None, None, Some(dir)) => config::database_path(dir).map_err(|problems| {
             eprintln!("{problems}");
             eprintln!("seepd: cannot find the database in the configuration; pass --db FILE");
-            EXIT_CONFIG
+            Exit(EXIT_CONFIG)
         })?,
-        (None, None, None) => return Err(2),
+        (None, None, None) => return Err(Exit(2).into()),
     };
     if !db.is_file() {
         eprintln!(
@@ -262,21 +300,9 @@ fn operator(on: &Operator) -> Result<(PathBuf, Option<Config>), i32> {
              configuration?)",
             db.display()
         );
-        return Err(1);
+        return Err(Exit(1).into());
     }
     Ok((db, cfg))
-}
-
-/// A time from the command line: RFC 3339, or a date (midnight UTC).
-fn parse_time(text: &str, what: &str) -> anyhow::Result<chrono::DateTime<chrono::Utc>> {
-    if let Ok(t) = chrono::DateTime::parse_from_rfc3339(text) {
-        return Ok(t.with_timezone(&chrono::Utc));
-    }
-    chrono::NaiveDate::parse_from_str(text, "%Y-%m-%d")
-        .ok()
-        .and_then(|d| d.and_hms_opt(0, 0, 0))
-        .map(|d| d.and_utc())
-        .ok_or_else(|| anyhow::anyhow!("{what} {text:?} is neither RFC 3339 nor YYYY-MM-DD"))
 }
 
 /// Who runs the command ($USER, else "operator").
@@ -288,56 +314,29 @@ fn who() -> String {
 }
 
 /// Run the parsed command; returns the process exit code.
-pub fn main_with(cli: Cli) -> i32 {
+pub fn main_with(cli: Cli) -> ExitCode {
     match dispatch(cli) {
-        Ok(code) => code,
-        Err(e) => {
-            eprintln!("seepd: error: {e:#}");
-            1
-        }
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => match e.downcast_ref::<Exit>() {
+            Some(Exit(code)) => ExitCode::from(*code),
+            None => {
+                eprintln!("seepd: error: {e:#}");
+                ExitCode::FAILURE
+            }
+        },
     }
 }
 
-fn dispatch(cli: Cli) -> anyhow::Result<i32> {
+fn dispatch(cli: Cli) -> anyhow::Result<()> {
+    let now = Utc::now();
     match cli.command {
-        Command::Check { config } => Ok(match load(&config) {
-            Ok(cfg) => {
-                print!("{}", config::summary(&cfg));
-                0
-            }
-            Err(code) => code,
-        }),
-        Command::Run { config } => {
-            let cfg = match load(&config) {
-                Ok(c) => Arc::new(c),
-                Err(code) => return Ok(code),
-            };
-            let rt = tokio::runtime::Runtime::new()?;
-            let counters = Arc::new(Counters::default());
-            let result = rt.block_on(crate::service::run(cfg, counters, crate::service::signal()));
-            // A task stuck past the shutdown deadline must not hold the exit.
-            rt.shutdown_timeout(std::time::Duration::from_millis(500));
-            result?;
-            Ok(0)
-        }
+        Command::Check { config } => emit(&config::summary(&load(&config)?)),
+        Command::Run { config } => run(load(&config)?),
         Command::Status { on } => {
-            let (db, cfg) = match operator(&on) {
-                Ok(found) => found,
-                Err(code) => return Ok(code),
-            };
-            print!(
-                "{}",
-                crate::status::report_db(&db, cfg.as_ref(), chrono::Utc::now())?
-            );
-            Ok(0)
+            let (db, cfg) = operator(&on)?;
+            emit(&crate::status::report_db(&db, cfg.as_ref(), now)?)
         }
-        Command::Export { config, from, to } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
-                Err(code) => return Ok(code),
-            };
-            export_range(&cfg, from, to)
-        }
+        Command::Export { config, from, to } => export_range(&load(&config)?, from, to),
         Command::Replay {
             config,
             input,
@@ -345,99 +344,49 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             db,
             output,
             send_email,
-        } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
-                Err(code) => return Ok(code),
-            };
-            let mut store = match &db {
-                Some(p) => crate::store::Store::open(p)?,
-                None => crate::store::Store::open_in_memory()?,
-            };
-            store.sync_instruments(&cfg, chrono::Utc::now())?;
-            let reader = BufReader::new(
-                File::open(&input).with_context(|| format!("opening {}", input.display()))?,
-            );
-            let mut out: Box<dyn Write> = match &output {
-                Some(p) => Box::new(BufWriter::new(
-                    File::create(p).with_context(|| format!("creating {}", p.display()))?,
-                )),
-                None => Box::new(BufWriter::new(std::io::stdout().lock())),
-            };
-            let started = std::time::Instant::now();
-            let t = crate::replay::run_with(
-                &cfg,
-                format.into(),
-                reader,
-                &mut store,
-                &mut out,
-                chrono::Utc::now(),
-                send_email,
-            )?;
-            let secs = started.elapsed().as_secs_f64();
-            eprintln!(
-                "replay: {} lines, {} readings stored, {} duplicates, {} quarantined, {} records in {:.3} s",
-                t.lines, t.readings, t.duplicates, t.quarantined, t.records, secs
-            );
-            Ok(0)
-        }
+        } => replay(
+            &load(&config)?,
+            &input,
+            format,
+            db.as_deref(),
+            output.as_deref(),
+            send_email,
+        ),
         Command::Section {
             config,
+            db,
             id,
             at,
-            db,
             out,
         } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
-                Err(code) => return Ok(code),
-            };
-            let at = match at {
-                Some(t) => parse_time(&t, "--at")?,
-                None => chrono::Utc::now(),
-            };
-            let store = crate::store::Store::open(db.as_ref().unwrap_or(&cfg.service.database))?;
-            let svg = crate::section_cmd::render(&cfg, &store, &id, at)?;
+            let cfg = load(&config)?;
+            let svg = crate::section_cmd::render(&cfg, &db.open(&cfg)?, &id, at.unwrap_or(now))?;
             match out {
                 Some(p) => {
-                    std::fs::write(&p, svg).with_context(|| format!("writing {}", p.display()))?
+                    std::fs::write(&p, svg).with_context(|| format!("writing {}", p.display()))
                 }
-                None => print!("{svg}"),
+                None => emit(&svg),
             }
-            Ok(0)
         }
         Command::Report {
             config,
+            db,
             site,
             from,
             to,
             out,
-            db,
         } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
-                Err(code) => return Ok(code),
-            };
-            let (from, to) = (parse_time(&from, "--from")?, parse_time(&to, "--to")?);
-            let store = crate::store::Store::open(db.as_ref().unwrap_or(&cfg.service.database))?;
-            let files =
-                crate::report::generate(&cfg, &store, &site, from, to, chrono::Utc::now(), &out)?;
-            println!("{}", files.html.display());
+            let cfg = load(&config)?;
+            let files = crate::report::generate(&cfg, &db.open(&cfg)?, &site, from, to, now, &out)?;
+            let mut list = format!("{}\n", files.html.display());
             for c in files.csv {
-                println!("{}", c.display());
+                list.push_str(&format!("{}\n", c.display()));
             }
-            Ok(0)
+            emit(&list)
         }
         Command::Alerts { on } => {
-            let (db, cfg) = match operator(&on) {
-                Ok(found) => found,
-                Err(code) => return Ok(code),
-            };
-            print!(
-                "{}",
-                alerts::commands::report_db(&db, cfg.as_ref(), chrono::Utc::now())?
-            );
-            Ok(0)
+            let (db, cfg) = operator(&on)?;
+            emit(&alerts::commands::report_db(&db, cfg.as_ref(), now)?)
         }
         Command::Ack {
             alert,
@@ -445,16 +394,15 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             by,
             note,
         } => {
-            let (db, _) = match operator(&on) {
-                Ok(found) => found,
-                Err(code) => return Ok(code),
-            };
+            let (db, _) = operator(&on)?;
             let by = by.unwrap_or_else(who);
-            print!(
-                "{}",
-                alerts::commands::ack(&db, alert, &by, note.as_deref(), chrono::Utc::now())?
-            );
-            Ok(0)
+            emit(&alerts::commands::ack(
+                &db,
+                alert,
+                &by,
+                note.as_deref(),
+                now,
+            )?)
         }
         Command::Silence {
             on,
@@ -465,74 +413,131 @@ fn dispatch(cli: Cli) -> anyhow::Result<i32> {
             by,
             all_levels,
         } => {
-            let (db, cfg) = match operator(&on) {
-                Ok(found) => found,
-                Err(code) => return Ok(code),
-            };
+            let (db, cfg) = operator(&on)?;
             let by = by.unwrap_or_else(who);
-            print!(
-                "{}",
-                alerts::commands::silence(
-                    &db,
-                    cfg.as_ref(),
-                    &alerts::commands::SilenceArgs {
-                        rule: rule.as_deref(),
-                        object: instrument.as_deref(),
-                        until: &until,
-                        reason: &reason,
-                        by: &by,
-                        all_levels,
-                    },
-                    chrono::Utc::now()
-                )?
-            );
-            Ok(0)
+            let args = alerts::commands::SilenceArgs {
+                rule: rule.as_deref(),
+                object: instrument.as_deref(),
+                until: &until,
+                reason: &reason,
+                by: &by,
+                all_levels,
+            };
+            emit(&alerts::commands::silence(&db, cfg.as_ref(), &args, now)?)
         }
         Command::Fit { config, db, id } => {
-            let cfg = match load(&config) {
-                Ok(c) => c,
-                Err(code) => return Ok(code),
-            };
-            let store = crate::store::Store::open(db.as_ref().unwrap_or(&cfg.service.database))?;
+            let cfg = load(&config)?;
             let mut out = String::new();
-            let code = crate::fit_cmd::run(&cfg, &store, id.as_deref(), &mut out)?;
-            print!("{out}");
-            Ok(code)
+            let code = crate::fit_cmd::run(&cfg, &db.open(&cfg)?, id.as_deref(), &mut out)?;
+            emit(&out)?;
+            match u8::try_from(code) {
+                Ok(0) => Ok(()),
+                Ok(c) => Err(Exit(c).into()),
+                Err(_) => Err(Exit(1).into()),
+            }
         }
         Command::Demo {
             seconds_per_day,
             days,
-        } => {
-            #[cfg(feature = "demo-broker")]
-            {
-                let rt = tokio::runtime::Runtime::new()?;
-                rt.block_on(crate::demo::run(
-                    seconds_per_day,
-                    days,
-                    crate::service::signal(),
-                ))?;
-                Ok(0)
-            }
-            #[cfg(not(feature = "demo-broker"))]
-            {
-                let _ = (seconds_per_day, days);
-                anyhow::bail!(
-                    "this build has no embedded broker: rebuild with the `demo-broker` feature"
-                )
-            }
-        }
+        } => demo(seconds_per_day, days),
+    }
+}
+
+/// `seepd run`: the service until SIGINT/SIGTERM.
+fn run(cfg: Config) -> anyhow::Result<()> {
+    let cfg = Arc::new(cfg);
+    let rt = tokio::runtime::Runtime::new()?;
+    let counters = Arc::new(Counters::default());
+    let shutdown = crate::service::shutdown_for(&cfg);
+    let result = rt.block_on(async {
+        shutdown.request_on_signal();
+        crate::service::run(cfg, counters, shutdown.clone()).await
+    });
+    // A task stuck past the shutdown deadline must not hold the exit.
+    rt.shutdown_timeout(std::time::Duration::from_millis(500));
+    result
+}
+
+/// `seepd replay`.
+fn replay(
+    cfg: &Config,
+    input: &Path,
+    format: ReplayFormat,
+    db: Option<&Path>,
+    output: Option<&Path>,
+    send_email: bool,
+) -> anyhow::Result<()> {
+    let mut store = match db {
+        Some(p) => crate::store::Store::open(p)?,
+        None => crate::store::Store::open_in_memory()?,
+    };
+    store.sync_instruments(cfg, Utc::now())?;
+    let reader =
+        BufReader::new(File::open(input).with_context(|| format!("opening {}", input.display()))?);
+    let mut out: Box<dyn Write> = match output {
+        Some(p) => Box::new(BufWriter::new(
+            File::create(p).with_context(|| format!("creating {}", p.display()))?,
+        )),
+        None => Box::new(BufWriter::new(std::io::stdout().lock())),
+    };
+    let started = std::time::Instant::now();
+    let t = crate::replay::run_with(
+        cfg,
+        format.into(),
+        reader,
+        &mut store,
+        &mut out,
+        Utc::now(),
+        send_email,
+    );
+    let t = match t {
+        Err(e) if is_broken_pipe(&e) => return Ok(()),
+        other => other?,
+    };
+    eprintln!(
+        "replay: {} lines, {} readings stored, {} duplicates, {} quarantined, {} records in {:.3} s",
+        t.lines,
+        t.readings,
+        t.duplicates,
+        t.quarantined,
+        t.records,
+        started.elapsed().as_secs_f64()
+    );
+    Ok(())
+}
+
+/// Whether an error is a write to a closed pipe.
+fn is_broken_pipe(e: &anyhow::Error) -> bool {
+    e.chain().any(|c| {
+        c.downcast_ref::<std::io::Error>()
+            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
+}
+
+/// `seepd demo`.
+fn demo(seconds_per_day: f64, days: Option<u32>) -> anyhow::Result<()> {
+    #[cfg(feature = "demo-broker")]
+    {
+        let rt = tokio::runtime::Runtime::new()?;
+        // The example configuration's deadline (its default).
+        let shutdown = Shutdown::new(std::time::Duration::from_secs(10));
+        rt.block_on(async {
+            shutdown.request_on_signal();
+            crate::demo::run(seconds_per_day, days, shutdown.clone()).await
+        })
+    }
+    #[cfg(not(feature = "demo-broker"))]
+    {
+        let _ = (seconds_per_day, days);
+        anyhow::bail!("this build has no embedded broker: rebuild with the `demo-broker` feature")
     }
 }
 
 /// `seepd export`: backfill a time range.
-fn export_range(
-    cfg: &Config,
-    from: chrono::DateTime<chrono::Utc>,
-    to: chrono::DateTime<chrono::Utc>,
-) -> anyhow::Result<i32> {
+fn export_range(cfg: &Config, from: DateTime<Utc>, to: DateTime<Utc>) -> anyhow::Result<()> {
     let Some(e) = &cfg.export else {
         eprintln!("seepd: no [export] section in seepd.toml; nothing to export to");
-        return Ok(EXIT_CONFIG);
+        return Err(Exit(EXIT_CONFIG).into());
     };
     anyhow::ensure!(from < to, "--from must be before --to");
     #[cfg(feature = "influx")]
@@ -540,13 +545,19 @@ fn export_range(
         let rt = tokio::runtime::Runtime::new()?;
         let sink = crate::export::influx::InfluxSink::new(e)?;
         let started = std::time::Instant::now();
-        let t = rt.block_on(crate::export::backfill::run(
-            cfg,
-            e,
-            &sink,
-            from.timestamp_millis(),
-            to.timestamp_millis(),
-        ))?;
+        let t = rt.block_on(async {
+            let stop = Shutdown::new(std::time::Duration::ZERO);
+            stop.request_on_signal();
+            crate::export::backfill::run(
+                cfg,
+                e,
+                &sink,
+                from.timestamp_millis(),
+                to.timestamp_millis(),
+                &stop,
+            )
+            .await
+        })?;
         eprintln!(
             "export: {} readings, {} derived values, {} points accepted, {} refused (see export_rejects) in {:.3} s",
             t.readings,
@@ -555,7 +566,7 @@ fn export_range(
             t.rejected,
             started.elapsed().as_secs_f64()
         );
-        Ok(0)
+        Ok(())
     }
     #[cfg(not(feature = "influx"))]
     {

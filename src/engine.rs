@@ -1,6 +1,6 @@
 //! The pipeline shared by `run` and `replay`: an incoming message becomes reading rows and
-//! quarantine rows, by decoding (ingest::decode), mapping to an instrument, checking, and
-//! reducing (domain::reduce).
+//! quarantine rows, by decoding (payload::decode), mapping to an instrument, checking, and
+//! reducing (reduce).
 //!
 //! Pure apart from the state it keeps (the channel table and recent barometer readings): no
 //! I/O and no clock reads; the arrival time comes with the message.
@@ -12,11 +12,11 @@ use chrono::{DateTime, Utc};
 
 use crate::config::{Config, Instrument, Subscription};
 use crate::derive::{Deriver, Head};
-use crate::domain::reduce::{reduce, Context};
-use crate::ingest::decode::{decode, Decoded};
-use crate::ingest::topic::{match_topic, TopicFields};
+use crate::model::{DerivedRow, FlagUpdate, QuarantineRow, ReadingRow};
+use crate::payload::decode::{decode, Decoded};
+use crate::payload::topic::{match_topic, TopicFields};
 use crate::quality::{Flags, Reason, Reject};
-use crate::store::{DerivedRow, FlagUpdate, QuarantineRow, ReadingRow};
+use crate::reduce::{reduce, Context};
 use crate::watch::Watcher;
 
 /// Quarantined payloads are stored up to this many bytes.
@@ -68,6 +68,34 @@ pub struct Engine {
 }
 
 impl Engine {
+    /// An engine for `cfg` with its barometer memory, latest heads and trend state seeded from
+    /// `store` (at start, and on a reload).
+    ///
+    /// # Errors
+    /// Database errors.
+    pub fn seeded(cfg: &Arc<Config>, store: &crate::store::Store) -> anyhow::Result<Engine> {
+        let now = chrono::Utc::now();
+        let mut engine = Engine::new(Arc::clone(cfg));
+        let since = now.timestamp_millis() - cfg.service.barometer_max_age_s * 1000 * 2;
+        for b in engine.barometers() {
+            for (t, p) in store.barometer_since(&b, since)? {
+                engine.remember_barometer(&b, t, p);
+            }
+        }
+        for l in store.latest_all()? {
+            if let Some(head_m) = l.total_head_m {
+                let head = crate::derive::Head {
+                    t_ms: l.t_ms,
+                    head_m,
+                    flags: l.flags,
+                };
+                engine.seed_head(&l.instrument, head);
+            }
+        }
+        crate::watch::seed::from_store(engine.watch_mut(), cfg, store, now.timestamp_millis())?;
+        Ok(engine)
+    }
+
     pub fn new(cfg: Arc<Config>) -> Engine {
         let channels = cfg
             .instruments

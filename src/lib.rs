@@ -6,6 +6,7 @@
 
 pub mod alerts;
 pub mod background;
+pub mod backoff;
 pub mod cli;
 pub mod config;
 #[cfg(feature = "demo-broker")]
@@ -16,16 +17,22 @@ pub mod engine;
 pub mod export;
 pub mod fit_cmd;
 pub mod ingest;
+pub mod model;
 pub mod notify;
+pub mod payload;
 pub mod quality;
+pub mod reduce;
 pub mod reload;
 pub mod replay;
 pub mod scenario;
 pub mod section_cmd;
 pub mod seepage;
 pub mod service;
+pub mod shutdown;
 pub mod status;
 pub mod store;
+pub mod testpoint;
+pub mod timetext;
 pub mod xml_check;
 
 /// The caution every alert email and report carries.

@@ -2,7 +2,7 @@
 
 use clap::Parser;
 
-fn main() {
+fn main() -> std::process::ExitCode {
     let cli = seepd::cli::Cli::parse();
     tracing_subscriber::fmt()
         .with_env_filter(
@@ -13,5 +13,5 @@ fn main() {
         // Colour only on a terminal: journald and log files get plain key=value lines.
         .with_ansi(std::io::IsTerminal::is_terminal(&std::io::stderr()))
         .init();
-    std::process::exit(seepd::cli::main_with(cli));
+    seepd::cli::main_with(cli)
 }

@@ -10,12 +10,12 @@
 //! Owns the check and the swap; the signal is `service`'s, the writer loop `ingest::mqtt`'s.
 
 use std::path::Path;
-use std::sync::mpsc::{Receiver, Sender};
 
 use std::sync::Arc;
 
 use crate::alerts::live::Live;
 use crate::alerts::Evaluator;
+pub use crate::config::reloads::{channel, Reloads};
 use crate::config::{load_dir, Config, Problems};
 use crate::engine::Engine;
 use crate::store::Store;
@@ -59,22 +59,6 @@ pub fn check(dir: &Path, running: &Config) -> Result<(Config, Vec<&'static str>)
     Ok((new, kept))
 }
 
-/// The writer thread's end of reloads: configurations checked and waiting to be applied.
-pub struct Reloads(Receiver<Arc<Config>>);
-
-/// Make the channel between the signal handler and the writer thread.
-pub fn channel() -> (Sender<Arc<Config>>, Reloads) {
-    let (tx, rx) = std::sync::mpsc::channel();
-    (tx, Reloads(rx))
-}
-
-impl Reloads {
-    /// The newest configuration waiting, if any (older ones are skipped).
-    pub fn take(&self) -> Option<Arc<Config>> {
-        self.0.try_iter().last()
-    }
-}
-
 /// Swap the writer's engine and rule evaluator for `cfg` (in the writer thread, between
 /// batches). The engine is rebuilt from the database like at a start (latest heads, barometer,
 /// trend and health windows, models); the model refits keep their channel. On a database error
@@ -82,7 +66,7 @@ impl Reloads {
 pub fn apply(cfg: Arc<Config>, store: &mut Store, engine: &mut Engine, alerts: &mut Live) {
     let rebuilt = (|| -> anyhow::Result<(Engine, Evaluator)> {
         store.sync_instruments(&cfg, chrono::Utc::now())?;
-        let mut e = crate::service::engine_for(&cfg, store)?;
+        let mut e = Engine::seeded(&cfg, store)?;
         if let Some(fits) = engine.watch_mut().take_fits() {
             e.watch_mut().receive_fits(fits);
         }

@@ -113,21 +113,6 @@ fn rfc3339(t_ms: i64) -> String {
     )
 }
 
-/// The computed values of one reading, as (quantity, value, unit).
-pub fn quantities(r: &ReadingRow) -> Vec<(&'static str, f64, &'static str)> {
-    let mut v = vec![("engineering_value", r.eng_value, r.eng_unit)];
-    if let Some(p) = r.pressure_kpa {
-        v.push(("pressure", p, "kPa"));
-    }
-    if let Some(h) = r.pressure_head_m {
-        v.push(("pressure_head", h, "m"));
-    }
-    if let Some(h) = r.total_head_m {
-        v.push(("total_head", h, "m"));
-    }
-    v
-}
-
 /// Replay `input` into `store`, writing NDJSON records to `out` (alert transitions included;
 /// no email).
 ///
@@ -268,10 +253,7 @@ fn send_all(store: &Store, smtp: &crate::config::Smtp) -> anyhow::Result<()> {
             break;
         }
         std::thread::sleep(std::time::Duration::from_secs(smtp.retry_min_s.min(10)));
-        store.conn().execute(
-            "UPDATE outbox SET next_attempt_ms = 0 WHERE status = 'pending'",
-            [],
-        )?;
+        store.make_pending_due()?;
     }
     Ok(())
 }
@@ -316,7 +298,7 @@ fn flush(
     for r in readings.iter() {
         let time = rfc3339(r.t_ms);
         let flags = r.flags.names();
-        for (quantity, value, unit) in quantities(r) {
+        for (quantity, value, unit) in r.quantities() {
             emit(&Record::Value {
                 id: &r.instrument,
                 quantity,

@@ -2,10 +2,9 @@
 //! report scheduler and the export worker until a signal.
 //!
 //! Owns start-up order (store, rule states, mail worker, report scheduler, export worker,
-//! ingestion) and the shutdown signal; the work itself is in `ingest::mqtt`, `alerts`,
+//! ingestion) and the order of stopping; the work itself is in `ingest::mqtt`, `alerts`,
 //! `notify`, `report::scheduler` and `export`.
 
-use std::future::Future;
 use std::sync::Arc;
 
 use anyhow::Context as _;
@@ -21,6 +20,7 @@ use crate::ingest::link::LinkState;
 use crate::ingest::progress::Counters;
 use crate::notify::Worker;
 use crate::report::scheduler::Scheduler;
+use crate::shutdown::Shutdown;
 use crate::store::export::QueueMode;
 use crate::store::Store;
 
@@ -39,46 +39,24 @@ pub fn open(cfg: &Arc<Config>) -> anyhow::Result<(Store, Engine)> {
             derived: e.derived,
         });
     }
-    let engine = engine_for(cfg, &store)?;
+    let engine = Engine::seeded(cfg, &store)?;
     Ok((store, engine))
 }
 
-/// An engine for `cfg` with its barometer memory, latest heads and trend state seeded from
-/// `store` (at start, and on a reload).
-///
-/// # Errors
-/// Database errors.
-pub fn engine_for(cfg: &Arc<Config>, store: &Store) -> anyhow::Result<Engine> {
-    let now = Utc::now();
-    let mut engine = Engine::new(Arc::clone(cfg));
-    let since = now.timestamp_millis() - cfg.service.barometer_max_age_s * 1000 * 2;
-    for b in engine.barometers() {
-        for (t, p) in store.barometer_since(&b, since)? {
-            engine.remember_barometer(&b, t, p);
-        }
-    }
-    for l in store.latest_all()? {
-        if let Some(head_m) = l.total_head_m {
-            let head = crate::derive::Head {
-                t_ms: l.t_ms,
-                head_m,
-                flags: l.flags,
-            };
-            engine.seed_head(&l.instrument, head);
-        }
-    }
-    crate::watch::seed::from_store(engine.watch_mut(), cfg, store, now.timestamp_millis())?;
-    Ok(engine)
+/// The service's shutdown, with the configured deadline.
+#[must_use]
+pub fn shutdown_for(cfg: &Config) -> Shutdown {
+    Shutdown::new(Duration::from_secs(cfg.service.shutdown_deadline_s))
 }
 
-/// Run the service until `shutdown` resolves.
+/// Run the service until `shutdown` is requested; every part stops within its deadline.
 ///
 /// # Errors
-/// Database or TLS set-up errors.
+/// Database or TLS set-up errors; a part that did not stop in time (`DeadlinePassed`).
 pub async fn run(
     cfg: Arc<Config>,
     counters: Arc<Counters>,
-    shutdown: impl Future<Output = ()>,
+    shutdown: Shutdown,
 ) -> anyhow::Result<()> {
     survive_file_size_limit();
     let (store, mut engine) = open(&cfg)?;
@@ -94,7 +72,11 @@ pub async fn run(
     );
     let evaluator = Evaluator::load(Arc::clone(&cfg), &store)?;
     let worker = match &cfg.alerting.smtp {
-        Some(smtp) => Some(Worker::spawn(&cfg.service.database, smtp.clone())?),
+        Some(smtp) => Some(Worker::spawn(
+            &cfg.service.database,
+            smtp.clone(),
+            &shutdown,
+        )?),
         None => {
             if !cfg.alerting.rules.is_empty() {
                 tracing::warn!("Rules are configured but [smtp] is not: alert messages stay in the outbox (see `seepd alerts`)");
@@ -108,20 +90,14 @@ pub async fn run(
         Some(Scheduler::spawn(
             Arc::clone(&cfg),
             worker.as_ref().map(Worker::waker),
+            &shutdown,
         )?)
     };
     let (reload_tx, reloads) = crate::reload::channel();
     let live = Live::new(evaluator, worker.as_ref().map(Worker::waker)).with_reloads(reloads);
     let hangups = tokio::spawn(on_hangup(Arc::clone(&cfg), reload_tx));
-    let (stop_tx, stop_rx) = tokio::sync::watch::channel(false);
-    let exporter = start_export(&cfg, stop_rx);
+    let exporter = start_export(&cfg, &shutdown);
     let link = LinkState::shared(&cfg.mqtt, Utc::now());
-    let stop_sent = std::sync::OnceLock::new();
-    let forward = async {
-        shutdown.await;
-        let _ = stop_sent.set(tokio::time::Instant::now());
-        let _ = stop_tx.send(true);
-    };
     let result = crate::ingest::mqtt::run(
         Arc::clone(&cfg),
         store,
@@ -129,25 +105,23 @@ pub async fn run(
         live,
         counters,
         link,
-        forward,
+        shutdown.clone(),
     )
     .await;
-    let _ = stop_sent.set(tokio::time::Instant::now());
-    let _ = stop_tx.send(true);
+    // Ingestion ended (stopped, or failed): everything else stops too, within the one
+    // deadline counted from the request.
+    shutdown.request();
     refits.abort();
     hangups.abort();
-    // Everything stops within one deadline counted from the stop request.
-    let deadline_len = Duration::from_secs(cfg.service.shutdown_deadline_s);
-    let end = *stop_sent.get_or_init(tokio::time::Instant::now) + deadline_len;
-    let left = || end.saturating_duration_since(tokio::time::Instant::now());
     let mut late = false;
     if let Some(r) = reports {
-        late |= !r.stop(left());
+        late |= !r.join();
     }
     if let Some(w) = worker {
-        late |= !w.stop(left());
+        late |= !w.join();
     }
     if let Some(task) = exporter {
+        let end = tokio::time::Instant::from_std(shutdown.end());
         match tokio::time::timeout_at(end, task).await {
             Ok(Ok(Ok(()))) => {}
             Ok(Ok(Err(e))) => tracing::error!(error = %format!("{e:#}"), "Export worker failed"),
@@ -160,7 +134,7 @@ pub async fn run(
     }
     result?;
     if late {
-        return Err(crate::ingest::mqtt::DeadlinePassed(deadline_len.as_secs()).into());
+        return Err(crate::ingest::mqtt::DeadlinePassed(shutdown.deadline().as_secs()).into());
     }
     Ok(())
 }
@@ -182,12 +156,15 @@ fn survive_file_size_limit() {
 /// Spawn the export worker when `[export]` is configured and enabled.
 fn start_export(
     cfg: &Arc<Config>,
-    stop: tokio::sync::watch::Receiver<bool>,
+    stop: &Shutdown,
 ) -> Option<tokio::task::JoinHandle<anyhow::Result<()>>> {
     cfg.export.as_ref().filter(|e| e.enabled)?;
     #[cfg(feature = "influx")]
     {
-        Some(tokio::spawn(crate::export::run(Arc::clone(cfg), stop)))
+        Some(tokio::spawn(crate::export::run(
+            Arc::clone(cfg),
+            stop.clone(),
+        )))
     }
     #[cfg(not(feature = "influx"))]
     {
@@ -247,28 +224,5 @@ async fn on_hangup(started: Arc<Config>, tx: std::sync::mpsc::Sender<Arc<Config>
     #[cfg(not(unix))]
     {
         let _ = (started, tx);
-    }
-}
-
-/// Resolves on SIGINT or SIGTERM.
-pub async fn signal() {
-    #[cfg(unix)]
-    {
-        use tokio::signal::unix::{signal, SignalKind};
-        match signal(SignalKind::terminate()) {
-            Ok(mut term) => {
-                tokio::select! {
-                    _ = tokio::signal::ctrl_c() => {}
-                    _ = term.recv() => {}
-                }
-            }
-            Err(_) => {
-                let _ = tokio::signal::ctrl_c().await;
-            }
-        }
-    }
-    #[cfg(not(unix))]
-    {
-        let _ = tokio::signal::ctrl_c().await;
     }
 }

@@ -8,7 +8,6 @@ use std::fmt::Write as _;
 use std::path::Path;
 
 use chrono::{DateTime, Utc};
-use rusqlite::OptionalExtension;
 
 use crate::config::Config;
 use crate::ingest::link::LinkState;
@@ -43,16 +42,7 @@ pub fn report_db(
     let mut s = String::new();
     let _ = writeln!(s, "Database: {}", db.display());
     let readings = store.count_readings()?;
-    // The latest time per instrument uses the primary key; the overall latest is their max.
-    let latest: Option<(String, i64)> = conn
-        .query_row(
-            "SELECT instrument, t FROM
-                (SELECT instrument, max(t_ms) AS t FROM readings GROUP BY instrument)
-             ORDER BY t DESC LIMIT 1",
-            [],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )
-        .optional()?;
+    let latest = store.latest_reading_overall()?;
     match latest {
         Some((instrument, t)) => {
             let _ = writeln!(

@@ -206,3 +206,64 @@ fn replay_writes_alert_transitions_without_email() {
     let resolve = river.last().unwrap();
     assert_eq!(resolve["time"], "2026-03-01T22:00:00.000Z");
 }
+
+/// `seepd replay … | head -1`: the reader goes away after the first line; seepd ends quietly
+/// with exit 0 instead of panicking on the closed pipe (exit 101).
+#[test]
+fn output_into_a_closed_pipe_ends_quietly() {
+    use std::io::{BufRead, BufReader};
+    use std::process::{Command, Stdio};
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.ndjson");
+    // Hourly river readings: far more output than a pipe holds (64 KiB).
+    let lines: String = (0..5_000)
+        .map(|h| {
+            format!(
+                "{{\"time\":{},\"instrument\":\"AB-RIVER\",\"value\":{:.2}}}\n",
+                1_767_225_600 + h * 3600,
+                4.0 + (h % 24) as f64 / 100.0
+            )
+        })
+        .collect();
+    std::fs::write(&input, lines).unwrap();
+    let mut child = Command::new(common::seepd_bin())
+        .args(["replay", "--config", &example_dir(), "--input"])
+        .arg(&input)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().unwrap())
+        .read_line(&mut first)
+        .unwrap();
+    assert!(first.starts_with('{'), "{first}");
+    // The reader has gone (dropped above).
+    let out = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{err}");
+    assert!(!err.contains("panicked"), "{err}");
+}
+
+/// The two-command start: `seepd demo` brings up its embedded broker, the service and the
+/// simulated loggers, stores readings and stops cleanly after the days asked for.
+#[test]
+fn demo_runs_its_embedded_broker_and_stops_cleanly() {
+    let (code, out, err) = seepd(&["demo", "--seconds-per-day", "1", "--days", "1"]);
+    assert_eq!(code, 0, "{out}\n{err}");
+    assert!(out.contains("embedded broker on 127.0.0.1:"), "{out}");
+    assert!(out.contains("Demo stopped cleanly"), "{out}");
+    // The last summary line: "--- N messages, M readings stored, ...".
+    let stored: u64 = out
+        .lines()
+        .rev()
+        .find_map(|l| {
+            l.split(", ")
+                .nth(1)?
+                .strip_suffix(" readings stored")?
+                .parse()
+                .ok()
+        })
+        .unwrap_or(0);
+    assert!(stored > 100, "{out}");
+}

@@ -8,7 +8,7 @@ use std::fmt::Write as _;
 use std::path::Path;
 
 use anyhow::{bail, Context as _};
-use chrono::{DateTime, NaiveDate, Utc};
+use chrono::{DateTime, Utc};
 
 use crate::config::Config;
 use crate::domain::rules::{Phase, State};
@@ -201,31 +201,7 @@ pub fn ack(
 /// # Errors
 /// Unreadable text.
 pub fn parse_until(s: &str, now: DateTime<Utc>) -> anyhow::Result<DateTime<Utc>> {
-    if let Some(rel) = s.strip_prefix('+') {
-        let (n, unit) = rel.split_at(rel.len().saturating_sub(1));
-        let n: i64 = n
-            .parse()
-            .with_context(|| format!("--until {s:?}: expected e.g. +30m, +4h, +2d"))?;
-        let secs = match unit {
-            "m" => 60,
-            "h" => 3600,
-            "d" => 86_400,
-            _ => bail!("--until {s:?}: expected a unit m, h or d (e.g. +4h)"),
-        };
-        return Ok(now + chrono::Duration::seconds(n.saturating_mul(secs)));
-    }
-    if let Ok(d) = NaiveDate::parse_from_str(s, "%Y-%m-%d") {
-        if let Some(t) = d.and_hms_opt(0, 0, 0) {
-            return Ok(t.and_utc());
-        }
-    }
-    DateTime::parse_from_rfc3339(s)
-        .map(|t| t.with_timezone(&Utc))
-        .with_context(|| {
-            format!(
-                "--until {s:?}: expected an RFC 3339 time (2026-03-02T08:00:00Z), a date, or +4h"
-            )
-        })
+    crate::timetext::instant_or_span(s, now).map_err(|e| anyhow::anyhow!("--until {e}"))
 }
 
 /// What `seepd silence` asks for.

@@ -10,24 +10,9 @@ use chrono::Utc;
 
 use crate::notify::Waker;
 use crate::store::{AlertWrites, Store};
+pub use crate::testpoint::pause_point;
 
 use super::{Evaluator, Observation};
-
-/// Crash-test hook: when the environment variable `SEEPD_TEST_PAUSE_AT` names `step`, log
-/// "Test pause at STEP" and stop here for good (the test then kills the process with SIGKILL).
-/// Steps: `before_commit`, `after_commit` (a commit that queued messages), `after_send` (the
-/// relay accepted a message, not yet marked sent), `writer_batch` (the writer took a batch of
-/// messages, nothing processed yet). Unset in production: one env lookup.
-pub fn pause_point(step: &str) {
-    static AT: std::sync::OnceLock<Option<String>> = std::sync::OnceLock::new();
-    let at = AT.get_or_init(|| std::env::var("SEEPD_TEST_PAUSE_AT").ok());
-    if at.as_deref() == Some(step) {
-        tracing::warn!(step, "Test pause at {step}");
-        loop {
-            std::thread::sleep(Duration::from_secs(3600));
-        }
-    }
-}
 
 /// How often rules are stepped without an observation.
 pub const TICK: Duration = Duration::from_secs(1);
@@ -39,7 +24,7 @@ pub struct Live {
     pub waker: Option<Waker>,
     last_tick: Instant,
     /// Configurations checked by a reload (SIGHUP), waiting for the writer thread.
-    reloads: Option<crate::reload::Reloads>,
+    reloads: Option<crate::config::reloads::Reloads>,
 }
 
 impl Live {
@@ -53,14 +38,16 @@ impl Live {
     }
 
     /// Receive reloaded configurations on `r` (see `take_reload`).
-    pub fn with_reloads(mut self, r: crate::reload::Reloads) -> Live {
+    pub fn with_reloads(mut self, r: crate::config::reloads::Reloads) -> Live {
         self.reloads = Some(r);
         self
     }
 
     /// A reloaded configuration waiting to be applied by the writer thread, if any.
     pub fn take_reload(&self) -> Option<std::sync::Arc<crate::config::Config>> {
-        self.reloads.as_ref().and_then(crate::reload::Reloads::take)
+        self.reloads
+            .as_ref()
+            .and_then(crate::config::reloads::Reloads::take)
     }
 
     /// Evaluate a batch's observations at the current time (to commit with the batch).
@@ -116,8 +103,9 @@ impl Live {
     }
 
     /// Apply acknowledgements and silences, step every rule's timers, commit (retrying until
-    /// the commit succeeds, like a batch), wake the mail worker.
-    pub fn tick(&mut self, store: &mut Store) {
+    /// the commit succeeds, like a batch, or the shutdown: the timers are stepped again at the
+    /// next start), wake the mail worker.
+    pub fn tick(&mut self, store: &mut Store, shutdown: &crate::shutdown::Shutdown) {
         self.last_tick = Instant::now();
         if self.evaluator.is_empty() {
             return;
@@ -138,11 +126,13 @@ impl Live {
             return;
         }
         self.before_commit(&w);
-        let mut wait = Duration::from_millis(100);
+        let mut backoff = crate::backoff::Backoff::commit();
         while let Err(e) = store.write_alerts(&w) {
             tracing::error!(error = %e, "Commit of alert state failed; retrying");
-            std::thread::sleep(wait);
-            wait = (wait * 2).min(Duration::from_secs(5));
+            if shutdown.sleep_blocking(backoff.fail()) {
+                tracing::warn!("Shutdown: the rules' timers are stepped again at the next start");
+                return;
+            }
         }
         self.committed(&w);
     }

@@ -32,14 +32,14 @@ pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observ
     let mut v = Vec::new();
     // A reading stamped ahead of our clock never reaches a rule: its time would make the
     // rule ignore the real readings that follow (see `Flags::TIME_AHEAD`).
-    let on_time = |r: &&crate::store::ReadingRow| !r.flags.contains(Flags::TIME_AHEAD);
+    let on_time = |r: &&crate::model::ReadingRow| !r.flags.contains(Flags::TIME_AHEAD);
     for r in out
         .readings
         .iter()
         .filter(on_time)
         .filter(|r| keep(&r.instrument))
     {
-        for (quantity, value, unit) in crate::replay::quantities(r) {
+        for (quantity, value, unit) in r.quantities() {
             v.push(Observation {
                 object: r.instrument.clone(),
                 quantity: quantity.into(),
@@ -87,7 +87,7 @@ pub fn observations_of(out: &Outcome, keep: impl Fn(&str) -> bool) -> Vec<Observ
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::store::ReadingRow;
+    use crate::model::ReadingRow;
 
     fn reading(flags: Flags) -> ReadingRow {
         ReadingRow {
@@ -128,7 +128,7 @@ mod tests {
         // A spike is confirmed by the next reading: it counts on that reading.
         let out = Outcome {
             readings: vec![reading(Flags::empty())],
-            flag_updates: vec![crate::store::FlagUpdate {
+            flag_updates: vec![crate::model::FlagUpdate {
                 instrument: "P1".into(),
                 t_ms: 0,
                 flags: Flags::SPIKE,

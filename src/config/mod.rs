@@ -14,6 +14,7 @@ pub mod model;
 mod objects;
 mod problem;
 mod reader;
+pub mod reloads;
 mod renamed;
 mod reports;
 pub mod rules;

@@ -220,26 +220,7 @@ pub struct Location {
     pub offset_m: Option<f64>,
 }
 
-/// A pressure unit accepted in configuration and payloads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum PressureUnit {
-    Kpa,
-    Psi,
-    Bar,
-    Mpa,
-    Hpa,
-    /// Metres of water column (converted with the site's γw).
-    MWater,
-    /// Feet of water column (converted with the site's γw).
-    FtWater,
-}
-
-/// A length unit accepted in configuration and payloads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum LengthUnit {
-    M,
-    Ft,
-}
+pub use crate::domain::units::{LengthUnit, PressureUnit};
 
 /// What a vibrating-wire logger channel reports.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -57,21 +57,6 @@ fn number(v: &Value) -> Option<f64> {
     }
 }
 
-/// Edit distance, for "did you mean" hints on misspelt keys.
-fn distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut cur = vec![i + 1];
-        for (j, cb) in b.iter().enumerate() {
-            let sub = prev[j] + usize::from(ca != *cb);
-            cur.push(sub.min(prev[j + 1] + 1).min(cur[j] + 1));
-        }
-        prev = cur;
-    }
-    prev[b.len()]
-}
-
 impl<'t> Tbl<'t> {
     /// Read `item` as a table; `None` (with a problem) if it is something else.
     pub fn new(
@@ -156,7 +141,7 @@ impl<'t> Tbl<'t> {
             }
             let close = allowed
                 .iter()
-                .map(|a| (distance(key, a), *a))
+                .map(|a| (strsim::levenshtein(key, a), *a))
                 .filter(|(d, _)| *d <= 2)
                 .min();
             let hint = match close {

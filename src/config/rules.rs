@@ -21,13 +21,8 @@ use super::smtp::plain_address;
 /// Top-level keys of a site file that this module reads.
 pub(crate) const KEYS: [&str; 3] = ["alerting", "contacts", "rule"];
 
-/// Quantities every reading has (see `replay::quantities`).
-pub const READING_QUANTITIES: [&str; 4] = [
-    "engineering_value",
-    "pressure",
-    "pressure_head",
-    "total_head",
-];
+/// Quantities every reading has (the data model's).
+pub use crate::model::READING_QUANTITIES;
 
 /// Derived quantities every instrument has (its own id is the object): data completeness and
 /// the count of sensor-health flags on the latest reading; rates are `rate_<window>`.

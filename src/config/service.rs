@@ -148,17 +148,46 @@ fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
     let database = t
         .nonempty(cx, "database")
         .map_or(d.database, |p| resolve(dir, &p));
+    // Defaults come from `default_service` alone.
     let s = Service {
         database,
-        commit_max_readings: t.int_in(cx, "commit_max_readings", 1, limits::COMMIT_READINGS, 500)
-            as usize,
-        commit_max_ms: t.int_in(cx, "commit_max_ms", 0, limits::COMMIT_MS, 50) as u64,
-        max_payload_bytes: t.int_in(cx, "max_payload_bytes", 1, limits::MQTT_PACKET_BYTES, 65536)
-            as usize,
-        max_future_s: t.int_in(cx, "max_future_s", 0, limits::FUTURE_S, 600),
-        clock_skew_s: t.int_in(cx, "clock_skew_s", 0, limits::FUTURE_S, 60),
-        barometer_max_age_s: t.int_in(cx, "barometer_max_age_s", 0, limits::BAROMETER_AGE_S, 7200),
-        shutdown_deadline_s: t.int_in(cx, "shutdown_deadline_s", 1, limits::SHUTDOWN_S, 10) as u64,
+        commit_max_readings: t.int_in(
+            cx,
+            "commit_max_readings",
+            1,
+            limits::COMMIT_READINGS,
+            d.commit_max_readings as i64,
+        ) as usize,
+        commit_max_ms: t.int_in(
+            cx,
+            "commit_max_ms",
+            0,
+            limits::COMMIT_MS,
+            d.commit_max_ms as i64,
+        ) as u64,
+        max_payload_bytes: t.int_in(
+            cx,
+            "max_payload_bytes",
+            1,
+            limits::MQTT_PACKET_BYTES,
+            d.max_payload_bytes as i64,
+        ) as usize,
+        max_future_s: t.int_in(cx, "max_future_s", 0, limits::FUTURE_S, d.max_future_s),
+        clock_skew_s: t.int_in(cx, "clock_skew_s", 0, limits::FUTURE_S, d.clock_skew_s),
+        barometer_max_age_s: t.int_in(
+            cx,
+            "barometer_max_age_s",
+            0,
+            limits::BAROMETER_AGE_S,
+            d.barometer_max_age_s,
+        ),
+        shutdown_deadline_s: t.int_in(
+            cx,
+            "shutdown_deadline_s",
+            1,
+            limits::SHUTDOWN_S,
+            d.shutdown_deadline_s as i64,
+        ) as u64,
     };
     if s.clock_skew_s > s.max_future_s && t.has("clock_skew_s") {
         t.problem_at(
@@ -208,22 +237,34 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
     });
     let m = Mqtt {
         host: t.nonempty(cx, "host").unwrap_or(d.host),
-        port: t.int_in(cx, "port", 1, 65535, 1883) as u16,
+        port: t.int_in(cx, "port", 1, 65535, i64::from(d.port)) as u16,
         client_id: t.nonempty(cx, "client_id").unwrap_or(d.client_id),
         username,
         password,
         tls,
-        persistent_session: t.boolean(cx, "persistent_session", true),
-        keep_alive_s: t.int_in(cx, "keep_alive_s", 0, 65535, 30) as u64,
+        persistent_session: t.boolean(cx, "persistent_session", d.persistent_session),
+        keep_alive_s: t.int_in(cx, "keep_alive_s", 0, 65535, d.keep_alive_s as i64) as u64,
         max_packet_bytes: t.int_in(
             cx,
             "max_packet_bytes",
             1,
             limits::MQTT_PACKET_BYTES,
-            1_048_576,
+            d.max_packet_bytes as i64,
         ) as usize,
-        reconnect_min_ms: t.int_in(cx, "reconnect_min_ms", 0, backoff, 500) as u64,
-        reconnect_max_ms: t.int_in(cx, "reconnect_max_ms", 0, backoff, 30_000) as u64,
+        reconnect_min_ms: t.int_in(
+            cx,
+            "reconnect_min_ms",
+            0,
+            backoff,
+            d.reconnect_min_ms as i64,
+        ) as u64,
+        reconnect_max_ms: t.int_in(
+            cx,
+            "reconnect_max_ms",
+            0,
+            backoff,
+            d.reconnect_max_ms as i64,
+        ) as u64,
     };
     if m.reconnect_min_ms > m.reconnect_max_ms {
         t.problem_at(

@@ -7,7 +7,7 @@
 
 use std::path::Path;
 
-use chrono::{DateTime, NaiveDate, Utc};
+use chrono::{DateTime, Utc};
 
 use crate::domain::units::GAMMA_W_62_4_PCF_KN_M3;
 
@@ -194,12 +194,7 @@ const COMMON_KEYS: [&str; 12] = [
 
 /// Parse `installed`: an RFC 3339 date (midnight UTC) or date-time.
 pub(crate) fn parse_installed(s: &str) -> Option<DateTime<Utc>> {
-    if let Ok(d) = NaiveDate::parse_from_str(s, "%Y-%m-%d") {
-        return d.and_hms_opt(0, 0, 0).map(|t| t.and_utc());
-    }
-    DateTime::parse_from_rfc3339(s)
-        .ok()
-        .map(|t| t.with_timezone(&Utc))
+    crate::timetext::instant(s).ok()
 }
 
 fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> Entry {

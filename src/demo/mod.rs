@@ -5,7 +5,6 @@
 mod broker;
 pub mod sim;
 
-use std::future::Future;
 use std::io::Write;
 use std::sync::Arc;
 use std::time::Duration;
@@ -13,21 +12,21 @@ use std::time::Duration;
 use anyhow::Context as _;
 use chrono::{TimeZone, Utc};
 use rumqttc::{AsyncClient, MqttOptions, QoS};
-use tokio::sync::watch;
 
 use crate::ingest::progress::Counters;
+use crate::shutdown::Shutdown;
 use crate::store::Store;
 
 pub use crate::scenario::{example_config, EXAMPLE_CONFIG};
 
-/// Run the demo until `shutdown` resolves (or after `days` simulated days).
+/// Run the demo until `shutdown` is requested (or after `days` simulated days).
 ///
 /// # Errors
 /// Broker start-up or database errors.
 pub async fn run(
     seconds_per_day: f64,
     days: Option<u32>,
-    shutdown: impl Future<Output = ()>,
+    shutdown: Shutdown,
 ) -> anyhow::Result<()> {
     let dir = tempfile_dir()?;
     let mut cfg = example_config(&dir)?;
@@ -42,19 +41,12 @@ pub async fn run(
     );
     println!("Invented site, invented data. Press Ctrl-C to stop.\n");
 
-    let (stop_tx, stop_rx) = watch::channel(false);
     let counters = Arc::new(Counters::default());
-    let service = {
-        let cfg = Arc::clone(&cfg);
-        let counters = Arc::clone(&counters);
-        let mut rx = stop_rx.clone();
-        tokio::spawn(async move {
-            crate::service::run(cfg, counters, async move {
-                let _ = rx.wait_for(|s| *s).await;
-            })
-            .await
-        })
-    };
+    let service = tokio::spawn(crate::service::run(
+        Arc::clone(&cfg),
+        Arc::clone(&counters),
+        shutdown.clone(),
+    ));
 
     let total_days = days.unwrap_or(sim::SCENARIO_DAYS);
     let start = Utc::now() - chrono::Duration::days(i64::from(sim::SCENARIO_DAYS));
@@ -69,37 +61,33 @@ pub async fn run(
         start,
         seconds_per_day,
         total_days,
-        stop_rx.clone(),
+        shutdown.clone(),
     ));
 
     let db = cfg.service.database.clone();
     let summary = {
-        let mut rx = stop_rx.clone();
+        let stop = shutdown.clone();
         let counters = Arc::clone(&counters);
         tokio::spawn(async move {
-            loop {
-                tokio::select! {
-                    _ = tokio::time::sleep(Duration::from_secs(3)) => print_summary(&db, &counters),
-                    _ = rx.wait_for(|s| *s) => break,
-                }
+            while !stop.sleep(Duration::from_secs(3)).await {
+                print_summary(&db, &counters);
             }
         })
     };
 
-    tokio::pin!(shutdown);
     tokio::select! {
-        _ = &mut shutdown => println!("\nStopping..."),
+        () = shutdown.wait() => println!("\nStopping..."),
         r = loggers => {
             if let Ok(Err(e)) = r { eprintln!("simulated loggers: {e:#}"); }
             if days.is_some() {
                 tokio::time::sleep(Duration::from_secs(2)).await;
             } else {
                 println!("\nScenario finished; the service keeps running. Press Ctrl-C to stop.");
-                shutdown.await;
+                shutdown.wait().await;
             }
         }
     }
-    let _ = stop_tx.send(true);
+    shutdown.request();
     let _ = summary.await;
     match service.await {
         Ok(r) => r?,
@@ -126,7 +114,7 @@ async fn publish_loop(
     start: chrono::DateTime<Utc>,
     seconds_per_day: f64,
     days: u32,
-    mut stop: watch::Receiver<bool>,
+    stop: Shutdown,
 ) -> anyhow::Result<()> {
     let mut o = MqttOptions::new(
         format!("demo-loggers-{}", std::process::id()),
@@ -152,7 +140,7 @@ async fn publish_loop(
         }
         tokio::select! {
             _ = tokio::time::sleep(per_hour) => {}
-            _ = stop.wait_for(|s| *s) => return Ok(()),
+            () = stop.wait() => return Ok(()),
         }
     }
     Ok(())
@@ -215,18 +203,7 @@ fn print_summary(db: &std::path::Path, counters: &Counters) {
             }
         }
     }
-    let active: Vec<(String, String, String)> = store
-        .conn()
-        .prepare("SELECT rule, level, object FROM alerts WHERE resolved_ms IS NULL ORDER BY id")
-        .and_then(|mut st| {
-            st.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?
-                .collect::<Result<Vec<_>, _>>()
-        })
-        .unwrap_or_default();
-    let raised: i64 = store
-        .conn()
-        .query_row("SELECT count(*) FROM alerts", [], |r| r.get(0))
-        .unwrap_or(0);
+    let (raised, active) = store.alert_summary().unwrap_or_default();
     s.push_str(&format!(
         "  alerts: {raised} raised so far, {} active",
         active.len()

@@ -14,8 +14,8 @@ use std::collections::HashMap;
 use std::sync::Arc;
 
 use crate::config::{Config, Level};
+use crate::model::{DerivedRow, ReadingRow};
 use crate::quality::Flags;
-use crate::store::{DerivedRow, ReadingRow};
 
 pub use objects::{blanket_ratio, section_input};
 

@@ -8,7 +8,6 @@ pub mod gradient;
 pub mod health;
 pub mod hst;
 pub mod lsq;
-pub mod reduce;
 pub mod response;
 pub mod rules;
 pub mod section;

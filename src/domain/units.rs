@@ -1,6 +1,25 @@
 //! Unit conversions to and from SI (kPa, m). Exact definitions only.
 
-use crate::config::{LengthUnit, PressureUnit};
+/// A pressure unit accepted in configuration and payloads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PressureUnit {
+    Kpa,
+    Psi,
+    Bar,
+    Mpa,
+    Hpa,
+    /// Metres of water column (converted with the site's γw).
+    MWater,
+    /// Feet of water column (converted with the site's γw).
+    FtWater,
+}
+
+/// A length unit accepted in configuration and payloads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LengthUnit {
+    M,
+    Ft,
+}
 
 /// 1 psi in kPa (exact: 0.45359237 kg·9.80665 m/s² / (0.0254 m)²).
 pub const KPA_PER_PSI: f64 = 6.894_757_293_168;

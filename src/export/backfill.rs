@@ -8,11 +8,11 @@
 //! times, then it gives up and says how far it got; running it again is harmless.
 
 use anyhow::bail;
-use tokio::sync::watch;
 
 use super::line::{self, ObjectTags};
-use super::{deliver, reject_row, Backoff, Encoded, Sink};
+use super::{deliver, reject_row, Encoded, Sink};
 use crate::config::{Config, Export};
+use crate::shutdown::Shutdown;
 use crate::store::export::{ExportQueue, ExportRow, Queued, Series};
 
 /// Consecutive failed attempts after which the backfill gives up.
@@ -29,7 +29,7 @@ pub struct Totals {
     pub rejected: usize,
 }
 
-/// Send every selected row with `from_ms <= t_ms < to_ms`.
+/// Send every selected row with `from_ms <= t_ms < to_ms`, until `stop` is requested.
 ///
 /// # Errors
 /// Database errors, or the server failing `MAX_ATTEMPTS` times in a row.
@@ -39,16 +39,16 @@ pub async fn run<S: Sink>(
     sink: &S,
     from_ms: i64,
     to_ms: i64,
+    stop: &Shutdown,
 ) -> anyhow::Result<Totals> {
     let mut q = ExportQueue::open(&cfg.service.database)?;
     let objects = ObjectTags::from_config(cfg);
     let mut totals = Totals::default();
-    let (_keep, mut stop) = watch::channel(false);
     let mut w = Walk {
         sink,
         e,
         objects: &objects,
-        stop: &mut stop,
+        stop,
         totals: &mut totals,
     };
     if e.readings {
@@ -94,7 +94,7 @@ struct Walk<'a, S> {
     sink: &'a S,
     e: &'a Export,
     objects: &'a ObjectTags,
-    stop: &'a mut watch::Receiver<bool>,
+    stop: &'a Shutdown,
     totals: &'a mut Totals,
 }
 
@@ -112,16 +112,10 @@ impl<S: Sink> Walk<'_, S> {
                 e
             })
             .collect();
-        let mut backoff = Backoff::new(self.e);
+        let mut backoff = super::backoff(self.e);
         let mut start = 0;
         while start < encoded.len() {
-            let out = deliver(
-                self.sink,
-                &encoded[start..],
-                self.e.batch_size,
-                &mut *self.stop,
-            )
-            .await;
+            let out = deliver(self.sink, &encoded[start..], self.e.batch_size, self.stop).await;
             let rejects: Vec<_> = out
                 .rejected
                 .iter()

@@ -147,11 +147,16 @@ pub fn encode(row: &ExportRow, objects: &ObjectTags, out: &mut String) -> usize 
 }
 
 fn encode_reading(r: &ReadingPoint, out: &mut String) -> usize {
+    use crate::model::ReadingQuantity as Q;
     let quantities = [
-        ("engineering_value", Some(r.eng_value), r.eng_unit.as_str()),
-        ("pressure", r.pressure_kpa, "kPa"),
-        ("pressure_head", r.pressure_head_m, "m"),
-        ("total_head", r.total_head_m, "m"),
+        (
+            Q::EngineeringValue.name(),
+            Some(r.eng_value),
+            r.eng_unit.as_str(),
+        ),
+        (Q::Pressure.name(), r.pressure_kpa, "kPa"),
+        (Q::PressureHead.name(), r.pressure_head_m, "m"),
+        (Q::TotalHead.name(), r.total_head_m, "m"),
     ];
     let mut n = 0;
     for (quantity, value, unit) in quantities {

@@ -23,9 +23,10 @@ use std::future::Future;
 use std::time::{Duration, Instant};
 
 use anyhow::Context as _;
-use tokio::sync::watch;
 
+use crate::backoff::Backoff;
 use crate::config::{Config, Export};
+use crate::shutdown::Shutdown;
 use crate::store::export::{Backlog, ExportQueue, Queued, RejectRow};
 use line::ObjectTags;
 
@@ -69,11 +70,6 @@ pub struct Outcome {
     pub stopped: bool,
 }
 
-/// Resolves once `stop` says true (or its sender has gone).
-pub async fn stopped(stop: &mut watch::Receiver<bool>) {
-    let _ = stop.wait_for(|s| *s).await;
-}
-
 /// Split `items` into requests of at most `max_points` points (at least one entry each).
 fn chunks(items: &[Encoded], max_points: usize) -> VecDeque<(usize, usize)> {
     let mut out = VecDeque::new();
@@ -97,7 +93,7 @@ pub async fn deliver<S: Sink>(
     sink: &S,
     items: &[Encoded],
     max_points: usize,
-    stop: &mut watch::Receiver<bool>,
+    stop: &Shutdown,
 ) -> Outcome {
     let mut ranges = chunks(items, max_points);
     let mut out = Outcome::default();
@@ -111,7 +107,7 @@ pub async fn deliver<S: Sink>(
         let body: String = part.iter().map(|e| e.lines.as_str()).collect();
         let answer = tokio::select! {
             a = sink.write(body) => a,
-            _ = stopped(stop) => {
+            () = stop.wait() => {
                 out.stopped = true;
                 return out;
             }
@@ -139,38 +135,12 @@ pub async fn deliver<S: Sink>(
     out
 }
 
-/// Capped exponential backoff.
-#[derive(Debug)]
-pub struct Backoff {
-    min: Duration,
-    max: Duration,
-    /// Failures in a row.
-    pub failures: u32,
-}
-
-impl Backoff {
-    pub fn new(e: &Export) -> Backoff {
-        Backoff {
-            min: Duration::from_millis(e.retry_min_ms),
-            max: Duration::from_millis(e.retry_max_ms.max(e.retry_min_ms)),
-            failures: 0,
-        }
-    }
-
-    /// Count a failure and return how long to wait before the next try.
-    pub fn fail(&mut self) -> Duration {
-        self.failures = self.failures.saturating_add(1);
-        let factor = 1u32 << (self.failures - 1).min(16);
-        (self.min * factor).min(self.max)
-    }
-}
-
-/// Sleep for `d` unless shutdown comes first; true if it did.
-async fn pause(d: Duration, stop: &mut watch::Receiver<bool>) -> bool {
-    tokio::select! {
-        _ = tokio::time::sleep(d) => false,
-        _ = stopped(stop) => true,
-    }
+/// The export's retry schedule (`retry_min_ms` doubling up to `retry_max_ms`).
+pub fn backoff(e: &Export) -> Backoff {
+    Backoff::new(
+        Duration::from_millis(e.retry_min_ms),
+        Duration::from_millis(e.retry_max_ms),
+    )
 }
 
 /// The live worker's database handle, used on the blocking pool.
@@ -212,7 +182,7 @@ pub async fn run_with<S: Sink>(
     cfg: &Config,
     e: &Export,
     sink: S,
-    mut stop: watch::Receiver<bool>,
+    stop: Shutdown,
 ) -> anyhow::Result<()> {
     let queue = ExportQueue::open(&cfg.service.database)
         .with_context(|| format!("opening {} for export", cfg.service.database.display()))?;
@@ -220,11 +190,11 @@ pub async fn run_with<S: Sink>(
     let objects = ObjectTags::from_config(cfg);
     let batch = e.batch_size.max(1);
     let flush = Duration::from_millis(e.flush_interval_ms);
-    let mut backoff = Backoff::new(e);
+    let mut backoff = backoff(e);
     let mut logged: Option<Instant> = None;
     tracing::info!(url = %e.url, bucket = %e.bucket, "Export started");
     loop {
-        if *stop.borrow() {
+        if stop.is_requested() {
             break;
         }
         if logged.is_none_or(|t| t.elapsed() >= LOG_EVERY) {
@@ -237,21 +207,21 @@ pub async fn run_with<S: Sink>(
             Ok(p) => p,
             Err(err) => {
                 tracing::error!(error = %format!("{err:#}"), "Cannot read the export queue; retrying");
-                if pause(backoff.fail(), &mut stop).await {
+                if stop.sleep(backoff.fail()).await {
                     break;
                 }
                 continue;
             }
         };
         if page.is_empty() {
-            if pause(flush, &mut stop).await {
+            if stop.sleep(flush).await {
                 break;
             }
             continue;
         }
         let full = page.len() == batch;
         let encoded: Vec<Encoded> = page.iter().map(|q| encode(q, &objects)).collect();
-        let out = deliver(&sink, &encoded, batch, &mut stop).await;
+        let out = deliver(&sink, &encoded, batch, &stop).await;
         if out.done > 0 {
             record(&mut db, &page, &encoded, &out).await;
         }
@@ -263,7 +233,7 @@ pub async fn run_with<S: Sink>(
             if backoff.failures.is_power_of_two() {
                 tracing::warn!(error = %err, attempts = backoff.failures, retry_ms = wait.as_millis() as u64, "Export write failed; retrying (nothing lost: the queue keeps the points)");
             }
-            if pause(wait, &mut stop).await {
+            if stop.sleep(wait).await {
                 break;
             }
             continue;
@@ -275,7 +245,7 @@ pub async fn run_with<S: Sink>(
             );
             backoff.failures = 0;
         }
-        if !full && pause(flush, &mut stop).await {
+        if !full && stop.sleep(flush).await {
             break;
         }
     }
@@ -332,7 +302,7 @@ pub fn reject_row(q: &Queued, e: &Encoded, status: u16, reply: &str) -> RejectRo
 /// # Errors
 /// The client cannot be built (CA file) or the database cannot be opened.
 #[cfg(feature = "influx")]
-pub async fn run(cfg: std::sync::Arc<Config>, stop: watch::Receiver<bool>) -> anyhow::Result<()> {
+pub async fn run(cfg: std::sync::Arc<Config>, stop: Shutdown) -> anyhow::Result<()> {
     let Some(e) = cfg.export.clone().filter(|e| e.enabled) else {
         return Ok(());
     };

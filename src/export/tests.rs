@@ -61,9 +61,9 @@ fn chunks_respect_the_point_limit_and_keep_order() {
 #[tokio::test]
 async fn a_refused_point_is_isolated_and_the_rest_go_through() {
     let sink = rule("v=5 ", false);
-    let (_tx, mut stop) = watch::channel(false);
+    let stop = crate::shutdown::Shutdown::new(Duration::ZERO);
     let all = items(16);
-    let out = deliver(&sink, &all, 100, &mut stop).await;
+    let out = deliver(&sink, &all, 100, &stop).await;
     assert_eq!(out.done, 16);
     assert_eq!(out.error, None);
     assert_eq!(out.points, 30);
@@ -79,8 +79,8 @@ async fn a_refused_point_is_isolated_and_the_rest_go_through() {
 #[tokio::test]
 async fn a_failure_stops_delivery_without_advancing() {
     let sink = rule("never", true);
-    let (_tx, mut stop) = watch::channel(false);
-    let out = deliver(&sink, &items(3), 100, &mut stop).await;
+    let stop = crate::shutdown::Shutdown::new(Duration::ZERO);
+    let out = deliver(&sink, &items(3), 100, &stop).await;
     assert_eq!(out.done, 0);
     assert_eq!(out.points, 0);
     assert!(out.error.is_some());
@@ -89,14 +89,8 @@ async fn a_failure_stops_delivery_without_advancing() {
 #[tokio::test]
 async fn empty_entries_are_done_without_a_request() {
     let sink = rule("never", true);
-    let (_tx, mut stop) = watch::channel(false);
-    let out = deliver(
-        &sink,
-        &[Encoded::default(), Encoded::default()],
-        10,
-        &mut stop,
-    )
-    .await;
+    let stop = crate::shutdown::Shutdown::new(Duration::ZERO);
+    let out = deliver(&sink, &[Encoded::default(), Encoded::default()], 10, &stop).await;
     assert_eq!((out.done, out.error), (2, None));
     assert_eq!(*sink.requests.lock().unwrap(), 0);
 }
@@ -118,7 +112,7 @@ fn backoff_doubles_up_to_its_cap() {
         retry_max_ms: 500,
         timeout_ms: 1,
     };
-    let mut b = Backoff::new(&e);
+    let mut b = super::backoff(&e);
     let waits: Vec<u64> = (0..5).map(|_| b.fail().as_millis() as u64).collect();
     assert_eq!(waits, [100, 200, 400, 500, 500]);
 }

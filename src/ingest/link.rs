@@ -51,8 +51,7 @@ pub fn describe(e: &rumqttc::ConnectionError) -> String {
 /// Connection bookkeeping of the network task: state changes, logging and backoff.
 pub struct Link {
     shared: SharedLink,
-    min: Duration,
-    max: Duration,
+    backoff: crate::backoff::Backoff,
     /// When the last summary line was written during an outage.
     last_summary: Option<tokio::time::Instant>,
     /// ConnAcks seen since start (the first is a connection, the rest reconnections).
@@ -76,11 +75,12 @@ impl LinkState {
 impl Link {
     /// Bookkeeping for the broker of `m`, publishing its state in `shared`.
     pub fn new(m: &Mqtt, shared: SharedLink) -> Link {
-        let min = Duration::from_millis(m.reconnect_min_ms.max(1));
         Link {
             shared,
-            min,
-            max: Duration::from_millis(m.reconnect_max_ms).max(min),
+            backoff: crate::backoff::Backoff::new(
+                Duration::from_millis(m.reconnect_min_ms.max(1)),
+                Duration::from_millis(m.reconnect_max_ms),
+            ),
             last_summary: None,
             connects: 0,
         }
@@ -159,8 +159,7 @@ impl Link {
             tracing::warn!(broker = %after.broker, error = %what, attempts = after.attempts, down_s, "Broker still unreachable; retrying");
             self.last_summary = Some(at);
         }
-        let exp = after.attempts.min(16).saturating_sub(1);
-        (self.min * (1u32 << exp)).min(self.max)
+        self.backoff.delay(after.attempts)
     }
 }
 

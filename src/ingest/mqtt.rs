@@ -9,7 +9,6 @@
 //! broker only after everything it produced is committed, in arrival order, on the connection it
 //! came on. Redeliveries are harmless: inserts are idempotent.
 
-use std::future::Future;
 use std::sync::atomic::Ordering;
 use std::sync::Arc;
 use std::time::Duration;
@@ -25,6 +24,7 @@ use crate::engine::Engine;
 use crate::ingest::link::{Link, SharedLink};
 use crate::ingest::progress::Counters;
 use crate::ingest::writer::{Arrived, Flow, Writer, QOS0_DROP_AT};
+use crate::shutdown::Shutdown;
 use crate::store::Store;
 
 /// Requests (acks, subscribes) waiting for the event loop; the writer never blocks on it.
@@ -74,7 +74,7 @@ pub fn mqtt_options(m: &Mqtt) -> anyhow::Result<MqttOptions> {
 #[error("shutdown deadline of {0} s passed before ingestion stopped; unacknowledged messages will be redelivered")]
 pub struct DeadlinePassed(pub u64);
 
-/// Run live ingestion until `shutdown` resolves, then stop taking messages, commit what was
+/// Run live ingestion until `shutdown` is requested, then stop taking messages, commit what was
 /// taken, acknowledge it, disconnect, and return — all within the shutdown deadline.
 ///
 /// `link_state` receives the broker link state as it changes (for status and health).
@@ -88,7 +88,7 @@ pub async fn run(
     alerts: Live,
     counters: Arc<Counters>,
     link_state: SharedLink,
-    shutdown: impl Future<Output = ()>,
+    shutdown: Shutdown,
 ) -> anyhow::Result<()> {
     let options = mqtt_options(&cfg.mqtt)?;
     let (client, mut eventloop) = AsyncClient::new(options, REQUEST_QUEUE);
@@ -106,6 +106,7 @@ pub async fn run(
             client: client.clone(),
             flow: Arc::clone(&flow),
             link: link.shared(),
+            shutdown: shutdown.clone(),
         };
         let rt = tokio::runtime::Handle::current();
         std::thread::Builder::new()
@@ -116,9 +117,8 @@ pub async fn run(
             })?
     };
 
-    tokio::pin!(shutdown);
     let mut tx = Some(tx);
-    let deadline_len = Duration::from_secs(cfg.service.shutdown_deadline_s);
+    let deadline_len = shutdown.deadline();
     let far = || tokio::time::Instant::now() + Duration::from_secs(86_400);
     let mut deadline: Option<tokio::time::Instant> = None;
     let mut retry_at: Option<tokio::time::Instant> = None;
@@ -127,11 +127,10 @@ pub async fn run(
         let stopping = deadline.is_some();
         tokio::select! {
             biased;
-            _ = &mut shutdown, if !stopping => {
+            () = shutdown.wait(), if !stopping => {
                 tracing::info!("Shutdown requested: no new messages; committing and acknowledging what was taken");
-                flow.stop.store(true, Ordering::Release);
                 tx = None; // wakes the writer; what it has not taken stays unacknowledged
-                deadline = Some(tokio::time::Instant::now() + deadline_len);
+                deadline = Some(tokio::time::Instant::from_std(shutdown.end()));
             }
             _ = &mut done_rx => break,
             _ = tokio::time::sleep_until(deadline.unwrap_or_else(far)), if stopping => {

@@ -23,6 +23,7 @@ use crate::config::Config;
 use crate::engine::{Engine, Message, Outcome};
 use crate::ingest::link::SharedLink;
 use crate::ingest::progress::{Counters, QuarantineLog};
+use crate::shutdown::Shutdown;
 use crate::store::Store;
 
 /// Messages waiting for the writer at which acknowledgements are held back.
@@ -50,8 +51,6 @@ pub struct Flow {
     pub generation: AtomicU64,
     /// The link is up (a ConnAck arrived and no error since).
     pub connected: AtomicBool,
-    /// Shutdown: finish the current batch, acknowledge it, and stop.
-    pub stop: AtomicBool,
     /// QoS 0 messages dropped because too many were waiting.
     pub dropped_qos0: AtomicU64,
 }
@@ -140,6 +139,8 @@ pub struct Writer {
     pub client: AsyncClient,
     pub flow: Arc<Flow>,
     pub link: SharedLink,
+    /// The service's shutdown: finish the current batch, acknowledge it, and stop.
+    pub shutdown: Shutdown,
 }
 
 impl Writer {
@@ -152,7 +153,7 @@ impl Writer {
         let mut acks = Acks::default();
         let mut recorded_link = None;
         loop {
-            if self.flow.stop.load(Ordering::Acquire) {
+            if self.shutdown.is_requested() {
                 break;
             }
             // A configuration reloaded by SIGHUP is swapped in between batches.
@@ -208,7 +209,7 @@ impl Writer {
     /// Process one batch and commit it, retrying the commit until it succeeds (nothing is
     /// acknowledged meanwhile). False when shutdown came first and nothing was committed.
     fn commit(&mut self, batch: &[Arrived], qlog: &mut QuarantineLog) -> bool {
-        crate::alerts::live::pause_point("writer_batch");
+        crate::testpoint::pause_point("writer_batch");
         let mut out = Outcome::default();
         for a in batch {
             let msg = Message {
@@ -227,7 +228,7 @@ impl Writer {
             flag_updates,
         } = out;
         self.alerts.before_commit(&aw);
-        let mut wait = Duration::from_millis(100);
+        let mut backoff = crate::backoff::Backoff::commit();
         let stats = loop {
             match self.store.write_batch_flagged(
                 &readings,
@@ -239,12 +240,10 @@ impl Writer {
                 Ok(s) => break s,
                 Err(e) => {
                     tracing::error!(error = %e, messages = batch.len(), "Commit failed; retrying (nothing acknowledged)");
-                    if self.flow.stop.load(Ordering::Acquire) {
+                    if self.shutdown.sleep_blocking(backoff.fail()) {
                         // Nothing of this batch is acknowledged; the broker redelivers it.
                         return false;
                     }
-                    std::thread::sleep(wait);
-                    wait = (wait * 2).min(Duration::from_secs(5));
                 }
             }
         };
@@ -258,7 +257,7 @@ impl Writer {
 
     /// Between batches: the rules' timers, and the link state for `seepd status` when it changed.
     fn idle(&mut self, recorded: &mut Option<crate::ingest::link::LinkState>) {
-        self.alerts.tick(&mut self.store);
+        self.alerts.tick(&mut self.store, &self.shutdown);
         let now = match self.link.lock() {
             Ok(g) => g.clone(),
             Err(p) => p.into_inner().clone(),

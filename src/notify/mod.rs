@@ -20,6 +20,7 @@ use chrono::Utc;
 pub use crate::background::Waker;
 use crate::background::{Background, Signals};
 use crate::config::Smtp;
+use crate::shutdown::Shutdown;
 use crate::store::Store;
 
 pub use smtp::{Delivery, Mailer, SendError};
@@ -45,10 +46,12 @@ pub struct Pass {
 
 /// Backoff before attempt `attempts + 1`: min · 2^(attempts − 1), capped at max (seconds).
 pub fn backoff_s(smtp: &Smtp, attempts: i64) -> u64 {
-    let exp = (attempts.max(1) - 1).min(20) as u32;
-    smtp.retry_min_s
-        .saturating_mul(1 << exp)
-        .min(smtp.retry_max_s)
+    crate::backoff::Backoff::new(
+        Duration::from_secs(smtp.retry_min_s),
+        Duration::from_secs(smtp.retry_max_s),
+    )
+    .delay(u32::try_from(attempts.max(0)).unwrap_or(u32::MAX))
+    .as_secs()
 }
 
 /// Send every due message once. Stops early (returns) at the first connection failure, since
@@ -89,7 +92,7 @@ pub fn deliver_due(
             .map(|(r, _)| r.as_str())
             .collect();
         if !accepted.is_empty() {
-            crate::alerts::live::pause_point("after_send");
+            crate::testpoint::pause_point("after_send");
             tracing::info!(message_id = %m.message_id, to = %accepted.join(","), "Alert message accepted by the mail relay");
             pass.sent += 1;
         }
@@ -157,9 +160,12 @@ impl Worker {
     ///
     /// # Errors
     /// The thread cannot be spawned.
-    pub fn spawn(db: &Path, smtp: Smtp) -> std::io::Result<Worker> {
+    pub fn spawn(db: &Path, smtp: Smtp, shutdown: &Shutdown) -> std::io::Result<Worker> {
         let db = db.to_path_buf();
-        Background::spawn("seepd-mail", move |signals| run(&db, &smtp, signals)).map(Worker)
+        Background::spawn("seepd-mail", shutdown, move |signals| {
+            run(&db, &smtp, signals)
+        })
+        .map(Worker)
     }
 
     /// A handle for waking the worker from another thread.
@@ -167,10 +173,10 @@ impl Worker {
         self.0.waker()
     }
 
-    /// Ask the worker to stop and wait up to `deadline` for it (a send in progress is bounded by
+    /// Wait for the worker to stop, until the shutdown's end (a send in progress is bounded by
     /// the SMTP timeout; an interrupted send is retried at the next start).
     /// True when it stopped in time.
-    pub fn stop(self, deadline: Duration) -> bool {
-        self.0.stop(deadline)
+    pub fn join(self) -> bool {
+        self.0.join()
     }
 }

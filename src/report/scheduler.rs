@@ -20,6 +20,7 @@ use super::schedule::{last_due, next_due, period};
 use crate::background::{Background, Signals, Waker};
 use crate::config::{Config, ReportSchedule};
 use crate::domain::section_svg::xml_escape as esc;
+use crate::shutdown::Shutdown;
 use crate::store::{Attachment, ReportMessage, Store};
 
 /// The scheduler looks again at least this often (clock changes, failed attempts).
@@ -211,17 +212,21 @@ impl Scheduler {
     ///
     /// # Errors
     /// The thread cannot be spawned.
-    pub fn spawn(cfg: Arc<Config>, mail: Option<Waker>) -> std::io::Result<Scheduler> {
-        Background::spawn("seepd-reports", move |signals| {
+    pub fn spawn(
+        cfg: Arc<Config>,
+        mail: Option<Waker>,
+        shutdown: &Shutdown,
+    ) -> std::io::Result<Scheduler> {
+        Background::spawn("seepd-reports", shutdown, move |signals| {
             run(&cfg, mail.as_ref(), signals)
         })
         .map(Scheduler)
     }
 
-    /// Ask the scheduler to stop and wait up to `deadline` (a report being rendered is not
+    /// Wait for the scheduler to stop, until the shutdown's end (a report being rendered is not
     /// queued if it is abandoned; it is generated again at the next start).
     /// True when it stopped in time.
-    pub fn stop(self, deadline: Duration) -> bool {
-        self.0.stop(deadline)
+    pub fn join(self) -> bool {
+        self.0.join()
     }
 }

@@ -1,6 +1,6 @@
 //! Raw logger values for a scenario: the value an instrument must send for the engine to reduce
 //! it to a given head (or pressure), found by bisection on the real reduction
-//! (`domain::reduce`) over the instrument's physical range and rounded to what a logger sends.
+//! (`reduce`) over the instrument's physical range and rounded to what a logger sends.
 //! So a scenario fits any calibration in the configuration, and a change to the reduction cannot
 //! make the scenario and the engine disagree silently.
 
@@ -10,7 +10,7 @@ use chrono::{SecondsFormat, TimeZone, Utc};
 
 use super::{Driver, Scenario};
 use crate::config::{Config, Instrument, Kind};
-use crate::domain::reduce::{reduce, Context};
+use crate::reduce::{reduce, Context};
 
 /// One reading as a logger sends it.
 #[derive(Debug, Clone, PartialEq)]

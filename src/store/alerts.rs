@@ -440,13 +440,7 @@ impl Store {
         quantity: &str,
         n: usize,
     ) -> Result<Vec<(i64, f64)>, StoreError> {
-        let column = match quantity {
-            "engineering_value" => Some("eng_value"),
-            "pressure" => Some("pressure_kpa"),
-            "pressure_head" => Some("pressure_head_m"),
-            "total_head" => Some("total_head_m"),
-            _ => None,
-        };
+        let column = crate::model::ReadingQuantity::from_name(quantity).map(super::column_of);
         let is_instrument: bool = self
             .conn
             .query_row("SELECT 1 FROM instruments WHERE id = ?1", [object], |_| {

@@ -14,6 +14,7 @@ pub mod outbox;
 pub mod reports;
 mod schema;
 mod state;
+pub mod summary;
 
 use std::path::Path;
 
@@ -21,12 +22,14 @@ use chrono::{DateTime, Utc};
 use rusqlite::{params, Connection, OptionalExtension};
 
 use crate::config::Config;
-use crate::quality::{Flags, Reason};
+use crate::quality::Flags;
 
 pub use alerts::{AckRow, AlertRow, AlertWrites, EventRow, NoticeRow, OutboxRow, SilenceRow};
 pub use models::{InstrumentSpan, ModelRow, SeedReading};
 pub use reports::{Attachment, ReportMessage};
 pub use schema::SCHEMA_VERSION;
+// The row types are the data model's (`crate::model`); re-exported for the store's callers.
+pub use crate::model::{DerivedRow, FlagUpdate, QuarantineRow, ReadingRow};
 
 /// Errors from the store.
 #[derive(Debug, thiserror::Error)]
@@ -41,61 +44,15 @@ pub enum StoreError {
     },
 }
 
-/// Flags found for a reading after it was stored: a spike is confirmed by the reading after it.
-#[derive(Debug, Clone, PartialEq)]
-pub struct FlagUpdate {
-    pub instrument: String,
-    pub t_ms: i64,
-    /// Added to the reading's flags.
-    pub flags: Flags,
-}
-
-/// One reading ready to store: raw fields, reduced values and quality.
-#[derive(Debug, Clone, PartialEq)]
-pub struct ReadingRow {
-    pub instrument: String,
-    /// Reading time (logger time, or arrival time when `flags` has `TIME_FROM_ARRIVAL`).
-    pub t_ms: i64,
-    /// When the message reached seepd.
-    pub arrival_ms: i64,
-    pub raw: f64,
-    pub temperature_c: Option<f64>,
-    /// Barometric pressure used for the correction, if any.
-    pub baro_kpa: Option<f64>,
-    pub eng_value: f64,
-    pub eng_unit: &'static str,
-    pub pressure_kpa: Option<f64>,
-    pub pressure_head_m: Option<f64>,
-    pub total_head_m: Option<f64>,
-    pub flags: Flags,
-}
-
-/// One derived value: a quantity of an object (nest, toe check, reach, section...) at a
-/// time, computed from the readings named in `inputs`. `value` is `None` when it could not be
-/// computed; `reason` says why (missing, stale or flagged input; not applicable).
-#[derive(Debug, Clone, PartialEq)]
-pub struct DerivedRow {
-    pub object: String,
-    pub quantity: String,
-    pub t_ms: i64,
-    pub value: Option<f64>,
-    pub unit: &'static str,
-    pub reason: Option<String>,
-    /// Instrument ids the value came from.
-    pub inputs: Vec<String>,
-}
-
-/// One quarantined input.
-#[derive(Debug, Clone, PartialEq)]
-pub struct QuarantineRow {
-    pub received_ms: i64,
-    pub topic: String,
-    pub reason: Reason,
-    pub detail: String,
-    /// The payload as received (truncated for oversized payloads; `detail` says so).
-    pub payload: Vec<u8>,
-    /// The broker marked the message as a redelivery: skip if the same row is already stored.
-    pub redelivered: bool,
+/// The `readings` column that holds `q`.
+pub(crate) fn column_of(q: crate::model::ReadingQuantity) -> &'static str {
+    use crate::model::ReadingQuantity as Q;
+    match q {
+        Q::EngineeringValue => "eng_value",
+        Q::Pressure => "pressure_kpa",
+        Q::PressureHead => "pressure_head_m",
+        Q::TotalHead => "total_head_m",
+    }
 }
 
 /// What a committed batch did.

@@ -1,6 +1,7 @@
 //! Store tests against real SQLite files in a temp dir.
 
 use super::*;
+use crate::quality::Reason;
 
 fn row(instrument: &str, t_ms: i64, raw: f64) -> ReadingRow {
     ReadingRow {

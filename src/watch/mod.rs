@@ -25,8 +25,8 @@ use crate::domain::health::{
     self, FlatlineConfig, HealthConfig, HealthFlags, HealthTracker, SpikeConfig, ThermistorConfig,
 };
 use crate::domain::trend::{RateWindow, TrendError};
+use crate::model::{DerivedRow, ReadingRow};
 use crate::quality::Flags;
-use crate::store::{DerivedRow, ReadingRow};
 
 pub use models::{Fitted, LiveModel};
 use models::{ModelSlots, StageMemory};

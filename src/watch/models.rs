@@ -12,8 +12,9 @@ use serde_json::{json, Value};
 use crate::config::{Config, HstSpec, StageResponseSpec};
 use crate::domain::hst::{HstModel, MIN_RECORD_DAYS};
 use crate::domain::response::{StageResponse, StageSeries};
+use crate::model::{DerivedRow, ReadingRow};
 use crate::quality::Flags;
-use crate::store::{DerivedRow, ModelRow, ReadingRow};
+use crate::store::ModelRow;
 
 /// Gaps between stage readings up to this many gauge intervals are bridged by interpolation.
 pub const STAGE_GAP_INTERVALS: i64 = 2;

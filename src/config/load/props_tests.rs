@@ -7,7 +7,7 @@ use proptest::prelude::*;
 
 use super::*;
 use crate::config::limits;
-use crate::ingest::decode::props::cases;
+use crate::payload::decode::props::cases;
 
 const SERVICE: &str = "[[subscription]]\npattern = \"t/{logger}/json\"\nformat = \"json\"\n";
 
