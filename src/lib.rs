@@ -29,6 +29,7 @@ pub mod replay;
 pub mod scenario;
 pub mod section_cmd;
 pub mod section_svg;
+pub mod seepage;
 pub mod service;
 pub mod shutdown;
 pub mod status;
