@@ -6,40 +6,10 @@
 
 use crate::config::DisplayUnits;
 
-/// The label of a quantity id.
+/// The label of a quantity id (the presentation module's table: one wording for reports,
+/// emails and pages).
 pub fn quantity(q: &str) -> String {
-    let known = match q {
-        "engineering_value" => "Engineering value",
-        "pressure" => "Pore pressure",
-        "pressure_head" => "Pressure head",
-        "total_head" => "Total head",
-        "completeness_24h" => "Data completeness (24 h)",
-        "health_flags" => "Sensor health flags",
-        "vertical_gradient" => "Vertical gradient",
-        "flow_direction" => "Flow direction",
-        "excess_head" => "Excess head",
-        "head_above_ground" => "Head above ground",
-        "exit_gradient" => "Exit gradient",
-        "critical_gradient" => "Critical gradient",
-        "factor_of_safety" => "Factor of safety",
-        "allowable_head" => "Allowable head",
-        "exit_station" => "Exit point station",
-        "exit_elevation" => "Exit point elevation",
-        "seepage_face_height" => "Seepage-face height",
-        "min_cover" => "Least cover",
-        "min_cover_station" => "Least cover station",
-        "measured_excess_head" => "Measured excess head",
-        "measured_residual_ratio" => "Measured residual-head ratio",
-        "effective_x3" => "Effective landside length",
-        _ => "",
-    };
-    if !known.is_empty() {
-        return known.into();
-    }
-    if let Some(w) = q.strip_prefix("rate_") {
-        return format!("Rate of change over {w}");
-    }
-    sentence(q)
+    crate::present::labels::quantity_name(q, None)
 }
 
 /// The label of a reading flag name.
