@@ -108,7 +108,7 @@ fn summary(web: &Web, a: &super::db::Alert) -> String {
             format!(
                 "{} — {}",
                 escape(&a.object),
-                escape(&words::quantity(&a.quantity))
+                escape(&web.quantity_name(&a.object, &a.quantity))
             ),
         ],
         vec![

@@ -93,7 +93,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
             format!(
                 "{} — {} <span class=\"note\">(rule {})</span>",
                 object_link(&web, &a.object),
-                escape(&words::quantity(&a.quantity)),
+                escape(&web.quantity_name(&a.object, &a.quantity)),
                 escape(&a.rule)
             ),
         ],
@@ -172,11 +172,11 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         title: format!(
             "{} — {}, {PLOT_DAYS} days",
             a.object,
-            words::quantity(&a.quantity)
+            web.quantity_name(&a.object, &a.quantity)
         ),
         y_label: a.unit.clone(),
         series: vec![Series {
-            label: words::quantity(&a.quantity),
+            label: web.quantity_name(&a.object, &a.quantity),
             points,
         }],
         stage: None,

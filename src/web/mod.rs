@@ -207,6 +207,12 @@ impl Web {
             .map(|(_, s)| s.clone())
     }
 
+    /// A quantity of `object` in words (a stage gauge's total head is its water level).
+    pub fn quantity_name(&self, object: &str, quantity: &str) -> String {
+        let kind = self.cfg.instruments.get(object).map(|i| i.kind.name());
+        crate::present::labels::quantity_name(quantity, kind)
+    }
+
     /// Whether `level` is the most severe level of rule `rule`.
     pub fn top_level(&self, rule: &str, level: &str) -> bool {
         self.cfg

@@ -91,7 +91,7 @@ fn site_block(b: &mut String, web: &super::Web, site: &crate::config::Site, d: &
                      <span class=\"note\">({})</span><br>{acked}</li>",
                     html::level(&a.level, web.top_level(&a.rule, &a.level)),
                     escape(&a.object),
-                    escape(&words::quantity(&a.quantity)),
+                    escape(&web.quantity_name(&a.object, &a.quantity)),
                     escape(&words::value(a.value, &a.quantity, &a.unit, units)),
                     escape(&words::age(now_ms - a.raised_ms)),
                     escape(&html::time(a.raised_ms, tz)),
