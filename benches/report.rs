@@ -16,7 +16,7 @@ fn main() {
     std::fs::create_dir_all(&cfg_dir).unwrap();
     std::fs::write(
         cfg_dir.join("seepd.toml"),
-        "[service]\ndatabase = \"bench.sqlite\"\n",
+        "[service]\ndatabase = \"bench.sqlite\"\n\n[[subscription]]\npattern = \"bench/{instrument}/json\"\nformat = \"json\"\n",
     )
     .unwrap();
     let mut site = String::from("[site]\nid = \"big\"\nname = \"Bench site (invented)\"\n\n[[instrument]]\nid = \"RIVER\"\nkind = \"stage_gauge\"\ninstalled = \"2025-01-01\"\ninterval_s = 3600\nrange = [0.0, 200.0]\n[instrument.stage_gauge]\nwater_body = \"river\"\nmode = \"elevation\"\nunit = \"m\"\n");
@@ -63,10 +63,15 @@ fn main() {
     let files = seepd::report::generate(&cfg, &store, "big", start, to, Utc::now(), &out).unwrap();
     let secs = t.elapsed().as_secs_f64();
     let size = std::fs::metadata(&files.html).unwrap().len();
+    let pdf = files
+        .pdf
+        .as_ref()
+        .map_or(0, |p| std::fs::metadata(p).unwrap().len());
     println!(
-        "monthly report, {N} instruments x {hours} hourly readings ({} readings): {secs:.2} s, HTML {:.1} MB",
+        "monthly report, {N} instruments x {hours} hourly readings ({} readings): {secs:.2} s, HTML {:.1} MB, PDF {:.1} MB (0 without the pdf feature)",
         N * hours,
-        size as f64 / 1e6
+        size as f64 / 1e6,
+        pdf as f64 / 1e6
     );
 }
 
