@@ -27,6 +27,7 @@ pub mod reduce;
 pub mod reload;
 pub mod replay;
 pub mod scenario;
+pub mod sdnotify;
 pub mod section_cmd;
 pub mod section_svg;
 pub mod seepage;

@@ -109,6 +109,11 @@ pub async fn run(
             async move { stop.wait().await }
         },
     )?;
+    // Under systemd (Type=notify): started; and say so when stopping.
+    crate::sdnotify::notify("READY=1");
+    shutdown.on_request(|| {
+        crate::sdnotify::notify("STOPPING=1");
+    });
     let result = crate::ingest::mqtt::run(
         Arc::clone(&cfg),
         store,

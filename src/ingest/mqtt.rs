@@ -107,6 +107,7 @@ pub async fn run(
             flow: Arc::clone(&flow),
             link: link.shared(),
             shutdown: shutdown.clone(),
+            watchdog: crate::sdnotify::Watchdog::from_env(),
         };
         let rt = tokio::runtime::Handle::current();
         std::thread::Builder::new()

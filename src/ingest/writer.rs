@@ -141,6 +141,8 @@ pub struct Writer {
     pub link: SharedLink,
     /// The service's shutdown: finish the current batch, acknowledge it, and stop.
     pub shutdown: Shutdown,
+    /// systemd's watchdog, pinged from this loop (a writer that stops turning is restarted).
+    pub watchdog: crate::sdnotify::Watchdog,
 }
 
 impl Writer {
@@ -243,6 +245,8 @@ impl Writer {
                 Ok(s) => break s,
                 Err(e) => {
                     tracing::error!(error = %e, messages = batch.len(), "Commit failed; retrying (nothing acknowledged)");
+                    // Retrying is work, not a hang: keep systemd's watchdog fed.
+                    self.watchdog.ping();
                     if self.shutdown.sleep_blocking(backoff.fail()) {
                         // Nothing of this batch is acknowledged; the broker redelivers it.
                         return false;
@@ -260,6 +264,7 @@ impl Writer {
 
     /// Between batches: the rules' timers, and the link state for `seepd status` when it changed.
     fn idle(&mut self, recorded: &mut Option<crate::ingest::link::LinkState>) {
+        self.watchdog.ping();
         self.alerts.tick(&mut self.store, &self.shutdown);
         let now = match self.link.lock() {
             Ok(g) => g.clone(),
