@@ -162,6 +162,28 @@ pub enum Command {
         #[arg(long, value_name = "DIR")]
         out: PathBuf,
     },
+    /// Plot one quantity of one instrument or derived object over a period, as SVG.
+    Plot {
+        #[command(flatten)]
+        config: ConfigDir,
+        #[command(flatten)]
+        db: DbFile,
+        /// Instrument or derived-object id.
+        #[arg(long)]
+        id: String,
+        /// Quantity (default: an instrument's total head or water level).
+        #[arg(long)]
+        quantity: Option<String>,
+        /// Start (RFC 3339 or YYYY-MM-DD, UTC).
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        from: DateTime<Utc>,
+        /// End, exclusive (RFC 3339 or YYYY-MM-DD, UTC).
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        to: DateTime<Utc>,
+        /// Output file (default: standard output).
+        #[arg(long, value_name = "FILE")]
+        out: Option<PathBuf>,
+    },
     /// Show what the database holds: readings, quarantine counts, export backlog and lag.
     Status {
         #[command(flatten)]
@@ -356,6 +378,14 @@ fn operator(on: &Operator) -> anyhow::Result<(PathBuf, Option<Config>)> {
     Ok((db, cfg))
 }
 
+/// Write `text` to `out`, or to standard output.
+fn write_or_emit(out: Option<&Path>, text: &str) -> anyhow::Result<()> {
+    match out {
+        Some(p) => std::fs::write(p, text).with_context(|| format!("writing {}", p.display())),
+        None => emit(text),
+    }
+}
+
 /// Who runs the command ($USER, else "operator").
 fn who() -> String {
     std::env::var("USER")
@@ -412,12 +442,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
         } => {
             let cfg = load(&config)?;
             let svg = crate::section_cmd::render(&cfg, &db.open(&cfg)?, &id, at.unwrap_or(now))?;
-            match out {
-                Some(p) => {
-                    std::fs::write(&p, svg).with_context(|| format!("writing {}", p.display()))
-                }
-                None => emit(&svg),
-            }
+            write_or_emit(out.as_deref(), &svg)
         }
         Command::Report {
             config,
@@ -437,6 +462,20 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
                 list.push_str(&format!("{}\n", c.display()));
             }
             emit(&list)
+        }
+        Command::Plot {
+            config,
+            db,
+            id,
+            quantity,
+            from,
+            to,
+            out,
+        } => {
+            let cfg = load(&config)?;
+            let store = db.open(&cfg)?;
+            let svg = crate::plot_cmd::render(&cfg, &store, &id, quantity.as_deref(), from, to)?;
+            write_or_emit(out.as_deref(), &svg)
         }
         Command::Alerts { on } => {
             let (db, cfg) = operator(&on)?;

@@ -21,6 +21,7 @@ pub mod ingest;
 pub mod model;
 pub mod notify;
 pub mod payload;
+pub mod plot_cmd;
 pub mod present;
 pub mod quality;
 pub mod reduce;

@@ -267,3 +267,105 @@ fn demo_runs_its_embedded_broker_and_stops_cleanly() {
         .unwrap_or(0);
     assert!(stored > 100, "{out}");
 }
+
+/// `seepd plot`: one quantity of one instrument over a period, as a well-formed SVG with the
+/// quantity in words, the unit, and the rule levels on it; a derived object needs `--quantity`;
+/// an unknown id and an empty period are clear errors.
+#[test]
+fn plot_draws_one_quantity_with_its_rule_levels() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.ndjson");
+    // A river rising 0.25 m an hour for two days (invented).
+    let lines: String = (0..48)
+        .map(|h| {
+            format!(
+                "{{\"time\":{},\"instrument\":\"AB-RIVER\",\"value\":{:.2}}}\n",
+                1_772_323_200 + h * 3600,
+                3.0 + 0.25 * h as f64
+            )
+        })
+        .collect();
+    std::fs::write(&input, lines).unwrap();
+    let db = dir.path().join("replay.sqlite");
+    let db_s = db.display().to_string();
+    let (code, _, err) = seepd(&[
+        "replay",
+        "--config",
+        &example_dir(),
+        "--input",
+        &input.display().to_string(),
+        "--db",
+        &db_s,
+        "--output",
+        "/dev/null",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let out = dir.path().join("river.svg");
+    let (code, _, err) = seepd(&[
+        "plot",
+        "--config",
+        &example_dir(),
+        "--db",
+        &db_s,
+        "--id",
+        "AB-RIVER",
+        "--from",
+        "2026-03-01",
+        "--to",
+        "2026-03-03",
+        "--out",
+        &out.display().to_string(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let svg = std::fs::read_to_string(&out).unwrap();
+    seepd::xml_check::check_xml(&svg).unwrap();
+    assert!(svg.contains("AB-RIVER — Water level"), "{svg}");
+    // The example's river rule has levels; each is drawn and labelled with the rule id.
+    assert!(svg.contains("ash-bend-river-stage"), "{svg}");
+    assert!(svg.contains("<polyline") || svg.contains("<path"), "{svg}");
+    let (code, _, err) = seepd(&[
+        "plot",
+        "--config",
+        &example_dir(),
+        "--db",
+        &db_s,
+        "--id",
+        "AB-TOE-1",
+        "--from",
+        "2026-03-01",
+        "--to",
+        "2026-03-03",
+    ]);
+    assert_eq!(code, 1);
+    assert!(err.contains("--quantity"), "{err}");
+    let (code, _, err) = seepd(&[
+        "plot",
+        "--config",
+        &example_dir(),
+        "--db",
+        &db_s,
+        "--id",
+        "NO-SUCH",
+        "--from",
+        "2026-03-01",
+        "--to",
+        "2026-03-03",
+    ]);
+    assert_eq!(code, 1);
+    assert!(err.contains("NO-SUCH"), "{err}");
+    let (code, _, err) = seepd(&[
+        "plot",
+        "--config",
+        &example_dir(),
+        "--db",
+        &db_s,
+        "--id",
+        "AB-RIVER",
+        "--from",
+        "2025-01-01",
+        "--to",
+        "2025-01-02",
+    ]);
+    assert_eq!(code, 1);
+    assert!(err.contains("no stored values"), "{err}");
+}

@@ -51,6 +51,22 @@ impl Config {
     pub fn site_of(&self, instrument: &Instrument) -> Option<&Site> {
         self.sites.iter().find(|s| s.id == instrument.site)
     }
+
+    /// The site of an instrument or derived object, by id.
+    pub fn site_of_object(&self, id: &str) -> Option<&Site> {
+        let o = &self.objects;
+        let site = self.instruments.get(id).map(|i| &i.site).or_else(|| {
+            o.nests
+                .iter()
+                .map(|x| (&x.id, &x.site))
+                .chain(o.toes.iter().map(|x| (&x.id, &x.site)))
+                .chain(o.blankets.iter().map(|x| (&x.id, &x.site)))
+                .chain(o.sections.iter().map(|x| (&x.id, &x.site)))
+                .find(|(x, _)| *x == id)
+                .map(|(_, s)| s)
+        })?;
+        self.sites.iter().find(|s| &s.id == site)
+    }
 }
 
 /// Service-wide settings from `seepd.toml`.

@@ -95,7 +95,7 @@ fn groups(cfg: &Config, site: &str) -> Vec<Group> {
 /// Rule levels drawn on a chart of `quantity` for `objects`: each level bound of every
 /// threshold rule on one of them, in display units, labelled `rule-id: level-name`, the side
 /// beyond the bound shaded.
-fn level_lines(
+pub(crate) fn level_lines(
     cfg: &Config,
     objects: &[String],
     (quantity, unit_si): (&str, &str),
@@ -121,7 +121,11 @@ fn level_lines(
 }
 
 /// Points of a stored SI series in display units.
-fn to_display(points: Vec<(i64, f64)>, m: Measure, units: DisplayUnits) -> Vec<(i64, f64)> {
+pub(crate) fn to_display(
+    points: Vec<(i64, f64)>,
+    m: Measure,
+    units: DisplayUnits,
+) -> Vec<(i64, f64)> {
     points
         .into_iter()
         .map(|(t, v)| (t, convert(v, m, units)))

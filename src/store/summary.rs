@@ -1,5 +1,5 @@
 //! SQL of the short summaries the operator commands and the demo print: the newest reading of
-//! all, and the alerts raised and still active.
+//! all, the alerts raised and still active, and one quantity's series for `seepd plot`.
 
 use rusqlite::OptionalExtension;
 
@@ -54,5 +54,52 @@ impl Store {
             [],
         )?;
         Ok(())
+    }
+
+    /// The stored values of `quantity` of `object` (an instrument's reading quantity, or a
+    /// derived quantity) with `from_ms <= t < to_ms`, oldest first, and their stored (SI) unit.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn series(
+        &self,
+        object: &str,
+        quantity: &str,
+        from_ms: i64,
+        to_ms: i64,
+    ) -> Result<(Vec<(i64, f64)>, String), StoreError> {
+        let sql = match crate::model::ReadingQuantity::from_name(quantity) {
+            Some(q) => format!(
+                "SELECT t_ms, {}, eng_unit FROM readings WHERE instrument = ?1 AND t_ms >= ?2 \
+                 AND t_ms < ?3 AND {0} IS NOT NULL ORDER BY t_ms",
+                super::column_of(q)
+            ),
+            None => "SELECT t_ms, value, unit FROM derived WHERE object = ?1 AND quantity = ?4 \
+                     AND t_ms >= ?2 AND t_ms < ?3 AND value IS NOT NULL ORDER BY t_ms"
+                .into(),
+        };
+        let mut st = self.conn.prepare(&sql)?;
+        let mut unit = String::new();
+        let mut points = Vec::new();
+        let mut rows = if sql.contains("?4") {
+            st.query(rusqlite::params![object, from_ms, to_ms, quantity])?
+        } else {
+            st.query(rusqlite::params![object, from_ms, to_ms])?
+        };
+        while let Some(r) = rows.next()? {
+            points.push((r.get(0)?, r.get(1)?));
+            if unit.is_empty() {
+                unit = r.get(2)?;
+            }
+        }
+        let unit = match crate::model::ReadingQuantity::from_name(quantity) {
+            Some(crate::model::ReadingQuantity::Pressure) => "kPa".into(),
+            Some(
+                crate::model::ReadingQuantity::PressureHead
+                | crate::model::ReadingQuantity::TotalHead,
+            ) => "m".into(),
+            _ => unit,
+        };
+        Ok((points, unit))
     }
 }

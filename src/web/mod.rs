@@ -193,18 +193,7 @@ impl Web {
 
     /// The site of an instrument or derived object.
     pub fn site_of(&self, object: &str) -> Option<String> {
-        if let Some(i) = self.cfg.instruments.get(object) {
-            return Some(i.site.clone());
-        }
-        let o = &self.cfg.objects;
-        o.nests
-            .iter()
-            .map(|x| (&x.id, &x.site))
-            .chain(o.toes.iter().map(|x| (&x.id, &x.site)))
-            .chain(o.blankets.iter().map(|x| (&x.id, &x.site)))
-            .chain(o.sections.iter().map(|x| (&x.id, &x.site)))
-            .find(|(id, _)| *id == object)
-            .map(|(_, s)| s.clone())
+        self.cfg.site_of_object(object).map(|s| s.id.clone())
     }
 
     /// A quantity of `object` in words (a stage gauge's total head is its water level).
