@@ -39,6 +39,17 @@ pub struct ConfigDir {
     pub dir: PathBuf,
 }
 
+/// `--from T --to T`: a period of stored data.
+#[derive(clap::Args, Debug)]
+pub struct Period {
+    /// Start (RFC 3339 or YYYY-MM-DD, UTC).
+    #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+    pub from: DateTime<Utc>,
+    /// End, exclusive (RFC 3339 or YYYY-MM-DD, UTC).
+    #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+    pub to: DateTime<Utc>,
+}
+
 /// `--db FILE`, for the commands that read the database.
 #[derive(clap::Args, Debug)]
 pub struct DbFile {
@@ -152,12 +163,8 @@ pub enum Command {
         db: DbFile,
         #[arg(long)]
         site: String,
-        /// Start (RFC 3339 or YYYY-MM-DD, UTC).
-        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
-        from: DateTime<Utc>,
-        /// End, exclusive (RFC 3339 or YYYY-MM-DD, UTC).
-        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
-        to: DateTime<Utc>,
+        #[command(flatten)]
+        period: Period,
         /// Output directory.
         #[arg(long, value_name = "DIR")]
         out: PathBuf,
@@ -174,12 +181,8 @@ pub enum Command {
         /// Quantity (default: an instrument's total head or water level).
         #[arg(long)]
         quantity: Option<String>,
-        /// Start (RFC 3339 or YYYY-MM-DD, UTC).
-        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
-        from: DateTime<Utc>,
-        /// End, exclusive (RFC 3339 or YYYY-MM-DD, UTC).
-        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
-        to: DateTime<Utc>,
+        #[command(flatten)]
+        period: Period,
         /// Output file (default: standard output).
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
@@ -448,8 +451,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             config,
             db,
             site,
-            from,
-            to,
+            period: Period { from, to },
             out,
         } => {
             let cfg = load(&config)?;
@@ -468,8 +470,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             db,
             id,
             quantity,
-            from,
-            to,
+            period: Period { from, to },
             out,
         } => {
             let cfg = load(&config)?;

@@ -323,49 +323,26 @@ fn plot_draws_one_quantity_with_its_rule_levels() {
     // The example's river rule has levels; each is drawn and labelled with the rule id.
     assert!(svg.contains("ash-bend-river-stage"), "{svg}");
     assert!(svg.contains("<polyline") || svg.contains("<path"), "{svg}");
-    let (code, _, err) = seepd(&[
-        "plot",
-        "--config",
-        &example_dir(),
-        "--db",
-        &db_s,
-        "--id",
-        "AB-TOE-1",
-        "--from",
-        "2026-03-01",
-        "--to",
-        "2026-03-03",
-    ]);
-    assert_eq!(code, 1);
-    assert!(err.contains("--quantity"), "{err}");
-    let (code, _, err) = seepd(&[
-        "plot",
-        "--config",
-        &example_dir(),
-        "--db",
-        &db_s,
-        "--id",
-        "NO-SUCH",
-        "--from",
-        "2026-03-01",
-        "--to",
-        "2026-03-03",
-    ]);
-    assert_eq!(code, 1);
-    assert!(err.contains("NO-SUCH"), "{err}");
-    let (code, _, err) = seepd(&[
-        "plot",
-        "--config",
-        &example_dir(),
-        "--db",
-        &db_s,
-        "--id",
-        "AB-RIVER",
-        "--from",
-        "2025-01-01",
-        "--to",
-        "2025-01-02",
-    ]);
-    assert_eq!(code, 1);
-    assert!(err.contains("no stored values"), "{err}");
+    // Failures: (id, from, to) and what the message must say.
+    for (id, from, to, says) in [
+        ("AB-TOE-1", "2026-03-01", "2026-03-03", "--quantity"),
+        ("NO-SUCH", "2026-03-01", "2026-03-03", "NO-SUCH"),
+        ("AB-RIVER", "2025-01-01", "2025-01-02", "no stored values"),
+    ] {
+        let (code, _, err) = seepd(&[
+            "plot",
+            "--config",
+            &example_dir(),
+            "--db",
+            &db_s,
+            "--id",
+            id,
+            "--from",
+            from,
+            "--to",
+            to,
+        ]);
+        assert_eq!(code, 1, "{id}: {err}");
+        assert!(err.contains(says), "{id}: {err}");
+    }
 }
