@@ -83,8 +83,12 @@ mod tests {
 
     #[test]
     fn labels_are_words() {
-        assert_eq!(quantity("factor_of_safety"), "Factor of safety");
-        assert_eq!(quantity("rate_24h"), "Rate of change over 24h");
+        // Quantity names are the presentation module's (one wording everywhere).
+        assert_eq!(
+            quantity("factor_of_safety"),
+            "Factor of safety against heave"
+        );
+        assert_eq!(quantity("rate_24h"), "Rate over 24h");
         assert_eq!(quantity("some_new_thing"), "Some new thing");
         assert_eq!(flag("flatline"), "flat line (suspect)");
     }
