@@ -88,7 +88,7 @@ mod tests {
             quantity("factor_of_safety"),
             "Factor of safety against heave"
         );
-        assert_eq!(quantity("rate_24h"), "Rate over 24h");
+        assert_eq!(quantity("rate_24h"), "Rate over 24 h");
         assert_eq!(quantity("some_new_thing"), "Some new thing");
         assert_eq!(flag("flatline"), "flat line (suspect)");
     }
