@@ -7,16 +7,40 @@ use std::cell::RefCell;
 
 use chrono::{DateTime, Utc};
 
-use crate::config::Config;
+use crate::config::{Config, Section};
+use crate::derive::flownet::FlowNet;
 use crate::derive::section_input;
 use crate::domain::section::analyse;
-use crate::section_svg::{render_section_svg, SvgOptions};
+use crate::flownet_cmd::Levels;
+use crate::section_svg::{render_flownet_svg, render_section_svg, SvgOptions};
 use crate::store::Store;
 
-/// Render section `id` at time `at` from `store`.
+fn units_of(cfg: &Config, s: &Section) -> crate::config::DisplayUnits {
+    cfg.sites
+        .iter()
+        .find(|x| x.id == s.site)
+        .map_or(crate::config::DisplayUnits::Si, |x| x.display_units)
+}
+
+/// A solved section drawn as a flow net, titled with its levels.
+#[must_use]
+pub fn flownet_svg(cfg: &Config, s: &Section, net: &FlowNet) -> String {
+    render_flownet_svg(
+        net,
+        &SvgOptions {
+            title: format!("Section {}: flow net", s.id),
+            units: units_of(cfg, s),
+            ..SvgOptions::default()
+        },
+    )
+}
+
+/// Render section `id` at time `at` from `store`: the flow net when the section has a seepage
+/// model, else the phreatic line through the piezometer heads.
 ///
 /// # Errors
-/// Unknown section, an input with no reading at or before the time, database errors.
+/// Unknown section, an input with no reading at or before the time, database errors, a model
+/// that cannot be solved.
 pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyhow::Result<String> {
     let s = cfg
         .objects
@@ -24,11 +48,21 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
         .iter()
         .find(|s| s.id == id)
         .ok_or_else(|| anyhow::anyhow!("no section {id:?} in the configuration"))?;
-    let units = cfg
-        .sites
-        .iter()
-        .find(|x| x.id == s.site)
-        .map_or(crate::config::DisplayUnits::Si, |x| x.display_units);
+    let units = units_of(cfg, s);
+    if s.model.is_some() {
+        let solved = crate::flownet_cmd::solve(cfg, Some(store), s, &Levels::At(at))?;
+        return Ok(render_flownet_svg(
+            &solved.net,
+            &SvgOptions {
+                title: format!(
+                    "Section {id} at {}: flow net",
+                    at.format("%Y-%m-%d %H:%M UTC")
+                ),
+                units,
+                ..SvgOptions::default()
+            },
+        ));
+    }
     let t_ms = at.timestamp_millis();
     let stale: RefCell<Vec<(String, String)>> = RefCell::new(Vec::new());
     let head = |inst: &str| -> Result<f64, String> {

@@ -19,6 +19,7 @@ pub mod reloads;
 mod renamed;
 mod reports;
 pub mod rules;
+pub mod section_model;
 mod service;
 mod site;
 mod smtp;
