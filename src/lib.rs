@@ -33,6 +33,7 @@ pub mod sdnotify;
 pub mod section_cmd;
 pub mod section_svg;
 pub mod seepage;
+pub mod seepage_worker;
 pub mod service;
 pub mod shutdown;
 pub mod status;

@@ -7,6 +7,7 @@
 //! quantities. The engineering is in `domain`; nothing here does I/O or reads the clock.
 
 pub mod flownet;
+pub mod model_live;
 mod objects;
 #[cfg(test)]
 mod tests;
