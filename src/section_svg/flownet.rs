@@ -277,7 +277,7 @@ pub fn render_flownet_svg(net: &FlowNet, options: &SvgOptions) -> String {
         );
     }
     seepage_face(&mut svg, &f, net);
-    piezometers(&mut svg, &f, net);
+    piezometers(&mut svg, &f, net, &options.marks);
     legend(&mut svg, &f);
     svg.push_str("</svg>\n");
     svg
@@ -322,7 +322,7 @@ fn seepage_face(svg: &mut String, f: &Frame, net: &FlowNet) {
     );
 }
 
-fn piezometers(svg: &mut String, f: &Frame, net: &FlowNet) {
+fn piezometers(svg: &mut String, f: &Frame, net: &FlowNet, marks: &[(String, String)]) {
     for (k, p) in net.piezometers.iter().enumerate() {
         let (x, tip) = (f.x(p.tip.x), f.y(p.tip.y));
         let top = p
@@ -355,17 +355,23 @@ fn piezometers(svg: &mut String, f: &Frame, net: &FlowNet) {
                 f.y(m)
             );
         }
-        let words = match (p.measured_m, p.modelled_m, p.residual_m()) {
-            (Some(a), Some(b), Some(r)) => format!(
-                "{}: measured {}, model {}, residual {}{}",
+        let mark = marks
+            .iter()
+            .find(|(i, _)| *i == p.id)
+            .map_or(String::new(), |(_, m)| format!(" ({m})"));
+        let measured = p
+            .measured_m
+            .map_or("no reading".into(), |a| format!("{}{mark}", f.len(a)));
+        let words = match (p.modelled_m, p.residual_m()) {
+            (Some(b), Some(r)) => format!(
+                "{} {measured}; model {}, residual {}{}",
                 p.id,
-                f.len(a),
                 f.len(b),
                 if r >= 0.0 { "+" } else { "" },
                 f.len(r)
             ),
-            (None, Some(b), _) => format!("{}: model {}", p.id, f.len(b)),
-            _ => format!("{}: outside the model", p.id),
+            (Some(b), None) => format!("{} {measured}; model {}", p.id, f.len(b)),
+            _ => format!("{} {measured}; outside the model", p.id),
         };
         let ly = f.bottom() - 8.0 - 14.0 * (net.piezometers.len() - 1 - k) as f64;
         let _ = writeln!(
