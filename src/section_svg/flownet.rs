@@ -276,8 +276,8 @@ pub fn render_flownet_svg(net: &FlowNet, options: &SvgOptions) -> String {
             path(&f, &line, false)
         );
     }
-    seepage_face(&mut svg, &f, net);
     piezometers(&mut svg, &f, net, &options.marks);
+    seepage_face(&mut svg, &f, net);
     legend(&mut svg, &f);
     svg.push_str("</svg>\n");
     svg
@@ -315,7 +315,7 @@ fn seepage_face(svg: &mut String, f: &Frame, net: &FlowNet) {
     };
     let _ = writeln!(
         svg,
-        r#"<text x="{lx:.2}" y="{:.2}" text-anchor="{anchor}" fill="{EXIT}" font-weight="bold">exit {} at station {}</text>"#,
+        r#"<text x="{lx:.2}" y="{:.2}" text-anchor="{anchor}" fill="{EXIT}" stroke="{WHITE}" stroke-width="3" paint-order="stroke" font-weight="bold">exit {} at station {}</text>"#,
         y + 24.0,
         f.len(e.exit.y),
         f.len(e.exit.x)
@@ -376,7 +376,7 @@ fn piezometers(svg: &mut String, f: &Frame, net: &FlowNet, marks: &[(String, Str
         let ly = f.bottom() - 8.0 - 14.0 * (net.piezometers.len() - 1 - k) as f64;
         let _ = writeln!(
             svg,
-            r#"<text class="piezometer-label" x="{:.2}" y="{ly:.2}" font-size="11">{}</text></g>"#,
+            r#"<text class="piezometer-label" x="{:.2}" y="{ly:.2}" font-size="11" stroke="{WHITE}" stroke-width="3" paint-order="stroke">{}</text></g>"#,
             LEFT_PX + 8.0,
             xml_escape(&words)
         );
