@@ -120,7 +120,15 @@ fn draw_flow_nets(cfg: &crate::config::Config) {
             .service
             .database
             .with_file_name(format!("flownet-{}.svg", s.id));
-        match crate::section_cmd::render(cfg, &store, &s.id, Utc::now()) {
+        // At the pool gauge's latest reading (the demo's days run faster than the clock).
+        let now = Utc::now();
+        let at = store
+            .head_at(&s.pool_gauge, now.timestamp_millis())
+            .ok()
+            .flatten()
+            .and_then(|(t, _, _)| chrono::DateTime::from_timestamp_millis(t))
+            .unwrap_or(now);
+        match crate::section_cmd::render(cfg, &store, &s.id, at) {
             Ok(svg) => match std::fs::write(&path, svg) {
                 Ok(()) => println!("Flow net of section {} drawn: {}", s.id, path.display()),
                 Err(e) => eprintln!("cannot write {}: {e}", path.display()),
@@ -240,6 +248,10 @@ fn print_summary(db: &std::path::Path, counters: &Counters) {
             .filter(|d| SHOWN.contains(&d.quantity.as_str()))
         {
             match d.value {
+                Some(v) if v != 0.0 && v.abs() < 1e-3 => s.push_str(&format!(
+                    "  {:<10} {:<22} {v:9.2e} {}\n",
+                    d.object, d.quantity, d.unit
+                )),
                 Some(v) => s.push_str(&format!(
                     "  {:<10} {:<22} {v:9.3} {}\n",
                     d.object, d.quantity, d.unit
