@@ -35,11 +35,15 @@ fn run(requests: &Receiver<SolveRequest>, answers: &Sender<SolveAnswer>) {
         for (section_id, r) in newest {
             let started = std::time::Instant::now();
             let s = &r.cfg.objects.sections[r.section];
-            let result = match &s.model {
-                Some(spec) => solve_section(spec, r.pool_m, r.tail_m, &r.piezometers)
-                    .map(|net| SolveSummary::of(&net)),
-                None => Err("the section has no model".into()),
-            };
+            // A solve that panics is answered as a failure: the section is never left
+            // waiting for an answer that will not come.
+            let result =
+                std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match &s.model {
+                    Some(spec) => solve_section(spec, r.pool_m, r.tail_m, &r.piezometers)
+                        .map(|net| SolveSummary::of(&net)),
+                    None => Err("the section has no model".into()),
+                }))
+                .unwrap_or_else(|_| Err("the solver failed unexpectedly".into()));
             tracing::debug!(
                 section = %section_id,
                 ms = started.elapsed().as_millis() as u64,

@@ -306,3 +306,94 @@ fn row_of(
         inputs: Vec::new(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    //! When a re-solve is requested, and the rows made of an answer, on the example dam.
+
+    use std::sync::mpsc::channel;
+
+    use super::*;
+    use crate::quality::Flags;
+
+    fn reading(id: &str, t_ms: i64, head_m: f64) -> ReadingRow {
+        ReadingRow {
+            instrument: id.into(),
+            t_ms,
+            arrival_ms: t_ms,
+            raw: head_m,
+            temperature_c: None,
+            baro_kpa: None,
+            eng_value: head_m,
+            eng_unit: "m",
+            pressure_kpa: None,
+            pressure_head_m: None,
+            total_head_m: Some(head_m),
+            flags: Flags::empty(),
+        }
+    }
+
+    #[test]
+    fn a_solve_is_requested_when_the_pool_moves_enough_or_the_schedule_says_so() {
+        let dir = tempfile::tempdir().unwrap();
+        let cfg = Arc::new(crate::scenario::example_config(dir.path()).unwrap());
+        let mut deriver = Deriver::new(Arc::clone(&cfg));
+        let mut live = LiveModels::default();
+        let (tx, requests) = channel();
+        let (answer_tx, rx) = channel();
+        live.connect(tx, rx);
+        let h = 3_600_000;
+        let mut feed = |live: &mut LiveModels, id: &str, t: i64, v: f64| {
+            let row = reading(id, t, v);
+            deriver.on_reading(&row);
+            live.on_reading(&cfg, &row, &deriver)
+        };
+        // No tail level yet: the model needs one, so nothing is asked.
+        feed(&mut live, "TH-POOL", 0, 214.0);
+        assert!(requests.try_recv().is_err());
+        feed(&mut live, "TH-TAIL", 0, 199.5);
+        let first = requests.try_recv().expect("first solve");
+        assert_eq!((first.pool_m, first.tail_m), (214.0, Some(199.5)));
+        // While it is out, nothing more is asked; its answer frees the section.
+        feed(&mut live, "TH-POOL", h, 215.0);
+        assert!(requests.try_recv().is_err());
+        answer_tx
+            .send(SolveAnswer {
+                section_id: "TH-S1".into(),
+                t_ms: 0,
+                result: Ok(SolveSummary {
+                    exit: None,
+                    face_height_m: 0.0,
+                    max_exit_gradient: 0.4,
+                    flow_m2_per_s: 1e-6,
+                    heads: vec![("TH-PZ-3".into(), Some(202.0), Some(201.5))],
+                }),
+            })
+            .unwrap();
+        let rows = live.drain();
+        let exit = rows
+            .iter()
+            .find(|r| r.quantity == "model_exit_elevation")
+            .unwrap();
+        assert!(exit.value.is_none() && exit.reason.is_some());
+        let res = rows
+            .iter()
+            .find(|r| r.object == "TH-PZ-3" && r.quantity == "model_residual")
+            .unwrap();
+        assert_eq!(res.value, Some(0.5));
+        // A later piezometer reading gets its residual against that solve.
+        let rows = feed(&mut live, "TH-PZ-3", 2 * h, 203.0);
+        assert_eq!(rows.len(), 1);
+        assert_eq!(rows[0].value, Some(1.5));
+        // 0.05 m of pool since the last request (214.0): not enough (0.1 m); 0.15 m is.
+        feed(&mut live, "TH-POOL", 2 * h, 214.05);
+        assert!(requests.try_recv().is_err());
+        feed(&mut live, "TH-POOL", 3 * h, 214.15);
+        let second = requests.try_recv().expect("second solve");
+        assert_eq!(second.pool_m, 214.15);
+        live.in_flight.insert("TH-S1".into(), false);
+        // Six hours later without any change: the schedule asks again.
+        feed(&mut live, "TH-POOL", 9 * h, 214.15);
+        assert!(requests.try_recv().is_ok());
+    }
+}
