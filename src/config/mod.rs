@@ -5,6 +5,7 @@
 //! the operator commands.
 
 pub mod alerting;
+mod de;
 mod export;
 pub mod http;
 mod kinds;

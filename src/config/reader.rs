@@ -39,7 +39,7 @@ pub(crate) fn finite(v: &Value) -> Option<f64> {
     number(v).filter(|n| n.is_finite())
 }
 
-fn found_item(item: &Item) -> String {
+pub(crate) fn found_item(item: &Item) -> String {
     match item {
         Item::Value(v) => found(v),
         Item::Table(_) => "a table".into(),
@@ -87,6 +87,38 @@ impl<'t> Tbl<'t> {
     /// Span of the table header, for problems about the table as a whole.
     pub fn span(&self) -> Option<Range<usize>> {
         self.span.clone()
+    }
+
+    /// The keys and items of the table, in file order.
+    pub fn entries(&self) -> impl Iterator<Item = (&'t str, &'t Item)> + 't {
+        self.table.iter()
+    }
+
+    /// A required value, or a "missing key" problem at the table header.
+    pub fn need<T>(&self, cx: &mut Cx<'_>, key: &str, value: Option<T>) -> Option<T> {
+        if value.is_none() && !self.has(key) {
+            self.missing(cx, key, "");
+        }
+        value
+    }
+
+    /// A problem when the lower bound `(min_key, min)` is above the upper `(max_key, max)`,
+    /// located at the one of the two keys written (the lower when both are).
+    pub fn min_max(
+        &self,
+        cx: &mut Cx<'_>,
+        (min_key, min): (&str, u64),
+        (max_key, max): (&str, u64),
+    ) {
+        if min > max {
+            let at = if self.has(min_key) || !self.has(max_key) {
+                min_key
+            } else {
+                max_key
+            };
+            let message = format!("{min_key} is {min} but {max_key} is {max}; expected min <= max");
+            self.problem_at(cx, at, message);
+        }
     }
 
     /// Whether a key is present.
@@ -295,16 +327,6 @@ impl<'t> Tbl<'t> {
             return None;
         }
         Some(v)
-    }
-
-    /// An array of strings; `expected` describes it in the problem when it is something else.
-    pub fn string_array(&self, cx: &mut Cx<'_>, key: &str, expected: &str) -> Option<Vec<String>> {
-        self.get(cx, key, false, expected, |v| {
-            v.as_array()?
-                .iter()
-                .map(|x| x.as_str().map(String::from))
-                .collect()
-        })
     }
 
     /// A boolean, or `default` when absent.
