@@ -184,6 +184,21 @@ impl<'de> Deserialize<'de> for Text {
     }
 }
 
+/// A finite number; integers are numbers too ("is inf, expected a finite number" otherwise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Num(pub f64);
+
+impl<'de> Deserialize<'de> for Num {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let n = f64::deserialize(d)?;
+        if !n.is_finite() {
+            let message = format!("is {n}, expected a finite number");
+            return Err(de::Error::custom(message));
+        }
+        Ok(Num(n))
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -9,6 +9,9 @@
 
 use std::collections::BTreeMap;
 
+use serde::Deserialize;
+
+use super::de::{self, Int, Num};
 use super::limits;
 use super::model::{HealthSettings, HstSpec, RateSpan, SiteTrends, StageResponseSpec};
 use super::objects::{reference_problem, Known, Ref, Want};
@@ -19,18 +22,31 @@ use super::site::Pos;
 /// The tables of a site file read here, as written.
 pub(crate) const TABLES: [&str; 4] = ["trends", "health", "stage_response", "hst"];
 
-const TRENDS_KEYS: [&str; 2] = ["rate_windows", "max_points"];
-const HEALTH_KEYS: [&str; 9] = [
-    "spike_window",
-    "spike_k",
-    "spike_floor",
-    "flatline_count",
-    "flatline_tolerance",
-    "no_data_factor",
-    "thermistor_range",
-    "thermistor_max_jump",
-    "use_flagged",
-];
+/// `[trends]` as written; `rate_windows` is read element by element (with positions) by
+/// `rate_windows`.
+#[derive(Deserialize)]
+struct RawTrends {
+    #[serde(rename = "rate_windows")]
+    _rate_windows: Option<de::Nested>,
+    max_points: Option<Int<2, 5000>>,
+}
+
+/// `[health]` as written; defaults are `HealthSettings::default()`, checks in `health`.
+#[derive(Deserialize)]
+struct RawHealth {
+    spike_window: Option<Int<3, 10_000>>,
+    spike_k: Option<Num>,
+    spike_floor: Option<Num>,
+    flatline_count: Option<Int<2, 10_000>>,
+    flatline_tolerance: Option<Num>,
+    no_data_factor: Option<Num>,
+    /// `[low, high]`, read by `Tbl::pair`.
+    #[serde(rename = "thermistor_range")]
+    _thermistor_range: Option<de::Nested>,
+    thermistor_max_jump: Option<Num>,
+    use_flagged: Option<bool>,
+}
+
 const STAGE_RESPONSE_KEYS: [&str; 7] = [
     "id",
     "piezometer",
@@ -96,16 +112,18 @@ pub(crate) fn read(
     let mut s = SiteTrends::defaults(site);
     if let Some(mut t) = root.sub(cx, "trends", "[trends]") {
         t.what = "[trends]".into();
-        t.check_keys(cx, &TRENDS_KEYS);
-        if let Some(w) = rate_windows(cx, &t) {
-            s.rate_windows = w;
+        if let Some(r) = de::table::<RawTrends>(cx, &t) {
+            if let Some(w) = rate_windows(cx, &t) {
+                s.rate_windows = w;
+            }
+            s.max_points = r.max_points.map_or(96, |n| n.0 as usize);
         }
-        s.max_points = t.int_in(cx, "max_points", 2, 5000, 96) as usize;
     }
     if let Some(mut t) = root.sub(cx, "health", "[health]") {
         t.what = "[health]".into();
-        t.check_keys(cx, &HEALTH_KEYS);
-        s.health = health(cx, &t, m_per_unit);
+        if let Some(r) = de::table::<RawHealth>(cx, &t) {
+            s.health = health(cx, &t, r, m_per_unit);
+        }
     }
     let settings = Some(s).filter(|_| cx.problems.len() == before);
     let mut models = Vec::new();
@@ -174,84 +192,75 @@ pub(crate) fn duration_s(text: &str) -> Option<i64> {
     Some(n * per)
 }
 
-/// A number > `lo` under `key`, or `default`.
-fn above(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, default: f64) -> f64 {
-    within(cx, t, key, lo, f64::MAX, default)
-}
-
 /// A number > `lo` and <= `hi` under `key`, or `default`.
 fn within(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, hi: f64, default: f64) -> f64 {
-    match t.number(cx, key, false) {
-        Some(v) if v > lo && v <= hi => v,
-        Some(v) => {
-            let expected = if hi == f64::MAX {
-                format!("a number > {lo}")
-            } else {
-                format!("a number > {lo} and at most {hi}")
-            };
-            t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {v}, expected {expected}"),
-            );
-            default
-        }
-        None => default,
-    }
+    let expected = if hi == f64::MAX {
+        format!("a number > {lo}")
+    } else {
+        format!("a number > {lo} and at most {hi}")
+    };
+    let v = t.number(cx, key, false).map(Num);
+    checked(cx, t, key, v, (|v| v > lo && v <= hi, &expected)).unwrap_or(default)
 }
 
-fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
+/// The number under `key` when `ok` accepts it; a problem naming what is `expected` otherwise.
+fn checked(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    key: &str,
+    v: Option<Num>,
+    (ok, expected): (impl Fn(f64) -> bool, &str),
+) -> Option<f64> {
+    let Num(v) = v?;
+    if ok(v) {
+        return Some(v);
+    }
+    t.problem_at(
+        cx,
+        key,
+        format!("key \"{key}\" is {v}, expected {expected}"),
+    );
+    None
+}
+
+fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, r: RawHealth, m: f64) -> HealthSettings {
     let d = HealthSettings::default();
-    let nonneg = |cx: &mut Cx<'_>, key: &str, default: f64| match t.number(cx, key, false) {
-        Some(v) if v >= 0.0 => v * m,
-        Some(v) => {
-            t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {v}, expected a number >= 0"),
-            );
-            default
-        }
-        None => default,
-    };
-    let spike_floor_m = nonneg(cx, "spike_floor", d.spike_floor_m);
-    // In the raw value's own unit (it differs by instrument), so no length conversion.
-    let flatline_tolerance_raw = match t.number(cx, "flatline_tolerance", false) {
-        Some(v) if v >= 0.0 => v,
-        Some(v) => {
-            t.problem_at(
-                cx,
-                "flatline_tolerance",
-                format!("key \"flatline_tolerance\" is {v}, expected a number >= 0"),
-            );
-            d.flatline_tolerance_raw
-        }
-        None => d.flatline_tolerance_raw,
-    };
-    let no_data_factor = match t.number(cx, "no_data_factor", false) {
-        Some(v) if (1.0..=limits::NO_DATA_FACTOR).contains(&v) => v,
-        Some(v) => {
-            t.problem_at(
-                cx,
-                "no_data_factor",
-                format!("key \"no_data_factor\" is {v}, expected a number >= 1 and at most {} (a multiple of the instrument's interval_s)", limits::NO_DATA_FACTOR),
-            );
-            d.no_data_factor
-        }
-        None => d.no_data_factor,
-    };
+    let nonneg = (|v: f64| v >= 0.0, "a number >= 0");
+    let positive = (|v: f64| v > 0.0, "a number > 0");
+    let factor = format!(
+        "a number >= 1 and at most {} (a multiple of the instrument's interval_s)",
+        limits::NO_DATA_FACTOR
+    );
+    let factor_ok = |v: f64| (1.0..=limits::NO_DATA_FACTOR).contains(&v);
+    let spike_floor = checked(cx, t, "spike_floor", r.spike_floor, nonneg);
+    let max_jump = checked(
+        cx,
+        t,
+        "thermistor_max_jump",
+        r.thermistor_max_jump,
+        positive,
+    );
     HealthSettings {
-        spike_window: t.int_in(cx, "spike_window", 3, 10_000, d.spike_window as i64) as usize,
-        spike_k: above(cx, t, "spike_k", 0.0, d.spike_k),
-        spike_floor_m,
-        flatline_count: t.int_in(cx, "flatline_count", 2, 10_000, d.flatline_count as i64) as usize,
-        flatline_tolerance_raw,
-        no_data_factor,
+        spike_window: r.spike_window.map_or(d.spike_window, |n| n.0 as usize),
+        spike_k: checked(cx, t, "spike_k", r.spike_k, positive).unwrap_or(d.spike_k),
+        spike_floor_m: spike_floor.map_or(d.spike_floor_m, |v| v * m),
+        flatline_count: r.flatline_count.map_or(d.flatline_count, |n| n.0 as usize),
+        // In the raw value's own unit (it differs by instrument), so no length conversion.
+        flatline_tolerance_raw: checked(cx, t, "flatline_tolerance", r.flatline_tolerance, nonneg)
+            .unwrap_or(d.flatline_tolerance_raw),
+        no_data_factor: checked(
+            cx,
+            t,
+            "no_data_factor",
+            r.no_data_factor,
+            (factor_ok, &factor),
+        )
+        .unwrap_or(d.no_data_factor),
         thermistor_range_c: t
             .pair(cx, "thermistor_range", false)
             .unwrap_or(d.thermistor_range_c),
-        thermistor_max_jump_c: above(cx, t, "thermistor_max_jump", 0.0, d.thermistor_max_jump_c),
-        use_flagged: t.boolean(cx, "use_flagged", d.use_flagged),
+        thermistor_max_jump_c: max_jump.unwrap_or(d.thermistor_max_jump_c),
+        use_flagged: r.use_flagged.unwrap_or(d.use_flagged),
     }
 }
 
