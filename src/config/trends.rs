@@ -11,7 +11,7 @@ use std::collections::BTreeMap;
 
 use serde::Deserialize;
 
-use super::de::{self, Int, Num};
+use super::de::{self, Int, Num, Text};
 use super::limits;
 use super::model::{HealthSettings, HstSpec, RateSpan, SiteTrends, StageResponseSpec};
 use super::objects::{reference_problem, Known, Ref, Want};
@@ -47,22 +47,30 @@ struct RawHealth {
     use_flagged: Option<bool>,
 }
 
-const STAGE_RESPONSE_KEYS: [&str; 7] = [
-    "id",
-    "piezometer",
-    "stage_gauge",
-    "training_days",
-    "lag_range_h",
-    "lag_step_h",
-    "refit_interval_h",
-];
-const HST_KEYS: [&str; 5] = [
-    "id",
-    "instrument",
-    "reservoir_gauge",
-    "degree",
-    "refit_interval_h",
-];
+/// `[[stage_response]]` as written; `lag_range_h` is read by `Tbl::pair`.
+#[derive(Deserialize, Default)]
+struct RawStageResponse {
+    #[serde(rename = "id")]
+    _id: Option<Text>,
+    piezometer: Option<Text>,
+    stage_gauge: Option<Text>,
+    training_days: Option<Num>,
+    #[serde(rename = "lag_range_h")]
+    _lag_range_h: Option<de::Nested>,
+    lag_step_h: Option<Num>,
+    refit_interval_h: Option<Num>,
+}
+
+/// `[[hst]]` as written.
+#[derive(Deserialize, Default)]
+struct RawHst {
+    #[serde(rename = "id")]
+    _id: Option<Text>,
+    instrument: Option<Text>,
+    reservoir_gauge: Option<Text>,
+    degree: Option<Int<1, 4>>,
+    refit_interval_h: Option<Num>,
+}
 
 /// Defaults of a `[[stage_response]]` table.
 const DEFAULT_TRAINING_DAYS: f64 = 30.0;
@@ -193,13 +201,15 @@ pub(crate) fn duration_s(text: &str) -> Option<i64> {
 }
 
 /// A number > `lo` and <= `hi` under `key`, or `default`.
-fn within(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, hi: f64, default: f64) -> f64 {
-    let expected = if hi == f64::MAX {
-        format!("a number > {lo}")
-    } else {
-        format!("a number > {lo} and at most {hi}")
-    };
-    let v = t.number(cx, key, false).map(Num);
+fn within(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    (key, v): (&str, Option<Num>),
+    lo: f64,
+    hi: f64,
+    default: f64,
+) -> f64 {
+    let expected = format!("a number > {lo} and at most {hi}");
     checked(cx, t, key, v, (|v| v > lo && v <= hi, &expected)).unwrap_or(default)
 }
 
@@ -265,8 +275,8 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, r: RawHealth, m: f64) -> HealthSettings 
 }
 
 /// `refit_interval_h`: hours, more than 0 and at most a year.
-fn refit_h(cx: &mut Cx<'_>, t: &Tbl<'_>, default: f64) -> f64 {
-    within(cx, t, "refit_interval_h", 0.0, limits::YEAR_H, default)
+fn refit_h(cx: &mut Cx<'_>, t: &Tbl<'_>, v: Option<Num>, default: f64) -> f64 {
+    within(cx, t, ("refit_interval_h", v), 0.0, limits::YEAR_H, default)
 }
 
 /// Hours (a number, as written) to whole seconds.
@@ -276,37 +286,36 @@ fn hours_s(h: f64) -> i64 {
 
 fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> ModelEntry {
     let before = cx.problems.len();
-    let id = t.nonempty(cx, "id");
+    let id = t
+        .peek_str("id")
+        .filter(|id| !id.trim().is_empty())
+        .map(String::from);
     if let Some(id) = &id {
         t.what = format!("{table} {id:?}");
-    } else if !t.has("id") {
-        t.missing(cx, "id", "");
     }
     let id_pos = cx.pos(t.value_span("id"));
     let mut refs = Vec::new();
-    let mut reference = |cx: &mut Cx<'_>, key: &'static str, want: Want| {
-        if !t.has(key) {
-            t.missing(cx, key, "");
-            return None;
-        }
-        let found = t.nonempty(cx, key)?;
+    let mut reference = |cx: &mut Cx<'_>, t: &Tbl<'_>, key: &'static str, v: Option<Text>, want| {
+        let found = t.need(cx, key, v)?.0;
+        let pos = cx.pos(t.value_span(key));
         refs.push(Ref {
             key,
             id: found.clone(),
-            pos: cx.pos(t.value_span(key)),
+            pos,
             want,
         });
         Some(found)
     };
     let name = id.clone().unwrap_or_default();
     let model = if table == "stage_response" {
-        t.check_keys(cx, &STAGE_RESPONSE_KEYS);
-        let piezometer = reference(cx, "piezometer", Want::Piezometer);
-        let gauge = reference(cx, "stage_gauge", Want::StageGauge);
+        let r: RawStageResponse = de::table(cx, &t).unwrap_or_default();
+        let _ = t.need(cx, "id", id.as_ref());
+        let piezometer = reference(cx, &t, "piezometer", r.piezometer, Want::Piezometer);
+        let gauge = reference(cx, &t, "stage_gauge", r.stage_gauge, Want::StageGauge);
         let training = within(
             cx,
             &t,
-            "training_days",
+            ("training_days", r.training_days),
             0.0,
             limits::TRAINING_DAYS,
             DEFAULT_TRAINING_DAYS,
@@ -327,7 +336,7 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         let step = within(
             cx,
             &t,
-            "lag_step_h",
+            ("lag_step_h", r.lag_step_h),
             0.0,
             limits::YEAR_H,
             DEFAULT_LAG_STEP_H,
@@ -336,7 +345,7 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         if range_ok && (hi - lo) / step > MAX_LAGS {
             t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
         }
-        let refit = refit_h(cx, &t, DEFAULT_STAGE_RESPONSE_REFIT_H);
+        let refit = refit_h(cx, &t, r.refit_interval_h, DEFAULT_STAGE_RESPONSE_REFIT_H);
         match (piezometer, gauge) {
             (Some(piezometer), Some(stage_gauge)) => {
                 Some(Model::StageResponse(StageResponseSpec {
@@ -354,11 +363,18 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
             _ => None,
         }
     } else {
-        t.check_keys(cx, &HST_KEYS);
-        let instrument = reference(cx, "instrument", Want::Piezometer);
-        let gauge = reference(cx, "reservoir_gauge", Want::StageGauge);
-        let degree = t.int_in(cx, "degree", 1, 4, DEFAULT_HST_DEGREE) as usize;
-        let refit = refit_h(cx, &t, DEFAULT_HST_REFIT_H);
+        let r: RawHst = de::table(cx, &t).unwrap_or_default();
+        let _ = t.need(cx, "id", id.as_ref());
+        let instrument = reference(cx, &t, "instrument", r.instrument, Want::Piezometer);
+        let gauge = reference(
+            cx,
+            &t,
+            "reservoir_gauge",
+            r.reservoir_gauge,
+            Want::StageGauge,
+        );
+        let degree = r.degree.map_or(DEFAULT_HST_DEGREE, |d| d.0) as usize;
+        let refit = refit_h(cx, &t, r.refit_interval_h, DEFAULT_HST_REFIT_H);
         match (instrument, gauge) {
             (Some(instrument), Some(reservoir_gauge)) => Some(Model::Hst(HstSpec {
                 id: name,
