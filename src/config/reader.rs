@@ -121,6 +121,25 @@ impl<'t> Tbl<'t> {
         }
     }
 
+    /// An array of strings as read (`req`: required; a required array must not be empty):
+    /// `None`, with a problem, when an entry is blank.
+    pub fn entries_of(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        v: Option<Vec<String>>,
+        req: bool,
+    ) -> Option<Vec<String>> {
+        let v = if req { self.need(cx, key, v)? } else { v? };
+        if v.iter().any(|s| s.trim().is_empty()) || (req && v.is_empty()) {
+            let message =
+                format!("key \"{key}\" has an empty entry or is empty; expected non-empty strings");
+            self.problem_at(cx, key, message);
+            return None;
+        }
+        Some(v)
+    }
+
     /// Whether a key is present.
     pub fn has(&self, key: &str) -> bool {
         self.table.contains_key(key)
@@ -227,11 +246,6 @@ impl<'t> Tbl<'t> {
         self.get(cx, key, false, "a string", |v| v.as_str().map(String::from))
     }
 
-    /// A required string.
-    pub fn req_string(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
-        self.get(cx, key, true, "a string", |v| v.as_str().map(String::from))
-    }
-
     /// An optional non-empty string.
     pub fn nonempty(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
         let s = self.string(cx, key)?;
@@ -279,11 +293,6 @@ impl<'t> Tbl<'t> {
         Some(n)
     }
 
-    /// An integer within `lo..=hi`, or `default` when absent.
-    pub fn int_in(&self, cx: &mut Cx<'_>, key: &str, lo: i64, hi: i64, default: i64) -> i64 {
-        self.opt_int_in(cx, key, lo, hi, false).unwrap_or(default)
-    }
-
     /// An integer within `lo..=hi`; `None` when absent (a problem if `req`) or invalid.
     pub fn opt_int_in(
         &self,
@@ -308,31 +317,6 @@ impl<'t> Tbl<'t> {
             return None;
         }
         Some(n)
-    }
-
-    /// An array of non-empty strings (`req`: required; a required array must not be empty).
-    pub fn strings(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<Vec<String>> {
-        let v = self.get(cx, key, req, "an array of strings", |v| {
-            v.as_array()?
-                .iter()
-                .map(|x| x.as_str().map(str::to_string))
-                .collect::<Option<Vec<String>>>()
-        })?;
-        if v.iter().any(|s| s.trim().is_empty()) || (req && v.is_empty()) {
-            self.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" has an empty entry or is empty; expected non-empty strings"),
-            );
-            return None;
-        }
-        Some(v)
-    }
-
-    /// A boolean, or `default` when absent.
-    pub fn boolean(&self, cx: &mut Cx<'_>, key: &str, default: bool) -> bool {
-        self.get(cx, key, false, "true or false", Value::as_bool)
-            .unwrap_or(default)
     }
 
     /// `[low, high]`: two finite numbers with low < high.

@@ -30,8 +30,8 @@ struct Raw {
     at: Option<String>,
     weekday: Option<Day>,
     day: Option<Int<1, 28>>,
-    recipients: Option<Vec<Text>>,
-    contacts: Option<Vec<Text>>,
+    recipients: Option<Vec<String>>,
+    contacts: Option<Vec<String>>,
     out_dir: Option<Text>,
 }
 
@@ -121,10 +121,9 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             );
         }
     }
-    let texts = |v: Option<Vec<Text>>| -> Vec<String> {
-        v.unwrap_or_default().into_iter().map(|t| t.0).collect()
-    };
-    let recipients = texts(r.recipients);
+    let recipients = t
+        .entries_of(cx, "recipients", r.recipients, false)
+        .unwrap_or_default();
     for r in recipients.iter().filter(|r| !plain_address(r)) {
         t.problem_at(
             cx,
@@ -132,7 +131,9 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             format!("address {r:?} is not a plain address; expected e.g. engineer@example.org"),
         );
     }
-    let contacts = texts(r.contacts);
+    let contacts = t
+        .entries_of(cx, "contacts", r.contacts, false)
+        .unwrap_or_default();
     if recipients.is_empty() && contacts.is_empty() && !t.has("recipients") && !t.has("contacts") {
         t.problem(
             cx,
