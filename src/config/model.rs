@@ -213,7 +213,8 @@ pub struct Subscription {
 }
 
 /// Units for display (reports, emails, summaries).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum DisplayUnits {
     Si,
     Us,
