@@ -89,8 +89,8 @@ fn check_refuses_old_names_naming_the_new_ones_and_exits_78() {
     for needle in [
         "levee-ash-bend.toml:281:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
         "levee-ash-bend.toml:283:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
-        "dam-tarn.toml:129:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
-        "dam-tarn.toml:130:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "dam-tarn.toml:183:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "dam-tarn.toml:184:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
         "levee-ash-bend.toml:191:3: levee-ash-bend.toml: [[cluster]] tables are now [[nest]]",
         "levee-ash-bend.toml:425:3: levee-ash-bend.toml: [[response]] tables are now [[stage_response]]",
     ] {

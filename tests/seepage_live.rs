@@ -368,9 +368,8 @@ fn a_broken_model_is_refused_with_file_and_line() {
     assert_eq!(code, 78, "{err}");
     assert!(err.contains("dam-test.toml:"), "{err}");
     assert!(err.contains("unknown field `porosity`"), "{err}");
-    // One bad table does not hide the others: the zone's key and nothing else is reported
-    // (a model that does not read is not validated further), then with the key fixed the
-    // boundary off the outline is reported on its own line.
+    // A model that does not read is not validated further; with the key fixed, the boundary
+    // off the outline is reported on its own table's line.
     std::fs::write(
         cfg_dir.join("dam-test.toml"),
         broken.replace("\nporosity = 0.3", ""),
