@@ -155,7 +155,7 @@ pub enum Command {
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
-    /// Write an instrumentation report (HTML with plots, CSV tables) for a site and period.
+    /// Write an instrumentation report (HTML with plots, PDF, CSV tables) for a site and period.
     Report {
         #[command(flatten)]
         config: ConfigDir,
@@ -168,6 +168,9 @@ pub enum Command {
         /// Output directory.
         #[arg(long, value_name = "DIR")]
         out: PathBuf,
+        /// Documents to write, comma-separated: any of html, pdf, csv (default: all).
+        #[arg(long, value_name = "LIST", default_value_t)]
+        format: crate::config::Formats,
     },
     /// Plot one quantity of one instrument or derived object over a period, as SVG.
     Plot {
@@ -453,16 +456,13 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             site,
             period: Period { from, to },
             out,
+            format,
         } => {
             let cfg = load(&config)?;
-            let files = crate::report::generate(&cfg, &db.open(&cfg)?, &site, from, to, now, &out)?;
-            let mut list = format!("{}\n", files.html.display());
-            if let Some(p) = &files.pdf {
-                list.push_str(&format!("{}\n", p.display()));
-            }
-            for c in files.csv {
-                list.push_str(&format!("{}\n", c.display()));
-            }
+            let store = db.open(&cfg)?;
+            let files =
+                crate::report::generate(&cfg, &store, &site, (from, to), now, format, &out)?;
+            let list: String = files.iter().map(|p| format!("{}\n", p.display())).collect();
             emit(&list)
         }
         Command::Plot {

@@ -10,7 +10,7 @@ use std::path::{Path, PathBuf};
 
 use chrono::{NaiveTime, Weekday};
 
-use super::model::{Every, ReportSchedule};
+use super::model::{Every, Formats, ReportSchedule};
 use super::problem::{Cx, Problem};
 use super::reader::Tbl;
 use super::site::Pos;
@@ -19,8 +19,9 @@ use super::smtp::plain_address;
 /// Top-level keys of a site file that this module reads.
 pub(crate) const KEYS: [&str; 1] = ["report"];
 
-const TABLE_KEYS: [&str; 8] = [
+const TABLE_KEYS: [&str; 9] = [
     "id",
+    "formats",
     "every",
     "at",
     "weekday",
@@ -127,6 +128,12 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
         );
     }
     let out_dir = t.nonempty(cx, "out_dir").map(PathBuf::from);
+    let formats = match t.strings(cx, "formats", false) {
+        Some(names) => Formats::from_names(names.iter().map(String::as_str))
+            .map_err(|e| t.problem_at(cx, "formats", format!("key \"formats\": {e}")))
+            .unwrap_or_default(),
+        None => Formats::default(),
+    };
     let contacts_pos = cx.pos(t.value_span("contacts"));
     let every = match kind {
         Some(Kind::Daily) => Some(Every::Daily),
@@ -143,6 +150,7 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             recipients,
             contacts: contacts.clone(),
             out_dir,
+            formats,
         }),
         _ => None,
     };

@@ -1,11 +1,12 @@
 //! Periodic instrumentation reports for one site and period: a self-contained HTML file
 //! (tables, inline SVG time histories and section drawings, caution, sign-off lines) and CSV
-//! tables. Used by `seepd report` on demand; the schedule runs the same code.
+//! tables (`files`: the formats asked for). Used by `seepd report` on demand; the schedule runs the same code.
 
 pub mod alerts;
 pub mod chart;
 pub mod csv;
 pub mod data;
+mod files;
 pub mod html;
 #[cfg(feature = "pdf")]
 pub mod pdf;
@@ -13,12 +14,9 @@ pub mod schedule;
 pub mod scheduler;
 pub mod summary;
 
-use std::collections::BTreeSet;
-use std::path::{Path, PathBuf};
-
-use anyhow::Context as _;
 use chrono::{DateTime, Utc};
 use chrono_tz::Tz;
+use std::collections::BTreeSet;
 
 use crate::config::{Config, DisplayUnits, Kind};
 use crate::domain::rules::{Check, Direction};
@@ -28,15 +26,7 @@ use crate::store::Store;
 
 use chart::{Beyond, Chart, LevelLine, Series};
 use data::ReportData;
-
-/// The files a report consists of.
-#[derive(Debug, Clone)]
-pub struct ReportFiles {
-    pub html: PathBuf,
-    /// The PDF (built with the `pdf` feature).
-    pub pdf: Option<PathBuf>,
-    pub csv: Vec<PathBuf>,
-}
+pub use files::{generate, render_report, write_files, Document};
 
 /// A chart group: a title and its piezometers, with the stage gauge drawn on the second axis.
 struct Group {
@@ -383,125 +373,4 @@ pub fn build(
         version: env!("CARGO_PKG_VERSION"),
     };
     Ok((data, extras))
-}
-
-/// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and bytes.
-#[derive(Debug, Clone)]
-pub struct Document {
-    pub name: String,
-    pub content_type: &'static str,
-    pub data: Vec<u8>,
-}
-
-impl Document {
-    /// The document as text (HTML, CSV); a binary one (PDF) reads with replacement characters.
-    pub fn text(&self) -> std::borrow::Cow<'_, str> {
-        String::from_utf8_lossy(&self.data)
-    }
-}
-
-/// Render the report for `site` over [from, to): the HTML document first, then the CSV tables.
-///
-/// # Errors
-/// Unknown site, database errors, or a generated document that is not well-formed.
-pub fn render_files(
-    cfg: &Config,
-    store: &Store,
-    site: &str,
-    from: DateTime<Utc>,
-    to: DateTime<Utc>,
-    now: DateTime<Utc>,
-) -> anyhow::Result<Vec<Document>> {
-    Ok(render_report(cfg, store, site, from, to, now)?.0)
-}
-
-/// Render the report's documents (as [`render_files`]) and its summary sentences (for the
-/// body of the report email).
-///
-/// # Errors
-/// Unknown site, database errors, or a generated document that is not well-formed.
-pub fn render_report(
-    cfg: &Config,
-    store: &Store,
-    site: &str,
-    from: DateTime<Utc>,
-    to: DateTime<Utc>,
-    now: DateTime<Utc>,
-) -> anyhow::Result<(Vec<Document>, Vec<String>)> {
-    anyhow::ensure!(to > from, "the period is empty: --to must be after --from");
-    let (data, extras) = build(cfg, store, site, from, to, now)?;
-    let summary = extras.summary.clone();
-    let doc = html::render(&data, &extras);
-    crate::xml_check::check_xml(&doc)
-        .map_err(|e| anyhow::anyhow!("generated HTML is not well-formed: {e}"))?;
-    let stem = format!("{}_{}_{}", site, from.format("%Y%m%d"), to.format("%Y%m%d"));
-    let mut docs = vec![Document {
-        name: format!("{stem}.html"),
-        content_type: "text/html; charset=utf-8",
-        data: doc.into_bytes(),
-    }];
-    #[cfg(feature = "pdf")]
-    docs.push(Document {
-        name: format!("{stem}.pdf"),
-        content_type: "application/pdf",
-        data: pdf::render(&data, &extras)?,
-    });
-    for (name, text) in [
-        ("instruments", csv::instruments(&data)),
-        ("derived", csv::derived(&data)),
-        ("quarantine", csv::quarantine(&data)),
-    ] {
-        docs.push(Document {
-            name: format!("{stem}_{name}.csv"),
-            content_type: "text/csv; charset=utf-8",
-            data: text.into_bytes(),
-        });
-    }
-    Ok((docs, summary))
-}
-
-/// Write rendered documents into `out` (created if needed); returns their paths in order.
-///
-/// # Errors
-/// File errors.
-pub fn write_files(docs: &[Document], out: &Path) -> anyhow::Result<Vec<PathBuf>> {
-    std::fs::create_dir_all(out).with_context(|| format!("creating {}", out.display()))?;
-    let mut paths = Vec::new();
-    for d in docs {
-        let p = out.join(&d.name);
-        std::fs::write(&p, &d.data).with_context(|| format!("writing {}", p.display()))?;
-        paths.push(p);
-    }
-    Ok(paths)
-}
-
-/// Generate the report files for `site` over [from, to) into `out`.
-///
-/// # Errors
-/// Unknown site, database or file errors, or a generated document that is not well-formed.
-pub fn generate(
-    cfg: &Config,
-    store: &Store,
-    site: &str,
-    from: DateTime<Utc>,
-    to: DateTime<Utc>,
-    now: DateTime<Utc>,
-    out: &Path,
-) -> anyhow::Result<ReportFiles> {
-    let docs = render_files(cfg, store, site, from, to, now)?;
-    let paths = write_files(&docs, out)?;
-    let with = |ext: &'static str| {
-        paths
-            .iter()
-            .filter(move |p| p.extension().is_some_and(|e| e == ext))
-    };
-    let html = with("html")
-        .next()
-        .cloned()
-        .ok_or_else(|| anyhow::anyhow!("no HTML document was rendered"))?;
-    Ok(ReportFiles {
-        html,
-        pdf: with("pdf").next().cloned(),
-        csv: with("csv").cloned().collect(),
-    })
 }
