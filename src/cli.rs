@@ -172,7 +172,7 @@ pub enum Command {
         #[arg(long, value_name = "LIST", default_value_t)]
         format: crate::config::Formats,
     },
-    /// Plot one quantity of one instrument or derived object over a period, as SVG.
+    /// Plot one quantity of one instrument or derived object over a period, as SVG (or PNG).
     Plot {
         #[command(flatten)]
         config: ConfigDir,
@@ -476,7 +476,13 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             let cfg = load(&config)?;
             let store = db.open(&cfg)?;
             let svg = crate::plot_cmd::render(&cfg, &store, &id, quantity.as_deref(), from, to)?;
-            write_or_emit(out.as_deref(), &svg)
+            match out.as_deref() {
+                Some(p) if p.extension().is_some_and(|e| e.eq_ignore_ascii_case("png")) => {
+                    let png = crate::plot_cmd::png(&svg)?;
+                    std::fs::write(p, png).with_context(|| format!("writing {}", p.display()))
+                }
+                _ => write_or_emit(out.as_deref(), &svg),
+            }
         }
         Command::Alerts { on } => {
             let (db, cfg) = operator(&on)?;

@@ -346,3 +346,97 @@ fn plot_draws_one_quantity_with_its_rule_levels() {
         assert!(err.contains(says), "{id}: {err}");
     }
 }
+
+/// `seepd plot --out FILE.png`: the same drawing rasterised at twice the SVG's size — an image
+/// that decodes, of that size, on white, with the series drawn in its colour.
+#[cfg(feature = "pdf")]
+#[test]
+fn plot_writes_a_png_twice_the_size_of_its_svg() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.ndjson");
+    // The river falling 0.1 m an hour for a day (invented).
+    let lines: String = (0..24)
+        .map(|h| {
+            format!(
+                "{{\"time\":{},\"instrument\":\"AB-RIVER\",\"value\":{:.2}}}\n",
+                1_772_323_200 + h * 3600,
+                6.0 - 0.1 * h as f64
+            )
+        })
+        .collect();
+    std::fs::write(&input, lines).unwrap();
+    let db = dir.path().join("replay.sqlite").display().to_string();
+    let (code, _, err) = seepd(&[
+        "replay",
+        "--config",
+        &example_dir(),
+        "--input",
+        &input.display().to_string(),
+        "--db",
+        &db,
+        "--output",
+        "/dev/null",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let plot = |out: &str| {
+        let (code, _, err) = seepd(&[
+            "plot",
+            "--config",
+            &example_dir(),
+            "--db",
+            &db,
+            "--id",
+            "AB-RIVER",
+            "--from",
+            "2026-03-01",
+            "--to",
+            "2026-03-02",
+            "--out",
+            out,
+        ]);
+        assert_eq!(code, 0, "{out}: {err}");
+    };
+    let (svg_path, png_path) = (dir.path().join("r.svg"), dir.path().join("r.PNG"));
+    plot(svg_path.to_str().unwrap());
+    plot(png_path.to_str().unwrap());
+    let svg = std::fs::read_to_string(&svg_path).unwrap();
+    let root = common::well_formed(&svg);
+    let size = |a: &str| -> u32 { root.root_element().attribute(a).unwrap().parse().unwrap() };
+    let bytes = std::fs::read(&png_path).unwrap();
+    assert!(bytes.starts_with(b"\x89PNG"), "not a PNG");
+    let img = resvg::tiny_skia::Pixmap::decode_png(&bytes).expect("the PNG decodes");
+    assert_eq!(
+        (img.width(), img.height()),
+        (2 * size("width"), 2 * size("height"))
+    );
+    let px = img.pixels();
+    let white = px
+        .iter()
+        .filter(|p| (p.red(), p.green(), p.blue(), p.alpha()) == (255, 255, 255, 255))
+        .count();
+    // On white (no transparent background), but not blank: axes, text and the series.
+    assert!(px.iter().all(|p| p.alpha() == 255), "transparent pixels");
+    assert!(
+        white > px.len() / 2,
+        "mostly white background: {white} of {}",
+        px.len()
+    );
+    assert!(
+        px.len() - white > px.len() / 100,
+        "blank: {white} of {} white",
+        px.len()
+    );
+    // The first series colour of the report's charts is drawn (the river's line).
+    let first = svg
+        .split("<polyline")
+        .nth(1)
+        .and_then(|p| p.split("stroke=\"#").nth(1))
+        .map(|c| &c[..6])
+        .expect("a series line in the SVG");
+    let rgb = |k: usize| u8::from_str_radix(&first[2 * k..2 * k + 2], 16).unwrap();
+    let drawn = px
+        .iter()
+        .filter(|p| (p.red(), p.green(), p.blue()) == (rgb(0), rgb(1), rgb(2)))
+        .count();
+    assert!(drawn > 200, "{drawn} pixels of #{first}");
+}

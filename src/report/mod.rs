@@ -10,6 +10,8 @@ mod files;
 pub mod html;
 #[cfg(feature = "pdf")]
 pub mod pdf;
+#[cfg(feature = "pdf")]
+pub mod raster;
 pub mod schedule;
 pub mod scheduler;
 pub mod summary;

@@ -6,8 +6,6 @@
 //!
 //! Layout is pure (`Layout` collects pages of drawing operations); `render` draws them.
 
-use std::sync::Arc;
-
 use krilla::color::rgb;
 use krilla::geom::{PathBuilder, Point, Rect, Size};
 use krilla::num::NormalizedF32;
@@ -19,14 +17,13 @@ use krilla_svg::{SurfaceExt, SvgSettings};
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
 use super::html::{local, Extras};
+use super::raster::{svg_options, FONT};
 use crate::config::DisplayUnits;
 use crate::present::format::{shown, shown_bare, FS_CAP_RULE};
 use crate::present::labels::system_name;
 use crate::present::units::unit_label;
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
 
-/// DejaVu Sans (free licence, `assets/fonts/DejaVuSans-LICENSE.txt`), embedded.
-const FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
 /// Average advance of DejaVu Sans, em (for right alignment and truncation).
 const ADVANCE_EM: f32 = 0.56;
 const MARGIN: f32 = 42.0;
@@ -551,12 +548,7 @@ pub fn render(d: &ReportData, x: &Extras) -> anyhow::Result<Vec<u8>> {
     let l = layout(d, x);
     let font = Font::new(FONT.to_vec().into(), 0)
         .ok_or_else(|| anyhow::anyhow!("the embedded font cannot be read"))?;
-    let mut opt = usvg::Options::default();
-    let mut db = usvg::fontdb::Database::new();
-    db.load_font_data(FONT.to_vec());
-    db.set_sans_serif_family("DejaVu Sans");
-    opt.fontdb = Arc::new(db);
-    opt.font_family = "DejaVu Sans".into();
+    let opt = svg_options();
     let trees: Vec<Option<usvg::Tree>> = l
         .svgs
         .iter()
