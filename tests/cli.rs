@@ -268,26 +268,21 @@ fn demo_runs_its_embedded_broker_and_stops_cleanly() {
     assert!(stored > 100, "{out}");
 }
 
-/// `seepd plot`: one quantity of one instrument over a period, as a well-formed SVG with the
-/// quantity in words, the unit, and the rule levels on it; a derived object needs `--quantity`;
-/// an unknown id and an empty period are clear errors.
-#[test]
-fn plot_draws_one_quantity_with_its_rule_levels() {
-    let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("in.ndjson");
-    // A river rising 0.25 m an hour for two days (invented).
-    let lines: String = (0..48)
+/// Replay `hours` hourly river readings from 2026-03-01 (`value(hour)`) into a new database in
+/// `dir`; returns its path.
+fn replay_river(dir: &std::path::Path, hours: i64, value: impl Fn(f64) -> f64) -> String {
+    let input = dir.join("in.ndjson");
+    let lines: String = (0..hours)
         .map(|h| {
             format!(
                 "{{\"time\":{},\"instrument\":\"AB-RIVER\",\"value\":{:.2}}}\n",
                 1_772_323_200 + h * 3600,
-                3.0 + 0.25 * h as f64
+                value(h as f64)
             )
         })
         .collect();
     std::fs::write(&input, lines).unwrap();
-    let db = dir.path().join("replay.sqlite");
-    let db_s = db.display().to_string();
+    let db = dir.join("replay.sqlite").display().to_string();
     let (code, _, err) = seepd(&[
         "replay",
         "--config",
@@ -295,11 +290,22 @@ fn plot_draws_one_quantity_with_its_rule_levels() {
         "--input",
         &input.display().to_string(),
         "--db",
-        &db_s,
+        &db,
         "--output",
         "/dev/null",
     ]);
     assert_eq!(code, 0, "{err}");
+    db
+}
+
+/// `seepd plot`: one quantity of one instrument over a period, as a well-formed SVG with the
+/// quantity in words, the unit, and the rule levels on it; a derived object needs `--quantity`;
+/// an unknown id and an empty period are clear errors.
+#[test]
+fn plot_draws_one_quantity_with_its_rule_levels() {
+    let dir = tempfile::tempdir().unwrap();
+    // A river rising 0.25 m an hour for two days (invented).
+    let db_s = replay_river(dir.path(), 48, |h| 3.0 + 0.25 * h);
     let out = dir.path().join("river.svg");
     let (code, _, err) = seepd(&[
         "plot",
@@ -353,31 +359,8 @@ fn plot_draws_one_quantity_with_its_rule_levels() {
 #[test]
 fn plot_writes_a_png_twice_the_size_of_its_svg() {
     let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("in.ndjson");
     // The river falling 0.1 m an hour for a day (invented).
-    let lines: String = (0..24)
-        .map(|h| {
-            format!(
-                "{{\"time\":{},\"instrument\":\"AB-RIVER\",\"value\":{:.2}}}\n",
-                1_772_323_200 + h * 3600,
-                6.0 - 0.1 * h as f64
-            )
-        })
-        .collect();
-    std::fs::write(&input, lines).unwrap();
-    let db = dir.path().join("replay.sqlite").display().to_string();
-    let (code, _, err) = seepd(&[
-        "replay",
-        "--config",
-        &example_dir(),
-        "--input",
-        &input.display().to_string(),
-        "--db",
-        &db,
-        "--output",
-        "/dev/null",
-    ]);
-    assert_eq!(code, 0, "{err}");
+    let db = replay_river(dir.path(), 24, |h| 6.0 - 0.1 * h);
     let plot = |out: &str| {
         let (code, _, err) = seepd(&[
             "plot",
