@@ -30,6 +30,8 @@ pub struct InstrumentStats {
     pub location: Location,
     pub tip_elevation_m: Option<f64>,
     pub installed_ms: i64,
+    /// Date of the last calibration, as configured.
+    pub calibrated_ms: Option<i64>,
     pub interval_s: u64,
     /// Flag name → count.
     pub flag_counts: Vec<(&'static str, i64)>,
@@ -160,6 +162,7 @@ pub fn instrument_stats(
         location: i.location.clone(),
         tip_elevation_m: i.tip_elevation_m,
         installed_ms: i.installed.timestamp_millis(),
+        calibrated_ms: i.calibrated.map(|t| t.timestamp_millis()),
         interval_s: i.interval_s,
         flag_counts: Flags::NAMES.iter().map(|(_, n)| (*n, 0)).collect(),
     };

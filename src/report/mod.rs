@@ -10,6 +10,7 @@ mod files;
 pub mod html;
 #[cfg(feature = "pdf")]
 pub mod pdf;
+mod places;
 #[cfg(feature = "pdf")]
 pub mod raster;
 pub mod schedule;

@@ -419,40 +419,17 @@ fn layout(d: &ReportData, x: &Extras) -> Layout {
         l.paragraph(BODY, &format!("• {s}"), 4.0);
     }
     l.heading("Instruments and where they are");
-    let len_u = unit_label(Measure::Length, d.units, "m");
-    let pos = |v: Option<f64>| {
-        v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Position, d.units))
-    };
-    let len =
-        |v: Option<f64>| v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Length, d.units));
-    let rows: Vec<Vec<String>> = d
-        .piezometers
-        .iter()
-        .chain(&d.stages)
-        .chain(&d.others)
-        .map(|i| {
-            vec![
-                i.id.clone(),
-                kind_name(i.kind),
-                i.location.reach.clone().unwrap_or_else(|| "—".into()),
-                pos(i.location.station_m),
-                pos(i.location.offset_m),
-                len(i.tip_elevation_m),
-                local(i.installed_ms, tz),
-            ]
-        })
+    let cols: Vec<_> = super::places::columns(d, tz)
+        .into_iter()
+        .filter(|c| c.pdf_width > 0.0)
         .collect();
-    let h = [
-        "Instrument".to_string(),
-        "Kind".into(),
-        "Reach".into(),
-        format!("Station ({len_u})"),
-        format!("Offset ({len_u})"),
-        format!("Tip elevation ({len_u})"),
-        "Installed".into(),
-    ];
-    let h: Vec<&str> = h.iter().map(String::as_str).collect();
-    l.table(&h, &[1.2, 2.4, 0.7, 1.1, 1.1, 1.4, 1.5], 3, &rows);
+    let h: Vec<&str> = cols.iter().map(|c| c.header.as_str()).collect();
+    let widths: Vec<f32> = cols.iter().map(|c| c.pdf_width).collect();
+    let left = cols.iter().take_while(|c| c.left).count();
+    let rows: Vec<Vec<String>> = (0..cols.first().map_or(0, |c| c.cells.len()))
+        .map(|k| cols.iter().map(|c| c.cells[k].clone()).collect())
+        .collect();
+    l.table(&h, &widths, left, &rows);
     l.heading("Piezometers");
     stats_table(&mut l, &d.piezometers, d);
     l.heading("Pool and river stage");
