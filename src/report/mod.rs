@@ -153,7 +153,7 @@ fn stage_of(
     let Some(i) = id.and_then(|id| cfg.instruments.get(id)) else {
         return Ok((None, String::new()));
     };
-    let points = to_display(data::series(store.conn(), i, f, t)?, Measure::Length, units);
+    let points = to_display(data::series(store, i, f, t)?, Measure::Length, units);
     let axis = format!("{} water level ({})", i.id, length_unit(units));
     Ok((
         Some(Series {
@@ -181,7 +181,6 @@ fn safety_charts(
     units: DisplayUnits,
 ) -> anyhow::Result<Vec<(String, Chart)>> {
     let o = &cfg.objects;
-    let conn = store.conn();
     let mut out = Vec::new();
     let toes: Vec<String> = o
         .toes
@@ -194,7 +193,7 @@ fn safety_charts(
         for id in objects {
             v.push(Series {
                 label: id.clone(),
-                points: to_display(data::derived_series(conn, id, q, f, t)?, m, units),
+                points: to_display(store.derived_points(id, q, f, t)?, m, units),
             });
         }
         Ok(v)
@@ -266,7 +265,7 @@ fn safety_charts(
             c.series.push(Series {
                 label: label.into(),
                 points: to_display(
-                    data::derived_series(conn, &b.id, q, f, t)?,
+                    store.derived_points(&b.id, q, f, t)?,
                     Measure::Length,
                     units,
                 ),
@@ -281,22 +280,19 @@ fn safety_charts(
 }
 
 /// The times to draw a section at: the period's highest pool, and its end.
-fn section_times(store: &Store, pool: &str, from_ms: i64, to_ms: i64) -> Vec<(String, i64)> {
-    let peak: Option<i64> = store
-        .conn()
-        .query_row(
-            "SELECT t_ms FROM readings WHERE instrument = ?1 AND t_ms >= ?2 AND t_ms < ?3
-             AND total_head_m IS NOT NULL ORDER BY total_head_m DESC, t_ms ASC LIMIT 1",
-            rusqlite::params![pool, from_ms, to_ms],
-            |r| r.get(0),
-        )
-        .ok();
+fn section_times(
+    store: &Store,
+    pool: &str,
+    from_ms: i64,
+    to_ms: i64,
+) -> Result<Vec<(String, i64)>, crate::store::StoreError> {
+    let peak = store.highest_head_time(pool, from_ms, to_ms)?;
     let mut v = Vec::new();
     if let Some(t) = peak {
         v.push(("at the period's highest pool".to_string(), t));
     }
     v.push(("at the end of the period".to_string(), to_ms - 1));
-    v
+    Ok(v)
 }
 
 /// An SVG document without its XML declaration, for embedding in HTML.
@@ -321,7 +317,7 @@ pub fn build(
     to: DateTime<Utc>,
     now: DateTime<Utc>,
 ) -> anyhow::Result<(ReportData, html::Extras)> {
-    let data = data::gather(cfg, store.conn(), site, from, to, now)?;
+    let data = data::gather(cfg, store, site, from, to, now)?;
     let units = data.units;
     let tz: Tz = data.time_zone.parse().unwrap_or(chrono_tz::UTC);
     let (f, t) = (from.timestamp_millis(), to.timestamp_millis());
@@ -341,11 +337,7 @@ pub fn build(
             if let Some(i) = cfg.instruments.get(id) {
                 c.series.push(Series {
                     label: id.clone(),
-                    points: to_display(
-                        data::series(store.conn(), i, f, t)?,
-                        Measure::Length,
-                        units,
-                    ),
+                    points: to_display(data::series(store, i, f, t)?, Measure::Length, units),
                 });
             }
         }
@@ -355,7 +347,7 @@ pub fn build(
     }
     let mut sections = Vec::new();
     for s in cfg.objects.sections.iter().filter(|s| s.site == site) {
-        for (label, at_ms) in section_times(store, &s.pool_gauge, f, t) {
+        for (label, at_ms) in section_times(store, &s.pool_gauge, f, t)? {
             let at = DateTime::from_timestamp_millis(at_ms).unwrap_or(to);
             let caption = format!("Section {} {label} ({})", s.id, html::local(at_ms, tz));
             let svg = crate::section_cmd::render(cfg, store, &s.id, at)
@@ -364,8 +356,8 @@ pub fn build(
             sections.push((caption, svg));
         }
     }
-    let alerts = alerts::rows(cfg, store.conn(), site, f, t, tz, units)?;
-    let previous = data::gather(cfg, store.conn(), site, from - (to - from), from, now)?;
+    let alerts = alerts::rows(cfg, store, site, f, t, tz, units)?;
+    let previous = data::gather(cfg, store, site, from - (to - from), from, now)?;
     let summary = summary::lines(cfg, &data, &previous, &alerts);
     let extras = html::Extras {
         charts,
