@@ -28,6 +28,8 @@ use crate::present::{kind_name, measure_of, quantity_name, Measure};
 const ADVANCE_EM: f32 = 0.56;
 const MARGIN: f32 = 42.0;
 const BODY: f32 = 8.0;
+/// Height of a table row, em.
+const ROW_EM: f32 = 1.6;
 
 /// One drawing operation on a page (points, origin top left).
 #[derive(Debug, Clone)]
@@ -214,7 +216,7 @@ impl Layout {
     /// `left` columns left-aligned, the rest right-aligned. Headers repeat on a new page.
     fn table(&mut self, headers: &[&str], widths: &[f32], left: usize, rows: &[Vec<String>]) {
         let size = 6.8;
-        let row_h = size * 1.6;
+        let row_h = size * ROW_EM;
         let total: f32 = widths.iter().sum();
         let xs: Vec<(f32, f32)> = widths
             .iter()
@@ -227,24 +229,7 @@ impl Layout {
             .collect();
         let head = |l: &mut Layout| {
             l.room(row_h * 2.0);
-            for (k, h) in headers.iter().enumerate() {
-                let (x, cw) = xs[k];
-                let t = fit(h, size, cw - 4.0);
-                let tx = if k < left {
-                    x + 2.0
-                } else {
-                    x + cw - 2.0 - width(&t, size)
-                };
-                let y = l.y + size;
-                l.op(Op::Text {
-                    x: tx,
-                    y,
-                    size,
-                    text: t,
-                    red: false,
-                });
-            }
-            l.y += row_h;
+            l.table_row(headers.iter().copied(), &xs, left, size);
             let y = l.y - 2.0;
             l.op(Op::Line {
                 x1: MARGIN,
@@ -259,26 +244,36 @@ impl Layout {
                 self.room(f32::MAX / 4.0);
                 head(self);
             }
-            for (k, cell) in r.iter().enumerate().take(xs.len()) {
-                let (x, cw) = xs[k];
-                let t = fit(cell, size, cw - 4.0);
-                let tx = if k < left {
-                    x + 2.0
-                } else {
-                    x + cw - 2.0 - width(&t, size)
-                };
-                let y = self.y + size;
-                self.op(Op::Text {
-                    x: tx,
-                    y,
-                    size,
-                    text: t,
-                    red: false,
-                });
-            }
-            self.y += row_h;
+            self.table_row(r.iter().map(String::as_str), &xs, left, size);
         }
         self.y += 6.0;
+    }
+    /// One row of a table (headers or cells) in columns `xs` (start, width): each text fitted
+    /// to its column, the first `left` left-aligned, the rest right-aligned; moves down a row.
+    fn table_row<'a>(
+        &mut self,
+        cells: impl Iterator<Item = &'a str>,
+        xs: &[(f32, f32)],
+        left: usize,
+        size: f32,
+    ) {
+        for (k, (cell, &(x, cw))) in cells.zip(xs).enumerate() {
+            let t = fit(cell, size, cw - 4.0);
+            let tx = if k < left {
+                x + 2.0
+            } else {
+                x + cw - 2.0 - width(&t, size)
+            };
+            let y = self.y + size;
+            self.op(Op::Text {
+                x: tx,
+                y,
+                size,
+                text: t,
+                red: false,
+            });
+        }
+        self.y += size * ROW_EM;
     }
     /// An SVG drawing scaled to the text width.
     fn svg(&mut self, svg: &str, w_px: f32, h_px: f32) {
