@@ -24,7 +24,7 @@ use crate::present::labels::system_name;
 use crate::present::units::unit_label;
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
 
-/// Average advance of DejaVu Sans, em (for right alignment and truncation).
+/// Average advance of DejaVu Sans, em (for a character the font lacks).
 const ADVANCE_EM: f32 = 0.56;
 const MARGIN: f32 = 42.0;
 const BODY: f32 = 8.0;
@@ -71,15 +71,22 @@ struct Layout {
     svgs: Vec<String>,
 }
 
-/// Approximate advance of a character of DejaVu Sans, em.
+/// The embedded font's face, parsed once (for glyph advances).
+fn face() -> Option<&'static ttf_parser::Face<'static>> {
+    static FACE: std::sync::OnceLock<Option<ttf_parser::Face<'static>>> =
+        std::sync::OnceLock::new();
+    FACE.get_or_init(|| ttf_parser::Face::parse(FONT, 0).ok())
+        .as_ref()
+}
+
+/// Advance of a character of the embedded DejaVu Sans, em (an average if the font lacks it).
 fn advance(c: char) -> f32 {
-    match c {
-        '0'..='9' => 0.636,
-        ' ' | '.' | ',' | ':' | ';' | '|' | 'i' | 'l' | 'j' => 0.32,
-        '-' | '(' | ')' | 'f' | 't' | 'r' => 0.4,
-        'A'..='Z' | 'm' | 'w' | '—' | '%' => 0.72,
-        _ => ADVANCE_EM,
-    }
+    face()
+        .and_then(|f| {
+            let g = f.glyph_index(c)?;
+            Some(f32::from(f.glyph_hor_advance(g)?) / f32::from(f.units_per_em()))
+        })
+        .unwrap_or(ADVANCE_EM)
 }
 
 fn width(text: &str, size: f32) -> f32 {
