@@ -339,7 +339,7 @@ fn stats_table(l: &mut Layout, rows: &[InstrumentStats], d: &ReportData) {
     let h: Vec<&str> = h.iter().map(String::as_str).collect();
     l.table(
         &h,
-        &[1.0, 2.3, 1.0, 1.6, 0.9, 0.9, 1.6, 0.8, 0.9, 0.8],
+        &[1.0, 1.9, 1.25, 1.65, 1.0, 1.0, 1.65, 0.95, 0.95, 0.7],
         2,
         &stats_rows(rows, d),
     );
