@@ -232,6 +232,10 @@ const MIGRATIONS: &[&str] = &[
         t_ms INTEGER NOT NULL,
         PRIMARY KEY (outbox, address)
     ) WITHOUT ROWID;",
+    // 10: mail threading. The Message-IDs an outbox message refers to (space-separated): every
+    // message about an alert refers to that alert's thread id, so a phone shows the raise, the
+    // escalations and the all-clear as one conversation.
+    "ALTER TABLE outbox ADD COLUMN thread_refs TEXT NOT NULL DEFAULT '';",
 ];
 
 /// The schema version this build writes.
