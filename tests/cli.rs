@@ -87,12 +87,12 @@ fn check_refuses_old_names_naming_the_new_ones_and_exits_78() {
     assert_eq!(code, 78, "{out}\n{err}");
     // Both site files write the two [alerting] keys; the levee writes the two tables.
     for needle in [
-        "levee-ash-bend.toml:281:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
-        "levee-ash-bend.toml:283:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
-        "dam-tarn.toml:129:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
-        "dam-tarn.toml:130:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
-        "levee-ash-bend.toml:191:3: levee-ash-bend.toml: [[cluster]] tables are now [[nest]]",
-        "levee-ash-bend.toml:425:3: levee-ash-bend.toml: [[response]] tables are now [[stage_response]]",
+        "levee-ash-bend.toml:287:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "levee-ash-bend.toml:289:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "dam-tarn.toml:132:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "dam-tarn.toml:133:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "levee-ash-bend.toml:197:3: levee-ash-bend.toml: [[cluster]] tables are now [[nest]]",
+        "levee-ash-bend.toml:432:3: levee-ash-bend.toml: [[response]] tables are now [[stage_response]]",
     ] {
         assert!(err.contains(needle), "{needle} not in:\n{err}");
     }
