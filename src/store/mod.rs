@@ -11,6 +11,7 @@ mod duplicates;
 pub mod export;
 mod models;
 pub mod outbox;
+pub mod report_reads;
 pub mod reports;
 mod schema;
 mod state;
