@@ -154,6 +154,36 @@ pub enum Command {
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
+    /// Solve a section's seepage model once and print the flow net's results.
+    Flownet {
+        #[command(flatten)]
+        config: ConfigDir,
+        #[command(flatten)]
+        db: DbFile,
+        /// Section id.
+        #[arg(long)]
+        id: String,
+        /// Solve at the levels stored at this time (RFC 3339 or YYYY-MM-DD, UTC); default: now.
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant, conflicts_with = "upstream")]
+        at: Option<DateTime<Utc>>,
+        /// Upstream (pool) level, m, instead of the stored one.
+        #[arg(long, value_name = "LEVEL", allow_negative_numbers = true)]
+        upstream: Option<f64>,
+        /// Downstream (tail-water) level, m, with --upstream.
+        #[arg(
+            long,
+            value_name = "LEVEL",
+            allow_negative_numbers = true,
+            requires = "upstream"
+        )]
+        downstream: Option<f64>,
+        /// Print one JSON object (SI units).
+        #[arg(long)]
+        json: bool,
+        /// Also draw the flow net as SVG into this file.
+        #[arg(long, value_name = "FILE")]
+        out: Option<PathBuf>,
+    },
     /// Write an instrumentation report (HTML with plots, PDF, CSV tables) for a site and period.
     Report {
         #[command(flatten)]
@@ -448,6 +478,43 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             let cfg = load(&config)?;
             let svg = crate::section_cmd::render(&cfg, &db.open(&cfg)?, &id, at.unwrap_or(now))?;
             write_or_emit(out.as_deref(), &svg)
+        }
+        Command::Flownet {
+            config,
+            db,
+            id,
+            at,
+            upstream,
+            downstream,
+            json,
+            out,
+        } => {
+            let cfg = load(&config)?;
+            let s = crate::flownet_cmd::section(&cfg, &id)?;
+            let (levels, store) = match upstream {
+                Some(pool_m) => (
+                    crate::flownet_cmd::Levels::Given {
+                        pool_m,
+                        tail_m: downstream,
+                    },
+                    None,
+                ),
+                None => (
+                    crate::flownet_cmd::Levels::At(at.unwrap_or(now)),
+                    Some(db.open(&cfg)?),
+                ),
+            };
+            let solved = crate::flownet_cmd::solve(&cfg, store.as_ref(), s, &levels)?;
+            if let Some(path) = &out {
+                let svg = crate::section_cmd::flownet_svg(&cfg, s, &solved.net);
+                write_or_emit(Some(path), &svg)?;
+            }
+            let text = if json {
+                format!("{}\n", crate::flownet_cmd::json(&id, &solved))
+            } else {
+                crate::flownet_cmd::text(&id, &solved)
+            };
+            emit(&text)
         }
         Command::Report {
             config,

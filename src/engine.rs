@@ -11,6 +11,7 @@ use std::sync::Arc;
 use chrono::{DateTime, Utc};
 
 use crate::config::{Config, Instrument, Subscription};
+use crate::derive::model_live::LiveModels;
 use crate::derive::{Deriver, Head};
 use crate::model::{DerivedRow, FlagUpdate, QuarantineRow, ReadingRow};
 use crate::payload::decode::{decode, Decoded};
@@ -65,6 +66,8 @@ pub struct Engine {
     deriver: Deriver,
     /// Sensor health, rates, model residuals and completeness per reading.
     watch: Watcher,
+    /// Live re-solves of the sections' seepage models (off this thread) and their rows.
+    live: LiveModels,
 }
 
 impl Engine {
@@ -113,7 +116,14 @@ impl Engine {
             baro: HashMap::new(),
             deriver,
             watch,
+            live: LiveModels::default(),
         }
+    }
+
+    /// The live seepage models: connect the solver thread, hand it over on reload, and ask
+    /// whether answers wait to be committed.
+    pub fn live_models(&mut self) -> &mut LiveModels {
+        &mut self.live
     }
 
     /// The configuration the engine runs on.
@@ -146,8 +156,10 @@ impl Engine {
     /// Close a batch (batch mode): the rates of the instruments that got readings in it, each
     /// at its newest reading that is due one. Without batch mode, empty.
     pub fn end_batch(&mut self) -> Outcome {
+        let mut derived = self.watch.take_rates();
+        derived.extend(self.live.drain());
         Outcome {
-            derived: self.watch.take_rates(),
+            derived,
             ..Outcome::default()
         }
     }
@@ -252,6 +264,8 @@ impl Engine {
                     }
                     out.derived.extend(self.deriver.on_reading(&row));
                     out.derived.extend(self.watch.derive(&row));
+                    out.derived
+                        .extend(self.live.on_reading(&self.cfg, &row, &self.deriver));
                     out.readings.push(row);
                 }
                 Err(reject) => quarantine(&mut out, reject),

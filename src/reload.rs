@@ -70,6 +70,9 @@ pub fn apply(cfg: Arc<Config>, store: &mut Store, engine: &mut Engine, alerts: &
         if let Some(fits) = engine.watch_mut().take_fits() {
             e.watch_mut().receive_fits(fits);
         }
+        if let Some((tx, rx)) = engine.live_models().take_link() {
+            e.live_models().connect(tx, rx);
+        }
         let ev = Evaluator::load(Arc::clone(&cfg), store)?;
         Ok((e, ev))
     })();

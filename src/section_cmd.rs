@@ -1,22 +1,48 @@
 //! `seepd section`: draw an instrumented cross-section as SVG from the stored heads at a time
 //! (the latest by default), with the phreatic line and the seepage-face exit point. Each input
 //! uses its newest head at or before the time; a head older than the section's tolerance is
-//! still drawn, marked "stale" with its age, so a silent gauge never hides the drawing.
+//! still drawn, marked "stale" with its age, so a silent gauge never hides the drawing. A
+//! section with a seepage model is drawn as its flow net at those levels, with the measured
+//! heads beside the modelled ones.
 
 use std::cell::RefCell;
 
 use chrono::{DateTime, Utc};
 
-use crate::config::Config;
+use crate::config::{Config, Section};
+use crate::derive::flownet::{solve_section, FlowNet};
 use crate::derive::section_input;
 use crate::domain::section::analyse;
-use crate::section_svg::{render_section_svg, SvgOptions};
+use crate::section_svg::{render_flownet_svg, render_section_svg, SvgOptions};
+use crate::seepage::Point;
 use crate::store::Store;
 
-/// Render section `id` at time `at` from `store`.
+fn units_of(cfg: &Config, s: &Section) -> crate::config::DisplayUnits {
+    cfg.sites
+        .iter()
+        .find(|x| x.id == s.site)
+        .map_or(crate::config::DisplayUnits::Si, |x| x.display_units)
+}
+
+/// A solved section drawn as a flow net, titled with its levels.
+#[must_use]
+pub fn flownet_svg(cfg: &Config, s: &Section, net: &FlowNet) -> String {
+    render_flownet_svg(
+        net,
+        &SvgOptions {
+            title: format!("Section {}: flow net", s.id),
+            units: units_of(cfg, s),
+            ..SvgOptions::default()
+        },
+    )
+}
+
+/// Render section `id` at time `at` from `store`: the flow net when the section has a seepage
+/// model, else the phreatic line through the piezometer heads.
 ///
 /// # Errors
-/// Unknown section, an input with no reading at or before the time, database errors.
+/// Unknown section, an input with no reading at or before the time, database errors, a model
+/// that cannot be solved.
 pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyhow::Result<String> {
     let s = cfg
         .objects
@@ -24,11 +50,7 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
         .iter()
         .find(|s| s.id == id)
         .ok_or_else(|| anyhow::anyhow!("no section {id:?} in the configuration"))?;
-    let units = cfg
-        .sites
-        .iter()
-        .find(|x| x.id == s.site)
-        .map_or(crate::config::DisplayUnits::Si, |x| x.display_units);
+    let units = units_of(cfg, s);
     let t_ms = at.timestamp_millis();
     let stale: RefCell<Vec<(String, String)>> = RefCell::new(Vec::new());
     let head = |inst: &str| -> Result<f64, String> {
@@ -48,7 +70,22 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
         }
     };
     let input = section_input(cfg, s, head).map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
-    let result = analyse(&input).map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
+    let net = match &s.model {
+        Some(spec) => {
+            let piezometers: Vec<_> = input
+                .piezometers
+                .iter()
+                .map(|p| {
+                    let tip = Point::new(p.station_m, p.tip_elevation_m);
+                    (p.id.clone(), tip, Some(p.head_m))
+                })
+                .collect();
+            let net = solve_section(spec, input.pool_m, input.tail_water_m, &piezometers)
+                .map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
+            Some(net)
+        }
+        None => None,
+    };
     let ages = stale.into_inner();
     let note = if ages.is_empty() {
         String::new()
@@ -61,6 +98,19 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
         .map(|(i, a)| (i, format!("stale, {a} old")))
         .collect();
     let title = format!("Section {id} at {}", at.format("%Y-%m-%d %H:%M UTC"));
+    if let Some(net) = net {
+        return Ok(render_flownet_svg(
+            &net,
+            &SvgOptions {
+                title: format!("{title}: flow net"),
+                units,
+                note,
+                marks,
+                ..SvgOptions::default()
+            },
+        ));
+    }
+    let result = analyse(&input).map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
     Ok(render_section_svg(
         &input,
         &result,

@@ -429,5 +429,8 @@ fn legend(svg: &mut String, f: &Frame) {
     );
 }
 
+mod flownet;
+pub use flownet::render_flownet_svg;
+
 #[cfg(test)]
 mod tests;

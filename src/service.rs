@@ -62,6 +62,9 @@ pub async fn run(
     let (store, mut engine) = open(&cfg)?;
     let (fits_tx, fits_rx) = std::sync::mpsc::channel();
     engine.watch_mut().receive_fits(fits_rx);
+    // Always started (idle without models), so a reload that adds a model solves it live.
+    let (solve_tx, solve_rx) = crate::seepage_worker::spawn()?;
+    engine.live_models().connect(solve_tx, solve_rx);
     let refits = tokio::spawn(crate::watch::schedule::run(Arc::clone(&cfg), fits_tx));
     tracing::info!(
         database = %cfg.service.database.display(),

@@ -89,8 +89,8 @@ fn check_refuses_old_names_naming_the_new_ones_and_exits_78() {
     for needle in [
         "levee-ash-bend.toml:287:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
         "levee-ash-bend.toml:289:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
-        "dam-tarn.toml:132:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
-        "dam-tarn.toml:133:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "dam-tarn.toml:186:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "dam-tarn.toml:187:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
         "levee-ash-bend.toml:197:3: levee-ash-bend.toml: [[cluster]] tables are now [[nest]]",
         "levee-ash-bend.toml:432:3: levee-ash-bend.toml: [[response]] tables are now [[stage_response]]",
     ] {

@@ -20,6 +20,7 @@ use super::problem::{whole_file, Cx, LineIndex};
 use super::reader::Tbl;
 use super::reports;
 use super::rules;
+use super::section_model;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
 use super::trends::{self, Model};
@@ -95,6 +96,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         })
         .collect();
     let (objects, trends) = cross_checks(&sites, &mut problems);
+    section_model::check_tips(&objects.sections, |id| tip_of(&sites, id), &mut problems);
     {
         let instruments: BTreeSet<String> = sites
             .iter()
@@ -185,6 +187,15 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         rules::finish(&mut cfg, &site, sr);
     }
     Ok(cfg)
+}
+
+/// A piezometer's (station, tip elevation), m, from the site files.
+fn tip_of(sites: &[(PathBuf, SiteFile)], id: &str) -> Option<(f64, f64)> {
+    let i = sites
+        .iter()
+        .flat_map(|(_, sf)| sf.entries.iter().filter_map(|e| e.instrument.as_ref()))
+        .find(|i| i.id == id)?;
+    Some((i.location.station_m?, i.tip_elevation_m?))
 }
 
 fn one(file: &Path, message: impl Into<String>) -> Problems {
@@ -599,3 +610,6 @@ mod hardening_tests;
 
 #[cfg(test)]
 mod props_tests;
+
+#[cfg(test)]
+mod section_model_tests;

@@ -21,6 +21,7 @@ pub mod reloads;
 mod renamed;
 mod reports;
 pub mod rules;
+pub mod section_model;
 mod service;
 mod site;
 mod smtp;

@@ -567,6 +567,8 @@ pub struct Section {
     /// Piezometer ids on this section (each has a station in its location).
     pub piezometers: Vec<String>,
     pub tolerance_s: i64,
+    /// The seepage model (`[section.model]`), if one is written.
+    pub model: Option<super::section_model::SeepageSpec>,
 }
 
 /// All derived-quantity objects of the configuration.

@@ -236,7 +236,7 @@ fn critical(cx: &mut Cx<'_>, r: &Reader<'_>, gamma_w: f64) -> Option<CriticalGra
     })
 }
 
-const SECTION_KEYS: [&str; 8] = [
+const SECTION_KEYS: [&str; 9] = [
     "id",
     "ground",
     "pool_gauge",
@@ -245,6 +245,7 @@ const SECTION_KEYS: [&str; 8] = [
     "toe_station",
     "piezometers",
     "tolerance_s",
+    "model",
 ];
 
 fn section(cx: &mut Cx<'_>, r: &mut Reader<'_>, id: String, site: String) -> Option<Section> {
@@ -275,7 +276,14 @@ fn section(cx: &mut Cx<'_>, r: &mut Reader<'_>, id: String, site: String) -> Opt
         "piezometer",
         Want::StationedPiezometer,
     );
+    let model = if r.t.has("model") {
+        let what = r.t.what.clone();
+        super::section_model::read(cx, &id, &what, r.m, tail.is_some())
+    } else {
+        None
+    };
     Some(Section {
+        model,
         id,
         site,
         ground: ground?,

@@ -29,8 +29,14 @@ pub(crate) const KEYS: [&str; 3] = ["alerting", "contacts", "rule"];
 pub use crate::model::READING_QUANTITIES;
 
 /// Derived quantities every instrument has (its own id is the object): data completeness and
-/// the count of sensor-health flags on the latest reading; rates are `rate_<window>`.
-pub const INSTRUMENT_DERIVED: [&str; 2] = ["completeness_24h", "health_flags"];
+/// the count of sensor-health flags on the latest reading; rates are `rate_<window>`; a
+/// piezometer on a section with a seepage model also has its modelled head and residual.
+pub const INSTRUMENT_DERIVED: [&str; 4] = [
+    "completeness_24h",
+    "health_flags",
+    "model_head",
+    "model_residual",
+];
 
 /// Whether `q` is a quantity a rule on an instrument may watch.
 fn is_instrument_quantity(q: &str) -> bool {

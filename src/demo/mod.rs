@@ -101,11 +101,41 @@ pub async fn run(
         Err(e) => anyhow::bail!("service task failed: {e}"),
     }
     print_summary(&cfg.service.database, &counters);
+    draw_flow_nets(&cfg);
     println!(
         "Demo stopped cleanly. Database kept at {}",
         cfg.service.database.display()
     );
     Ok(())
+}
+
+/// The flow net of each section with a seepage model, at the latest stored levels, as an SVG
+/// file beside the database (what `seepd section` draws).
+fn draw_flow_nets(cfg: &crate::config::Config) {
+    let Ok(store) = crate::store::Store::open(&cfg.service.database) else {
+        return;
+    };
+    for s in cfg.objects.sections.iter().filter(|s| s.model.is_some()) {
+        let path = cfg
+            .service
+            .database
+            .with_file_name(format!("flownet-{}.svg", s.id));
+        // At the pool gauge's latest reading (the demo's days run faster than the clock).
+        let now = Utc::now();
+        let at = store
+            .head_at(&s.pool_gauge, now.timestamp_millis())
+            .ok()
+            .flatten()
+            .and_then(|(t, _, _)| chrono::DateTime::from_timestamp_millis(t))
+            .unwrap_or(now);
+        match crate::section_cmd::render(cfg, &store, &s.id, at) {
+            Ok(svg) => match std::fs::write(&path, svg) {
+                Ok(()) => println!("Flow net of section {} drawn: {}", s.id, path.display()),
+                Err(e) => eprintln!("cannot write {}: {e}", path.display()),
+            },
+            Err(e) => eprintln!("section {}: {e:#}", s.id),
+        }
+    }
 }
 
 /// The demo's web pages: loopback, port 8480 when free (else any free port), readable
@@ -199,7 +229,7 @@ fn print_summary(db: &std::path::Path, counters: &Counters) {
         }
     }
     if let Ok(derived) = store.latest_derived() {
-        const SHOWN: [&str; 8] = [
+        const SHOWN: [&str; 12] = [
             "vertical_gradient",
             "exit_gradient",
             "factor_of_safety",
@@ -208,12 +238,20 @@ fn print_summary(db: &std::path::Path, counters: &Counters) {
             "effective_x3",
             "exit_elevation",
             "seepage_face_height",
+            "model_exit_elevation",
+            "model_seepage_face_height",
+            "model_flow",
+            "model_residual",
         ];
         for d in derived
             .iter()
             .filter(|d| SHOWN.contains(&d.quantity.as_str()))
         {
             match d.value {
+                Some(v) if v != 0.0 && v.abs() < 1e-3 => s.push_str(&format!(
+                    "  {:<10} {:<22} {v:9.2e} {}\n",
+                    d.object, d.quantity, d.unit
+                )),
                 Some(v) => s.push_str(&format!(
                     "  {:<10} {:<22} {v:9.3} {}\n",
                     d.object, d.quantity, d.unit

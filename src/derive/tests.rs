@@ -231,6 +231,7 @@ fn section_exit_point_on_the_downstream_slope() {
             toe_station_m: 88.0,
             piezometers: vec!["TH-PZ-1".into(), "TH-PZ-2".into(), "TH-PZ-3".into()],
             tolerance_s: 3600,
+            model: None,
         }],
         ..Objects::default()
     });

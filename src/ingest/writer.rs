@@ -174,6 +174,11 @@ impl Writer {
                 Ok(None) => break,
                 Err(_) => {
                     acks.flush(&self.client, &self.flow, false);
+                    // Answers of the seepage solver thread are committed without waiting for
+                    // the next reading.
+                    if self.engine.live_models().answers_waiting() {
+                        self.commit(&[], &mut qlog);
+                    }
                     self.idle(&mut recorded_link);
                     continue;
                 }

@@ -13,7 +13,7 @@ const KINDS: [(&str, &str); 5] = [
 ];
 
 /// Quantities in words (sentence case, no unit: the unit is shown beside the value).
-const QUANTITIES: [(&str, &str); 36] = [
+const QUANTITIES: [(&str, &str); 43] = [
     ("total_head", "Total head"),
     ("pressure_head", "Pressure head"),
     ("pressure", "Pressure"),
@@ -32,6 +32,19 @@ const QUANTITIES: [(&str, &str); 36] = [
     ("seepage_face_height", "Seepage face height"),
     ("min_cover", "Least cover over the phreatic line"),
     ("min_cover_station", "Station of least cover"),
+    ("model_exit_station", "Exit point station (flow net)"),
+    ("model_exit_elevation", "Exit point elevation (flow net)"),
+    (
+        "model_seepage_face_height",
+        "Seepage face height (flow net)",
+    ),
+    (
+        "model_max_exit_gradient",
+        "Largest exit gradient (flow net)",
+    ),
+    ("model_flow", "Seepage through the section (flow net)"),
+    ("model_head", "Head expected by the flow net"),
+    ("model_residual", "Departure from the flow net"),
     ("net_head", "Net head on the levee"),
     ("expected_excess_head", "Expected excess head at the toe"),
     ("expected_exit_gradient", "Expected exit gradient"),

@@ -99,7 +99,13 @@ fn example_objects_load_in_si() {
             toe_station_m: 88.0,
             piezometers: vec!["TH-PZ-1".into(), "TH-PZ-2".into(), "TH-PZ-3".into()],
             tolerance_s: 5400,
+            // The model's contents are checked in `section_model_tests`.
+            model: o.sections[0].model.clone(),
         }]
+    );
+    assert!(
+        o.sections[0].model.is_some(),
+        "the example dam's section has a model"
     );
     let s = summary(&cfg);
     assert!(s.contains("7 instruments, 5 objects"), "{s}");

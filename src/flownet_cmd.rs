@@ -1,0 +1,180 @@
+//! `seepd flownet`: solve a section's seepage model once, at the levels stored at a time or at
+//! levels given on the command line, and print the results (text, or one JSON object in SI),
+//! optionally drawing the flow net as SVG.
+//!
+//! Owns the command's output. Must not compute engineering quantities (`derive::flownet` does).
+
+use std::time::Instant;
+
+use chrono::{DateTime, Utc};
+use serde_json::{json, Value};
+
+use crate::config::{Config, Level, Section};
+use crate::derive::flownet::{solve_section, tips, FlowNet};
+use crate::store::Store;
+
+/// The water levels to solve at.
+pub enum Levels {
+    /// The stored levels (and piezometer heads) at this time.
+    At(DateTime<Utc>),
+    /// Pool and tail levels, m (no measured heads).
+    Given { pool_m: f64, tail_m: Option<f64> },
+}
+
+/// A solved flow net with the time the solve took.
+pub struct Solved {
+    pub net: FlowNet,
+    pub solve_ms: f64,
+}
+
+/// The section `id` of `cfg`, with a model.
+///
+/// # Errors
+/// Unknown section, or a section without `[section.model]`.
+pub fn section<'a>(cfg: &'a Config, id: &str) -> anyhow::Result<&'a Section> {
+    let s = cfg
+        .objects
+        .sections
+        .iter()
+        .find(|s| s.id == id)
+        .ok_or_else(|| anyhow::anyhow!("no section {id:?} in the configuration"))?;
+    if s.model.is_none() {
+        anyhow::bail!("section {id:?} has no [section.model]");
+    }
+    Ok(s)
+}
+
+/// Solve section `s` at `levels`, reading stored heads from `store` for `Levels::At`.
+///
+/// # Errors
+/// No model, a level with no reading at or before the time, database errors, solve failures.
+pub fn solve(
+    cfg: &Config,
+    store: Option<&Store>,
+    s: &Section,
+    levels: &Levels,
+) -> anyhow::Result<Solved> {
+    let spec = s
+        .model
+        .as_ref()
+        .ok_or_else(|| anyhow::anyhow!("section {:?} has no [section.model]", s.id))?;
+    let (pool_m, tail_m, measured): (f64, Option<f64>, Vec<Option<f64>>) = match levels {
+        Levels::Given { pool_m, tail_m } => {
+            if spec.uses_tail() && tail_m.is_none() {
+                anyhow::bail!("section {:?}: the model needs --downstream", s.id);
+            }
+            (*pool_m, *tail_m, vec![None; s.piezometers.len()])
+        }
+        Levels::At(at) => {
+            let store = store.ok_or_else(|| anyhow::anyhow!("no database"))?;
+            let t = at.timestamp_millis();
+            let head = |id: &str| -> anyhow::Result<f64> {
+                store
+                    .head_at(id, t)?
+                    .map(|(_, h, _)| h)
+                    .ok_or_else(|| anyhow::anyhow!("input {id} has no reading at or before {at}"))
+            };
+            let tail = match &s.tail {
+                Some(Level::Fixed(m)) => Some(*m),
+                Some(Level::Gauge(g)) => Some(head(g)?),
+                None => None,
+            };
+            let measured = s
+                .piezometers
+                .iter()
+                .map(|id| Ok(store.head_at(id, t)?.map(|(_, h, _)| h)))
+                .collect::<anyhow::Result<_>>()?;
+            (head(&s.pool_gauge)?, tail, measured)
+        }
+    };
+    let tip_list = tips(cfg, s);
+    let piezometers: Vec<_> = tip_list
+        .into_iter()
+        .map(|(id, tip)| {
+            let k = s.piezometers.iter().position(|p| *p == id);
+            let m = k.and_then(|k| measured.get(k).copied().flatten());
+            (id, tip, m)
+        })
+        .collect();
+    let started = Instant::now();
+    let net = solve_section(spec, pool_m, tail_m, &piezometers)
+        .map_err(|e| anyhow::anyhow!("section {:?}: {e}", s.id))?;
+    let solve_ms = started.elapsed().as_secs_f64() * 1000.0;
+    Ok(Solved { net, solve_ms })
+}
+
+/// The JSON object of `seepd flownet --json` (SI units).
+#[must_use]
+pub fn json(id: &str, solved: &Solved) -> Value {
+    let n = &solved.net;
+    let pairs = |v: &[(f64, f64)]| -> Vec<[f64; 2]> { v.iter().map(|&(a, b)| [a, b]).collect() };
+    json!({
+        "section": id,
+        "pool_m": n.pool_m,
+        "tail_m": n.tail_m,
+        "flow_m2_per_s": n.flow_m2_per_s,
+        "exit_station": n.exit.as_ref().map(|e| e.exit.x),
+        "exit_elevation": n.exit.as_ref().map(|e| e.exit.y),
+        "seepage_face_height": n.exit.as_ref().map_or(0.0, |e| e.face_height_m),
+        "max_exit_gradient": n.max_exit_gradient(),
+        "exit_gradients": pairs(&n.exit_gradients),
+        "phreatic": pairs(&n.phreatic),
+        "piezometers": n.piezometers.iter().map(|p| json!({
+            "id": p.id,
+            "station": p.tip.x,
+            "tip_elevation": p.tip.y,
+            "measured": p.measured_m,
+            "modelled": p.modelled_m,
+            "residual": p.residual_m(),
+        })).collect::<Vec<_>>(),
+        "nodes": n.mesh.nodes.len(),
+        "elements": n.mesh.triangles.len(),
+        "iterations": n.solution.iterations,
+        "converged": n.solution.converged,
+        "solve_ms": solved.solve_ms,
+    })
+}
+
+/// The plain-text summary of a solve.
+#[must_use]
+pub fn text(id: &str, solved: &Solved) -> String {
+    let n = &solved.net;
+    let mut s = format!(
+        "section {id}: pool {:.2} m, tail {}\n",
+        n.pool_m,
+        n.tail_m.map_or("none".into(), |t| format!("{t:.2} m"))
+    );
+    s += &format!(
+        "flow {:.3e} m3/s per m; max exit gradient {:.3}\n",
+        n.flow_m2_per_s,
+        n.max_exit_gradient()
+    );
+    match &n.exit {
+        Some(e) => {
+            s += &format!(
+                "exit point at station {:.2} m, elevation {:.2} m; seepage face {:.2} m high\n",
+                e.exit.x, e.exit.y, e.face_height_m
+            );
+        }
+        None => s += "no seepage face: the phreatic surface does not reach a possible face\n",
+    }
+    for p in &n.piezometers {
+        let f = |v: Option<f64>| v.map_or("-".into(), |v| format!("{v:.2}"));
+        s += &format!(
+            "{}: measured {} m, modelled {} m, residual {} m\n",
+            p.id,
+            f(p.measured_m),
+            f(p.modelled_m),
+            f(p.residual_m())
+        );
+    }
+    s += &format!(
+        "{} nodes, {} elements, {} iterations, {:.0} ms\n",
+        n.mesh.nodes.len(),
+        n.mesh.triangles.len(),
+        n.solution.iterations,
+        solved.solve_ms
+    );
+    s += "A screening model: verify in the field; it does not replace the engineer of record's analysis.\n";
+    s
+}
