@@ -67,13 +67,15 @@ pub fn apply(cfg: Arc<Config>, store: &mut Store, engine: &mut Engine, alerts: &
     let rebuilt = (|| -> anyhow::Result<(Engine, Evaluator)> {
         store.sync_instruments(&cfg, chrono::Utc::now())?;
         let mut e = Engine::seeded(&cfg, store)?;
+        let ev = Evaluator::load(Arc::clone(&cfg), store)?;
+        // Only once nothing can fail any more: the refit and re-solve channels move to the new
+        // engine (moved before a failure, they would be lost to the engine that stays).
         if let Some(fits) = engine.watch_mut().take_fits() {
             e.watch_mut().receive_fits(fits);
         }
         if let Some((tx, rx)) = engine.live_models().take_link() {
             e.live_models().connect(tx, rx);
         }
-        let ev = Evaluator::load(Arc::clone(&cfg), store)?;
         Ok((e, ev))
     })();
     match rebuilt {
