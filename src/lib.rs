@@ -18,6 +18,7 @@ pub mod engine;
 pub mod export;
 pub mod fit_cmd;
 pub mod ingest;
+pub mod manual;
 pub mod model;
 pub mod notify;
 pub mod payload;

@@ -39,7 +39,7 @@ fn save(b: &browser::Browser, name: &str, for_docs: bool) {
 fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     let r = web::mail_rig();
     let (dir, broker, smtp, cfg, port) = (&r.dir, &r.broker, &r.smtp, &r.cfg, r.port);
-    web::add_user(seepd_bin(), cfg, "alice", PASSWORD);
+    web::add_user(seepd_bin(), cfg, "alice", PASSWORD, "responder");
 
     // Two days of hourly river stage rising from 2.0 m to 5.6 m depth (95.6 m: watch level).
     let p = Publisher::connect(broker.port, "pub-web-browser");

@@ -23,7 +23,7 @@ pub async fn healthz() -> Response {
 pub async fn readyz(State(web): State<Shared>) -> Response {
     let now_ms = Utc::now().timestamp_millis();
     let link = web.link_state();
-    let writable = web.read(|s| Ok(super::db::writable(s.conn())?)).await;
+    let writable = web.read(|s| Ok(s.writable()?)).await;
     let age = web.commit_age_s(now_ms);
     let mut ready = link.connected && writable.is_ok();
     let mut body = String::new();
@@ -100,8 +100,8 @@ pub async fn metrics(State(web): State<Shared>) -> Response {
                 }
             }
             Ok(FromDb {
-                quarantined_24h: super::db::quarantined_since(s.conn(), now_ms - 86_400_000)?,
-                outbox: super::db::outbox_counts(s.conn())?,
+                quarantined_24h: s.quarantined_since(now_ms - 86_400_000)?,
+                outbox: s.outbox_counts()?,
                 backlog: export::backlog(s.conn())?,
                 alerts,
             })

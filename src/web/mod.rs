@@ -8,9 +8,9 @@
 //! connection on the blocking pool; acknowledgements and silences are written through the same
 //! functions as `seepd ack` and `seepd silence`, so the service applies them within a second.
 //! Submodules: `config` (`[http]`), `token` (signed links, web key), `auth` (users, sessions,
-//! CSRF), `db` (reads), `health` (`/healthz`, `/readyz`, `/metrics`), `html` and `words`
-//! (frame and wording), `overview`, `alert`, `instrument`, `quarantine` (pages), `ack` (the
-//! email link), `user_cmd` (`seepd user`).
+//! CSRF), `health` (`/healthz`, `/readyz`, `/metrics`), `html` and `words`
+//! (frame and wording), `overview`, `alert`, `instrument`, `quarantine` (pages), `chart` (their
+//! plots), `manual` (the manual-reading form), `ack` (the email link), `user_cmd` (`seepd user`).
 
 // Checks return the refusal page itself as their error; one response per request, so
 // boxing it would buy nothing.
@@ -19,10 +19,11 @@
 pub mod ack;
 pub mod alert;
 pub mod auth;
-pub mod db;
+pub mod chart;
 pub mod health;
 pub mod html;
 pub mod instrument;
+pub mod manual;
 pub mod overview;
 pub mod quarantine;
 pub mod user_cmd;
@@ -133,6 +134,7 @@ pub fn routes(web: Shared) -> Router {
         .route("/alerts/:id/ack", post(alert::ack))
         .route("/alerts/:id/silence", post(alert::silence))
         .route("/instruments/:id", get(instrument::page))
+        .route("/instruments/:id/manual", post(manual::post))
         .route("/quarantine", get(quarantine::page))
         .route("/ack/:token", get(ack::confirm).post(ack::acknowledge))
         .route("/login", get(auth::login_form).post(auth::login))
@@ -223,7 +225,7 @@ impl Web {
     ) -> anyhow::Result<T> {
         let db = self.cfg.service.database.clone();
         tokio::task::spawn_blocking(move || {
-            let store = db::open(&db)?;
+            let store = crate::store::Store::open(&db)?;
             f(&store)
         })
         .await

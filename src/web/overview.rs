@@ -43,9 +43,9 @@ pub async fn page(State(web): State<Shared>, headers: HeaderMap) -> Response {
                 alerts: s.open_alerts()?,
                 derived: s.latest_derived()?,
                 latest: s.latest_all()?,
-                quarantined_24h: super::db::quarantined_since(s.conn(), now_ms - 86_400_000)?,
+                quarantined_24h: s.quarantined_since(now_ms - 86_400_000)?,
                 backlog: crate::store::export::backlog(s.conn())?,
-                outbox: super::db::outbox_counts(s.conn())?,
+                outbox: s.outbox_counts()?,
             })
         })
         .await;
