@@ -87,6 +87,21 @@ fn plain_relay_receives_the_rendered_alert_with_every_element() {
         .iter()
         .find(|m| header(m, "Message-ID").as_deref() == ids.last().map(String::as_str))
         .expect("the escalation to act by its Message-ID");
+    // One conversation per alert on the engineer's phone: every message about alert 1 (raise,
+    // level changes, escalation to the second list) refers to the alert's thread, and each
+    // message keeps its own Message-ID.
+    let thread = "<seepd.alert-thread-1@example.invalid>";
+    for m in &msgs {
+        assert_eq!(header(m, "In-Reply-To").as_deref(), Some(thread), "{m}");
+        assert_eq!(header(m, "References").as_deref(), Some(thread), "{m}");
+    }
+    let mut ids_seen: Vec<_> = msgs
+        .iter()
+        .filter_map(|m| header(m, "Message-ID"))
+        .collect();
+    ids_seen.sort();
+    ids_seen.dedup();
+    assert_eq!(ids_seen.len(), 4, "four distinct Message-IDs: {ids_seen:?}");
     let subject = header(last, "Subject").unwrap_or_default();
     // Subject: level, site, object, quantity, value.
     for part in ["ACT", "ash-bend", "AB-RIVER", "water level", "98.200 m"] {

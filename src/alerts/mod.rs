@@ -27,6 +27,14 @@ use render::Item;
 
 pub use observe::{observations, observations_of, Observation, HEALTH_FLAGS};
 
+/// The thread id of alert `alert`: every message about the alert (raise, level changes,
+/// reminders, escalations, all-clear, closure) names it in References and In-Reply-To, so mail
+/// clients show one conversation per alert. No message carries it as its own Message-ID; the
+/// threading algorithms mail clients use group siblings under a missing parent.
+pub fn thread_id(alert: i64, domain: &str) -> String {
+    format!("<seepd.alert-thread-{alert}@{domain}>")
+}
+
 /// Values kept per watched quantity for messages (last readings, rate).
 const RECENT: usize = 6;
 
@@ -622,6 +630,18 @@ impl Evaluator {
             text,
             html,
             message_id: format!("<seepd.alert-{id}.{now_ms}@{domain}>"),
+            references: thread_ids(group.iter().map(|n| n.alert), &domain),
         }
     }
+}
+
+/// The thread ids of `alerts`, each once, in first-seen order.
+fn thread_ids(alerts: impl Iterator<Item = i64>, domain: &str) -> Vec<String> {
+    let mut seen = Vec::new();
+    for a in alerts {
+        if !seen.contains(&a) {
+            seen.push(a);
+        }
+    }
+    seen.into_iter().map(|a| thread_id(a, domain)).collect()
 }

@@ -79,6 +79,7 @@ impl Evaluator {
                     html: format!("<pre>{}</pre>", render::escape(&text)),
                     text,
                     message_id: format!("<seepd.alert-{m}.{now_ms}@{domain}>"),
+                    references: vec![super::thread_id(id, &domain)],
                 });
             }
         }

@@ -136,6 +136,13 @@ impl Mailer {
             .subject(m.subject.clone())
             .message_id(Some(m.message_id.clone()))
             .date(UNIX_EPOCH + Duration::from_millis(m.created_ms.max(0) as u64));
+        // One conversation per alert: In-Reply-To names the first alert's thread, References
+        // every alert the message is about.
+        if let Some(first) = m.references.first() {
+            b = b
+                .in_reply_to(first.clone())
+                .references(m.references.join(" "));
+        }
         for r in &m.recipients {
             b = b.to(Mailbox::new(None, address(r)?));
         }

@@ -56,6 +56,9 @@ pub struct OutboxRow {
     pub html: String,
     /// Stable Message-ID (derived from the row), so a resend after a crash is recognisable.
     pub message_id: String,
+    /// Thread ids of the alerts the message is about (References / In-Reply-To), see
+    /// [`crate::alerts::thread_id`].
+    pub references: Vec<String>,
 }
 
 /// An acknowledgement written by `seepd ack`, not yet applied to the rule state.
@@ -205,8 +208,8 @@ pub(super) fn write(tx: &Transaction<'_>, w: &AlertWrites) -> Result<(), StoreEr
     }
     let mut st = tx.prepare_cached(
         "INSERT OR REPLACE INTO outbox (id, created_ms, site, recipients, subject, body_text,
-            body_html, message_id, status, next_attempt_ms)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'pending', ?2)",
+            body_html, message_id, status, next_attempt_ms, thread_refs)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'pending', ?2, ?9)",
     )?;
     for m in &w.messages {
         st.execute(params![
@@ -217,7 +220,8 @@ pub(super) fn write(tx: &Transaction<'_>, w: &AlertWrites) -> Result<(), StoreEr
             m.subject,
             m.text,
             m.html,
-            m.message_id
+            m.message_id,
+            m.references.join(" ")
         ])?;
     }
     let mut st = tx.prepare_cached(

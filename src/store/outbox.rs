@@ -17,6 +17,8 @@ pub struct Queued {
     pub text: String,
     pub html: String,
     pub message_id: String,
+    /// Message-IDs this message refers to (its alerts' thread ids); empty for reports.
+    pub references: Vec<String>,
     pub attempts: i64,
     pub next_attempt_ms: i64,
     pub last_error: Option<String>,
@@ -72,7 +74,7 @@ pub enum AckOutcome {
 }
 
 const QUEUED_COLUMNS: &str = "id, created_ms, recipients, subject, body_text, body_html,
-    message_id, attempts, next_attempt_ms, last_error";
+    message_id, attempts, next_attempt_ms, last_error, thread_refs";
 
 fn queued(r: &rusqlite::Row<'_>) -> rusqlite::Result<Queued> {
     let recipients: String = r.get(2)?;
@@ -91,6 +93,11 @@ fn queued(r: &rusqlite::Row<'_>) -> rusqlite::Result<Queued> {
         attempts: r.get(7)?,
         next_attempt_ms: r.get(8)?,
         last_error: r.get(9)?,
+        references: r
+            .get::<_, String>(10)?
+            .split_whitespace()
+            .map(str::to_string)
+            .collect(),
         attachments: Vec::new(),
     })
 }

@@ -232,7 +232,11 @@ const MIGRATIONS: &[&str] = &[
         t_ms INTEGER NOT NULL,
         PRIMARY KEY (outbox, address)
     ) WITHOUT ROWID;",
-    // 10: web users (made on first use by earlier builds, hence IF NOT EXISTS) get a role;
+    // 10: mail threading. The Message-IDs an outbox message refers to (space-separated): every
+    // message about an alert refers to that alert's thread id, so a phone shows the raise, the
+    // escalations and the all-clear as one conversation.
+    "ALTER TABLE outbox ADD COLUMN thread_refs TEXT NOT NULL DEFAULT '';",
+    // 11: web users (made on first use by earlier builds, hence IF NOT EXISTS) get a role;
     // those already there keep acting as before (responder). Manual readings wait in an inbox
     // for the service's writer, which takes them through the engine and marks them done in
     // the transaction that stores them.
