@@ -17,6 +17,7 @@ pub mod domain;
 pub mod engine;
 pub mod export;
 pub mod fit_cmd;
+pub mod heartbeat;
 pub mod ingest;
 pub mod manual;
 pub mod model;

@@ -6,6 +6,7 @@
 
 pub mod alerting;
 mod export;
+pub mod heartbeat;
 pub mod http;
 mod kinds;
 pub mod limits;

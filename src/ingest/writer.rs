@@ -318,6 +318,9 @@ impl Writer {
     fn idle(&mut self, recorded: &mut Option<crate::ingest::link::LinkState>) {
         self.watchdog.ping();
         self.take_manual();
+        if let Err(e) = crate::heartbeat::daily_email(&self.cfg, &mut self.store, Utc::now()) {
+            tracing::warn!(error = %e, "Cannot queue the daily heartbeat email");
+        }
         self.alerts.tick(&mut self.store, &self.shutdown);
         let now = match self.link.lock() {
             Ok(g) => g.clone(),
