@@ -100,6 +100,35 @@ fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     let src = b.source();
     assert!(!src.contains("not acknowledged"), "{src}");
     assert!(src.contains("alice"));
+
+    // A responder records a hand-read river level from the instrument page.
+    b.goto(&format!("{base}/instruments/AB-RIVER?days=3"));
+    b.type_into("#value", "5.7");
+    b.click("button[type=submit]");
+    let src = b.wait_text("Manual reading 1:");
+    assert!(src.contains("Manual reading 1: stored."), "{src}");
+    assert_eq!(
+        count(
+            dir.path(),
+            "readings",
+            "instrument = 'AB-RIVER' AND raw = 5.7 AND (flags & 128) != 0"
+        ),
+        1
+    );
+    assert!(b.fits_width(), "the instrument page fits a phone's width");
+    save(&b, "manual-phone.png", true);
+
+    // A viewer signs in on the same browser: no form, and the page says why.
+    web::add_user(seepd_bin(), cfg, "victor", PASSWORD, "viewer");
+    b.click("header button");
+    b.wait_text("Sign in");
+    b.goto(&format!("{base}/login?next=/instruments/AB-RIVER"));
+    b.type_into("#user", "victor");
+    b.type_into("#password", PASSWORD);
+    b.click("button[type=submit]");
+    let src = b.wait_text("needs the responder role");
+    assert!(!src.contains("id=\"value\""), "no manual form for a viewer");
+    assert_eq!(count(dir.path(), "manual_inbox", "1"), 1);
     drop(b);
 }
 
@@ -156,4 +185,12 @@ fn the_demo_flood_at_phone_width() {
     b.wait_text("Raw value");
     assert!(b.fits_width(), "the instrument page fits a phone's width");
     save(&b, "demo-instrument-phone.png", false);
+    b.goto(&format!("{base}/section/TH-S1"));
+    let src = b.wait_text("Section TH-S1");
+    assert!(
+        src.contains("<svg") && !src.contains("No drawing yet"),
+        "{src}"
+    );
+    assert!(b.fits_width(), "the section page fits a phone's width");
+    save(&b, "demo-section-phone.png", true);
 }

@@ -9,7 +9,7 @@
 //! functions as `seepd ack` and `seepd silence`, so the service applies them within a second.
 //! Submodules: `config` (`[http]`), `token` (signed links, web key), `auth` (users, sessions,
 //! CSRF), `health` (`/healthz`, `/readyz`, `/metrics`), `html` and `words`
-//! (frame and wording), `overview`, `alert`, `instrument`, `quarantine` (pages), `chart` (their
+//! (frame and wording), `overview`, `alert`, `instrument`, `section`, `quarantine` (pages), `chart` (their
 //! plots), `manual` (the manual-reading form), `ack` (the email link), `user_cmd` (`seepd user`).
 
 // Checks return the refusal page itself as their error; one response per request, so
@@ -26,6 +26,7 @@ pub mod instrument;
 pub mod manual;
 pub mod overview;
 pub mod quarantine;
+pub mod section;
 pub mod user_cmd;
 pub mod words;
 
@@ -136,6 +137,7 @@ pub fn routes(web: Shared) -> Router {
         .route("/instruments/:id", get(instrument::page))
         .route("/instruments/:id/manual", post(manual::post))
         .route("/quarantine", get(quarantine::page))
+        .route("/section/:id", get(section::page))
         .route("/ack/:token", get(ack::confirm).post(ack::acknowledge))
         .route("/login", get(auth::login_form).post(auth::login))
         .route("/logout", post(auth::logout))

@@ -106,6 +106,17 @@ fn site_block(b: &mut String, web: &super::Web, site: &crate::config::Site, d: &
             if alerts.len() == 1 { "" } else { "s" },
         );
     }
+    let sections: Vec<String> = web
+        .cfg
+        .objects
+        .sections
+        .iter()
+        .filter(|s| s.site == site.id)
+        .map(|s| format!("<a href=\"/section/{0}\">Section {0}</a>", escape(&s.id)))
+        .collect();
+    if !sections.is_empty() {
+        let _ = write!(b, "<p>Drawings: {}</p>", sections.join(" · "));
+    }
     // Safety quantities of the site's objects, most important quantity first.
     let mut safety: Vec<&LatestDerived> = d
         .derived
