@@ -12,12 +12,13 @@ use super::problem::Cx;
 use super::reader::Tbl;
 
 /// Keys of `[http]`.
-const KEYS: [&str; 5] = [
+const KEYS: [&str; 6] = [
     "bind",
     "public_base_url",
     "allow_anonymous",
     "ack_link_valid_h",
     "ready_commit_age_s",
+    "ready_reconnect_s",
 ];
 
 /// Default listening address: loopback only.
@@ -39,6 +40,9 @@ pub struct Http {
     /// `/readyz` fails when the last commit is older than this (s); `None`: commit age is shown
     /// but not judged (a quiet network is not a fault by itself).
     pub ready_commit_age_s: Option<u64>,
+    /// `/readyz` stays ready while the broker link is down and being retried for less than
+    /// this (s): a short reconnect is not an outage.
+    pub ready_reconnect_s: u64,
 }
 
 impl Http {
@@ -87,6 +91,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Http> {
         ready_commit_age_s: t
             .opt_int_in(cx, "ready_commit_age_s", 1, limits::YEAR_S, false)
             .map(|s| s as u64),
+        ready_reconnect_s: t.int_in(cx, "ready_reconnect_s", 0, 3600, 30) as u64,
     };
     (cx.problems.len() == before).then_some(http)
 }

@@ -1,6 +1,7 @@
-//! `/healthz` (the process answers), `/readyz` (broker connected, database writable, last
-//! commit age within `[http] ready_commit_age_s` when set) and `/metrics` (Prometheus text
-//! format, version 0.0.4). No sign-in; nothing secret in them.
+//! `/healthz` (the process answers), `/readyz` (broker connected or reconnecting for less than
+//! `[http] ready_reconnect_s`, database writable, last commit age within `[http]
+//! ready_commit_age_s` when set) and `/metrics` (Prometheus text format, version 0.0.4). No
+//! sign-in; nothing secret in them.
 //!
 //! Owns the metric names and the readiness rule.
 
@@ -25,18 +26,22 @@ pub async fn readyz(State(web): State<Shared>) -> Response {
     let link = web.link_state();
     let writable = web.read(|s| Ok(s.writable()?)).await;
     let age = web.commit_age_s(now_ms);
-    let mut ready = link.connected && writable.is_ok();
+    // A link down for less than `ready_reconnect_s` is a reconnect in progress, not an outage.
+    let down_s = (now_ms - link.since_ms).max(0) / 1000;
+    let reconnecting = !link.connected && down_s < web.http.ready_reconnect_s as i64;
+    let mut ready = (link.connected || reconnecting) && writable.is_ok();
     let mut body = String::new();
-    let _ = writeln!(
-        body,
-        "broker: {} ({})",
-        if link.connected {
-            "connected"
-        } else {
-            "NOT CONNECTED"
-        },
-        link.broker
-    );
+    let state = if link.connected {
+        "connected".to_string()
+    } else if reconnecting {
+        format!(
+            "reconnecting for {down_s} s (ready up to {} s)",
+            web.http.ready_reconnect_s
+        )
+    } else {
+        format!("NOT CONNECTED for {down_s} s")
+    };
+    let _ = writeln!(body, "broker: {state} ({})", link.broker);
     match &writable {
         Ok(()) => body.push_str("database: writable\n"),
         Err(e) => {
