@@ -180,6 +180,25 @@ fn the_demo_flood_at_phone_width() {
     b.goto(&format!("{base}/alerts/{first}"));
     b.wait_text("History");
     assert!(b.fits_width(), "the alert page fits a phone's width");
+    save(&b, "demo-river-alert-phone.png", false);
+    // An alert on a derived value (the toe's factor of safety): its own plot, then the heads it
+    // was computed from beside the river.
+    let toe: i64 = db(rig.path())
+        .query_row(
+            "SELECT min(id) FROM alerts WHERE object = 'AB-TOE-1'",
+            [],
+            |r| r.get(0),
+        )
+        .expect("the flood raised a toe alert");
+    b.goto(&format!("{base}/alerts/{toe}"));
+    let src = b.wait_text("Related heads");
+    assert_eq!(src.matches("<svg").count(), 2, "two charts");
+    let related = &src[src.find("Related heads").unwrap()..];
+    assert!(
+        related.contains("AB-PZ-1B") && related.contains("AB-RIVER water level"),
+        "{related}"
+    );
+    assert!(b.fits_width(), "the alert page fits a phone's width");
     save(&b, "demo-alert-phone.png", true);
     b.goto(&format!("{base}/instruments/AB-PZ-1B?days=3"));
     b.wait_text("Raw value");

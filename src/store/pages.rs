@@ -180,6 +180,29 @@ impl Store {
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
+    /// The instruments the newest value of a derived quantity was computed from (none for an
+    /// instrument's own quantity).
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn derived_inputs(&self, object: &str, quantity: &str) -> Result<Vec<String>, StoreError> {
+        let inputs: Option<String> = self
+            .conn
+            .query_row(
+                "SELECT inputs FROM derived WHERE object = ?1 AND quantity = ?2
+                 ORDER BY t_ms DESC LIMIT 1",
+                params![object, quantity],
+                |r| r.get(0),
+            )
+            .optional()?;
+        Ok(inputs
+            .unwrap_or_default()
+            .split(',')
+            .filter(|s| !s.is_empty())
+            .map(str::to_string)
+            .collect())
+    }
+
     /// Inputs quarantined at or after `since_ms`.
     ///
     /// # Errors

@@ -45,7 +45,7 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
                 stage.as_deref(),
                 (end_ms - span_ms, end_ms),
             )?;
-            if let (true, Some(e)) = (plot.points.is_empty(), events.last()) {
+            if let (true, Some(e)) = (plot.is_empty(), events.last()) {
                 let end_ms = e.t_ms + 3_600_000;
                 plot = chart::read(
                     s,
@@ -55,10 +55,28 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
                     (end_ms - span_ms, end_ms),
                 )?;
             }
-            Ok(Some((a, events, plot)))
+            // A derived value: the heads it was computed from, beside the stage.
+            let inputs: Vec<String> = s
+                .derived_inputs(&a.object, &a.quantity)?
+                .into_iter()
+                .filter(|i| stage.as_deref() != Some(i.as_str()))
+                .collect();
+            let heads = if inputs.is_empty() {
+                None
+            } else {
+                let period = (plot.from_ms, plot.to_ms);
+                Some(chart::read_many(
+                    s,
+                    &inputs,
+                    "total_head",
+                    stage.as_deref(),
+                    period,
+                )?)
+            };
+            Ok(Some((a, events, plot, heads)))
         })
         .await;
-    let (a, events, plot) = match data {
+    let (a, events, plot, heads) = match data {
         Ok(Some(x)) => x,
         Ok(None) => {
             return html::message(
@@ -179,6 +197,10 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
         format!("The {PLOT_DAYS} days to its last event")
     };
     let _ = write!(b, "<h2>{heading}</h2>{svg}");
+    if let Some(h) = heads {
+        let title = format!("{} — heads it is computed from", a.object);
+        let _ = write!(b, "<h2>Related heads</h2>{}", chart::render(&web, h, title));
+    }
 
     let rows: Vec<Vec<String>> = events
         .iter()

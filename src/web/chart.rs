@@ -13,12 +13,16 @@ use crate::store::Store;
 
 use super::Web;
 
-/// What a page plots, read from the store (values in stored SI units).
+/// What a page plots, read from the store (values in stored SI units): one quantity of one or
+/// more objects (the first decides the site), each a line.
 #[derive(Debug, Clone)]
 pub struct Plot {
-    pub object: String,
+    pub objects: Vec<String>,
     pub quantity: String,
-    pub points: Vec<(i64, f64)>,
+    /// One line per object, in `objects`' order.
+    pub lines: Vec<Vec<(i64, f64)>>,
+    /// Lines are named by their object (else by the quantity).
+    pub named_by_object: bool,
     pub unit_si: String,
     /// The stage gauge drawn on the second axis and its water levels (m).
     pub stage: Option<(String, Vec<(i64, f64)>)>,
@@ -38,22 +42,54 @@ pub fn read(
     stage: Option<&str>,
     (from_ms, to_ms): (i64, i64),
 ) -> anyhow::Result<Plot> {
-    let (points, unit_si) = s.series(object, quantity, from_ms, to_ms)?;
+    let mut p = read_many(s, &[object.to_string()], quantity, stage, (from_ms, to_ms))?;
+    p.named_by_object = false;
+    Ok(p)
+}
+
+/// As `read`, for several objects (e.g. the piezometers behind a derived value).
+///
+/// # Errors
+/// SQLite errors.
+pub fn read_many(
+    s: &Store,
+    objects: &[String],
+    quantity: &str,
+    stage: Option<&str>,
+    (from_ms, to_ms): (i64, i64),
+) -> anyhow::Result<Plot> {
+    let mut lines = Vec::with_capacity(objects.len());
+    let mut unit_si = String::new();
+    for o in objects {
+        let (points, unit) = s.series(o, quantity, from_ms, to_ms)?;
+        if unit_si.is_empty() {
+            unit_si = unit;
+        }
+        lines.push(points);
+    }
     let stage = match stage {
-        Some(g) if g != object => {
+        Some(g) if !objects.iter().any(|o| o == g) => {
             Some((g.to_string(), s.series(g, "total_head", from_ms, to_ms)?.0))
         }
         _ => None,
     };
     Ok(Plot {
-        object: object.into(),
+        objects: objects.to_vec(),
         quantity: quantity.into(),
-        points,
+        lines,
+        named_by_object: true,
         unit_si,
         stage,
         from_ms,
         to_ms,
     })
+}
+
+impl Plot {
+    /// Whether nothing of the quantity was stored in the period.
+    pub fn is_empty(&self) -> bool {
+        self.lines.iter().all(Vec::is_empty)
+    }
 }
 
 /// The stage gauge whose water level belongs beside `object`'s values: a section's pool gauge,
@@ -80,10 +116,23 @@ pub fn stage_for(web: &Web, object: &str) -> Option<String> {
 
 /// The SVG of `p` titled `title`, in the display units of the object's site.
 pub fn render(web: &Web, p: Plot, title: String) -> String {
-    let site = web.site_of(&p.object).unwrap_or_default();
+    let first = p.objects.first().cloned().unwrap_or_default();
+    let site = web.site_of(&first).unwrap_or_default();
     let units = web.units(&site);
     let m = measure_of(&p.quantity, &p.unit_si);
-    let name = web.quantity_name(&p.object, &p.quantity);
+    let series = p
+        .objects
+        .iter()
+        .zip(p.lines)
+        .map(|(o, points)| Series {
+            label: if p.named_by_object {
+                o.clone()
+            } else {
+                web.quantity_name(o, &p.quantity)
+            },
+            points: crate::report::to_display(points, m, units),
+        })
+        .collect();
     let (stage, stage_axis) = match p.stage {
         Some((g, points)) => (
             Some(Series {
@@ -100,17 +149,9 @@ pub fn render(web: &Web, p: Plot, title: String) -> String {
     chart::render(&Chart {
         title,
         y_label: unit_label(m, units, &p.unit_si).to_string(),
-        series: vec![Series {
-            label: name,
-            points: crate::report::to_display(p.points, m, units),
-        }],
+        series,
         stage,
-        levels: crate::report::level_lines(
-            &web.cfg,
-            std::slice::from_ref(&p.object),
-            (&p.quantity, &p.unit_si),
-            units,
-        ),
+        levels: crate::report::level_lines(&web.cfg, &p.objects, (&p.quantity, &p.unit_si), units),
         stage_axis,
         cap: p
             .quantity

@@ -64,7 +64,7 @@ pub async fn page(
             let period = (end_ms - span_ms, end_ms);
             let stage = chart::stage_for(&stage_web, &id2);
             let mut plot = chart::read(s, &id2, "total_head", stage.as_deref(), period)?;
-            if plot.points.is_empty() {
+            if plot.is_empty() {
                 plot = chart::read(s, &id2, "engineering_value", None, period)?;
             }
             let fate = match entry {
