@@ -113,7 +113,11 @@ pub async fn page(
                     ),
                 ],
                 vec![
-                    "Raw value (as the logger sent it)".into(),
+                    if r.flags.contains(crate::quality::Flags::MANUAL) {
+                        "Raw value (as read by hand)".into()
+                    } else {
+                        "Raw value (as the logger sent it)".into()
+                    },
                     escape(&r.raw.to_string()),
                 ],
                 vec![
@@ -197,7 +201,11 @@ pub async fn page(
                             &l.name,
                             r.spec.levels.last().is_some_and(|x| x.name == l.name),
                         ),
-                        escape(&format!("{} {}", l.direction.name(), l.bound)),
+                        escape(&format!(
+                            "{} {}",
+                            l.direction.name(),
+                            rule_bound(l.bound, &r.quantity, units)
+                        )),
                         escape(&l.response),
                     ]
                 })
@@ -212,4 +220,16 @@ pub async fn page(
     let may = web.may_change(&viewer).await;
     b.push_str(&super::manual::form(&inst, &viewer, may));
     html::respond(StatusCode::OK, html::page(&id, &viewer.frame(), &b))
+}
+
+/// A rule bound on an instrument's own quantity in the site's display units (the stored unit
+/// of each reading quantity is fixed; the engineering value's is the instrument's own).
+fn rule_bound(bound: f64, quantity: &str, units: crate::config::DisplayUnits) -> String {
+    use crate::model::ReadingQuantity as Q;
+    let unit = match Q::from_name(quantity) {
+        Some(Q::TotalHead | Q::PressureHead) => "m",
+        Some(Q::Pressure) => "kPa",
+        _ => return bound.to_string(),
+    };
+    words::value(Some(bound), quantity, unit, units)
 }
