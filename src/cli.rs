@@ -15,7 +15,6 @@ use clap::{Parser, Subcommand, ValueEnum};
 use crate::alerts;
 use crate::config::{self, Config, PayloadFormat};
 use crate::ingest::progress::Counters;
-use crate::shutdown::Shutdown;
 
 /// Exit code for a configuration error (sysexits EX_CONFIG).
 pub const EXIT_CONFIG: u8 = 78;
@@ -656,7 +655,7 @@ fn demo(seconds_per_day: f64, days: Option<u32>) -> anyhow::Result<()> {
     {
         let rt = tokio::runtime::Runtime::new()?;
         // The example configuration's deadline (its default).
-        let shutdown = Shutdown::new(std::time::Duration::from_secs(10));
+        let shutdown = crate::shutdown::Shutdown::new(std::time::Duration::from_secs(10));
         rt.block_on(async {
             shutdown.request_on_signal();
             crate::demo::run(seconds_per_day, days, shutdown.clone()).await
@@ -682,7 +681,7 @@ fn export_range(cfg: &Config, from: DateTime<Utc>, to: DateTime<Utc>) -> anyhow:
         let sink = crate::export::influx::InfluxSink::new(e)?;
         let started = std::time::Instant::now();
         let t = rt.block_on(async {
-            let stop = Shutdown::new(std::time::Duration::ZERO);
+            let stop = crate::shutdown::Shutdown::new(std::time::Duration::ZERO);
             stop.request_on_signal();
             crate::export::backfill::run(
                 cfg,

@@ -263,6 +263,61 @@ fn backfill_sends_exactly_the_requested_range() {
     );
 }
 
+/// https with the server's certificate trusted through `ca_file` (a private CA): every point
+/// arrives; without the CA file the certificate is refused and nothing is written.
+#[test]
+fn https_with_a_private_ca_file_delivers_and_an_unknown_certificate_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let (mut vm, cert) = Victoria::start_tls(dir.path());
+    let url = format!("https://127.0.0.1:{}", vm.port);
+    let export = |cfg: &std::path::Path, from: i64, to: i64| {
+        let iso = |ms: i64| {
+            chrono::DateTime::from_timestamp_millis(ms)
+                .unwrap()
+                .to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
+        };
+        Command::new(seepd_bin())
+            .args(["export", "--config"])
+            .arg(cfg)
+            .args(["--from", &iso(from), "--to", &iso(to)])
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap()
+    };
+    // Without the CA file: the certificate is unknown, the write is retried, nothing arrives.
+    let plain = tempfile::tempdir().unwrap();
+    let cfg = export_config(plain.path(), free_port(), &url, "");
+    let t0 = t0_ms();
+    let times = prefill(&cfg, 40, t0, 1000, false);
+    let mut child = export(&cfg, times[0], times[39] + 1);
+    std::thread::sleep(Duration::from_secs(3));
+    let _ = child.kill();
+    let out = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success(), "{stderr}");
+    assert!(
+        stderr.to_lowercase().contains("certificate"),
+        "the refusal names the certificate: {stderr}"
+    );
+    // With the CA file: every point, once.
+    let cfg = export_config(
+        dir.path(),
+        free_port(),
+        &url,
+        &format!("ca_file = \"{}\"", cert.display()),
+    );
+    let times = prefill(&cfg, 40, t0, 1000, false);
+    let out = export(&cfg, times[0], times[39] + 1)
+        .wait_with_output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    assert!(stderr.contains("40 readings"), "{stderr}");
+    vm.restart_plain();
+    assert_all_there(&vm, &times, true);
+}
+
 /// What the refusing test server saw.
 #[derive(Default)]
 struct Seen {

@@ -467,6 +467,8 @@ pub fn river_json(t_s: i64, depth_m: f64) -> String {
 pub struct Victoria {
     pub port: u16,
     data: PathBuf,
+    /// Serve https with this (certificate, key) instead of http.
+    tls: Option<(PathBuf, PathBuf)>,
     child: Option<Child>,
 }
 
@@ -481,10 +483,31 @@ impl Victoria {
         let mut v = Victoria {
             port,
             data: dir.join("vm"),
+            tls: None,
             child: None,
         };
         v.spawn();
         v
+    }
+
+    /// Start serving https with a self-signed certificate for 127.0.0.1: (server, cert file).
+    pub fn start_tls(dir: &Path) -> (Victoria, PathBuf) {
+        let (cert, key) = smtp::self_signed(dir);
+        let mut v = Victoria {
+            port: free_port(),
+            data: dir.join("vm"),
+            tls: Some((cert.clone(), key)),
+            child: None,
+        };
+        v.spawn();
+        (v, cert)
+    }
+
+    /// Restart on the same port and data, serving plain http (to read back what came by https).
+    pub fn restart_plain(&mut self) {
+        self.stop();
+        self.tls = None;
+        self.spawn();
     }
 
     fn spawn(&mut self) {
@@ -493,17 +516,31 @@ impl Victoria {
         } else {
             "victoria-metrics"
         };
-        let child = Command::new(bin)
-            .arg(format!("-httpListenAddr=127.0.0.1:{}", self.port))
+        let mut cmd = Command::new(bin);
+        cmd.arg(format!("-httpListenAddr=127.0.0.1:{}", self.port))
             .arg(format!("-storageDataPath={}", self.data.display()))
             .arg("-retentionPeriod=100y")
             .arg("-loggerLevel=ERROR")
             .stdout(Stdio::null())
-            .stderr(Stdio::null())
+            .stderr(Stdio::null());
+        if let Some((cert, key)) = &self.tls {
+            cmd.arg("-tls")
+                .arg(format!("-tlsCertFile={}", cert.display()))
+                .arg(format!("-tlsKeyFile={}", key.display()));
+        }
+        let child = cmd
             .spawn()
             .expect("victoria-metrics must be installed (tests/run.sh installs it)");
         self.child = Some(child);
         let port = self.port;
+        if self.tls.is_some() {
+            // No plain-http health check over TLS: wait until it accepts connections.
+            wait_for(Duration::from_secs(30), || {
+                TcpStream::connect(("127.0.0.1", port)).ok()
+            })
+            .expect("victoria-metrics (https) did not start listening");
+            return;
+        }
         wait_for(Duration::from_secs(30), || {
             let (status, _) = http_get(port, "/health").ok()?;
             (status == 200).then_some(())
