@@ -277,9 +277,11 @@ impl Writer {
             let now = Utc::now();
             let time = DateTime::from_timestamp_millis(m.t_ms).unwrap_or(now);
             let entered = DateTime::from_timestamp_millis(m.entered_ms).unwrap_or(now);
-            let out = self
+            let mut out = self
                 .engine
                 .process_manual(&m.instrument, m.value, time, entered, &m.by);
+            // The writer's engine is in batch mode: close this one-entry batch (its rates).
+            out.append(self.engine.end_batch());
             let aw = self.alerts.evaluate_outcome(&out);
             self.alerts.before_commit(&aw);
             let quarantined = out
