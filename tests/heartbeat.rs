@@ -192,10 +192,16 @@ fn a_wrong_heartbeat_table_is_refused_with_its_line() {
         .unwrap();
     let text = String::from_utf8_lossy(&o.stderr).to_string() + &String::from_utf8_lossy(&o.stdout);
     assert!(!o.status.success());
-    assert!(
-        text.contains("seepd.toml:") && text.contains("unknown field `beat`"),
-        "{text}"
-    );
+    // Both problems at once, each at its line.
+    let line_of = |what: &str| {
+        text.lines()
+            .find(|l| l.contains(what))
+            .and_then(|l| l.split("seepd.toml:").nth(1))
+            .and_then(|r| r.split(':').next())
+            .and_then(|n| n.parse::<usize>().ok())
+    };
+    let (topic, beat) = (line_of("no wildcards"), line_of("unknown key \"beat\""));
+    assert!(topic.is_some() && beat == topic.map(|t| t + 2), "{text}");
     // Without the unknown key, the wildcard topic and the missing mail relay are both named.
     let p = cfg.join("seepd.toml");
     let t = std::fs::read_to_string(&p)

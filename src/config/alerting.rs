@@ -123,7 +123,8 @@ impl SiteAlerting {
 }
 
 /// Transport security to the mail relay.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum SmtpSecurity {
     /// Plain connection upgraded with STARTTLS (required).
     Starttls,

@@ -6,28 +6,12 @@
 
 use std::path::Path;
 
+use super::de::{self, Int, Text};
 use super::limits;
 use super::model::Export;
 use super::problem::Cx;
 use super::reader::Tbl;
-use super::service::{read_secret, resolve, Env};
-
-/// Keys of `[export]`.
-const KEYS: [&str; 13] = [
-    "url",
-    "org",
-    "bucket",
-    "token_env",
-    "token_file",
-    "ca_file",
-    "batch_size",
-    "flush_interval_ms",
-    "series",
-    "enabled",
-    "retry_min_ms",
-    "retry_max_ms",
-    "timeout_ms",
-];
+use super::service::{existing_file, read_secret, Env};
 
 /// Series names accepted in `series`.
 const SERIES: [&str; 2] = ["readings", "derived"];
@@ -72,24 +56,38 @@ pub(crate) fn check_url(url: &str) -> Result<(), String> {
     Ok(())
 }
 
+/// `[export]` as written; defaults and checks in `read`.
+#[derive(serde::Deserialize)]
+struct Raw {
+    url: Option<String>,
+    org: Option<Text>,
+    bucket: Option<Text>,
+    token_env: Option<Text>,
+    token_file: Option<Text>,
+    ca_file: Option<Text>,
+    batch_size: Option<Int<1, 1_000_000>>,
+    flush_interval_ms: Option<Int<1, { limits::EXPORT_MS }>>,
+    series: Option<Vec<String>>,
+    enabled: Option<bool>,
+    retry_min_ms: Option<Int<1, { limits::BACKOFF_MS }>>,
+    retry_max_ms: Option<Int<1, { limits::BACKOFF_MS }>>,
+    timeout_ms: Option<Int<1, { limits::EXPORT_MS }>>,
+}
+
 /// Read `[export]`; `None` (with problems recorded) when anything is wrong.
 pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Export> {
-    t.check_keys(cx, &KEYS);
     let before = cx.problems.len();
-    let url = t.req_string(cx, "url");
+    let raw: Raw = de::table(cx, t)?;
+    let url = t.need(cx, "url", raw.url);
     if let Some(u) = &url {
         if let Err(e) = check_url(u) {
             t.problem_at(cx, "url", format!("key \"url\" is {u:?}: {e}"));
         }
     }
-    let org = t.req_string(cx, "org").filter(|s| !s.trim().is_empty());
-    let bucket = t.req_string(cx, "bucket").filter(|s| !s.trim().is_empty());
-    for (key, v) in [("org", &org), ("bucket", &bucket)] {
-        if v.is_none() && t.peek_str(key).is_some() {
-            t.problem_at(cx, key, format!("key \"{key}\" is empty"));
-        }
-    }
-    let token = read_secret(cx, t, dir, env, "token", "the InfluxDB API token");
+    let org = t.need(cx, "org", raw.org.map(|o| o.0));
+    let bucket = t.need(cx, "bucket", raw.bucket.map(|b| b.0));
+    let keys = (raw.token_env.map(|v| v.0), raw.token_file.map(|v| v.0));
+    let token = read_secret(cx, (t, dir, env), "token", "the InfluxDB API token", keys);
     if token.is_none() && !t.has("token_env") && !t.has("token_file") {
         t.missing(
             cx,
@@ -97,53 +95,34 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
             " (or \"token_file\"): expected where the API token is",
         );
     }
-    let ca_file = t.nonempty(cx, "ca_file").map(|f| resolve(dir, &f));
-    if let Some(p) = &ca_file {
-        if !p.is_file() {
-            t.problem_at(
-                cx,
-                "ca_file",
-                format!("ca_file {} does not exist or is not a file", p.display()),
-            );
-        }
-    }
-    let (readings, derived) = read_series(cx, t);
-    let (max, backoff) = (limits::EXPORT_MS, limits::BACKOFF_MS);
+    let (readings, derived) = read_series(cx, t, raw.series);
     let e = Export {
         url: url.unwrap_or_default().trim_end_matches('/').to_string(),
         org: org.unwrap_or_default(),
         bucket: bucket.unwrap_or_default(),
         token: token.unwrap_or(super::model::Secret(String::new())),
-        ca_file,
-        batch_size: t.int_in(cx, "batch_size", 1, 1_000_000, 5000) as usize,
-        flush_interval_ms: t.int_in(cx, "flush_interval_ms", 1, max, 1000) as u64,
+        ca_file: existing_file(cx, t, dir, "ca_file", raw.ca_file.map(|f| f.0)),
+        batch_size: raw.batch_size.map_or(5000, |b| b.0 as usize),
+        flush_interval_ms: raw.flush_interval_ms.map_or(1000, Int::u64),
         readings,
         derived,
-        enabled: t.boolean(cx, "enabled", true),
-        retry_min_ms: t.int_in(cx, "retry_min_ms", 1, backoff, 500) as u64,
-        retry_max_ms: t.int_in(cx, "retry_max_ms", 1, backoff, 30_000) as u64,
-        timeout_ms: t.int_in(cx, "timeout_ms", 1, max, 10_000) as u64,
+        enabled: raw.enabled.unwrap_or(true),
+        retry_min_ms: raw.retry_min_ms.map_or(500, Int::u64),
+        retry_max_ms: raw.retry_max_ms.map_or(30_000, Int::u64),
+        timeout_ms: raw.timeout_ms.map_or(10_000, Int::u64),
     };
-    if e.retry_min_ms > e.retry_max_ms {
-        t.problem_at(
-            cx,
-            "retry_min_ms",
-            format!(
-                "retry_min_ms is {} but retry_max_ms is {}; expected min <= max",
-                e.retry_min_ms, e.retry_max_ms
-            ),
-        );
-    }
+    t.min_max(
+        cx,
+        ("retry_min_ms", e.retry_min_ms),
+        ("retry_max_ms", e.retry_max_ms),
+    );
     (cx.problems.len() == before).then_some(e)
 }
 
 /// `series = ["readings", "derived"]` (the default): which series are exported.
-fn read_series(cx: &mut Cx<'_>, t: &Tbl<'_>) -> (bool, bool) {
-    if !t.has("series") {
-        return (true, true);
-    }
+fn read_series(cx: &mut Cx<'_>, t: &Tbl<'_>, names: Option<Vec<String>>) -> (bool, bool) {
     let expected = format!("an array of one or both of: {}", SERIES.join(", "));
-    let Some(names) = t.string_array(cx, "series", &expected) else {
+    let Some(names) = names else {
         return (true, true);
     };
     let mut chosen = (false, false);

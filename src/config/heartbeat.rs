@@ -3,13 +3,14 @@
 //! on the same topic registered at connect, so the broker announces seepd's death) and/or a
 //! daily "seepd is running" email to `email_to` at `email_at` (UTC).
 //!
-//! Owns those keys, their defaults and checks, read with serde derive; a problem is located at
-//! its line (serde stops at the first one of this table; the checks after it list all theirs).
+//! Owns those keys, their defaults and checks, read with serde derive (`config::de`); every
+//! problem is located at its key.
 
 use chrono::NaiveTime;
 use serde::Deserialize;
 
 use super::problem::Cx;
+use super::reader::Tbl;
 
 /// The `[heartbeat]` table as written.
 #[derive(Debug, Clone, PartialEq, Eq, Deserialize)]
@@ -45,71 +46,58 @@ impl Heartbeat {
     }
 }
 
-/// The document as far as `[heartbeat]` goes (other tables are read elsewhere).
-#[derive(Deserialize)]
-struct Only {
-    #[serde(default)]
-    heartbeat: Option<Heartbeat>,
-}
-
-/// Read `[heartbeat]` from the service file's text; `None` when absent or wrong (problems
-/// recorded at their lines). `smtp` says whether `[smtp]` is configured.
-pub(crate) fn read(
-    cx: &mut Cx<'_>,
-    span: Option<std::ops::Range<usize>>,
-    smtp: bool,
-) -> Option<Heartbeat> {
-    let h = match toml::from_str::<Only>(cx.text) {
-        Ok(o) => o.heartbeat?,
-        Err(e) => {
-            cx.at(e.span().or(span), format!("[heartbeat]: {}", e.message()));
-            return None;
-        }
-    };
+/// Read `[heartbeat]` (`t`, when present); `None` when absent or wrong (every problem
+/// recorded at its key). `smtp` says whether `[smtp]` is configured.
+pub(crate) fn read(cx: &mut Cx<'_>, t: Option<&Tbl<'_>>, smtp: bool) -> Option<Heartbeat> {
+    let t = t?;
     let before = cx.problems.len();
-    if let Some(t) = &h.topic {
-        if t.is_empty() || t.contains(['+', '#']) || t.starts_with('$') {
-            cx.at(
-                span.clone(),
-                format!(
-                    "[heartbeat]: topic {t:?} must be a plain topic name (no wildcards, not $...)"
-                ),
+    let h: Heartbeat = super::de::table(cx, t)?;
+    if let Some(topic) = &h.topic {
+        if topic.is_empty() || topic.contains(['+', '#']) || topic.starts_with('$') {
+            t.problem_at(
+                cx,
+                "topic",
+                format!("topic {topic:?} must be a plain topic name (no wildcards, not $...)"),
             );
         }
     }
     if !(5..=86_400).contains(&h.every_s) {
-        cx.at(
-            span.clone(),
-            format!("[heartbeat]: every_s {} is outside 5..86400", h.every_s),
+        t.problem_at(
+            cx,
+            "every_s",
+            format!("every_s {} is outside 5..86400", h.every_s),
         );
     }
     for a in &h.email_to {
         if !super::smtp::plain_address(a) {
-            cx.at(
-                span.clone(),
-                format!("[heartbeat]: email_to {a:?} is not a plain local@domain address"),
+            t.problem_at(
+                cx,
+                "email_to",
+                format!("email_to {a:?} is not a plain local@domain address"),
             );
         }
     }
     if NaiveTime::parse_from_str(&h.email_at, "%H:%M").is_err() {
-        cx.at(
-            span.clone(),
+        t.problem_at(
+            cx,
+            "email_at",
             format!(
-                "[heartbeat]: email_at {:?}: expected a time of day HH:MM (UTC)",
+                "email_at {:?}: expected a time of day HH:MM (UTC)",
                 h.email_at
             ),
         );
     }
     if !h.email_to.is_empty() && !smtp {
-        cx.at(
-            span.clone(),
-            "[heartbeat]: email_to needs a valid [smtp] table to send through",
+        t.problem_at(
+            cx,
+            "email_to",
+            "email_to needs a valid [smtp] table to send through",
         );
     }
     if h.topic.is_none() && h.email_to.is_empty() {
-        cx.at(
-            span,
-            "[heartbeat]: neither topic nor email_to is set; the table would do nothing",
+        t.problem(
+            cx,
+            "neither topic nor email_to is set; the table would do nothing",
         );
     }
     (cx.problems.len() == before).then_some(h)

@@ -7,19 +7,10 @@
 
 use std::net::SocketAddr;
 
+use super::de::{self, Int, Text};
 use super::limits;
 use super::problem::Cx;
 use super::reader::Tbl;
-
-/// Keys of `[http]`.
-const KEYS: [&str; 6] = [
-    "bind",
-    "public_base_url",
-    "allow_anonymous",
-    "ack_link_valid_h",
-    "ready_commit_age_s",
-    "ready_reconnect_s",
-];
 
 /// Default listening address: loopback only.
 pub const DEFAULT_BIND: &str = "127.0.0.1:8480";
@@ -52,29 +43,36 @@ impl Http {
     }
 }
 
+/// `[http]` as written; defaults and checks in `read`.
+#[derive(serde::Deserialize)]
+struct Raw {
+    bind: Option<Text>,
+    public_base_url: Option<Text>,
+    #[serde(default)]
+    allow_anonymous: bool,
+    ack_link_valid_h: Option<Int<1, { limits::YEAR_S / 3600 }>>,
+    ready_commit_age_s: Option<Int<1, { limits::YEAR_S }>>,
+    ready_reconnect_s: Option<Int<0, 3600>>,
+}
+
 /// Read `[http]`; `None` (with problems recorded) when anything is wrong.
 pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Http> {
-    t.check_keys(cx, &KEYS);
     let before = cx.problems.len();
-    let bind_text = t
-        .nonempty(cx, "bind")
-        .unwrap_or_else(|| DEFAULT_BIND.into());
-    let bind = match bind_text.parse::<SocketAddr>() {
-        Ok(a) => Some(a),
-        Err(_) => {
-            t.problem_at(
-                cx,
-                "bind",
-                format!(
-                    "bind {bind_text:?} is not an address and port; expected e.g. \"{DEFAULT_BIND}\" \
-                     (loopback) or \"0.0.0.0:8480\" (every interface)"
-                ),
-            );
-            None
-        }
-    };
-    let public_base_url = match t.nonempty(cx, "public_base_url") {
-        Some(u) => match check_base_url(&u) {
+    let raw: Raw = de::table(cx, t)?;
+    let bind_text = raw.bind.map_or_else(|| DEFAULT_BIND.into(), |b| b.0);
+    let bind = bind_text.parse::<SocketAddr>().ok();
+    if bind.is_none() {
+        t.problem_at(
+            cx,
+            "bind",
+            format!(
+                "bind {bind_text:?} is not an address and port; expected e.g. \"{DEFAULT_BIND}\" \
+                 (loopback) or \"0.0.0.0:8480\" (every interface)"
+            ),
+        );
+    }
+    let public_base_url = match raw.public_base_url {
+        Some(Text(u)) => match check_base_url(&u) {
             Ok(()) => Some(u.trim_end_matches('/').to_string()),
             Err(e) => {
                 t.problem_at(cx, "public_base_url", format!("public_base_url {u:?}: {e}"));
@@ -86,12 +84,10 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Http> {
     let http = Http {
         bind: bind?,
         public_base_url: public_base_url?,
-        allow_anonymous: t.boolean(cx, "allow_anonymous", false),
-        ack_link_valid_h: t.int_in(cx, "ack_link_valid_h", 1, limits::YEAR_S / 3600, 72) as u32,
-        ready_commit_age_s: t
-            .opt_int_in(cx, "ready_commit_age_s", 1, limits::YEAR_S, false)
-            .map(|s| s as u64),
-        ready_reconnect_s: t.int_in(cx, "ready_reconnect_s", 0, 3600, 30) as u64,
+        allow_anonymous: raw.allow_anonymous,
+        ack_link_valid_h: raw.ack_link_valid_h.map_or(72, |h| h.0 as u32),
+        ready_commit_age_s: raw.ready_commit_age_s.map(Int::u64),
+        ready_reconnect_s: raw.ready_reconnect_s.map_or(30, Int::u64),
     };
     (cx.problems.len() == before).then_some(http)
 }

@@ -151,7 +151,8 @@ pub struct Tls {
 }
 
 /// Payload format of a subscription.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum PayloadFormat {
     Json,
     Senml,
@@ -159,11 +160,14 @@ pub enum PayloadFormat {
 }
 
 /// How numeric timestamps are read.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
 pub enum EpochUnit {
     /// Seconds below 1e11, milliseconds above.
+    #[serde(rename = "auto")]
     Auto,
+    #[serde(rename = "s")]
     Seconds,
+    #[serde(rename = "ms")]
     Milliseconds,
 }
 
@@ -211,7 +215,8 @@ pub struct Subscription {
 }
 
 /// Units for display (reports, emails, summaries).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum DisplayUnits {
     Si,
     Us,

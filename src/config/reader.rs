@@ -39,7 +39,7 @@ pub(crate) fn finite(v: &Value) -> Option<f64> {
     number(v).filter(|n| n.is_finite())
 }
 
-fn found_item(item: &Item) -> String {
+pub(crate) fn found_item(item: &Item) -> String {
     match item {
         Item::Value(v) => found(v),
         Item::Table(_) => "a table".into(),
@@ -87,6 +87,57 @@ impl<'t> Tbl<'t> {
     /// Span of the table header, for problems about the table as a whole.
     pub fn span(&self) -> Option<Range<usize>> {
         self.span.clone()
+    }
+
+    /// The keys and items of the table, in file order.
+    pub fn entries(&self) -> impl Iterator<Item = (&'t str, &'t Item)> + 't {
+        self.table.iter()
+    }
+
+    /// A required value, or a "missing key" problem at the table header.
+    pub fn need<T>(&self, cx: &mut Cx<'_>, key: &str, value: Option<T>) -> Option<T> {
+        if value.is_none() && !self.has(key) {
+            self.missing(cx, key, "");
+        }
+        value
+    }
+
+    /// A problem when the lower bound `(min_key, min)` is above the upper `(max_key, max)`,
+    /// located at the one of the two keys written (the lower when both are).
+    pub fn min_max(
+        &self,
+        cx: &mut Cx<'_>,
+        (min_key, min): (&str, u64),
+        (max_key, max): (&str, u64),
+    ) {
+        if min > max {
+            let at = if self.has(min_key) || !self.has(max_key) {
+                min_key
+            } else {
+                max_key
+            };
+            let message = format!("{min_key} is {min} but {max_key} is {max}; expected min <= max");
+            self.problem_at(cx, at, message);
+        }
+    }
+
+    /// An array of strings as read (`req`: required; a required array must not be empty):
+    /// `None`, with a problem, when an entry is blank.
+    pub fn entries_of(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        v: Option<Vec<String>>,
+        req: bool,
+    ) -> Option<Vec<String>> {
+        let v = if req { self.need(cx, key, v)? } else { v? };
+        if v.iter().any(|s| s.trim().is_empty()) || (req && v.is_empty()) {
+            let message =
+                format!("key \"{key}\" has an empty entry or is empty; expected non-empty strings");
+            self.problem_at(cx, key, message);
+            return None;
+        }
+        Some(v)
     }
 
     /// Whether a key is present.
@@ -195,11 +246,6 @@ impl<'t> Tbl<'t> {
         self.get(cx, key, false, "a string", |v| v.as_str().map(String::from))
     }
 
-    /// A required string.
-    pub fn req_string(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
-        self.get(cx, key, true, "a string", |v| v.as_str().map(String::from))
-    }
-
     /// An optional non-empty string.
     pub fn nonempty(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
         let s = self.string(cx, key)?;
@@ -247,11 +293,6 @@ impl<'t> Tbl<'t> {
         Some(n)
     }
 
-    /// An integer within `lo..=hi`, or `default` when absent.
-    pub fn int_in(&self, cx: &mut Cx<'_>, key: &str, lo: i64, hi: i64, default: i64) -> i64 {
-        self.opt_int_in(cx, key, lo, hi, false).unwrap_or(default)
-    }
-
     /// An integer within `lo..=hi`; `None` when absent (a problem if `req`) or invalid.
     pub fn opt_int_in(
         &self,
@@ -276,41 +317,6 @@ impl<'t> Tbl<'t> {
             return None;
         }
         Some(n)
-    }
-
-    /// An array of non-empty strings (`req`: required; a required array must not be empty).
-    pub fn strings(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<Vec<String>> {
-        let v = self.get(cx, key, req, "an array of strings", |v| {
-            v.as_array()?
-                .iter()
-                .map(|x| x.as_str().map(str::to_string))
-                .collect::<Option<Vec<String>>>()
-        })?;
-        if v.iter().any(|s| s.trim().is_empty()) || (req && v.is_empty()) {
-            self.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" has an empty entry or is empty; expected non-empty strings"),
-            );
-            return None;
-        }
-        Some(v)
-    }
-
-    /// An array of strings; `expected` describes it in the problem when it is something else.
-    pub fn string_array(&self, cx: &mut Cx<'_>, key: &str, expected: &str) -> Option<Vec<String>> {
-        self.get(cx, key, false, expected, |v| {
-            v.as_array()?
-                .iter()
-                .map(|x| x.as_str().map(String::from))
-                .collect()
-        })
-    }
-
-    /// A boolean, or `default` when absent.
-    pub fn boolean(&self, cx: &mut Cx<'_>, key: &str, default: bool) -> bool {
-        self.get(cx, key, false, "true or false", Value::as_bool)
-            .unwrap_or(default)
     }
 
     /// `[low, high]`: two finite numbers with low < high.

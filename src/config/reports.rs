@@ -10,6 +10,9 @@ use std::path::{Path, PathBuf};
 
 use chrono::{NaiveTime, Weekday};
 
+use serde::Deserialize;
+
+use super::de::{self, Int, Text};
 use super::model::{Every, ReportSchedule};
 use super::problem::{Cx, Problem};
 use super::reader::Tbl;
@@ -19,32 +22,44 @@ use super::smtp::plain_address;
 /// Top-level keys of a site file that this module reads.
 pub(crate) const KEYS: [&str; 1] = ["report"];
 
-const TABLE_KEYS: [&str; 8] = [
-    "id",
-    "every",
-    "at",
-    "weekday",
-    "day",
-    "recipients",
-    "contacts",
-    "out_dir",
-];
+/// `[[report]]` as written; checks in `read_one`.
+#[derive(Deserialize, Default)]
+struct Raw {
+    id: Option<Text>,
+    every: Option<Kind>,
+    at: Option<String>,
+    weekday: Option<Day>,
+    day: Option<Int<1, 28>>,
+    recipients: Option<Vec<String>>,
+    contacts: Option<Vec<String>>,
+    out_dir: Option<Text>,
+}
 
-const WEEKDAYS: [(&str, Weekday); 7] = [
-    ("mon", Weekday::Mon),
-    ("tue", Weekday::Tue),
-    ("wed", Weekday::Wed),
-    ("thu", Weekday::Thu),
-    ("fri", Weekday::Fri),
-    ("sat", Weekday::Sat),
-    ("sun", Weekday::Sun),
-];
-
-#[derive(Clone, Copy, PartialEq, Eq)]
+#[derive(Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "lowercase")]
 enum Kind {
     Daily,
     Weekly,
     Monthly,
+}
+
+/// `weekday` as written.
+#[derive(Clone, Copy, Deserialize)]
+#[serde(rename_all = "lowercase")]
+enum Day {
+    Mon,
+    Tue,
+    Wed,
+    Thu,
+    Fri,
+    Sat,
+    Sun,
+}
+
+impl From<Day> for Weekday {
+    fn from(d: Day) -> Weekday {
+        Weekday::try_from(d as u8).unwrap_or(Weekday::Mon)
+    }
 }
 
 /// One `[[report]]` as read, with what the cross-file checks need.
@@ -66,25 +81,14 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> Vec<ReportEnt
 
 fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
     let before = cx.problems.len();
-    let id = t.nonempty(cx, "id");
-    match &id {
-        Some(id) => t.what = format!("report {id:?}"),
-        None if !t.has("id") => t.missing(cx, "id", ""),
-        None => {}
+    if let Some(id) = t.peek_str("id").filter(|id| !id.trim().is_empty()) {
+        t.what = format!("report {id:?}");
     }
+    let r: Raw = de::table(cx, t).unwrap_or_default();
+    let id = t.need(cx, "id", r.id.map(|i| i.0));
     let id_pos = cx.pos(t.value_span("id"));
-    t.check_keys(cx, &TABLE_KEYS);
-    let kind = t.choice(
-        cx,
-        "every",
-        true,
-        &[
-            ("daily", Kind::Daily),
-            ("weekly", Kind::Weekly),
-            ("monthly", Kind::Monthly),
-        ],
-    );
-    let at = t.req_string(cx, "at").and_then(|s| {
+    let kind = t.need(cx, "every", r.every);
+    let at = t.need(cx, "at", r.at).and_then(|s| {
         let parsed = NaiveTime::parse_from_str(s.trim(), "%H:%M").ok();
         if parsed.is_none() {
             t.problem_at(
@@ -95,8 +99,14 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
         }
         parsed
     });
-    let weekday = t.choice(cx, "weekday", kind == Some(Kind::Weekly), &WEEKDAYS);
-    let day = t.opt_int_in(cx, "day", 1, 28, kind == Some(Kind::Monthly));
+    let weekday = match kind {
+        Some(Kind::Weekly) => t.need(cx, "weekday", r.weekday),
+        _ => r.weekday,
+    };
+    let day = match kind {
+        Some(Kind::Monthly) => t.need(cx, "day", r.day),
+        _ => r.day,
+    };
     for (key, wanted) in [("weekday", Kind::Weekly), ("day", Kind::Monthly)] {
         if t.has(key) && kind.is_some_and(|k| k != wanted) {
             let every = if wanted == Kind::Weekly {
@@ -111,7 +121,9 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             );
         }
     }
-    let recipients = t.strings(cx, "recipients", false).unwrap_or_default();
+    let recipients = t
+        .entries_of(cx, "recipients", r.recipients, false)
+        .unwrap_or_default();
     for r in recipients.iter().filter(|r| !plain_address(r)) {
         t.problem_at(
             cx,
@@ -119,19 +131,21 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             format!("address {r:?} is not a plain address; expected e.g. engineer@example.org"),
         );
     }
-    let contacts = t.strings(cx, "contacts", false).unwrap_or_default();
+    let contacts = t
+        .entries_of(cx, "contacts", r.contacts, false)
+        .unwrap_or_default();
     if recipients.is_empty() && contacts.is_empty() && !t.has("recipients") && !t.has("contacts") {
         t.problem(
             cx,
             "no one receives this report; expected \"recipients\" (addresses) and/or \"contacts\" (names of [[contacts]] lists)",
         );
     }
-    let out_dir = t.nonempty(cx, "out_dir").map(PathBuf::from);
+    let out_dir = r.out_dir.map(|d| PathBuf::from(d.0));
     let contacts_pos = cx.pos(t.value_span("contacts"));
     let every = match kind {
         Some(Kind::Daily) => Some(Every::Daily),
-        Some(Kind::Weekly) => weekday.map(Every::Weekly),
-        Some(Kind::Monthly) => day.map(|d| Every::Monthly(d as u32)),
+        Some(Kind::Weekly) => weekday.map(|d| Every::Weekly(d.into())),
+        Some(Kind::Monthly) => day.map(|d| Every::Monthly(d.0 as u32)),
         None => None,
     };
     let schedule = match (&id, every, at) {

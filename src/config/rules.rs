@@ -9,9 +9,13 @@
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::{Path, PathBuf};
 
+use serde::Deserialize;
+
 use crate::domain::rules::{Check, Direction, LevelSpec, Spec};
 
 use super::alerting::{Contacts, Policy, Rule, SiteAlerting};
+use super::de::{self, Int, Text};
+use super::limits;
 use super::model::{Config, Instrument};
 use super::problem::{Cx, Problem};
 use super::reader::Tbl;
@@ -128,46 +132,51 @@ fn millis(s: Option<i64>) -> Option<i64> {
     s.filter(|s| *s > 0).map(|s| s * 1000)
 }
 
+/// `[alerting]` as written; defaults are `Policy::default()`.
+#[derive(Deserialize)]
+struct RawPolicy {
+    bundle_window_s: Option<Int<0, 3600>>,
+    remind_every_s: Option<Int<0, { limits::YEAR_S }>>,
+    escalate_after_s: Option<Int<0, { limits::YEAR_S }>>,
+    status_url: Option<Text>,
+    unavailable_after_s: Option<Int<0, { limits::YEAR_S }>>,
+}
+
 fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
-    t.check_keys(
-        cx,
-        &[
-            "bundle_window_s",
-            "remind_every_s",
-            "escalate_after_s",
-            "status_url",
-            "unavailable_after_s",
-        ],
-    );
     let d = Policy::default();
-    let max = super::limits::YEAR_S;
+    let Some(r) = de::table::<RawPolicy>(cx, t) else {
+        return d;
+    };
+    let ms =
+        |v: Option<Int<0, { limits::YEAR_S }>>, default| v.map_or(default, |s| millis(Some(s.0)));
     Policy {
-        bundle_window_ms: t.int_in(cx, "bundle_window_s", 0, 3600, d.bundle_window_ms / 1000)
-            * 1000,
-        remind_every_ms: match t.opt_int_in(cx, "remind_every_s", 0, max, false) {
-            Some(s) => millis(Some(s)),
-            None => d.remind_every_ms,
-        },
-        escalate_after_ms: match t.opt_int_in(cx, "escalate_after_s", 0, max, false) {
-            Some(s) => millis(Some(s)),
-            None => d.escalate_after_ms,
-        },
-        status_url: t.nonempty(cx, "status_url").unwrap_or(d.status_url),
-        unavailable_after_ms: match t.opt_int_in(cx, "unavailable_after_s", 0, max, false) {
-            Some(s) => millis(Some(s)),
-            None => d.unavailable_after_ms,
-        },
+        bundle_window_ms: r.bundle_window_s.map_or(d.bundle_window_ms, |s| s.0 * 1000),
+        remind_every_ms: ms(r.remind_every_s, d.remind_every_ms),
+        escalate_after_ms: ms(r.escalate_after_s, d.escalate_after_ms),
+        status_url: r.status_url.map_or(d.status_url, |u| u.0),
+        unavailable_after_ms: ms(r.unavailable_after_s, d.unavailable_after_ms),
     }
 }
 
+/// `[[contacts]]` as written.
+#[derive(Deserialize, Default)]
+struct RawContacts {
+    #[serde(rename = "name")]
+    _name: Option<String>,
+    emails: Option<Vec<String>>,
+    levels: Option<Vec<String>>,
+    escalation: Option<bool>,
+}
+
 fn read_contacts(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Contacts> {
-    t.check_keys(cx, &["name", "emails", "levels", "escalation"]);
     let before = cx.problems.len();
-    let name = t.req_string(cx, "name");
+    let name = t.peek_str("name").map(String::from);
     if let Some(n) = &name {
         t.what = format!("contacts {n:?}");
     }
-    let emails = t.strings(cx, "emails", true);
+    let r: RawContacts = de::table(cx, t).unwrap_or_default();
+    let name = t.need(cx, "name", name);
+    let emails = t.entries_of(cx, "emails", r.emails, true);
     for e in emails.iter().flatten().filter(|e| !plain_address(e)) {
         t.problem_at(
             cx,
@@ -175,13 +184,13 @@ fn read_contacts(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Contacts> {
             format!("address {e:?} is not a plain address; expected e.g. oncall@example.org"),
         );
     }
-    let levels = t.strings(cx, "levels", false).unwrap_or_default();
-    let escalation = t.boolean(cx, "escalation", false);
     let c = Contacts {
         name: name?,
         emails: emails?,
-        levels,
-        escalation,
+        levels: t
+            .entries_of(cx, "levels", r.levels, false)
+            .unwrap_or_default(),
+        escalation: r.escalation.unwrap_or(false),
     };
     (cx.problems.len() == before).then_some(c)
 }

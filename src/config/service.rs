@@ -6,6 +6,7 @@
 
 use std::path::{Path, PathBuf};
 
+use super::de::{self, Int, Text};
 use super::limits;
 use super::model::{
     EpochUnit, Export, JsonFields, Mqtt, PayloadFormat, Secret, Service, Subscription, Tls,
@@ -42,6 +43,27 @@ pub(crate) fn resolve(dir: &Path, p: &str) -> PathBuf {
     } else {
         dir.join(p)
     }
+}
+
+/// A file a table names (relative to the configuration directory), which must exist; a
+/// problem at `key` otherwise (the file is kept, as the table is refused anyway).
+pub(crate) fn existing_file(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    dir: &Path,
+    key: &str,
+    name: Option<String>,
+) -> Option<PathBuf> {
+    let path = resolve(dir, &name?);
+    if !path.is_file() {
+        let shown = path.display();
+        t.problem_at(
+            cx,
+            key,
+            format!("{key} {shown} does not exist or is not a file"),
+        );
+    }
+    Some(path)
 }
 
 /// Read the service file's root table.
@@ -110,10 +132,10 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
         t.what = "[http]".into();
         crate::config::http::read(cx, &t)
     });
-    let heartbeat_at = root
-        .sub(cx, "heartbeat", "[heartbeat]")
-        .and_then(|t| t.span());
-    let heartbeat = super::heartbeat::read(cx, heartbeat_at, smtp.is_some());
+    let heartbeat = root.sub(cx, "heartbeat", "[heartbeat]").and_then(|mut t| {
+        t.what = "[heartbeat]".into();
+        super::heartbeat::read(cx, Some(&t), smtp.is_some())
+    });
     ServiceFile {
         service,
         export,
@@ -154,65 +176,39 @@ fn default_mqtt() -> Mqtt {
     }
 }
 
+/// `[service]` as written; defaults in `default_service`, checks in `read_service`.
+#[derive(serde::Deserialize)]
+struct RawService {
+    database: Option<Text>,
+    commit_max_readings: Option<Int<1, { limits::COMMIT_READINGS }>>,
+    commit_max_ms: Option<Int<0, { limits::COMMIT_MS }>>,
+    max_payload_bytes: Option<Int<1, { limits::MQTT_PACKET_BYTES }>>,
+    max_future_s: Option<Int<0, { limits::FUTURE_S }>>,
+    clock_skew_s: Option<Int<0, { limits::FUTURE_S }>>,
+    barometer_max_age_s: Option<Int<0, { limits::BAROMETER_AGE_S }>>,
+    shutdown_deadline_s: Option<Int<1, { limits::SHUTDOWN_S }>>,
+}
+
 fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
-    t.check_keys(
-        cx,
-        &[
-            "database",
-            "commit_max_readings",
-            "commit_max_ms",
-            "max_payload_bytes",
-            "max_future_s",
-            "clock_skew_s",
-            "barometer_max_age_s",
-            "shutdown_deadline_s",
-        ],
-    );
     let d = default_service(dir);
     let before = cx.problems.len();
-    let database = t
-        .nonempty(cx, "database")
-        .map_or(d.database, |p| resolve(dir, &p));
+    let r: RawService = de::table(cx, t)?;
     // Defaults come from `default_service` alone.
     let s = Service {
-        database,
-        commit_max_readings: t.int_in(
-            cx,
-            "commit_max_readings",
-            1,
-            limits::COMMIT_READINGS,
-            d.commit_max_readings as i64,
-        ) as usize,
-        commit_max_ms: t.int_in(
-            cx,
-            "commit_max_ms",
-            0,
-            limits::COMMIT_MS,
-            d.commit_max_ms as i64,
-        ) as u64,
-        max_payload_bytes: t.int_in(
-            cx,
-            "max_payload_bytes",
-            1,
-            limits::MQTT_PACKET_BYTES,
-            d.max_payload_bytes as i64,
-        ) as usize,
-        max_future_s: t.int_in(cx, "max_future_s", 0, limits::FUTURE_S, d.max_future_s),
-        clock_skew_s: t.int_in(cx, "clock_skew_s", 0, limits::FUTURE_S, d.clock_skew_s),
-        barometer_max_age_s: t.int_in(
-            cx,
-            "barometer_max_age_s",
-            0,
-            limits::BAROMETER_AGE_S,
-            d.barometer_max_age_s,
-        ),
-        shutdown_deadline_s: t.int_in(
-            cx,
-            "shutdown_deadline_s",
-            1,
-            limits::SHUTDOWN_S,
-            d.shutdown_deadline_s as i64,
-        ) as u64,
+        database: r.database.map_or(d.database, |p| resolve(dir, &p.0)),
+        commit_max_readings: r
+            .commit_max_readings
+            .map_or(d.commit_max_readings, |n| n.0 as usize),
+        commit_max_ms: r.commit_max_ms.map_or(d.commit_max_ms, Int::u64),
+        max_payload_bytes: r
+            .max_payload_bytes
+            .map_or(d.max_payload_bytes, |n| n.0 as usize),
+        max_future_s: r.max_future_s.map_or(d.max_future_s, |n| n.0),
+        clock_skew_s: r.clock_skew_s.map_or(d.clock_skew_s, |n| n.0),
+        barometer_max_age_s: r.barometer_max_age_s.map_or(d.barometer_max_age_s, |n| n.0),
+        shutdown_deadline_s: r
+            .shutdown_deadline_s
+            .map_or(d.shutdown_deadline_s, Int::u64),
     };
     if s.clock_skew_s > s.max_future_s && t.has("clock_skew_s") {
         t.problem_at(
@@ -227,29 +223,32 @@ fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
     (cx.problems.len() == before).then_some(s)
 }
 
+/// `[mqtt]` as written; defaults in `default_mqtt`, checks in `read_mqtt`.
+#[derive(serde::Deserialize)]
+struct RawMqtt {
+    host: Option<Text>,
+    port: Option<Int<1, 65535>>,
+    client_id: Option<Text>,
+    username: Option<Text>,
+    password_env: Option<Text>,
+    password_file: Option<Text>,
+    persistent_session: Option<bool>,
+    keep_alive_s: Option<Int<0, 65535>>,
+    max_packet_bytes: Option<Int<1, { limits::MQTT_PACKET_BYTES }>>,
+    reconnect_min_ms: Option<Int<0, { limits::BACKOFF_MS }>>,
+    reconnect_max_ms: Option<Int<0, { limits::BACKOFF_MS }>>,
+    /// `[mqtt.tls]`, read as a table of its own.
+    #[serde(rename = "tls")]
+    _tls: Option<de::Nested>,
+}
+
 fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Mqtt> {
-    t.check_keys(
-        cx,
-        &[
-            "host",
-            "port",
-            "client_id",
-            "username",
-            "password_env",
-            "password_file",
-            "persistent_session",
-            "keep_alive_s",
-            "max_packet_bytes",
-            "reconnect_min_ms",
-            "reconnect_max_ms",
-            "tls",
-        ],
-    );
     let d = default_mqtt();
     let before = cx.problems.len();
-    let backoff = limits::BACKOFF_MS;
-    let username = t.nonempty(cx, "username");
-    let password = read_password(cx, t, dir, env, "MQTT");
+    let r: RawMqtt = de::table(cx, t)?;
+    let username = r.username.map(|u| u.0);
+    let keys = (r.password_env.map(|v| v.0), r.password_file.map(|v| v.0));
+    let password = read_secret(cx, (t, dir, env), "password", "the MQTT password", keys);
     if password.is_some() && username.is_none() {
         t.problem(
             cx,
@@ -261,82 +260,38 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
         read_tls(cx, &tls, dir)
     });
     let m = Mqtt {
-        host: t.nonempty(cx, "host").unwrap_or(d.host),
-        port: t.int_in(cx, "port", 1, 65535, i64::from(d.port)) as u16,
-        client_id: t.nonempty(cx, "client_id").unwrap_or(d.client_id),
+        host: r.host.map_or(d.host, |h| h.0),
+        port: r.port.map_or(d.port, |p| p.0 as u16),
+        client_id: r.client_id.map_or(d.client_id, |c| c.0),
         username,
         password,
         tls,
-        persistent_session: t.boolean(cx, "persistent_session", d.persistent_session),
-        keep_alive_s: t.int_in(cx, "keep_alive_s", 0, 65535, d.keep_alive_s as i64) as u64,
-        max_packet_bytes: t.int_in(
-            cx,
-            "max_packet_bytes",
-            1,
-            limits::MQTT_PACKET_BYTES,
-            d.max_packet_bytes as i64,
-        ) as usize,
-        reconnect_min_ms: t.int_in(
-            cx,
-            "reconnect_min_ms",
-            0,
-            backoff,
-            d.reconnect_min_ms as i64,
-        ) as u64,
-        reconnect_max_ms: t.int_in(
-            cx,
-            "reconnect_max_ms",
-            0,
-            backoff,
-            d.reconnect_max_ms as i64,
-        ) as u64,
+        persistent_session: r.persistent_session.unwrap_or(d.persistent_session),
+        keep_alive_s: r.keep_alive_s.map_or(d.keep_alive_s, Int::u64),
+        max_packet_bytes: r
+            .max_packet_bytes
+            .map_or(d.max_packet_bytes, |n| n.0 as usize),
+        reconnect_min_ms: r.reconnect_min_ms.map_or(d.reconnect_min_ms, Int::u64),
+        reconnect_max_ms: r.reconnect_max_ms.map_or(d.reconnect_max_ms, Int::u64),
     };
-    if m.reconnect_min_ms > m.reconnect_max_ms {
-        t.problem_at(
-            cx,
-            "reconnect_min_ms",
-            format!(
-                "reconnect_min_ms is {} but reconnect_max_ms is {}; expected min <= max",
-                m.reconnect_min_ms, m.reconnect_max_ms
-            ),
-        );
-    }
+    let (min, max) = (m.reconnect_min_ms, m.reconnect_max_ms);
+    t.min_max(cx, ("reconnect_min_ms", min), ("reconnect_max_ms", max));
     (cx.problems.len() == before).then_some(m)
 }
 
-/// A password from `password_env` or `password_file` (not both); `whose` names it (MQTT, SMTP).
-pub(crate) fn read_password(
-    cx: &mut Cx<'_>,
-    t: &Tbl<'_>,
-    dir: &Path,
-    env: Env<'_>,
-    whose: &str,
-) -> Option<Secret> {
-    read_secret(
-        cx,
-        t,
-        dir,
-        env,
-        "password",
-        &format!("the {whose} password"),
-    )
-}
-
 /// A secret from `{name}_env` (an environment variable) or `{name}_file` (a file, trimmed), not
-/// both; `what` names it in messages. `None` when neither key is set or on a problem.
+/// both (`keys`: their values as read); `what` names it in messages. `None` when neither key is
+/// set or on a problem.
 pub(crate) fn read_secret(
     cx: &mut Cx<'_>,
-    t: &Tbl<'_>,
-    dir: &Path,
-    env: Env<'_>,
+    (t, dir, env): (&Tbl<'_>, &Path, Env<'_>),
     name: &str,
     what: &str,
+    keys: (Option<String>, Option<String>),
 ) -> Option<Secret> {
     let env_key = format!("{name}_env");
     let file_key = format!("{name}_file");
-    let var = t.nonempty(cx, &env_key);
-    let file = t.nonempty(cx, &file_key);
-    match (var, file) {
+    match keys {
         (Some(_), Some(_)) => {
             t.problem_at(
                 cx,
@@ -384,28 +339,22 @@ pub(crate) fn read_secret(
     }
 }
 
+/// `[mqtt.tls]` as written.
+#[derive(serde::Deserialize)]
+struct RawTls {
+    ca_file: Option<String>,
+    client_cert_file: Option<String>,
+    client_key_file: Option<String>,
+}
+
 fn read_tls(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Tls> {
-    t.check_keys(cx, &["ca_file", "client_cert_file", "client_key_file"]);
     let before = cx.problems.len();
-    let file = |cx: &mut Cx<'_>, key: &str, req: bool| -> Option<std::path::PathBuf> {
-        let s = if req {
-            t.req_string(cx, key)?
-        } else {
-            t.string(cx, key)?
-        };
-        let path = resolve(dir, &s);
-        if !path.is_file() {
-            t.problem_at(
-                cx,
-                key,
-                format!("{key} {} does not exist or is not a file", path.display()),
-            );
-        }
-        Some(path)
-    };
-    let ca_file = file(cx, "ca_file", true);
-    let client_cert_file = file(cx, "client_cert_file", false);
-    let client_key_file = file(cx, "client_key_file", false);
+    let r: RawTls = de::table(cx, t)?;
+    let mut file = |key: &str, name: Option<String>| existing_file(cx, t, dir, key, name);
+    let ca_file = file("ca_file", r.ca_file);
+    let client_cert_file = file("client_cert_file", r.client_cert_file);
+    let client_key_file = file("client_key_file", r.client_key_file);
+    let ca_file = t.need(cx, "ca_file", ca_file);
     if client_cert_file.is_some() != client_key_file.is_some() {
         t.problem(
             cx,
@@ -455,10 +404,33 @@ pub(crate) fn pattern_filter(pattern: &str) -> Result<String, String> {
     Ok(levels.join("/"))
 }
 
+/// `[[subscription]]` as written; checks in `read_subscription`.
+#[derive(serde::Deserialize)]
+struct RawSubscription {
+    pattern: Option<String>,
+    format: Option<PayloadFormat>,
+    qos: Option<Int<0, 1>>,
+    epoch_unit: Option<EpochUnit>,
+    /// `[subscription.json]`, read as a table of its own.
+    #[serde(rename = "json")]
+    _json: Option<de::Nested>,
+}
+
+/// `[subscription.json]`: the payload's field names, each defaulting to `JsonFields`'.
+#[derive(serde::Deserialize)]
+struct RawJson {
+    time: Option<Text>,
+    instrument: Option<Text>,
+    channel: Option<Text>,
+    value: Option<Text>,
+    temperature: Option<Text>,
+    readings: Option<Text>,
+}
+
 fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
-    t.check_keys(cx, &["pattern", "format", "qos", "epoch_unit", "json"]);
     let before = cx.problems.len();
-    let pattern = t.req_string(cx, "pattern");
+    let r: RawSubscription = de::table(cx, t)?;
+    let pattern = t.need(cx, "pattern", r.pattern);
     if let Some(p) = &pattern {
         t.what = format!("subscription {p:?}");
     }
@@ -469,40 +441,9 @@ fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
             None
         }
     });
-    let format = t.choice(
-        cx,
-        "format",
-        true,
-        &[
-            ("json", PayloadFormat::Json),
-            ("senml", PayloadFormat::Senml),
-            ("csv", PayloadFormat::Csv),
-        ],
-    );
-    let qos = t.opt_int_in(cx, "qos", 0, 1, false).unwrap_or(1) as u8;
-    let epoch_unit = t
-        .choice(
-            cx,
-            "epoch_unit",
-            false,
-            &[
-                ("auto", EpochUnit::Auto),
-                ("s", EpochUnit::Seconds),
-                ("ms", EpochUnit::Milliseconds),
-            ],
-        )
-        .unwrap_or(EpochUnit::Auto);
+    let format = t.need(cx, "format", r.format);
     let mut json = JsonFields::default();
     if let Some(j) = t.sub(cx, "json", "[subscription.json]") {
-        let names = [
-            "time",
-            "instrument",
-            "channel",
-            "value",
-            "temperature",
-            "readings",
-        ];
-        j.check_keys(cx, &names);
         if format.is_some_and(|f| f != PayloadFormat::Json) {
             t.problem_at(
                 cx,
@@ -510,20 +451,20 @@ fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
                 "[subscription.json] is set but format is not \"json\"; expected it only with format = \"json\"",
             );
         }
-        let fields = [
-            &mut json.time,
-            &mut json.instrument,
-            &mut json.channel,
-            &mut json.value,
-            &mut json.temperature,
-            &mut json.readings,
-        ];
-        for (name, field) in names.iter().zip(fields) {
-            if let Some(v) = j.nonempty(cx, name) {
-                *field = v;
-            }
+        if let Some(j) = de::table::<RawJson>(cx, &j) {
+            let pick = |v: Option<Text>, d: &mut String| *d = v.map_or(std::mem::take(d), |v| v.0);
+            pick(j.time, &mut json.time);
+            pick(j.instrument, &mut json.instrument);
+            pick(j.channel, &mut json.channel);
+            pick(j.value, &mut json.value);
+            pick(j.temperature, &mut json.temperature);
+            pick(j.readings, &mut json.readings);
         }
     }
+    let (qos, epoch_unit) = (
+        r.qos.map_or(1, |q| q.0 as u8),
+        r.epoch_unit.unwrap_or(EpochUnit::Auto),
+    );
     let sub = Subscription {
         pattern: pattern?,
         filter: filter?,

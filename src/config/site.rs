@@ -8,12 +8,14 @@
 use std::path::Path;
 
 use chrono::{DateTime, Utc};
+use serde::Deserialize;
 
 use crate::domain::units::GAMMA_W_62_4_PCF_KN_M3;
 
-use super::kinds::{self, KINDS, LENGTH_UNITS, M_PER_FT};
+use super::de::{self, Num, Text};
+use super::kinds::{self, KINDS, M_PER_FT};
 use super::limits;
-use super::model::{DisplayUnits, Instrument, LengthUnit, Location, Site};
+use super::model::{DisplayUnits, Instrument, Location, Site};
 use super::objects::{self, ObjEntry};
 use super::problem::Cx;
 use super::reader::Tbl;
@@ -86,28 +88,16 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         Some(mut t) => {
             t.what = "[site]".into();
             let before = cx.problems.len();
-            let sid = t.nonempty(cx, "id");
-            if let Some(sid) = &sid {
+            if let Some(sid) = t.peek_str("id").filter(|s| !s.trim().is_empty()) {
                 t.what = format!("site {sid:?}");
             }
+            let r: RawSite = de::table(cx, &t).unwrap_or_default();
+            let sid = t.need(cx, "id", r.id.map(|s| s.0));
             if t.has("id") {
                 id = sid.clone().map(|s| (s, cx.pos(t.value_span("id"))));
-            } else {
-                t.missing(cx, "id", "");
             }
-            t.check_keys(
-                cx,
-                &[
-                    "id",
-                    "name",
-                    "time_zone",
-                    "unit_weight_water_kn_m3",
-                    "display_units",
-                    "length_unit",
-                ],
-            );
-            let name = t.nonempty(cx, "name");
-            let time_zone = t.nonempty(cx, "time_zone").unwrap_or_else(|| "UTC".into());
+            let name = r.name.map(|n| n.0);
+            let time_zone = r.time_zone.map_or_else(|| "UTC".into(), |z| z.0);
             if time_zone.parse::<chrono_tz::Tz>().is_err() {
                 t.problem_at(
                     cx,
@@ -117,7 +107,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
                     ),
                 );
             }
-            let gamma = t.number(cx, "unit_weight_water_kn_m3", false);
+            let gamma = r.unit_weight_water_kn_m3.map(|g| g.0);
             if let Some(g) = gamma.filter(|g| accepted_gamma_w(*g).is_none()) {
                 t.problem_at(
                     cx,
@@ -127,15 +117,8 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
                     ),
                 );
             }
-            let display_units = t
-                .choice(
-                    cx,
-                    "display_units",
-                    false,
-                    &[("si", DisplayUnits::Si), ("us", DisplayUnits::Us)],
-                )
-                .unwrap_or(DisplayUnits::Si);
-            if t.choice(cx, "length_unit", false, &LENGTH_UNITS) == Some(LengthUnit::Ft) {
+            let display_units = r.display_units.unwrap_or(DisplayUnits::Si);
+            if r.length_unit == Some(Length::Ft) {
                 m_per_unit = M_PER_FT;
             }
             gamma_w = gamma.and_then(accepted_gamma_w).unwrap_or(gamma_w);
@@ -175,6 +158,25 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         trends,
         reports,
     }
+}
+
+/// `[site]` as written; checks in `read`.
+#[derive(Deserialize, Default)]
+struct RawSite {
+    id: Option<Text>,
+    name: Option<Text>,
+    time_zone: Option<Text>,
+    unit_weight_water_kn_m3: Option<Num>,
+    display_units: Option<DisplayUnits>,
+    length_unit: Option<Length>,
+}
+
+/// `length_unit` as written.
+#[derive(Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "lowercase")]
+enum Length {
+    M,
+    Ft,
 }
 
 const COMMON_KEYS: [&str; 12] = [

@@ -8,10 +8,11 @@ use std::net::IpAddr;
 use std::path::Path;
 
 use super::alerting::{Smtp, SmtpSecurity};
+use super::de::{self, Int, Text};
 use super::limits;
 use super::problem::Cx;
 use super::reader::Tbl;
-use super::service::{read_password, resolve, Env};
+use super::service::{existing_file, read_secret, Env};
 
 /// Whether `host` is a loopback name or address (plain SMTP is allowed only there).
 pub fn is_loopback(host: &str) -> bool {
@@ -31,41 +32,28 @@ pub(crate) fn plain_address(addr: &str) -> bool {
     ok_chars && !local.is_empty() && domain.contains('.') && !domain.starts_with('.')
 }
 
+/// `[smtp]` as written; defaults and checks in `read`.
+#[derive(serde::Deserialize)]
+struct Raw {
+    host: Option<Text>,
+    port: Option<Int<1, 65535>>,
+    security: Option<SmtpSecurity>,
+    username: Option<Text>,
+    password_env: Option<Text>,
+    password_file: Option<Text>,
+    ca_file: Option<Text>,
+    from: Option<Text>,
+    timeout_s: Option<Int<1, 3600>>,
+    retry_min_s: Option<Int<1, { limits::MAIL_RETRY_S }>>,
+    retry_max_s: Option<Int<1, { limits::MAIL_RETRY_S }>>,
+}
+
 /// Read `[smtp]`; `None` if it has problems (reported).
 pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Smtp> {
-    t.check_keys(
-        cx,
-        &[
-            "host",
-            "port",
-            "security",
-            "username",
-            "password_env",
-            "password_file",
-            "ca_file",
-            "from",
-            "timeout_s",
-            "retry_min_s",
-            "retry_max_s",
-        ],
-    );
     let before = cx.problems.len();
-    let host = t.nonempty(cx, "host");
-    if !t.has("host") {
-        t.missing(cx, "host", "");
-    }
-    let security = t
-        .choice(
-            cx,
-            "security",
-            false,
-            &[
-                ("starttls", SmtpSecurity::Starttls),
-                ("tls", SmtpSecurity::Tls),
-                ("plain", SmtpSecurity::Plain),
-            ],
-        )
-        .unwrap_or(SmtpSecurity::Starttls);
+    let raw: Raw = de::table(cx, t)?;
+    let host = t.need(cx, "host", raw.host.map(|h| h.0));
+    let security = raw.security.unwrap_or(SmtpSecurity::Starttls);
     if let Some(h) = host.as_deref().filter(|h| !is_loopback(h)) {
         if security == SmtpSecurity::Plain {
             t.problem_at(
@@ -83,27 +71,23 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
         SmtpSecurity::Tls => 465,
         SmtpSecurity::Plain => 25,
     };
-    let port = t.int_in(cx, "port", 1, 65535, default_port) as u16;
-    let username = t.nonempty(cx, "username");
-    let password = read_password(cx, t, dir, env, "SMTP");
+    let username = raw.username.map(|u| u.0);
+    let keys = (
+        raw.password_env.map(|v| v.0),
+        raw.password_file.map(|v| v.0),
+    );
+    let password = read_secret(cx, (t, dir, env), "password", "the SMTP password", keys);
     if password.is_some() != username.is_some() {
         t.problem(
             cx,
             "expected both \"username\" and a password (password_env or password_file), or neither",
         );
     }
-    let ca_file = t.nonempty(cx, "ca_file").map(|s| resolve(dir, &s));
-    if let Some(p) = ca_file.as_ref().filter(|p| !p.is_file()) {
-        t.problem_at(
-            cx,
-            "ca_file",
-            format!("ca_file {} does not exist or is not a file", p.display()),
-        );
-    }
-    let from = t.nonempty(cx, "from");
+    let ca_file = existing_file(cx, t, dir, "ca_file", raw.ca_file.map(|f| f.0));
     if !t.has("from") {
         t.missing(cx, "from", " (the sender address of alert messages)");
     }
+    let from = raw.from.map(|f| f.0);
     if let Some(f) = from.as_deref().filter(|f| !plain_address(f)) {
         t.problem_at(
             cx,
@@ -111,26 +95,22 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
             format!("key \"from\" is {f:?}, expected an address such as seepd@example.org"),
         );
     }
-    let max = limits::MAIL_RETRY_S;
-    let timeout_s = t.int_in(cx, "timeout_s", 1, 3600, 30) as u64;
-    let retry_min_s = t.int_in(cx, "retry_min_s", 1, max, 5) as u64;
-    let retry_max_s = t.int_in(cx, "retry_max_s", 1, max, 600) as u64;
-    if retry_min_s > retry_max_s {
-        t.problem_at(
-            cx,
-            "retry_min_s",
-            format!("retry_min_s is {retry_min_s} but retry_max_s is {retry_max_s}; expected min <= max"),
-        );
-    }
+    let retry_min_s = raw.retry_min_s.map_or(5, Int::u64);
+    let retry_max_s = raw.retry_max_s.map_or(600, Int::u64);
+    t.min_max(
+        cx,
+        ("retry_min_s", retry_min_s),
+        ("retry_max_s", retry_max_s),
+    );
     let smtp = Smtp {
         host: host?,
-        port,
+        port: raw.port.map_or(default_port, |p| p.0 as u16),
         security,
         username,
         password,
         ca_file,
         from: from?,
-        timeout_s,
+        timeout_s: raw.timeout_s.map_or(30, Int::u64),
         retry_min_s,
         retry_max_s,
     };

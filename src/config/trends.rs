@@ -9,6 +9,9 @@
 
 use std::collections::BTreeMap;
 
+use serde::Deserialize;
+
+use super::de::{self, Int, Num, Text};
 use super::limits;
 use super::model::{HealthSettings, HstSpec, RateSpan, SiteTrends, StageResponseSpec};
 use super::objects::{reference_problem, Known, Ref, Want};
@@ -19,34 +22,55 @@ use super::site::Pos;
 /// The tables of a site file read here, as written.
 pub(crate) const TABLES: [&str; 4] = ["trends", "health", "stage_response", "hst"];
 
-const TRENDS_KEYS: [&str; 2] = ["rate_windows", "max_points"];
-const HEALTH_KEYS: [&str; 9] = [
-    "spike_window",
-    "spike_k",
-    "spike_floor",
-    "flatline_count",
-    "flatline_tolerance",
-    "no_data_factor",
-    "thermistor_range",
-    "thermistor_max_jump",
-    "use_flagged",
-];
-const STAGE_RESPONSE_KEYS: [&str; 7] = [
-    "id",
-    "piezometer",
-    "stage_gauge",
-    "training_days",
-    "lag_range_h",
-    "lag_step_h",
-    "refit_interval_h",
-];
-const HST_KEYS: [&str; 5] = [
-    "id",
-    "instrument",
-    "reservoir_gauge",
-    "degree",
-    "refit_interval_h",
-];
+/// `[trends]` as written; `rate_windows` is read element by element (with positions) by
+/// `rate_windows`.
+#[derive(Deserialize)]
+struct RawTrends {
+    #[serde(rename = "rate_windows")]
+    _rate_windows: Option<de::Nested>,
+    max_points: Option<Int<2, 5000>>,
+}
+
+/// `[health]` as written; defaults are `HealthSettings::default()`, checks in `health`.
+#[derive(Deserialize)]
+struct RawHealth {
+    spike_window: Option<Int<3, 10_000>>,
+    spike_k: Option<Num>,
+    spike_floor: Option<Num>,
+    flatline_count: Option<Int<2, 10_000>>,
+    flatline_tolerance: Option<Num>,
+    no_data_factor: Option<Num>,
+    /// `[low, high]`, read by `Tbl::pair`.
+    #[serde(rename = "thermistor_range")]
+    _thermistor_range: Option<de::Nested>,
+    thermistor_max_jump: Option<Num>,
+    use_flagged: Option<bool>,
+}
+
+/// `[[stage_response]]` as written; `lag_range_h` is read by `Tbl::pair`.
+#[derive(Deserialize, Default)]
+struct RawStageResponse {
+    #[serde(rename = "id")]
+    _id: Option<Text>,
+    piezometer: Option<Text>,
+    stage_gauge: Option<Text>,
+    training_days: Option<Num>,
+    #[serde(rename = "lag_range_h")]
+    _lag_range_h: Option<de::Nested>,
+    lag_step_h: Option<Num>,
+    refit_interval_h: Option<Num>,
+}
+
+/// `[[hst]]` as written.
+#[derive(Deserialize, Default)]
+struct RawHst {
+    #[serde(rename = "id")]
+    _id: Option<Text>,
+    instrument: Option<Text>,
+    reservoir_gauge: Option<Text>,
+    degree: Option<Int<1, 4>>,
+    refit_interval_h: Option<Num>,
+}
 
 /// Defaults of a `[[stage_response]]` table.
 const DEFAULT_TRAINING_DAYS: f64 = 30.0;
@@ -96,16 +120,18 @@ pub(crate) fn read(
     let mut s = SiteTrends::defaults(site);
     if let Some(mut t) = root.sub(cx, "trends", "[trends]") {
         t.what = "[trends]".into();
-        t.check_keys(cx, &TRENDS_KEYS);
-        if let Some(w) = rate_windows(cx, &t) {
-            s.rate_windows = w;
+        if let Some(r) = de::table::<RawTrends>(cx, &t) {
+            if let Some(w) = rate_windows(cx, &t) {
+                s.rate_windows = w;
+            }
+            s.max_points = r.max_points.map_or(96, |n| n.0 as usize);
         }
-        s.max_points = t.int_in(cx, "max_points", 2, 5000, 96) as usize;
     }
     if let Some(mut t) = root.sub(cx, "health", "[health]") {
         t.what = "[health]".into();
-        t.check_keys(cx, &HEALTH_KEYS);
-        s.health = health(cx, &t, m_per_unit);
+        if let Some(r) = de::table::<RawHealth>(cx, &t) {
+            s.health = health(cx, &t, r, m_per_unit);
+        }
     }
     let settings = Some(s).filter(|_| cx.problems.len() == before);
     let mut models = Vec::new();
@@ -174,90 +200,83 @@ pub(crate) fn duration_s(text: &str) -> Option<i64> {
     Some(n * per)
 }
 
-/// A number > `lo` under `key`, or `default`.
-fn above(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, default: f64) -> f64 {
-    within(cx, t, key, lo, f64::MAX, default)
-}
-
 /// A number > `lo` and <= `hi` under `key`, or `default`.
-fn within(cx: &mut Cx<'_>, t: &Tbl<'_>, key: &str, lo: f64, hi: f64, default: f64) -> f64 {
-    match t.number(cx, key, false) {
-        Some(v) if v > lo && v <= hi => v,
-        Some(v) => {
-            let expected = if hi == f64::MAX {
-                format!("a number > {lo}")
-            } else {
-                format!("a number > {lo} and at most {hi}")
-            };
-            t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {v}, expected {expected}"),
-            );
-            default
-        }
-        None => default,
-    }
+fn within(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    (key, v): (&str, Option<Num>),
+    lo: f64,
+    hi: f64,
+    default: f64,
+) -> f64 {
+    let expected = format!("a number > {lo} and at most {hi}");
+    checked(cx, t, key, v, (|v| v > lo && v <= hi, &expected)).unwrap_or(default)
 }
 
-fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, m: f64) -> HealthSettings {
+/// The number under `key` when `ok` accepts it; a problem naming what is `expected` otherwise.
+fn checked(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    key: &str,
+    v: Option<Num>,
+    (ok, expected): (impl Fn(f64) -> bool, &str),
+) -> Option<f64> {
+    let Num(v) = v?;
+    if ok(v) {
+        return Some(v);
+    }
+    t.problem_at(
+        cx,
+        key,
+        format!("key \"{key}\" is {v}, expected {expected}"),
+    );
+    None
+}
+
+fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, r: RawHealth, m: f64) -> HealthSettings {
     let d = HealthSettings::default();
-    let nonneg = |cx: &mut Cx<'_>, key: &str, default: f64| match t.number(cx, key, false) {
-        Some(v) if v >= 0.0 => v * m,
-        Some(v) => {
-            t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {v}, expected a number >= 0"),
-            );
-            default
-        }
-        None => default,
-    };
-    let spike_floor_m = nonneg(cx, "spike_floor", d.spike_floor_m);
-    // In the raw value's own unit (it differs by instrument), so no length conversion.
-    let flatline_tolerance_raw = match t.number(cx, "flatline_tolerance", false) {
-        Some(v) if v >= 0.0 => v,
-        Some(v) => {
-            t.problem_at(
-                cx,
-                "flatline_tolerance",
-                format!("key \"flatline_tolerance\" is {v}, expected a number >= 0"),
-            );
-            d.flatline_tolerance_raw
-        }
-        None => d.flatline_tolerance_raw,
-    };
-    let no_data_factor = match t.number(cx, "no_data_factor", false) {
-        Some(v) if (1.0..=limits::NO_DATA_FACTOR).contains(&v) => v,
-        Some(v) => {
-            t.problem_at(
-                cx,
-                "no_data_factor",
-                format!("key \"no_data_factor\" is {v}, expected a number >= 1 and at most {} (a multiple of the instrument's interval_s)", limits::NO_DATA_FACTOR),
-            );
-            d.no_data_factor
-        }
-        None => d.no_data_factor,
-    };
+    let nonneg = (|v: f64| v >= 0.0, "a number >= 0");
+    let positive = (|v: f64| v > 0.0, "a number > 0");
+    let factor = format!(
+        "a number >= 1 and at most {} (a multiple of the instrument's interval_s)",
+        limits::NO_DATA_FACTOR
+    );
+    let factor_ok = |v: f64| (1.0..=limits::NO_DATA_FACTOR).contains(&v);
+    let spike_floor = checked(cx, t, "spike_floor", r.spike_floor, nonneg);
+    let max_jump = checked(
+        cx,
+        t,
+        "thermistor_max_jump",
+        r.thermistor_max_jump,
+        positive,
+    );
     HealthSettings {
-        spike_window: t.int_in(cx, "spike_window", 3, 10_000, d.spike_window as i64) as usize,
-        spike_k: above(cx, t, "spike_k", 0.0, d.spike_k),
-        spike_floor_m,
-        flatline_count: t.int_in(cx, "flatline_count", 2, 10_000, d.flatline_count as i64) as usize,
-        flatline_tolerance_raw,
-        no_data_factor,
+        spike_window: r.spike_window.map_or(d.spike_window, |n| n.0 as usize),
+        spike_k: checked(cx, t, "spike_k", r.spike_k, positive).unwrap_or(d.spike_k),
+        spike_floor_m: spike_floor.map_or(d.spike_floor_m, |v| v * m),
+        flatline_count: r.flatline_count.map_or(d.flatline_count, |n| n.0 as usize),
+        // In the raw value's own unit (it differs by instrument), so no length conversion.
+        flatline_tolerance_raw: checked(cx, t, "flatline_tolerance", r.flatline_tolerance, nonneg)
+            .unwrap_or(d.flatline_tolerance_raw),
+        no_data_factor: checked(
+            cx,
+            t,
+            "no_data_factor",
+            r.no_data_factor,
+            (factor_ok, &factor),
+        )
+        .unwrap_or(d.no_data_factor),
         thermistor_range_c: t
             .pair(cx, "thermistor_range", false)
             .unwrap_or(d.thermistor_range_c),
-        thermistor_max_jump_c: above(cx, t, "thermistor_max_jump", 0.0, d.thermistor_max_jump_c),
-        use_flagged: t.boolean(cx, "use_flagged", d.use_flagged),
+        thermistor_max_jump_c: max_jump.unwrap_or(d.thermistor_max_jump_c),
+        use_flagged: r.use_flagged.unwrap_or(d.use_flagged),
     }
 }
 
 /// `refit_interval_h`: hours, more than 0 and at most a year.
-fn refit_h(cx: &mut Cx<'_>, t: &Tbl<'_>, default: f64) -> f64 {
-    within(cx, t, "refit_interval_h", 0.0, limits::YEAR_H, default)
+fn refit_h(cx: &mut Cx<'_>, t: &Tbl<'_>, v: Option<Num>, default: f64) -> f64 {
+    within(cx, t, ("refit_interval_h", v), 0.0, limits::YEAR_H, default)
 }
 
 /// Hours (a number, as written) to whole seconds.
@@ -267,37 +286,36 @@ fn hours_s(h: f64) -> i64 {
 
 fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> ModelEntry {
     let before = cx.problems.len();
-    let id = t.nonempty(cx, "id");
+    let id = t
+        .peek_str("id")
+        .filter(|id| !id.trim().is_empty())
+        .map(String::from);
     if let Some(id) = &id {
         t.what = format!("{table} {id:?}");
-    } else if !t.has("id") {
-        t.missing(cx, "id", "");
     }
     let id_pos = cx.pos(t.value_span("id"));
     let mut refs = Vec::new();
-    let mut reference = |cx: &mut Cx<'_>, key: &'static str, want: Want| {
-        if !t.has(key) {
-            t.missing(cx, key, "");
-            return None;
-        }
-        let found = t.nonempty(cx, key)?;
+    let mut reference = |cx: &mut Cx<'_>, t: &Tbl<'_>, key: &'static str, v: Option<Text>, want| {
+        let found = t.need(cx, key, v)?.0;
+        let pos = cx.pos(t.value_span(key));
         refs.push(Ref {
             key,
             id: found.clone(),
-            pos: cx.pos(t.value_span(key)),
+            pos,
             want,
         });
         Some(found)
     };
     let name = id.clone().unwrap_or_default();
     let model = if table == "stage_response" {
-        t.check_keys(cx, &STAGE_RESPONSE_KEYS);
-        let piezometer = reference(cx, "piezometer", Want::Piezometer);
-        let gauge = reference(cx, "stage_gauge", Want::StageGauge);
+        let r: RawStageResponse = de::table(cx, &t).unwrap_or_default();
+        let _ = t.need(cx, "id", id.as_ref());
+        let piezometer = reference(cx, &t, "piezometer", r.piezometer, Want::Piezometer);
+        let gauge = reference(cx, &t, "stage_gauge", r.stage_gauge, Want::StageGauge);
         let training = within(
             cx,
             &t,
-            "training_days",
+            ("training_days", r.training_days),
             0.0,
             limits::TRAINING_DAYS,
             DEFAULT_TRAINING_DAYS,
@@ -318,7 +336,7 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         let step = within(
             cx,
             &t,
-            "lag_step_h",
+            ("lag_step_h", r.lag_step_h),
             0.0,
             limits::YEAR_H,
             DEFAULT_LAG_STEP_H,
@@ -327,7 +345,7 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         if range_ok && (hi - lo) / step > MAX_LAGS {
             t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
         }
-        let refit = refit_h(cx, &t, DEFAULT_STAGE_RESPONSE_REFIT_H);
+        let refit = refit_h(cx, &t, r.refit_interval_h, DEFAULT_STAGE_RESPONSE_REFIT_H);
         match (piezometer, gauge) {
             (Some(piezometer), Some(stage_gauge)) => {
                 Some(Model::StageResponse(StageResponseSpec {
@@ -345,11 +363,18 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
             _ => None,
         }
     } else {
-        t.check_keys(cx, &HST_KEYS);
-        let instrument = reference(cx, "instrument", Want::Piezometer);
-        let gauge = reference(cx, "reservoir_gauge", Want::StageGauge);
-        let degree = t.int_in(cx, "degree", 1, 4, DEFAULT_HST_DEGREE) as usize;
-        let refit = refit_h(cx, &t, DEFAULT_HST_REFIT_H);
+        let r: RawHst = de::table(cx, &t).unwrap_or_default();
+        let _ = t.need(cx, "id", id.as_ref());
+        let instrument = reference(cx, &t, "instrument", r.instrument, Want::Piezometer);
+        let gauge = reference(
+            cx,
+            &t,
+            "reservoir_gauge",
+            r.reservoir_gauge,
+            Want::StageGauge,
+        );
+        let degree = r.degree.map_or(DEFAULT_HST_DEGREE, |d| d.0) as usize;
+        let refit = refit_h(cx, &t, r.refit_interval_h, DEFAULT_HST_REFIT_H);
         match (instrument, gauge) {
             (Some(instrument), Some(reservoir_gauge)) => Some(Model::Hst(HstSpec {
                 id: name,

@@ -1,0 +1,274 @@
+//! One TOML table deserialized into a `#[derive(Deserialize)]` raw struct, every problem located.
+//!
+//! Owns the bridge from serde to our located problems: unknown keys (old names refused through
+//! `renamed`, others with a "did you mean"), wrong types and the checks the value types below
+//! carry (non-empty text, integer ranges, finite numbers), each reported at its key with
+//! file:line:column, all keys of a table at once. The raw structs and their validation live
+//! with their tables; a table declares each key once, with its type, bound and default.
+//!
+//! Raw structs: every field optional (`Option<T>` or `#[serde(default)]`), required keys asked
+//! for in validation with `Tbl::need`; no `#[serde(flatten)]` (the key list is read from the
+//! derive).
+
+use serde::de::{self, DeserializeOwned, IntoDeserializer};
+use serde::{Deserialize, Deserializer};
+use toml_edit::{InlineTable, Item, Value};
+
+use super::problem::Cx;
+use super::reader::{found_item, Tbl};
+
+/// Deserialize table `t` into `T`, reporting (at once, located) unknown keys, wrong types and
+/// failed value checks. A key at fault is left out, as if absent, so that validation still runs
+/// and reports its own problems; callers judge the table by the problem count, as before.
+pub(crate) fn table<T: DeserializeOwned>(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<T> {
+    let keys = fields::<T>();
+    t.check_keys(cx, keys);
+    let mut known: Vec<(&str, &Item)> = t.entries().filter(|(k, _)| keys.contains(k)).collect();
+    if let Ok(v) = from_entries::<T>(&known) {
+        return Some(v);
+    }
+    // Judge each key alone (every field is optional) and leave out those at fault.
+    known.retain(|(key, item)| {
+        let Err(e) = from_entries::<T>(&[(key, item)]) else {
+            return true;
+        };
+        let whole = e.span().is_none() || e.span() == item.span();
+        let tail = tail(e.message(), whole.then(|| found_item(item)));
+        let span = e.span().or_else(|| t.value_span(key));
+        cx.at(span, format!("{}: key \"{key}\" {tail}", t.what));
+        false
+    });
+    from_entries::<T>(&known).ok()
+}
+
+/// `T` from some entries of a table (values keep their spans).
+fn from_entries<T: DeserializeOwned>(entries: &[(&str, &Item)]) -> Result<T, toml_edit::de::Error> {
+    let mut inline = InlineTable::new();
+    for (key, item) in entries {
+        if let Ok(v) = (*item).clone().into_value() {
+            inline.insert(*key, v);
+        }
+    }
+    T::deserialize(Value::InlineTable(inline).into_deserializer())
+}
+
+/// The rest of a problem after `key "name" `, in our words: serde's "invalid type: string "x",
+/// expected i64" becomes `is "x", expected an integer`; our value types already speak so.
+fn tail(message: &str, found: Option<String>) -> String {
+    let prefixes = ["invalid type: ", "invalid value: ", "unknown variant "];
+    let Some((kind, rest)) = prefixes
+        .iter()
+        .find_map(|p| Some((*p, message.strip_prefix(p)?)))
+    else {
+        return message.to_string();
+    };
+    let (unexpected, expected) = rest.rsplit_once(", expected ").unwrap_or((rest, ""));
+    let found = found.unwrap_or_else(|| serde_found(unexpected));
+    let expected = if kind == "unknown variant " {
+        let names = expected.trim_start_matches("one of ").replace('`', "");
+        format!("one of: {}", names.replace(" or ", ", "))
+    } else {
+        plain(expected).to_string()
+    };
+    format!("is {found}, expected {expected}")
+}
+
+/// Serde's name for an expected type, in our words.
+fn plain(expected: &str) -> &str {
+    match expected {
+        "i8" | "i16" | "i32" | "i64" | "u8" | "u16" | "u32" | "u64" | "usize" => "an integer",
+        "f32" | "f64" => "a number",
+        "a boolean" => "true or false",
+        "a sequence" => "an array",
+        "a map" | "struct" => "a table",
+        e => e,
+    }
+}
+
+/// Serde's description of a found value (`string "x"`, ``integer `3` ``), in our words.
+fn serde_found(unexpected: &str) -> String {
+    let inner = |s: &str| {
+        s.split_once('`')
+            .map(|(_, r)| r.trim_end_matches('`').to_string())
+    };
+    match unexpected.split_once(' ') {
+        Some(("string", s)) => s.to_string(),
+        Some(("integer" | "floating" | "boolean", _)) => inner(unexpected).unwrap_or_default(),
+        _ if unexpected == "sequence" => "an array".into(),
+        _ if unexpected == "map" => "a table".into(),
+        _ => unexpected.to_string(),
+    }
+}
+
+/// The keys `T` accepts, as its derive lists them.
+fn fields<T: DeserializeOwned>() -> &'static [&'static str] {
+    let mut probe = Fields(&[]);
+    let _ = T::deserialize(&mut probe);
+    probe.0
+}
+
+/// A deserializer that only records the field list a derived struct asks for.
+struct Fields(&'static [&'static str]);
+
+impl<'de> Deserializer<'de> for &mut Fields {
+    type Error = de::value::Error;
+
+    fn deserialize_any<V: de::Visitor<'de>>(self, _: V) -> Result<V::Value, Self::Error> {
+        Err(de::Error::custom("not a struct"))
+    }
+
+    fn deserialize_struct<V: de::Visitor<'de>>(
+        self,
+        _: &'static str,
+        fields: &'static [&'static str],
+        _: V,
+    ) -> Result<V::Value, Self::Error> {
+        self.0 = fields;
+        Err(de::Error::custom("fields recorded"))
+    }
+
+    serde::forward_to_deserialize_any! {
+        bool i8 i16 i32 i64 i128 u8 u16 u32 u64 u128 f32 f64 char str string bytes byte_buf
+        option unit unit_struct newtype_struct seq tuple tuple_struct map enum identifier
+        ignored_any
+    }
+}
+
+/// A sub-table read as a table of its own (`Tbl::sub`, then `table`), so its problems carry its
+/// own name: accepted here as a key, not read.
+#[derive(Debug)]
+pub(crate) struct Nested;
+
+impl<'de> Deserialize<'de> for Nested {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        de::IgnoredAny::deserialize(d).map(|_| Nested)
+    }
+}
+
+/// An integer within `LO..=HI` ("is 0, expected between 1 and 65535" otherwise).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct Int<const LO: i64, const HI: i64>(pub i64);
+
+impl<const LO: i64, const HI: i64> Int<LO, HI> {
+    /// The value, for a `u64` field.
+    pub fn u64(self) -> u64 {
+        self.0 as u64
+    }
+}
+
+impl<'de, const LO: i64, const HI: i64> Deserialize<'de> for Int<LO, HI> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let n = i64::deserialize(d)?;
+        if (LO..=HI).contains(&n) {
+            return Ok(Int(n));
+        }
+        Err(de::Error::custom(if HI == i64::MAX {
+            format!("is {n}, expected at least {LO}")
+        } else {
+            format!("is {n}, expected between {LO} and {HI}")
+        }))
+    }
+}
+
+/// A string that is not blank ("is empty" otherwise).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct Text(pub String);
+
+impl<'de> Deserialize<'de> for Text {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let s = String::deserialize(d)?;
+        if s.trim().is_empty() {
+            return Err(de::Error::custom("is empty"));
+        }
+        Ok(Text(s))
+    }
+}
+
+/// A finite number; integers are numbers too ("is inf, expected a finite number" otherwise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Num(pub f64);
+
+impl<'de> Deserialize<'de> for Num {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let n = f64::deserialize(d)?;
+        if !n.is_finite() {
+            let message = format!("is {n}, expected a finite number");
+            return Err(de::Error::custom(message));
+        }
+        Ok(Num(n))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn serde_words_become_ours() {
+        assert_eq!(
+            tail("invalid type: string \"x\", expected i64", None),
+            "is \"x\", expected an integer"
+        );
+        assert_eq!(
+            tail("invalid type: integer `3`, expected a boolean", None),
+            "is 3, expected true or false"
+        );
+        assert_eq!(
+            tail(
+                "unknown variant `ssl`, expected one of `starttls`, `tls`, `plain`",
+                Some("\"ssl\"".into())
+            ),
+            "is \"ssl\", expected one of: starttls, tls, plain"
+        );
+        assert_eq!(tail("is empty", None), "is empty");
+    }
+
+    #[test]
+    fn every_key_at_fault_is_reported_located_and_the_rest_kept() {
+        #[derive(Deserialize)]
+        struct Raw {
+            port: Option<Int<1, 65535>>,
+            name: Option<Text>,
+            on: Option<bool>,
+            kept: Option<i64>,
+        }
+        let text = "[t]\nport = 0\nname = \" \"\non = \"yes\"\nkept = 4\nnmae = 1\n";
+        let doc = text.parse::<toml_edit::ImDocument<String>>().unwrap();
+        let (lines, mut problems) = (super::super::problem::LineIndex::new(text), Vec::new());
+        let file = std::path::Path::new("s.toml");
+        let mut cx = Cx {
+            file,
+            text,
+            lines: &lines,
+            problems: &mut problems,
+        };
+        let item = doc.as_table().get("t").unwrap();
+        let t = Tbl::new(&mut cx, item, "[t]", "[t]").unwrap();
+        let raw: Raw = table(&mut cx, &t).unwrap();
+        assert_eq!(
+            (raw.port, raw.name, raw.on, raw.kept),
+            (None, None, None, Some(4))
+        );
+        let shown: Vec<String> = problems.iter().map(ToString::to_string).collect();
+        assert_eq!(
+            shown,
+            [
+                "s.toml:6:1: [t]: unknown key \"nmae\" in [t]; did you mean \"name\"?",
+                "s.toml:2:8: [t]: key \"port\" is 0, expected between 1 and 65535",
+                "s.toml:3:8: [t]: key \"name\" is empty",
+                "s.toml:4:6: [t]: key \"on\" is \"yes\", expected true or false",
+            ]
+        );
+    }
+
+    #[test]
+    fn field_names_come_from_the_derive() {
+        #[derive(Deserialize)]
+        #[allow(dead_code)]
+        struct Raw {
+            a: Option<i64>,
+            b_c: Option<String>,
+        }
+        assert_eq!(fields::<Raw>(), ["a", "b_c"]);
+    }
+}
