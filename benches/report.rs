@@ -60,13 +60,24 @@ fn main() {
     let out = dir.path().join("out");
     let to = start + chrono::Duration::days(31);
     let t = Instant::now();
-    let files = seepd::report::generate(&cfg, &store, "big", start, to, Utc::now(), &out).unwrap();
+    let files = seepd::report::generate(
+        &cfg,
+        &store,
+        "big",
+        (start, to),
+        Utc::now(),
+        seepd::config::Formats::default(),
+        &out,
+    )
+    .unwrap();
     let secs = t.elapsed().as_secs_f64();
-    let size = std::fs::metadata(&files.html).unwrap().len();
-    let pdf = files
-        .pdf
-        .as_ref()
-        .map_or(0, |p| std::fs::metadata(p).unwrap().len());
+    let size_of = |ext: &str| {
+        files
+            .iter()
+            .find(|p| p.extension().is_some_and(|e| e == ext))
+            .map_or(0, |p| std::fs::metadata(p).unwrap().len())
+    };
+    let (size, pdf) = (size_of("html"), size_of("pdf"));
     println!(
         "monthly report, {N} instruments x {hours} hourly readings ({} readings): {secs:.2} s, HTML {:.1} MB, PDF {:.1} MB (0 without the pdf feature)",
         N * hours,

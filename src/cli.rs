@@ -154,7 +154,7 @@ pub enum Command {
         #[arg(long, value_name = "FILE")]
         out: Option<PathBuf>,
     },
-    /// Write an instrumentation report (HTML with plots, CSV tables) for a site and period.
+    /// Write an instrumentation report (HTML with plots, PDF, CSV tables) for a site and period.
     Report {
         #[command(flatten)]
         config: ConfigDir,
@@ -167,8 +167,11 @@ pub enum Command {
         /// Output directory.
         #[arg(long, value_name = "DIR")]
         out: PathBuf,
+        /// Documents to write, comma-separated: any of html, pdf, csv (default: all).
+        #[arg(long, value_name = "LIST", default_value_t)]
+        format: crate::config::Formats,
     },
-    /// Plot one quantity of one instrument or derived object over a period, as SVG.
+    /// Plot one quantity of one instrument or derived object over a period, as SVG (or PNG).
     Plot {
         #[command(flatten)]
         config: ConfigDir,
@@ -473,16 +476,13 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             site,
             period: Period { from, to },
             out,
+            format,
         } => {
             let cfg = load(&config)?;
-            let files = crate::report::generate(&cfg, &db.open(&cfg)?, &site, from, to, now, &out)?;
-            let mut list = format!("{}\n", files.html.display());
-            if let Some(p) = &files.pdf {
-                list.push_str(&format!("{}\n", p.display()));
-            }
-            for c in files.csv {
-                list.push_str(&format!("{}\n", c.display()));
-            }
+            let store = db.open(&cfg)?;
+            let files =
+                crate::report::generate(&cfg, &store, &site, (from, to), now, format, &out)?;
+            let list: String = files.iter().map(|p| format!("{}\n", p.display())).collect();
             emit(&list)
         }
         Command::Plot {
@@ -496,7 +496,13 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             let cfg = load(&config)?;
             let store = db.open(&cfg)?;
             let svg = crate::plot_cmd::render(&cfg, &store, &id, quantity.as_deref(), from, to)?;
-            write_or_emit(out.as_deref(), &svg)
+            match out.as_deref() {
+                Some(p) if p.extension().is_some_and(|e| e.eq_ignore_ascii_case("png")) => {
+                    let png = crate::plot_cmd::png(&svg)?;
+                    std::fs::write(p, png).with_context(|| format!("writing {}", p.display()))
+                }
+                _ => write_or_emit(out.as_deref(), &svg),
+            }
         }
         Command::Alerts { on } => {
             let (db, cfg) = operator(&on)?;

@@ -40,7 +40,6 @@ pub mod status;
 pub mod store;
 pub mod testpoint;
 pub mod timetext;
-pub mod xml_check;
 
 /// The caution every alert email and report carries.
 pub const CAUTION: &str =

@@ -1,5 +1,5 @@
 //! `seepd plot`: a quick look at one quantity of one instrument or derived object over a period,
-//! as a standalone SVG — the report's chart, in the site's display units, with the rule levels
+//! as a standalone SVG (or PNG, rasterised at twice its size) — the report's chart, in the site's display units, with the rule levels
 //! on that quantity drawn and the side beyond each shaded — without writing a whole report.
 
 use chrono::{DateTime, Utc};
@@ -62,7 +62,7 @@ pub fn render(
     let fs = quantity.contains("factor_of_safety");
     Ok(chart::render(&Chart {
         title: format!("{id} — {name}"),
-        y_label: unit_label(m, units, &unit_si).to_string(),
+        y_label: format!("{name} ({})", unit_label(m, units, &unit_si)),
         series: vec![Series {
             label: name.clone(),
             points: crate::report::to_display(points, m, units),
@@ -76,4 +76,23 @@ pub fn render(
         to_ms,
         tz,
     }))
+}
+
+/// Pixels per SVG unit of a plot written as PNG (sharp on high-density screens and in print).
+pub const PNG_SCALE: f32 = 2.0;
+
+/// A plot's SVG as PNG, `PNG_SCALE` times its size, on white.
+///
+/// # Errors
+/// The build has no PNG output (cargo feature `pdf`), or rasterising fails.
+pub fn png(svg: &str) -> anyhow::Result<Vec<u8>> {
+    #[cfg(feature = "pdf")]
+    return crate::report::raster::png(svg, PNG_SCALE);
+    #[cfg(not(feature = "pdf"))]
+    {
+        let _ = svg;
+        anyhow::bail!(
+            "this seepd was built without PNG output (feature \"pdf\"); write an .svg file"
+        )
+    }
 }

@@ -87,12 +87,12 @@ fn check_refuses_old_names_naming_the_new_ones_and_exits_78() {
     assert_eq!(code, 78, "{out}\n{err}");
     // Both site files write the two [alerting] keys; the levee writes the two tables.
     for needle in [
-        "levee-ash-bend.toml:281:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
-        "levee-ash-bend.toml:283:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
-        "dam-tarn.toml:129:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
-        "dam-tarn.toml:130:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
-        "levee-ash-bend.toml:191:3: levee-ash-bend.toml: [[cluster]] tables are now [[nest]]",
-        "levee-ash-bend.toml:425:3: levee-ash-bend.toml: [[response]] tables are now [[stage_response]]",
+        "levee-ash-bend.toml:287:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "levee-ash-bend.toml:289:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "dam-tarn.toml:132:1: [alerting]: key \"group_wait_s\" was renamed \"bundle_window_s\"",
+        "dam-tarn.toml:133:1: [alerting]: key \"repeat_interval_s\" was renamed \"remind_every_s\"",
+        "levee-ash-bend.toml:197:3: levee-ash-bend.toml: [[cluster]] tables are now [[nest]]",
+        "levee-ash-bend.toml:432:3: levee-ash-bend.toml: [[response]] tables are now [[stage_response]]",
     ] {
         assert!(err.contains(needle), "{needle} not in:\n{err}");
     }
@@ -268,26 +268,21 @@ fn demo_runs_its_embedded_broker_and_stops_cleanly() {
     assert!(stored > 100, "{out}");
 }
 
-/// `seepd plot`: one quantity of one instrument over a period, as a well-formed SVG with the
-/// quantity in words, the unit, and the rule levels on it; a derived object needs `--quantity`;
-/// an unknown id and an empty period are clear errors.
-#[test]
-fn plot_draws_one_quantity_with_its_rule_levels() {
-    let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("in.ndjson");
-    // A river rising 0.25 m an hour for two days (invented).
-    let lines: String = (0..48)
+/// Replay `hours` hourly river readings from 2026-03-01 (`value(hour)`) into a new database in
+/// `dir`; returns its path.
+fn replay_river(dir: &std::path::Path, hours: i64, value: impl Fn(f64) -> f64) -> String {
+    let input = dir.join("in.ndjson");
+    let lines: String = (0..hours)
         .map(|h| {
             format!(
                 "{{\"time\":{},\"instrument\":\"AB-RIVER\",\"value\":{:.2}}}\n",
                 1_772_323_200 + h * 3600,
-                3.0 + 0.25 * h as f64
+                value(h as f64)
             )
         })
         .collect();
     std::fs::write(&input, lines).unwrap();
-    let db = dir.path().join("replay.sqlite");
-    let db_s = db.display().to_string();
+    let db = dir.join("replay.sqlite").display().to_string();
     let (code, _, err) = seepd(&[
         "replay",
         "--config",
@@ -295,11 +290,22 @@ fn plot_draws_one_quantity_with_its_rule_levels() {
         "--input",
         &input.display().to_string(),
         "--db",
-        &db_s,
+        &db,
         "--output",
         "/dev/null",
     ]);
     assert_eq!(code, 0, "{err}");
+    db
+}
+
+/// `seepd plot`: one quantity of one instrument over a period, as a well-formed SVG with the
+/// quantity in words, the unit, and the rule levels on it; a derived object needs `--quantity`;
+/// an unknown id and an empty period are clear errors.
+#[test]
+fn plot_draws_one_quantity_with_its_rule_levels() {
+    let dir = tempfile::tempdir().unwrap();
+    // A river rising 0.25 m an hour for two days (invented).
+    let db_s = replay_river(dir.path(), 48, |h| 3.0 + 0.25 * h);
     let out = dir.path().join("river.svg");
     let (code, _, err) = seepd(&[
         "plot",
@@ -318,7 +324,7 @@ fn plot_draws_one_quantity_with_its_rule_levels() {
     ]);
     assert_eq!(code, 0, "{err}");
     let svg = std::fs::read_to_string(&out).unwrap();
-    seepd::xml_check::check_xml(&svg).unwrap();
+    common::well_formed(&svg);
     assert!(svg.contains("AB-RIVER — Water level"), "{svg}");
     // The example's river rule has levels; each is drawn and labelled with the rule id.
     assert!(svg.contains("ash-bend-river-stage"), "{svg}");
@@ -345,4 +351,75 @@ fn plot_draws_one_quantity_with_its_rule_levels() {
         assert_eq!(code, 1, "{id}: {err}");
         assert!(err.contains(says), "{id}: {err}");
     }
+}
+
+/// `seepd plot --out FILE.png`: the same drawing rasterised at twice the SVG's size — an image
+/// that decodes, of that size, on white, with the series drawn in its colour.
+#[cfg(feature = "pdf")]
+#[test]
+fn plot_writes_a_png_twice_the_size_of_its_svg() {
+    let dir = tempfile::tempdir().unwrap();
+    // The river falling 0.1 m an hour for a day (invented).
+    let db = replay_river(dir.path(), 24, |h| 6.0 - 0.1 * h);
+    let plot = |out: &str| {
+        let (code, _, err) = seepd(&[
+            "plot",
+            "--config",
+            &example_dir(),
+            "--db",
+            &db,
+            "--id",
+            "AB-RIVER",
+            "--from",
+            "2026-03-01",
+            "--to",
+            "2026-03-02",
+            "--out",
+            out,
+        ]);
+        assert_eq!(code, 0, "{out}: {err}");
+    };
+    let (svg_path, png_path) = (dir.path().join("r.svg"), dir.path().join("r.PNG"));
+    plot(svg_path.to_str().unwrap());
+    plot(png_path.to_str().unwrap());
+    let svg = std::fs::read_to_string(&svg_path).unwrap();
+    let root = common::well_formed(&svg);
+    let size = |a: &str| -> u32 { root.root_element().attribute(a).unwrap().parse().unwrap() };
+    let bytes = std::fs::read(&png_path).unwrap();
+    assert!(bytes.starts_with(b"\x89PNG"), "not a PNG");
+    let img = resvg::tiny_skia::Pixmap::decode_png(&bytes).expect("the PNG decodes");
+    assert_eq!(
+        (img.width(), img.height()),
+        (2 * size("width"), 2 * size("height"))
+    );
+    let px = img.pixels();
+    let white = px
+        .iter()
+        .filter(|p| (p.red(), p.green(), p.blue(), p.alpha()) == (255, 255, 255, 255))
+        .count();
+    // On white (no transparent background), but not blank: axes, text and the series.
+    assert!(px.iter().all(|p| p.alpha() == 255), "transparent pixels");
+    assert!(
+        white > px.len() / 2,
+        "mostly white background: {white} of {}",
+        px.len()
+    );
+    assert!(
+        px.len() - white > px.len() / 100,
+        "blank: {white} of {} white",
+        px.len()
+    );
+    // The first series colour of the report's charts is drawn (the river's line).
+    let first = svg
+        .split("<polyline")
+        .nth(1)
+        .and_then(|p| p.split("stroke=\"#").nth(1))
+        .map(|c| &c[..6])
+        .expect("a series line in the SVG");
+    let rgb = |k: usize| u8::from_str_radix(&first[2 * k..2 * k + 2], 16).unwrap();
+    let drawn = px
+        .iter()
+        .filter(|p| (p.red(), p.green(), p.blue()) == (rgb(0), rgb(1), rgb(2)))
+        .count();
+    assert!(drawn > 200, "{drawn} pixels of #{first}");
 }

@@ -51,6 +51,35 @@ fn scenario(dir: &Path) -> String {
     db.display().to_string()
 }
 
+/// `seepd report` of the example configuration for `site` over [from, to) into `out`, with
+/// `extra` arguments.
+fn report(
+    db: &str,
+    site: &str,
+    (from, to): (&str, &str),
+    out: &Path,
+    extra: &[&str],
+) -> std::process::Output {
+    let example = example();
+    let mut args = vec![
+        "report",
+        "--config",
+        &example,
+        "--site",
+        site,
+        "--from",
+        from,
+        "--to",
+        to,
+        "--out",
+        out.to_str().unwrap(),
+        "--db",
+        db,
+    ];
+    args.extend_from_slice(extra);
+    run(&args)
+}
+
 fn cell_after(row: &str, n: usize) -> &str {
     row.split(',').nth(n).unwrap()
 }
@@ -60,30 +89,16 @@ fn report_tables_match_the_stored_data_and_documents_parse() {
     let dir = tempfile::tempdir().unwrap();
     let db = scenario(dir.path());
     let out = dir.path().join("out");
-    let o = run(&[
-        "report",
-        "--config",
-        &example(),
-        "--site",
-        "ash-bend",
-        "--from",
-        "2026-04-01",
-        "--to",
-        "2026-04-03",
-        "--out",
-        out.to_str().unwrap(),
-        "--db",
-        &db,
-    ]);
+    let o = report(&db, "ash-bend", ("2026-04-01", "2026-04-03"), &out, &[]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let html = std::fs::read_to_string(out.join("ash-bend_20260401_20260403.html")).unwrap();
-    seepd::xml_check::check_xml(&html).unwrap();
+    common::well_formed(&html);
     // Every SVG in it parses on its own too.
     let mut rest = html.as_str();
     let mut svgs = 0;
     while let Some(a) = rest.find("<svg") {
         let b = rest[a..].find("</svg>").unwrap() + a + 6;
-        seepd::xml_check::check_xml(&rest[a..b]).unwrap();
+        common::well_formed(&rest[a..b]);
         svgs += 1;
         rest = &rest[b..];
     }
@@ -152,24 +167,97 @@ fn a_period_without_data_says_so() {
     let dir = tempfile::tempdir().unwrap();
     let db = scenario(dir.path());
     let out = dir.path().join("empty");
-    let o = run(&[
-        "report",
-        "--config",
-        &example(),
-        "--site",
-        "tarn-hollow",
-        "--from",
-        "2026-01-01",
-        "--to",
-        "2026-01-08",
-        "--out",
-        out.to_str().unwrap(),
-        "--db",
-        &db,
-    ]);
+    let o = report(&db, "tarn-hollow", ("2026-01-01", "2026-01-08"), &out, &[]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let html = std::fs::read_to_string(out.join("tarn-hollow_20260101_20260108.html")).unwrap();
-    seepd::xml_check::check_xml(&html).unwrap();
+    common::well_formed(&html);
     assert!(html.contains("No readings were stored for this site in this period"));
     assert!(html.contains("No data in this period"));
+}
+
+/// `--format` writes exactly the documents asked for, for every non-empty subset (in any
+/// order), lists them on standard output, and refuses an unknown format naming it.
+#[test]
+fn format_writes_each_combination_and_refuses_an_unknown_one() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = scenario(dir.path());
+    let stem = "ash-bend_20260401_20260403";
+    let csvs = ["instruments", "derived", "quarantine"].map(|t| format!("{stem}_{t}.csv"));
+    for (n, list) in [
+        "html",
+        "pdf",
+        "csv",
+        "html,pdf",
+        "pdf,csv",
+        "csv,html",
+        "html,pdf,csv",
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let out = dir.path().join(format!("out{n}"));
+        let o = report(
+            &db,
+            "ash-bend",
+            ("2026-04-01", "2026-04-03"),
+            &out,
+            &["--format", list],
+        );
+        assert!(
+            o.status.success(),
+            "{list}: {}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+        let mut want: Vec<String> = Vec::new();
+        if list.contains("html") {
+            want.push(format!("{stem}.html"));
+        }
+        if list.contains("pdf") {
+            want.push(format!("{stem}.pdf"));
+        }
+        if list.contains("csv") {
+            want.extend(csvs.iter().cloned());
+        }
+        let mut got: Vec<String> = std::fs::read_dir(&out)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        got.sort();
+        let mut sorted = want.clone();
+        sorted.sort();
+        assert_eq!(got, sorted, "--format {list}");
+        // Standard output lists the files written, HTML, PDF, CSV in that order.
+        let listed: Vec<String> = String::from_utf8_lossy(&o.stdout)
+            .lines()
+            .map(|l| l.rsplit('/').next().unwrap().to_string())
+            .collect();
+        assert_eq!(listed, want, "--format {list}");
+        for f in &want {
+            let bytes = std::fs::read(out.join(f)).unwrap();
+            match f.rsplit('.').next().unwrap() {
+                "pdf" => assert!(bytes.starts_with(b"%PDF-"), "{f}"),
+                "html" => {
+                    common::well_formed(std::str::from_utf8(&bytes).unwrap());
+                }
+                _ => assert!(bytes.contains(&b'\n'), "{f} has no header line"),
+            }
+        }
+    }
+    for (bad, says) in [
+        ("html,docx", "unknown report format \"docx\""),
+        ("", "no report format given"),
+    ] {
+        let out = dir.path().join("refused");
+        let o = report(
+            &db,
+            "ash-bend",
+            ("2026-04-01", "2026-04-03"),
+            &out,
+            &["--format", bad],
+        );
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{bad:?}: {err}");
+        assert!(err.contains(says), "{bad:?}: {err}");
+        assert!(!out.exists(), "nothing is written for {bad:?}");
+    }
 }

@@ -61,10 +61,17 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
     let from = Utc.with_ymd_and_hms(2026, 4, 1, 0, 0, 0).unwrap();
     let to = Utc.with_ymd_and_hms(2026, 4, 3, 0, 0, 0).unwrap();
     let now = Utc.with_ymd_and_hms(2026, 4, 3, 8, 0, 0).unwrap();
-    let (docs, summary) =
-        seepd::report::render_report(&cfg, &store, "ash-bend", from, to, now).unwrap();
+    let (docs, summary) = seepd::report::render_report(
+        &cfg,
+        &store,
+        "ash-bend",
+        (from, to),
+        now,
+        seepd::config::Formats::default(),
+    )
+    .unwrap();
     let html = &docs[0].text();
-    seepd::xml_check::check_xml(html).unwrap();
+    common::well_formed(html);
 
     // Units in words and in every table header and axis.
     for part in [
@@ -98,6 +105,33 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
     );
     // Tip elevation configured as 86.3 (ft) shows as written, not converted twice.
     assert!(html.contains(">86.30<"), "tip elevation of AB-PZ-2B");
+    // The instrument table gives each instrument's last calibration as configured
+    // (`calibrated`, a date as written), a dash where the site file gives none.
+    let table = &html[html
+        .find("<th class=\"l\">Instrument</th><th class=\"l\">Kind</th>")
+        .unwrap()..];
+    let table = &table[..table.find("</table>").unwrap()];
+    let cells = |row: &str| -> Vec<String> {
+        row.split('<')
+            .filter(|p| p.starts_with("td") || p.starts_with("th"))
+            .map(|p| p[p.find('>').unwrap() + 1..].to_string())
+            .collect()
+    };
+    let header = cells(table.lines().next().unwrap());
+    let col = header
+        .iter()
+        .position(|h| h == "Last calibration")
+        .expect("the column");
+    let last_calibration = |id: &str| {
+        let row = table
+            .lines()
+            .find(|l| l.contains(&format!(">{id}</td>")))
+            .unwrap();
+        cells(row)[col].clone()
+    };
+    assert_eq!(last_calibration("AB-PZ-2B"), "2025-02-13");
+    assert_eq!(last_calibration("AB-RIVER"), "2025-09-30");
+    assert_eq!(last_calibration("AB-BARO"), "—");
     // Landward-distance quantities carry the configured value and unit in their names.
     let derived = docs
         .iter()
@@ -155,6 +189,8 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
         "engineer of record",
         "Instruments and where they are",
         "Tip elevation (ft)",
+        "Last calibration",
+        "2025-02-13",
         "Latest (ft)",
         "Toe checks",
         "Reviewed by:",

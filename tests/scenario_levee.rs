@@ -210,7 +210,7 @@ fn alert_timeline_of_the_flood() {
     // The report's alert table shows the same steps in order, each at its own level (finding 4).
     let rows = seepd::report::alerts::rows(
         &ex.cfg,
-        &conn,
+        &seepd::store::Store::open(&tl.db).unwrap(),
         "ash-bend",
         START_MS,
         START_MS + 240 * HOUR_MS,

@@ -417,6 +417,8 @@ pub struct Instrument {
     pub tip_elevation_m: Option<f64>,
     /// Readings dated before this are quarantined.
     pub installed: DateTime<Utc>,
+    /// Date of the last calibration (key `calibrated`), when the site file gives it.
+    pub calibrated: Option<DateTime<Utc>>,
     /// Expected interval between readings (s).
     pub interval_s: u64,
     /// Physical range of the raw value, in the raw value's own unit (Hz, digits, kPa, mA, m...).

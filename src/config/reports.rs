@@ -13,7 +13,7 @@ use chrono::{NaiveTime, Weekday};
 use serde::Deserialize;
 
 use super::de::{self, Int, Text};
-use super::model::{Every, ReportSchedule};
+use super::model::{Every, Formats, ReportSchedule};
 use super::problem::{Cx, Problem};
 use super::reader::Tbl;
 use super::site::Pos;
@@ -26,6 +26,7 @@ pub(crate) const KEYS: [&str; 1] = ["report"];
 #[derive(Deserialize, Default)]
 struct Raw {
     id: Option<Text>,
+    formats: Option<Vec<String>>,
     every: Option<Kind>,
     at: Option<String>,
     weekday: Option<Day>,
@@ -141,6 +142,12 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
         );
     }
     let out_dir = r.out_dir.map(|d| PathBuf::from(d.0));
+    let formats = match r.formats {
+        Some(names) => Formats::from_names(names.iter().map(String::as_str))
+            .map_err(|e| t.problem_at(cx, "formats", format!("key \"formats\": {e}")))
+            .unwrap_or_default(),
+        None => Formats::default(),
+    };
     let contacts_pos = cx.pos(t.value_span("contacts"));
     let every = match kind {
         Some(Kind::Daily) => Some(Every::Daily),
@@ -157,6 +164,7 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             recipients,
             contacts: contacts.clone(),
             out_dir,
+            formats,
         }),
         _ => None,
     };

@@ -179,8 +179,9 @@ enum Length {
     Ft,
 }
 
-const COMMON_KEYS: [&str; 12] = [
+const COMMON_KEYS: [&str; 13] = [
     "id",
+    "calibrated",
     "kind",
     "reach",
     "section",
@@ -197,6 +198,25 @@ const COMMON_KEYS: [&str; 12] = [
 /// Parse `installed`: an RFC 3339 date (midnight UTC) or date-time.
 pub(crate) fn parse_installed(s: &str) -> Option<DateTime<Utc>> {
     crate::timetext::instant(s).ok()
+}
+
+/// A date or date-time key (`parse_installed`), with a problem saying what is `expected`.
+fn instant(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    (key, required): (&str, bool),
+    expected: &str,
+) -> Option<DateTime<Utc>> {
+    let text = t.date_text(cx, key, required)?;
+    let parsed = parse_installed(&text);
+    if parsed.is_none() {
+        t.problem_at(
+            cx,
+            key,
+            format!("key \"{key}\" is {text:?}, expected {expected}"),
+        );
+    }
+    parsed
 }
 
 fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> Entry {
@@ -262,17 +282,19 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
         station_m: t.number(cx, "station", false).map(|v| v * m_per_unit),
         offset_m: t.number(cx, "offset", false).map(|v| v * m_per_unit),
     };
-    let installed = t.date_text(cx, "installed", true).and_then(|s| {
-        let parsed = parse_installed(&s);
-        if parsed.is_none() {
-            t.problem_at(
-                cx,
-                "installed",
-                format!("key \"installed\" is {s:?}, expected an RFC 3339 date (2025-03-01) or date-time (2025-03-01T08:00:00Z)"),
-            );
-        }
-        parsed
-    });
+    let installed = instant(
+        cx,
+        t,
+        ("installed", true),
+        "an RFC 3339 date (2025-03-01) or date-time (2025-03-01T08:00:00Z)",
+    );
+    // The date of the last calibration (optional; shown in the report's instrument table).
+    let calibrated = instant(
+        cx,
+        t,
+        ("calibrated", false),
+        "the date of the last calibration (2025-03-01)",
+    );
     let interval_s = t.opt_int_in(cx, "interval_s", 1, limits::YEAR_S, true);
     let raw_range = t.pair(cx, "range", true);
     let logger = t.label(cx, "logger");
@@ -303,6 +325,7 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
                 location,
                 tip_elevation_m: tip,
                 installed,
+                calibrated,
                 interval_s: interval_s as u64,
                 raw_range,
                 logger,

@@ -16,6 +16,7 @@ fn instrument(kind: Kind, tip: Option<f64>) -> Instrument {
         location: Location::default(),
         tip_elevation_m: tip,
         installed: Utc.with_ymd_and_hms(2020, 1, 1, 0, 0, 0).unwrap(),
+        calibrated: None,
         interval_s: 3600,
         raw_range: (f64::MIN, f64::MAX),
         logger: None,

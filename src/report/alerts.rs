@@ -2,16 +2,17 @@
 //! acknowledged, silenced, reminded, resolved, closed) with its own level and value, and
 //! silences created or in force in it, for one site, as text rows ordered by time.
 //!
-//! Reads the alerting tables only; never changes them.
+//! Reads the alerting tables through `Store` (`store::report_reads`); never changes them.
 
 use std::collections::BTreeSet;
 
 use chrono_tz::Tz;
-use rusqlite::{params, Connection};
 
 use super::html::local;
 use crate::config::{Config, DisplayUnits};
 use crate::present::{quantity_name, shown};
+use crate::store::report_reads::{PeriodAck, PeriodEvent, PeriodSilence};
+use crate::store::{Store, StoreError};
 
 /// One table row: (time ms, [time, event, object / rule, level, detail]).
 type Row = (i64, [String; 5]);
@@ -29,32 +30,22 @@ fn value(v: Option<f64>, quantity: &str, unit: &str, units: DisplayUnits) -> Str
 /// SQLite errors.
 pub fn rows(
     cfg: &Config,
-    conn: &Connection,
+    store: &Store,
     site: &str,
     from_ms: i64,
     to_ms: i64,
     tz: Tz,
     units: DisplayUnits,
-) -> rusqlite::Result<Vec<[String; 5]>> {
+) -> Result<Vec<[String; 5]>, StoreError> {
     let mut out: Vec<Row> = Vec::new();
     // Every step of every alert of the site in the period, in the order it happened, with
     // the level and value of that step (not of the alert's latest state).
-    let mut st = conn.prepare(
-        "SELECT e.alert, e.rule, e.site, e.kind, e.level, e.value, e.unit, e.t_ms,
-                e.recorded_ms, e.detail, coalesce(a.object, ''), coalesce(a.quantity, '')
-         FROM alert_events e LEFT JOIN alerts a ON a.id = e.alert
-         WHERE e.site = ?1 AND e.t_ms >= ?2 AND e.t_ms < ?3 AND e.kind != 'acknowledged'
-         ORDER BY e.t_ms, e.id",
-    )?;
-    let events = st.query_map(params![site, from_ms, to_ms], |r| {
-        Ok((
-            crate::store::alerts::event_row(r)?,
-            r.get::<_, String>(10)?,
-            r.get::<_, String>(11)?,
-        ))
-    })?;
-    for e in events {
-        let (e, object, quantity) = e?;
+    for PeriodEvent {
+        event: e,
+        object,
+        quantity,
+    } in store.period_events(site, from_ms, to_ms)?
+    {
         let v = value(e.value, &quantity, &e.unit, units);
         let kind = cfg.instruments.get(&object).map(|i| i.kind.name());
         let words = quantity_name(&quantity, kind).to_lowercase();
@@ -82,27 +73,16 @@ pub fn rows(
     }
     // Acknowledgements from the operators' own record (also those the service has not applied
     // yet), at the level the alert had when it was acknowledged.
-    let mut st = conn.prepare(
-        "SELECT k.t_ms, k.who, k.note, a.id, a.rule, a.object,
-                coalesce((SELECT e.level FROM alert_events e
-                          WHERE e.alert = a.id AND e.t_ms <= k.t_ms AND e.kind != 'acknowledged'
-                          ORDER BY e.t_ms DESC, e.id DESC LIMIT 1), a.level)
-         FROM acks k JOIN alerts a ON a.id = k.alert
-         WHERE a.site = ?1 AND k.t_ms >= ?2 AND k.t_ms < ?3",
-    )?;
-    let acks = st.query_map(params![site, from_ms, to_ms], |r| {
-        Ok((
-            r.get::<_, i64>(0)?,
-            r.get::<_, String>(1)?,
-            r.get::<_, Option<String>>(2)?,
-            r.get::<_, i64>(3)?,
-            r.get::<_, String>(4)?,
-            r.get::<_, String>(5)?,
-            r.get::<_, String>(6)?,
-        ))
-    })?;
-    for k in acks {
-        let (t, who, note, id, rule, object, level) = k?;
+    for PeriodAck {
+        t_ms: t,
+        who,
+        note,
+        alert: id,
+        rule,
+        object,
+        level,
+    } in store.period_acks(site, from_ms, to_ms)?
+    {
         let note = note.map(|n| format!(": {n}")).unwrap_or_default();
         out.push((
             t,
@@ -137,22 +117,15 @@ pub fn rows(
                 .map(|r| r.object.as_str()),
         )
         .collect();
-    let mut st = conn.prepare(
-        "SELECT rule, object, until_ms, reason, who, created_ms FROM silences
-         WHERE created_ms < ?2 AND until_ms > ?1",
-    )?;
-    let silences = st.query_map(params![from_ms, to_ms], |r| {
-        Ok((
-            r.get::<_, Option<String>>(0)?,
-            r.get::<_, Option<String>>(1)?,
-            r.get::<_, i64>(2)?,
-            r.get::<_, String>(3)?,
-            r.get::<_, String>(4)?,
-            r.get::<_, i64>(5)?,
-        ))
-    })?;
-    for s in silences {
-        let (rule, object, until, reason, who, created) = s?;
+    for PeriodSilence {
+        rule,
+        object,
+        until_ms: until,
+        reason,
+        who,
+        created_ms: created,
+    } in store.period_silences(from_ms, to_ms)?
+    {
         let what = match (&rule, &object) {
             (Some(r), _) if rules.contains(r.as_str()) => format!("rule {r}"),
             (_, Some(o)) if objects.contains(o.as_str()) => o.clone(),

@@ -2,11 +2,11 @@
 //! statistics, stage summary, toe checks, sections, quarantine and health flags. No formatting
 //! here (see `html`, `csv`, `chart`).
 
-use chrono::{DateTime, Utc};
-use rusqlite::{params, Connection, OptionalExtension};
-
 use crate::config::{Config, DisplayUnits, Instrument, Kind, LandwardDistance, Location};
+use crate::model::ReadingQuantity;
 use crate::quality::Flags;
+use crate::store::{Store, StoreError};
+use chrono::{DateTime, Utc};
 
 /// Statistics of one instrument's main quantity over the period.
 #[derive(Debug, Clone, PartialEq)]
@@ -30,6 +30,8 @@ pub struct InstrumentStats {
     pub location: Location,
     pub tip_elevation_m: Option<f64>,
     pub installed_ms: i64,
+    /// Date of the last calibration, as configured.
+    pub calibrated_ms: Option<i64>,
     pub interval_s: u64,
     /// Flag name → count.
     pub flag_counts: Vec<(&'static str, i64)>,
@@ -121,11 +123,12 @@ impl ReportData {
     }
 }
 
-fn main_quantity(i: &Instrument) -> (&'static str, &'static str, &'static str) {
+/// An instrument's main quantity: its name in the CSV, SI unit, and the reading quantity.
+fn main_quantity(i: &Instrument) -> (&'static str, &'static str, ReadingQuantity) {
     match i.kind {
-        Kind::StageGauge(_) => ("water_elevation", "m", "total_head_m"),
-        Kind::Barometer(_) => ("pressure", "kPa", "pressure_kpa"),
-        _ => ("total_head", "m", "total_head_m"),
+        Kind::StageGauge(_) => ("water_elevation", "m", ReadingQuantity::TotalHead),
+        Kind::Barometer(_) => ("pressure", "kPa", ReadingQuantity::Pressure),
+        _ => ("total_head", "m", ReadingQuantity::TotalHead),
     }
 }
 
@@ -134,17 +137,12 @@ fn main_quantity(i: &Instrument) -> (&'static str, &'static str, &'static str) {
 /// # Errors
 /// SQLite errors.
 pub fn instrument_stats(
-    conn: &Connection,
+    store: &Store,
     i: &Instrument,
     from_ms: i64,
     to_ms: i64,
-) -> rusqlite::Result<InstrumentStats> {
-    let (quantity, unit, column) = main_quantity(i);
-    let mut st = conn.prepare_cached(&format!(
-        "SELECT t_ms, {column}, flags FROM readings
-         WHERE instrument = ?1 AND t_ms >= ?2 AND t_ms < ?3 AND {column} IS NOT NULL ORDER BY t_ms"
-    ))?;
-    let mut rows = st.query(params![i.id, from_ms, to_ms])?;
+) -> Result<InstrumentStats, StoreError> {
+    let (quantity, unit, q) = main_quantity(i);
     let mut s = InstrumentStats {
         id: i.id.clone(),
         kind: i.kind.name(),
@@ -160,11 +158,11 @@ pub fn instrument_stats(
         location: i.location.clone(),
         tip_elevation_m: i.tip_elevation_m,
         installed_ms: i.installed.timestamp_millis(),
+        calibrated_ms: i.calibrated.map(|t| t.timestamp_millis()),
         interval_s: i.interval_s,
         flag_counts: Flags::NAMES.iter().map(|(_, n)| (*n, 0)).collect(),
     };
-    while let Some(r) = rows.next()? {
-        let (t, v, flags): (i64, f64, u32) = (r.get(0)?, r.get(1)?, r.get(2)?);
+    for (t, v, flags) in store.reading_points(&i.id, q, from_ms, to_ms)? {
         s.readings += 1;
         s.first.get_or_insert((t, v));
         s.latest = Some((t, v));
@@ -193,35 +191,20 @@ pub fn instrument_stats(
 /// # Errors
 /// SQLite errors.
 pub fn derived_stats(
-    conn: &Connection,
+    store: &Store,
     object: &str,
     quantity: &str,
     from_ms: i64,
     to_ms: i64,
-) -> rusqlite::Result<DerivedStats> {
-    let q = |order: &str| -> rusqlite::Result<Option<(i64, f64, String)>> {
-        conn.query_row(
-            &format!(
-                "SELECT t_ms, value, unit FROM derived WHERE object = ?1 AND quantity = ?2
-                 AND t_ms >= ?3 AND t_ms < ?4 AND value IS NOT NULL ORDER BY {order} LIMIT 1"
-            ),
-            params![object, quantity, from_ms, to_ms],
-            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
-        )
-        .optional()
-    };
-    let latest = q("t_ms DESC")?;
-    let min = q("value ASC, t_ms ASC")?;
-    let max = q("value DESC, t_ms ASC")?;
-    let unit = latest.as_ref().map(|l| l.2.clone()).unwrap_or_default();
-    let strip = |o: Option<(i64, f64, String)>| o.map(|(t, v, _)| (t, v));
+) -> Result<DerivedStats, StoreError> {
+    let x = store.derived_extremes(object, quantity, from_ms, to_ms)?;
     Ok(DerivedStats {
         object: object.to_string(),
         quantity: quantity.to_string(),
-        unit,
-        latest: strip(latest),
-        min: strip(min),
-        max: strip(max),
+        unit: x.unit,
+        latest: x.latest,
+        min: x.min,
+        max: x.max,
     })
 }
 
@@ -231,7 +214,7 @@ pub fn derived_stats(
 /// Unknown site; SQLite errors.
 pub fn gather(
     cfg: &Config,
-    conn: &Connection,
+    store: &Store,
     site: &str,
     from: DateTime<Utc>,
     to: DateTime<Utc>,
@@ -261,7 +244,7 @@ pub fn gather(
         quarantine: Vec::new(),
     };
     for i in cfg.instruments.values().filter(|i| i.site == site) {
-        let stats = instrument_stats(conn, i, f, t)?;
+        let stats = instrument_stats(store, i, f, t)?;
         match i.kind {
             Kind::StageGauge(_) => data.stages.push(stats),
             Kind::Barometer(_) => data.others.push(stats),
@@ -271,17 +254,17 @@ pub fn gather(
     let o = &cfg.objects;
     for toe in o.toes.iter().filter(|x| x.site == site) {
         for q in ["exit_gradient", "factor_of_safety", "excess_head"] {
-            data.toes.push(derived_stats(conn, &toe.id, q, f, t)?);
+            data.toes.push(derived_stats(store, &toe.id, q, f, t)?);
         }
     }
     for sec in o.sections.iter().filter(|x| x.site == site) {
         for q in ["exit_elevation", "seepage_face_height", "min_cover"] {
-            data.sections.push(derived_stats(conn, &sec.id, q, f, t)?);
+            data.sections.push(derived_stats(store, &sec.id, q, f, t)?);
         }
     }
     for c in o.nests.iter().filter(|x| x.site == site) {
         data.gradients
-            .push(derived_stats(conn, &c.id, "vertical_gradient", f, t)?);
+            .push(derived_stats(store, &c.id, "vertical_gradient", f, t)?);
     }
     for b in o.blankets.iter().filter(|x| x.site == site) {
         let at: Vec<String> = b.distances.iter().map(LandwardDistance::quantity).collect();
@@ -293,16 +276,10 @@ pub fn gather(
             "expected_flow",
         ];
         for q in fixed.iter().copied().chain(at.iter().map(String::as_str)) {
-            data.blankets.push(derived_stats(conn, &b.id, q, f, t)?);
+            data.blankets.push(derived_stats(store, &b.id, q, f, t)?);
         }
     }
-    let mut st = conn.prepare(
-        "SELECT reason, count(*) FROM quarantine WHERE received_ms >= ?1 AND received_ms < ?2
-         GROUP BY reason ORDER BY reason",
-    )?;
-    data.quarantine = st
-        .query_map(params![f, t], |r| Ok((r.get(0)?, r.get(1)?)))?
-        .collect::<Result<_, _>>()?;
+    data.quarantine = store.quarantine_by_reason(f, t)?;
     Ok(data)
 }
 
@@ -311,39 +288,12 @@ pub fn gather(
 /// # Errors
 /// SQLite errors.
 pub fn series(
-    conn: &Connection,
+    store: &Store,
     i: &Instrument,
     from_ms: i64,
     to_ms: i64,
-) -> rusqlite::Result<Vec<(i64, f64)>> {
-    let (_, _, column) = main_quantity(i);
-    let mut st = conn.prepare_cached(&format!(
-        "SELECT t_ms, {column} FROM readings WHERE instrument = ?1 AND t_ms >= ?2 AND t_ms < ?3
-         AND {column} IS NOT NULL ORDER BY t_ms"
-    ))?;
-    let rows = st.query_map(params![i.id, from_ms, to_ms], |r| {
-        Ok((r.get(0)?, r.get(1)?))
-    })?;
-    rows.collect()
-}
-
-/// Values of a derived quantity of `object` in [from, to), time ms and value, for plots.
-///
-/// # Errors
-/// SQLite errors.
-pub fn derived_series(
-    conn: &Connection,
-    object: &str,
-    quantity: &str,
-    from_ms: i64,
-    to_ms: i64,
-) -> rusqlite::Result<Vec<(i64, f64)>> {
-    let mut st = conn.prepare_cached(
-        "SELECT t_ms, value FROM derived WHERE object = ?1 AND quantity = ?2 AND t_ms >= ?3
-         AND t_ms < ?4 AND value IS NOT NULL ORDER BY t_ms",
-    )?;
-    let rows = st.query_map(params![object, quantity, from_ms, to_ms], |r| {
-        Ok((r.get(0)?, r.get(1)?))
-    })?;
-    rows.collect()
+) -> Result<Vec<(i64, f64)>, StoreError> {
+    let (_, _, q) = main_quantity(i);
+    let points = store.reading_points(&i.id, q, from_ms, to_ms)?;
+    Ok(points.into_iter().map(|(t, v, _)| (t, v)).collect())
 }

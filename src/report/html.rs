@@ -8,9 +8,7 @@ use chrono_tz::Tz;
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
 use crate::config::DisplayUnits;
-use crate::present::format::{
-    digits, duration, fixed, shown, shown_bare, with_digits, FS_CAP_RULE,
-};
+use crate::present::format::{digits, fixed, shown, shown_bare, with_digits, FS_CAP_RULE};
 use crate::present::labels::system_name;
 use crate::present::units::{convert_difference, unit_label};
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
@@ -103,32 +101,22 @@ fn stats_table(s: &mut String, rows: &[InstrumentStats], tz: Tz, u: DisplayUnits
     }
 }
 
-/// Where the instruments are: kind, reach, section, station, offset, tip elevation, installed,
-/// reading interval.
+/// Where the instruments are (`places`: kind, reach, section, station, offset, tip elevation,
+/// installed, last calibration, reading interval).
 fn locations_table(s: &mut String, d: &ReportData, tz: Tz) {
-    let u = d.units;
-    let l = unit_label(Measure::Length, u, "m");
-    let len = |v: Option<f64>| v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Length, u));
-    let pos =
-        |v: Option<f64>| v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Position, u));
-    let _ = writeln!(
-        s,
-        "<table><tr><th class=\"l\">Instrument</th><th class=\"l\">Kind</th><th class=\"l\">Reach</th><th class=\"l\">Section</th><th>Station ({l})</th><th>Offset ({l})</th><th>Tip elevation ({l})</th><th>Installed</th><th>Reading every</th></tr>"
-    );
-    for i in d.piezometers.iter().chain(&d.stages).chain(&d.others) {
-        let _ = writeln!(
-            s,
-            "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
-            esc(&i.id),
-            esc(&kind_name(i.kind)),
-            esc(i.location.reach.as_deref().unwrap_or("—")),
-            esc(i.location.section.as_deref().unwrap_or("—")),
-            pos(i.location.station_m),
-            pos(i.location.offset_m),
-            len(i.tip_elevation_m),
-            local(i.installed_ms, tz),
-            duration(i.interval_s as i64)
-        );
+    let cols = super::places::columns(d, tz);
+    let class = |c: &super::places::Column| if c.left { " class=\"l\"" } else { "" };
+    s.push_str("<table><tr>");
+    for c in &cols {
+        let _ = write!(s, "<th{}>{}</th>", class(c), esc(&c.header));
+    }
+    s.push_str("</tr>\n");
+    for k in 0..cols.first().map_or(0, |c| c.cells.len()) {
+        s.push_str("<tr>");
+        for c in &cols {
+            let _ = write!(s, "<td{}>{}</td>", class(c), esc(&c.cells[k]));
+        }
+        s.push_str("</tr>\n");
     }
     s.push_str("</table>\n");
 }

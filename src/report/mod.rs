@@ -1,24 +1,25 @@
 //! Periodic instrumentation reports for one site and period: a self-contained HTML file
 //! (tables, inline SVG time histories and section drawings, caution, sign-off lines) and CSV
-//! tables. Used by `seepd report` on demand; the schedule runs the same code.
+//! tables (`files`: the formats asked for). Used by `seepd report` on demand; the schedule runs the same code.
 
 pub mod alerts;
 pub mod chart;
 pub mod csv;
 pub mod data;
+mod files;
 pub mod html;
 #[cfg(feature = "pdf")]
 pub mod pdf;
+mod places;
+#[cfg(feature = "pdf")]
+pub mod raster;
 pub mod schedule;
 pub mod scheduler;
 pub mod summary;
 
-use std::collections::BTreeSet;
-use std::path::{Path, PathBuf};
-
-use anyhow::Context as _;
 use chrono::{DateTime, Utc};
 use chrono_tz::Tz;
+use std::collections::BTreeSet;
 
 use crate::config::{Config, DisplayUnits, Kind};
 use crate::domain::rules::{Check, Direction};
@@ -28,15 +29,7 @@ use crate::store::Store;
 
 use chart::{Beyond, Chart, LevelLine, Series};
 use data::ReportData;
-
-/// The files a report consists of.
-#[derive(Debug, Clone)]
-pub struct ReportFiles {
-    pub html: PathBuf,
-    /// The PDF (built with the `pdf` feature).
-    pub pdf: Option<PathBuf>,
-    pub csv: Vec<PathBuf>,
-}
+pub use files::{generate, render_report, write_files, Document};
 
 /// A chart group: a title and its piezometers, with the stage gauge drawn on the second axis.
 struct Group {
@@ -160,7 +153,7 @@ fn stage_of(
     let Some(i) = id.and_then(|id| cfg.instruments.get(id)) else {
         return Ok((None, String::new()));
     };
-    let points = to_display(data::series(store.conn(), i, f, t)?, Measure::Length, units);
+    let points = to_display(data::series(store, i, f, t)?, Measure::Length, units);
     let axis = format!("{} water level ({})", i.id, length_unit(units));
     Ok((
         Some(Series {
@@ -188,7 +181,6 @@ fn safety_charts(
     units: DisplayUnits,
 ) -> anyhow::Result<Vec<(String, Chart)>> {
     let o = &cfg.objects;
-    let conn = store.conn();
     let mut out = Vec::new();
     let toes: Vec<String> = o
         .toes
@@ -201,7 +193,7 @@ fn safety_charts(
         for id in objects {
             v.push(Series {
                 label: id.clone(),
-                points: to_display(data::derived_series(conn, id, q, f, t)?, m, units),
+                points: to_display(store.derived_points(id, q, f, t)?, m, units),
             });
         }
         Ok(v)
@@ -273,7 +265,7 @@ fn safety_charts(
             c.series.push(Series {
                 label: label.into(),
                 points: to_display(
-                    data::derived_series(conn, &b.id, q, f, t)?,
+                    store.derived_points(&b.id, q, f, t)?,
                     Measure::Length,
                     units,
                 ),
@@ -288,22 +280,19 @@ fn safety_charts(
 }
 
 /// The times to draw a section at: the period's highest pool, and its end.
-fn section_times(store: &Store, pool: &str, from_ms: i64, to_ms: i64) -> Vec<(String, i64)> {
-    let peak: Option<i64> = store
-        .conn()
-        .query_row(
-            "SELECT t_ms FROM readings WHERE instrument = ?1 AND t_ms >= ?2 AND t_ms < ?3
-             AND total_head_m IS NOT NULL ORDER BY total_head_m DESC, t_ms ASC LIMIT 1",
-            rusqlite::params![pool, from_ms, to_ms],
-            |r| r.get(0),
-        )
-        .ok();
+fn section_times(
+    store: &Store,
+    pool: &str,
+    from_ms: i64,
+    to_ms: i64,
+) -> Result<Vec<(String, i64)>, crate::store::StoreError> {
+    let peak = store.highest_head_time(pool, from_ms, to_ms)?;
     let mut v = Vec::new();
     if let Some(t) = peak {
         v.push(("at the period's highest pool".to_string(), t));
     }
     v.push(("at the end of the period".to_string(), to_ms - 1));
-    v
+    Ok(v)
 }
 
 /// An SVG document without its XML declaration, for embedding in HTML.
@@ -328,7 +317,7 @@ pub fn build(
     to: DateTime<Utc>,
     now: DateTime<Utc>,
 ) -> anyhow::Result<(ReportData, html::Extras)> {
-    let data = data::gather(cfg, store.conn(), site, from, to, now)?;
+    let data = data::gather(cfg, store, site, from, to, now)?;
     let units = data.units;
     let tz: Tz = data.time_zone.parse().unwrap_or(chrono_tz::UTC);
     let (f, t) = (from.timestamp_millis(), to.timestamp_millis());
@@ -348,11 +337,7 @@ pub fn build(
             if let Some(i) = cfg.instruments.get(id) {
                 c.series.push(Series {
                     label: id.clone(),
-                    points: to_display(
-                        data::series(store.conn(), i, f, t)?,
-                        Measure::Length,
-                        units,
-                    ),
+                    points: to_display(data::series(store, i, f, t)?, Measure::Length, units),
                 });
             }
         }
@@ -362,7 +347,7 @@ pub fn build(
     }
     let mut sections = Vec::new();
     for s in cfg.objects.sections.iter().filter(|s| s.site == site) {
-        for (label, at_ms) in section_times(store, &s.pool_gauge, f, t) {
+        for (label, at_ms) in section_times(store, &s.pool_gauge, f, t)? {
             let at = DateTime::from_timestamp_millis(at_ms).unwrap_or(to);
             let caption = format!("Section {} {label} ({})", s.id, html::local(at_ms, tz));
             let svg = crate::section_cmd::render(cfg, store, &s.id, at)
@@ -371,8 +356,8 @@ pub fn build(
             sections.push((caption, svg));
         }
     }
-    let alerts = alerts::rows(cfg, store.conn(), site, f, t, tz, units)?;
-    let previous = data::gather(cfg, store.conn(), site, from - (to - from), from, now)?;
+    let alerts = alerts::rows(cfg, store, site, f, t, tz, units)?;
+    let previous = data::gather(cfg, store, site, from - (to - from), from, now)?;
     let summary = summary::lines(cfg, &data, &previous, &alerts);
     let extras = html::Extras {
         charts,
@@ -383,125 +368,4 @@ pub fn build(
         version: env!("CARGO_PKG_VERSION"),
     };
     Ok((data, extras))
-}
-
-/// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and bytes.
-#[derive(Debug, Clone)]
-pub struct Document {
-    pub name: String,
-    pub content_type: &'static str,
-    pub data: Vec<u8>,
-}
-
-impl Document {
-    /// The document as text (HTML, CSV); a binary one (PDF) reads with replacement characters.
-    pub fn text(&self) -> std::borrow::Cow<'_, str> {
-        String::from_utf8_lossy(&self.data)
-    }
-}
-
-/// Render the report for `site` over [from, to): the HTML document first, then the CSV tables.
-///
-/// # Errors
-/// Unknown site, database errors, or a generated document that is not well-formed.
-pub fn render_files(
-    cfg: &Config,
-    store: &Store,
-    site: &str,
-    from: DateTime<Utc>,
-    to: DateTime<Utc>,
-    now: DateTime<Utc>,
-) -> anyhow::Result<Vec<Document>> {
-    Ok(render_report(cfg, store, site, from, to, now)?.0)
-}
-
-/// Render the report's documents (as [`render_files`]) and its summary sentences (for the
-/// body of the report email).
-///
-/// # Errors
-/// Unknown site, database errors, or a generated document that is not well-formed.
-pub fn render_report(
-    cfg: &Config,
-    store: &Store,
-    site: &str,
-    from: DateTime<Utc>,
-    to: DateTime<Utc>,
-    now: DateTime<Utc>,
-) -> anyhow::Result<(Vec<Document>, Vec<String>)> {
-    anyhow::ensure!(to > from, "the period is empty: --to must be after --from");
-    let (data, extras) = build(cfg, store, site, from, to, now)?;
-    let summary = extras.summary.clone();
-    let doc = html::render(&data, &extras);
-    crate::xml_check::check_xml(&doc)
-        .map_err(|e| anyhow::anyhow!("generated HTML is not well-formed: {e}"))?;
-    let stem = format!("{}_{}_{}", site, from.format("%Y%m%d"), to.format("%Y%m%d"));
-    let mut docs = vec![Document {
-        name: format!("{stem}.html"),
-        content_type: "text/html; charset=utf-8",
-        data: doc.into_bytes(),
-    }];
-    #[cfg(feature = "pdf")]
-    docs.push(Document {
-        name: format!("{stem}.pdf"),
-        content_type: "application/pdf",
-        data: pdf::render(&data, &extras)?,
-    });
-    for (name, text) in [
-        ("instruments", csv::instruments(&data)),
-        ("derived", csv::derived(&data)),
-        ("quarantine", csv::quarantine(&data)),
-    ] {
-        docs.push(Document {
-            name: format!("{stem}_{name}.csv"),
-            content_type: "text/csv; charset=utf-8",
-            data: text.into_bytes(),
-        });
-    }
-    Ok((docs, summary))
-}
-
-/// Write rendered documents into `out` (created if needed); returns their paths in order.
-///
-/// # Errors
-/// File errors.
-pub fn write_files(docs: &[Document], out: &Path) -> anyhow::Result<Vec<PathBuf>> {
-    std::fs::create_dir_all(out).with_context(|| format!("creating {}", out.display()))?;
-    let mut paths = Vec::new();
-    for d in docs {
-        let p = out.join(&d.name);
-        std::fs::write(&p, &d.data).with_context(|| format!("writing {}", p.display()))?;
-        paths.push(p);
-    }
-    Ok(paths)
-}
-
-/// Generate the report files for `site` over [from, to) into `out`.
-///
-/// # Errors
-/// Unknown site, database or file errors, or a generated document that is not well-formed.
-pub fn generate(
-    cfg: &Config,
-    store: &Store,
-    site: &str,
-    from: DateTime<Utc>,
-    to: DateTime<Utc>,
-    now: DateTime<Utc>,
-    out: &Path,
-) -> anyhow::Result<ReportFiles> {
-    let docs = render_files(cfg, store, site, from, to, now)?;
-    let paths = write_files(&docs, out)?;
-    let with = |ext: &'static str| {
-        paths
-            .iter()
-            .filter(move |p| p.extension().is_some_and(|e| e == ext))
-    };
-    let html = with("html")
-        .next()
-        .cloned()
-        .ok_or_else(|| anyhow::anyhow!("no HTML document was rendered"))?;
-    Ok(ReportFiles {
-        html,
-        pdf: with("pdf").next().cloned(),
-        csv: with("csv").cloned().collect(),
-    })
 }

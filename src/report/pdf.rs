@@ -6,8 +6,6 @@
 //!
 //! Layout is pure (`Layout` collects pages of drawing operations); `render` draws them.
 
-use std::sync::Arc;
-
 use krilla::color::rgb;
 use krilla::geom::{PathBuilder, Point, Rect, Size};
 use krilla::num::NormalizedF32;
@@ -19,18 +17,19 @@ use krilla_svg::{SurfaceExt, SvgSettings};
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
 use super::html::{local, Extras};
+use super::raster::{svg_options, FONT};
 use crate::config::DisplayUnits;
 use crate::present::format::{shown, shown_bare, FS_CAP_RULE};
 use crate::present::labels::system_name;
 use crate::present::units::unit_label;
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
 
-/// DejaVu Sans (free licence, `assets/fonts/DejaVuSans-LICENSE.txt`), embedded.
-const FONT: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
-/// Average advance of DejaVu Sans, em (for right alignment and truncation).
+/// Average advance of DejaVu Sans, em (for a character the font lacks).
 const ADVANCE_EM: f32 = 0.56;
 const MARGIN: f32 = 42.0;
 const BODY: f32 = 8.0;
+/// Height of a table row, em.
+const ROW_EM: f32 = 1.6;
 
 /// One drawing operation on a page (points, origin top left).
 #[derive(Debug, Clone)]
@@ -72,15 +71,22 @@ struct Layout {
     svgs: Vec<String>,
 }
 
-/// Approximate advance of a character of DejaVu Sans, em.
+/// The embedded font's face, parsed once (for glyph advances).
+fn face() -> Option<&'static ttf_parser::Face<'static>> {
+    static FACE: std::sync::OnceLock<Option<ttf_parser::Face<'static>>> =
+        std::sync::OnceLock::new();
+    FACE.get_or_init(|| ttf_parser::Face::parse(FONT, 0).ok())
+        .as_ref()
+}
+
+/// Advance of a character of the embedded DejaVu Sans, em (an average if the font lacks it).
 fn advance(c: char) -> f32 {
-    match c {
-        '0'..='9' => 0.636,
-        ' ' | '.' | ',' | ':' | ';' | '|' | 'i' | 'l' | 'j' => 0.32,
-        '-' | '(' | ')' | 'f' | 't' | 'r' => 0.4,
-        'A'..='Z' | 'm' | 'w' | '—' | '%' => 0.72,
-        _ => ADVANCE_EM,
-    }
+    face()
+        .and_then(|f| {
+            let g = f.glyph_index(c)?;
+            Some(f32::from(f.glyph_hor_advance(g)?) / f32::from(f.units_per_em()))
+        })
+        .unwrap_or(ADVANCE_EM)
 }
 
 fn width(text: &str, size: f32) -> f32 {
@@ -217,7 +223,7 @@ impl Layout {
     /// `left` columns left-aligned, the rest right-aligned. Headers repeat on a new page.
     fn table(&mut self, headers: &[&str], widths: &[f32], left: usize, rows: &[Vec<String>]) {
         let size = 6.8;
-        let row_h = size * 1.6;
+        let row_h = size * ROW_EM;
         let total: f32 = widths.iter().sum();
         let xs: Vec<(f32, f32)> = widths
             .iter()
@@ -230,24 +236,7 @@ impl Layout {
             .collect();
         let head = |l: &mut Layout| {
             l.room(row_h * 2.0);
-            for (k, h) in headers.iter().enumerate() {
-                let (x, cw) = xs[k];
-                let t = fit(h, size, cw - 4.0);
-                let tx = if k < left {
-                    x + 2.0
-                } else {
-                    x + cw - 2.0 - width(&t, size)
-                };
-                let y = l.y + size;
-                l.op(Op::Text {
-                    x: tx,
-                    y,
-                    size,
-                    text: t,
-                    red: false,
-                });
-            }
-            l.y += row_h;
+            l.table_row(headers.iter().copied(), &xs, left, size);
             let y = l.y - 2.0;
             l.op(Op::Line {
                 x1: MARGIN,
@@ -262,26 +251,36 @@ impl Layout {
                 self.room(f32::MAX / 4.0);
                 head(self);
             }
-            for (k, cell) in r.iter().enumerate().take(xs.len()) {
-                let (x, cw) = xs[k];
-                let t = fit(cell, size, cw - 4.0);
-                let tx = if k < left {
-                    x + 2.0
-                } else {
-                    x + cw - 2.0 - width(&t, size)
-                };
-                let y = self.y + size;
-                self.op(Op::Text {
-                    x: tx,
-                    y,
-                    size,
-                    text: t,
-                    red: false,
-                });
-            }
-            self.y += row_h;
+            self.table_row(r.iter().map(String::as_str), &xs, left, size);
         }
         self.y += 6.0;
+    }
+    /// One row of a table (headers or cells) in columns `xs` (start, width): each text fitted
+    /// to its column, the first `left` left-aligned, the rest right-aligned; moves down a row.
+    fn table_row<'a>(
+        &mut self,
+        cells: impl Iterator<Item = &'a str>,
+        xs: &[(f32, f32)],
+        left: usize,
+        size: f32,
+    ) {
+        for (k, (cell, &(x, cw))) in cells.zip(xs).enumerate() {
+            let t = fit(cell, size, cw - 4.0);
+            let tx = if k < left {
+                x + 2.0
+            } else {
+                x + cw - 2.0 - width(&t, size)
+            };
+            let y = self.y + size;
+            self.op(Op::Text {
+                x: tx,
+                y,
+                size,
+                text: t,
+                red: false,
+            });
+        }
+        self.y += size * ROW_EM;
     }
     /// An SVG drawing scaled to the text width.
     fn svg(&mut self, svg: &str, w_px: f32, h_px: f32) {
@@ -340,7 +339,7 @@ fn stats_table(l: &mut Layout, rows: &[InstrumentStats], d: &ReportData) {
     let h: Vec<&str> = h.iter().map(String::as_str).collect();
     l.table(
         &h,
-        &[1.0, 2.3, 1.0, 1.6, 0.9, 0.9, 1.6, 0.8, 0.9, 0.8],
+        &[1.0, 1.9, 1.25, 1.65, 1.0, 1.0, 1.65, 0.95, 0.95, 0.7],
         2,
         &stats_rows(rows, d),
     );
@@ -422,40 +421,17 @@ fn layout(d: &ReportData, x: &Extras) -> Layout {
         l.paragraph(BODY, &format!("• {s}"), 4.0);
     }
     l.heading("Instruments and where they are");
-    let len_u = unit_label(Measure::Length, d.units, "m");
-    let pos = |v: Option<f64>| {
-        v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Position, d.units))
-    };
-    let len =
-        |v: Option<f64>| v.map_or_else(|| "—".into(), |v| shown_bare(v, Measure::Length, d.units));
-    let rows: Vec<Vec<String>> = d
-        .piezometers
-        .iter()
-        .chain(&d.stages)
-        .chain(&d.others)
-        .map(|i| {
-            vec![
-                i.id.clone(),
-                kind_name(i.kind),
-                i.location.reach.clone().unwrap_or_else(|| "—".into()),
-                pos(i.location.station_m),
-                pos(i.location.offset_m),
-                len(i.tip_elevation_m),
-                local(i.installed_ms, tz),
-            ]
-        })
+    let cols: Vec<_> = super::places::columns(d, tz)
+        .into_iter()
+        .filter(|c| c.pdf_width > 0.0)
         .collect();
-    let h = [
-        "Instrument".to_string(),
-        "Kind".into(),
-        "Reach".into(),
-        format!("Station ({len_u})"),
-        format!("Offset ({len_u})"),
-        format!("Tip elevation ({len_u})"),
-        "Installed".into(),
-    ];
-    let h: Vec<&str> = h.iter().map(String::as_str).collect();
-    l.table(&h, &[1.2, 2.4, 0.7, 1.1, 1.1, 1.4, 1.5], 3, &rows);
+    let h: Vec<&str> = cols.iter().map(|c| c.header.as_str()).collect();
+    let widths: Vec<f32> = cols.iter().map(|c| c.pdf_width).collect();
+    let left = cols.iter().take_while(|c| c.left).count();
+    let rows: Vec<Vec<String>> = (0..cols.first().map_or(0, |c| c.cells.len()))
+        .map(|k| cols.iter().map(|c| c.cells[k].clone()).collect())
+        .collect();
+    l.table(&h, &widths, left, &rows);
     l.heading("Piezometers");
     stats_table(&mut l, &d.piezometers, d);
     l.heading("Pool and river stage");
@@ -551,12 +527,7 @@ pub fn render(d: &ReportData, x: &Extras) -> anyhow::Result<Vec<u8>> {
     let l = layout(d, x);
     let font = Font::new(FONT.to_vec().into(), 0)
         .ok_or_else(|| anyhow::anyhow!("the embedded font cannot be read"))?;
-    let mut opt = usvg::Options::default();
-    let mut db = usvg::fontdb::Database::new();
-    db.load_font_data(FONT.to_vec());
-    db.set_sans_serif_family("DejaVu Sans");
-    opt.fontdb = Arc::new(db);
-    opt.font_family = "DejaVu Sans".into();
+    let opt = svg_options();
     let trees: Vec<Option<usvg::Tree>> = l
         .svgs
         .iter()

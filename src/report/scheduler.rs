@@ -1,6 +1,6 @@
 //! The report scheduler of `seepd run`: a thread with its own database connection that, when a
 //! `[[report]]` falls due, renders the report for the period just ended and queues one outbox
-//! message with the HTML, PDF (feature `pdf`) and CSV files attached (and keeps the files in
+//! message with the report's documents attached (its `formats`: by default HTML, PDF and CSV) (and keeps the files in
 //! `out_dir` if set).
 //!
 //! Delivery guarantee: each period of each schedule is queued exactly once. The period is
@@ -86,7 +86,7 @@ pub fn queue_one(
     if store.report_done(&s.id, f)? {
         return Ok(None);
     }
-    let (docs, summary) = super::render_report(cfg, store, &s.site, from, to, now)?;
+    let (docs, summary) = super::render_report(cfg, store, &s.site, (from, to), now, s.formats)?;
     if let Some(dir) = &s.out_dir {
         if let Err(e) = super::write_files(&docs, dir) {
             tracing::error!(report = %s.id, error = %format!("{e:#}"), "Cannot keep the report files in out_dir; emailing them anyway");

@@ -12,6 +12,7 @@ pub mod export;
 mod models;
 pub mod outbox;
 pub mod pages;
+pub mod report_reads;
 pub mod reports;
 mod schema;
 mod state;

@@ -676,3 +676,14 @@ pub fn prefill(cfg: &Path, n: usize, t0_ms: i64, step_ms: i64, queue: bool) -> V
     }
     times
 }
+
+/// Parse a document seepd wrote (SVG, or the report's XHTML-style HTML with its doctype) as
+/// XML; panics with the parser's message and the document if it is not well-formed.
+pub fn well_formed(doc: &str) -> roxmltree::Document<'_> {
+    let opt = roxmltree::ParsingOptions {
+        allow_dtd: true,
+        ..roxmltree::ParsingOptions::default()
+    };
+    roxmltree::Document::parse_with_options(doc, opt)
+        .unwrap_or_else(|e| panic!("not well-formed XML: {e}\n{doc}"))
+}

@@ -95,6 +95,7 @@ fn site_checks() {
         (6, "tip_elevation = nan", 6, "expected a finite number"),
         (7, "installed = \"2025-13-01\"", 7, "expected an RFC 3339 date"),
         (7, "installed = 2025-01-01T00:00:00", 7, "expected an RFC 3339 date"),
+        (7, "installed = \"2025-01-01\"\ncalibrated = \"last spring\"", 8, "key \"calibrated\" is \"last spring\", expected the date of the last calibration"),
         (8, "interval_s = 0", 8, "expected between 1 and"),
         (9, "range = [3000.0, 1000.0]", 9, "low < high"),
         (9, "range = [1.0]", 9, "expected [low, high]"),

@@ -27,7 +27,7 @@ fn a_weekly_and_a_monthly_schedule_load() {
         "{SITE}[[report]]\nid = \"w\"\nevery = \"weekly\"\nweekday = \"mon\"\nat = \"07:30\"\n\
          contacts = [\"file\"]\nout_dir = \"reports\"\n\
          [[report]]\nid = \"m\"\nevery = \"monthly\"\nday = 28\nat = \"23:05\"\n\
-         recipients = [\"a@example.invalid\"]\n"
+         recipients = [\"a@example.invalid\"]\nformats = [\"pdf\", \"csv\"]\n"
     );
     let cfg = load(&site).expect("valid");
     assert_eq!(cfg.reports.len(), 2);
@@ -41,6 +41,19 @@ fn a_weekly_and_a_monthly_schedule_load() {
         .is_some_and(|d| d.ends_with("reports") && d.is_absolute()));
     assert_eq!(cfg.reports[1].every, Every::Monthly(28));
     assert_eq!(cfg.reports[1].site, "s");
+    assert_eq!(
+        w.formats,
+        crate::config::Formats::default(),
+        "all by default"
+    );
+    assert_eq!(
+        cfg.reports[1].formats,
+        crate::config::Formats {
+            html: false,
+            pdf: true,
+            csv: true
+        }
+    );
 }
 
 #[test]
@@ -50,7 +63,8 @@ fn every_bad_key_is_a_located_problem() {
          recipients = [\"not an address\"]\nformat = \"pdf\"\n\
          [[report]]\nid = \"r\"\nevery = \"monthly\"\nday = 31\nweekday = \"mon\"\nat = \"06:00\"\n\
          contacts = [\"nobody\"]\n\
-         [[report]]\nid = \"q\"\nevery = \"weekly\"\nat = \"06:00\"\n"
+         [[report]]\nid = \"q\"\nevery = \"weekly\"\nat = \"06:00\"\n\
+         formats = [\"html\", \"docx\"]\n"
     );
     let p = load(&site).expect_err("problems");
     let has = |line: usize, text: &str| {
@@ -75,4 +89,8 @@ fn every_bad_key_is_a_located_problem() {
     );
     has(20, "missing key \"weekday\"");
     has(20, "no one receives this report");
+    has(
+        24,
+        "key \"formats\": unknown report format \"docx\"; expected html, pdf or csv",
+    );
 }

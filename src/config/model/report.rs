@@ -32,4 +32,93 @@ pub struct ReportSchedule {
     pub contacts: Vec<String>,
     /// Also keep the files here (relative paths resolved against the configuration directory).
     pub out_dir: Option<PathBuf>,
+    /// The documents attached (key `formats`; default: every format this build writes).
+    pub formats: Formats,
+}
+
+/// The documents a report is written as: any non-empty subset of HTML, PDF and CSV tables.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Formats {
+    pub html: bool,
+    /// Only with the `pdf` feature (parsing refuses it otherwise).
+    pub pdf: bool,
+    pub csv: bool,
+}
+
+impl Default for Formats {
+    /// Every format this build writes.
+    fn default() -> Self {
+        Formats {
+            html: true,
+            pdf: cfg!(feature = "pdf"),
+            csv: true,
+        }
+    }
+}
+
+impl Formats {
+    /// The format names, in the order documents are written.
+    pub const NAMES: [&'static str; 3] = ["html", "pdf", "csv"];
+
+    /// Formats from names (`html`, `pdf`, `csv`; repeats allowed).
+    ///
+    /// # Errors
+    /// An unknown name, `pdf` in a build without the `pdf` feature, or no name at all; the
+    /// message says what is expected.
+    pub fn from_names<'a>(names: impl IntoIterator<Item = &'a str>) -> Result<Formats, String> {
+        let mut f = Formats {
+            html: false,
+            pdf: false,
+            csv: false,
+        };
+        for n in names {
+            match n.trim().to_ascii_lowercase().as_str() {
+                "html" => f.html = true,
+                "pdf" if cfg!(feature = "pdf") => f.pdf = true,
+                "pdf" => {
+                    return Err(
+                        "this seepd was built without PDF output (feature \"pdf\"); expected html and/or csv"
+                            .into(),
+                    )
+                }
+                "csv" => f.csv = true,
+                "" => {}
+                other => {
+                    return Err(format!(
+                        "unknown report format {other:?}; expected html, pdf or csv"
+                    ))
+                }
+            }
+        }
+        if f == (Formats {
+            html: false,
+            pdf: false,
+            csv: false,
+        }) {
+            return Err("no report format given; expected html, pdf or csv".into());
+        }
+        Ok(f)
+    }
+}
+
+impl std::str::FromStr for Formats {
+    type Err = String;
+
+    /// A comma-separated list such as `html,pdf` (the `--format` argument).
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Formats::from_names(s.split(','))
+    }
+}
+
+impl std::fmt::Display for Formats {
+    /// The comma-separated list (`html,pdf,csv`), as `--format` reads it.
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let on = [self.html, self.pdf, self.csv];
+        let names: Vec<&str> = Formats::NAMES
+            .iter()
+            .zip(on)
+            .filter_map(|(n, on)| on.then_some(*n))
+            .collect();
+        f.write_str(&names.join(","))
+    }
 }
