@@ -246,6 +246,23 @@ pub enum Command {
         #[arg(long, value_name = "MODEL")]
         id: Option<String>,
     },
+    /// Record a hand-read value (a standpipe dipped, a readout box read): it goes through
+    /// the same reduction, rules and store as telemetry, flagged `manual`.
+    Record {
+        #[command(flatten)]
+        config: ConfigDir,
+        /// Instrument id.
+        instrument: String,
+        /// The value in the instrument's raw unit (what its logger would send).
+        #[arg(allow_negative_numbers = true)]
+        value: String,
+        /// When it was read (RFC 3339 or YYYY-MM-DD, UTC); default: now.
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+        time: Option<DateTime<Utc>>,
+        /// Who read it (default: the login name).
+        #[arg(long, value_name = "NAME")]
+        by: Option<String>,
+    },
     /// Manage the people who may sign in to the web pages (`[http]`).
     User {
         #[command(subcommand)]
@@ -280,6 +297,10 @@ pub enum UserAction {
     /// Add a user, or change their password (read from standard input, one line).
     Add {
         name: String,
+        /// `viewer` reads the pages; `responder` also acknowledges, silences and records
+        /// manual readings.
+        #[arg(long, default_value = "viewer")]
+        role: String,
         #[command(flatten)]
         on: Operator,
     },
@@ -314,7 +335,7 @@ impl UserAction {
 fn user(db: &Path, action: &UserAction) -> anyhow::Result<String> {
     use crate::web::user_cmd;
     match action {
-        UserAction::Add { name, .. } => user_cmd::add(db, name, &mut user_cmd::stdin()),
+        UserAction::Add { name, role, .. } => user_cmd::add(db, name, role, &mut user_cmd::stdin()),
         UserAction::Remove { name, .. } => user_cmd::remove(db, name),
         UserAction::List { .. } => user_cmd::list(db),
     }
@@ -601,6 +622,23 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
                 Ok(c) => Err(Exit(c).into()),
                 Err(_) => Err(Exit(1).into()),
             }
+        }
+        Command::Record {
+            config,
+            instrument,
+            value,
+            time,
+            by,
+        } => {
+            let cfg = load(&config)?;
+            let by = by.unwrap_or_else(crate::manual::login_name);
+            emit(&crate::manual::record_cmd(
+                &cfg,
+                &instrument,
+                &value,
+                time,
+                &by,
+            )?)
         }
         Command::User { action } => {
             let (db, _) = operator(action.on())?;

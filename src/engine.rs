@@ -243,12 +243,69 @@ impl Engine {
                 return out;
             }
         };
+        self.take_entries(msg, &fields, entries, Flags::empty(), out)
+    }
+
+    /// Process one hand-read value of `instrument` (in its raw unit) read at `time` and
+    /// entered at `entered`: the same checks, reduction, health and derived values as a
+    /// logger's reading, flagged `manual`. A reject is quarantined under topic
+    /// `manual/<instrument>` with the entry as payload.
+    pub fn process_manual(
+        &mut self,
+        instrument: &str,
+        value: f64,
+        time: DateTime<Utc>,
+        entered: DateTime<Utc>,
+        by: &str,
+    ) -> Outcome {
+        let msg = Message {
+            topic: format!("manual/{instrument}"),
+            payload: serde_json::json!({
+                "instrument": instrument, "value": value, "time": time.to_rfc3339(), "by": by,
+            })
+            .to_string()
+            .into_bytes(),
+            arrival: entered,
+            redelivered: false,
+        };
+        let entry = Decoded {
+            instrument: Some(instrument.to_string()),
+            channel: None,
+            time: Some(time),
+            value,
+            temperature_c: None,
+        };
+        self.take_entries(
+            &msg,
+            &TopicFields::default(),
+            vec![Ok(entry)],
+            Flags::MANUAL,
+            Outcome::default(),
+        )
+    }
+
+    /// Check, reduce and derive from decoded entries of `msg`, each flagged `extra` too.
+    fn take_entries(
+        &mut self,
+        msg: &Message,
+        fields: &TopicFields,
+        entries: crate::payload::decode::Entries,
+        extra: Flags,
+        mut out: Outcome,
+    ) -> Outcome {
+        let quarantine = |out: &mut Outcome, reject: Reject| {
+            out.quarantined.push(quarantine_row(msg, reject));
+        };
+        let cfg = Arc::clone(&self.cfg);
         // Map and check every entry; barometers first so that a message carrying both the
         // barometer and the gauges it corrects is reduced consistently.
         let mut accepted: Vec<(&Instrument, Decoded, i64, Flags)> = Vec::new();
         for entry in entries {
-            match entry.and_then(|d| self.admit(&cfg, &fields, d, msg.arrival)) {
-                Ok(a) => accepted.push(a),
+            match entry.and_then(|d| self.admit(&cfg, fields, d, msg.arrival)) {
+                Ok((i, d, t, mut flags)) => {
+                    flags.insert(extra);
+                    accepted.push((i, d, t, flags));
+                }
                 Err(reject) => quarantine(&mut out, reject),
             }
         }

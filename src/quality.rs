@@ -122,9 +122,11 @@ impl Flags {
     /// Stored, but kept out of every clock-driven state (rules, health, rates, derived values)
     /// so that its time cannot make the real readings after it look late.
     pub const TIME_AHEAD: Flags = Flags(1 << 6);
+    /// Read by hand and entered with `seepd record` or the web form, not sent by a logger.
+    pub const MANUAL: Flags = Flags(1 << 7);
 
     /// Names of the flags, for output and docs.
-    pub const NAMES: [(Flags, &'static str); 7] = [
+    pub const NAMES: [(Flags, &'static str); 8] = [
         (Flags::TIME_FROM_ARRIVAL, "time_from_arrival"),
         (Flags::BARO_MISSING, "baro_missing"),
         (Flags::TEMP_MISSING, "temp_missing"),
@@ -132,6 +134,7 @@ impl Flags {
         (Flags::FLATLINE, "flatline"),
         (Flags::THERMISTOR, "thermistor"),
         (Flags::TIME_AHEAD, "time_ahead"),
+        (Flags::MANUAL, "manual"),
     ];
 
     pub fn empty() -> Self {

@@ -6,7 +6,7 @@
 //! live in the database; alerts of removed rules are closed).
 //!
 //! What a running process cannot change — `[service]`, `[mqtt]`, the subscriptions, `[smtp]`,
-//! `[export]` — stays as started; a reload that changes them says so (a restart applies them).
+//! `[export]`, `[http]`, `[heartbeat]` — stays as started; a reload that changes them says so (a restart applies them).
 //! Owns the check and the swap; the signal is `service`'s, the writer loop `ingest::mqtt`'s.
 
 use std::path::Path;
@@ -40,6 +40,12 @@ fn restart_only(running: &Config, new: &Config) -> Vec<&'static str> {
     if differs(&running.export, &new.export) {
         out.push("[export]");
     }
+    if differs(&running.http, &new.http) {
+        out.push("[http]");
+    }
+    if differs(&running.heartbeat, &new.heartbeat) {
+        out.push("[heartbeat]");
+    }
     out
 }
 
@@ -56,6 +62,8 @@ pub fn check(dir: &Path, running: &Config) -> Result<(Config, Vec<&'static str>)
     new.subscriptions = running.subscriptions.clone();
     new.alerting.smtp = running.alerting.smtp.clone();
     new.export = running.export.clone();
+    new.http = running.http.clone();
+    new.heartbeat = running.heartbeat.clone();
     Ok((new, kept))
 }
 
@@ -92,5 +100,37 @@ pub fn apply(cfg: Arc<Config>, store: &mut Store, engine: &mut Engine, alerts: &
         Err(e) => {
             tracing::error!(error = %format!("{e:#}"), "Reload failed; the running configuration stays");
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn http_and_heartbeat_changes_wait_for_a_restart() {
+        let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("config");
+        let dir = tempfile::tempdir().unwrap();
+        for e in std::fs::read_dir(&src).unwrap() {
+            let p = e.unwrap().path();
+            if p.extension().is_some_and(|x| x == "toml") {
+                std::fs::copy(&p, dir.path().join(p.file_name().unwrap())).unwrap();
+            }
+        }
+        let running = load_dir(dir.path()).unwrap();
+        let service = dir.path().join("seepd.toml");
+        let mut text = std::fs::read_to_string(&service).unwrap();
+        text.push_str(
+            "\n[http]\nbind = \"127.0.0.1:18480\"\n\n[heartbeat]\ntopic = \"seepd/alive\"\n",
+        );
+        std::fs::write(&service, text).unwrap();
+        let (new, kept) = check(dir.path(), &running).unwrap();
+        assert_eq!(kept, vec!["[http]", "[heartbeat]"]);
+        assert!(
+            new.http.is_none() && new.heartbeat.is_none(),
+            "kept as running"
+        );
+        let (_, kept) = check(dir.path(), &load_dir(dir.path()).unwrap()).unwrap();
+        assert!(kept.is_empty(), "no change, nothing to report");
     }
 }

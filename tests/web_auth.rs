@@ -31,7 +31,7 @@ fn raise(rig: &Rig) {
 fn pages_need_a_session_and_changes_need_its_csrf_token() {
     let port = free_port();
     let rig = web::page_rig(port, "");
-    web::add_user(seepd_bin(), &rig.cfg, "alice", PASSWORD);
+    web::add_user(seepd_bin(), &rig.cfg, "alice", PASSWORD, "responder");
     raise(&rig);
 
     for path in ["/", "/alerts/1", "/instruments/AB-RIVER", "/quarantine"] {

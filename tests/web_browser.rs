@@ -39,7 +39,7 @@ fn save(b: &browser::Browser, name: &str, for_docs: bool) {
 fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     let r = web::mail_rig();
     let (dir, broker, smtp, cfg, port) = (&r.dir, &r.broker, &r.smtp, &r.cfg, r.port);
-    web::add_user(seepd_bin(), cfg, "alice", PASSWORD);
+    web::add_user(seepd_bin(), cfg, "alice", PASSWORD, "responder");
 
     // Two days of hourly river stage rising from 2.0 m to 5.6 m depth (95.6 m: watch level).
     let p = Publisher::connect(broker.port, "pub-web-browser");
@@ -100,6 +100,35 @@ fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     let src = b.source();
     assert!(!src.contains("not acknowledged"), "{src}");
     assert!(src.contains("alice"));
+
+    // A responder records a hand-read river level from the instrument page.
+    b.goto(&format!("{base}/instruments/AB-RIVER?days=3"));
+    b.type_into("#value", "5.7");
+    b.click("button[type=submit]");
+    let src = b.wait_text("Manual reading 1:");
+    assert!(src.contains("Manual reading 1: stored."), "{src}");
+    assert_eq!(
+        count(
+            dir.path(),
+            "readings",
+            "instrument = 'AB-RIVER' AND raw = 5.7 AND (flags & 128) != 0"
+        ),
+        1
+    );
+    assert!(b.fits_width(), "the instrument page fits a phone's width");
+    save(&b, "manual-phone.png", true);
+
+    // A viewer signs in on the same browser: no form, and the page says why.
+    web::add_user(seepd_bin(), cfg, "victor", PASSWORD, "viewer");
+    b.click("header button");
+    b.wait_text("Sign in");
+    b.goto(&format!("{base}/login?next=/instruments/AB-RIVER"));
+    b.type_into("#user", "victor");
+    b.type_into("#password", PASSWORD);
+    b.click("button[type=submit]");
+    let src = b.wait_text("needs the responder role");
+    assert!(!src.contains("id=\"value\""), "no manual form for a viewer");
+    assert_eq!(count(dir.path(), "manual_inbox", "1"), 1);
     drop(b);
 }
 
@@ -151,9 +180,36 @@ fn the_demo_flood_at_phone_width() {
     b.goto(&format!("{base}/alerts/{first}"));
     b.wait_text("History");
     assert!(b.fits_width(), "the alert page fits a phone's width");
+    save(&b, "demo-river-alert-phone.png", false);
+    // An alert on a derived value (the toe's factor of safety): its own plot, then the heads it
+    // was computed from beside the river.
+    let toe: i64 = db(rig.path())
+        .query_row(
+            "SELECT min(id) FROM alerts WHERE object = 'AB-TOE-1'",
+            [],
+            |r| r.get(0),
+        )
+        .expect("the flood raised a toe alert");
+    b.goto(&format!("{base}/alerts/{toe}"));
+    let src = b.wait_text("Related heads");
+    assert_eq!(src.matches("<svg").count(), 2, "two charts");
+    let related = &src[src.find("Related heads").unwrap()..];
+    assert!(
+        related.contains("AB-PZ-1B") && related.contains("AB-RIVER water level"),
+        "{related}"
+    );
+    assert!(b.fits_width(), "the alert page fits a phone's width");
     save(&b, "demo-alert-phone.png", true);
     b.goto(&format!("{base}/instruments/AB-PZ-1B?days=3"));
     b.wait_text("Raw value");
     assert!(b.fits_width(), "the instrument page fits a phone's width");
     save(&b, "demo-instrument-phone.png", false);
+    b.goto(&format!("{base}/section/TH-S1"));
+    let src = b.wait_text("Section TH-S1");
+    assert!(
+        src.contains("<svg") && !src.contains("No drawing yet"),
+        "{src}"
+    );
+    assert!(b.fits_width(), "the section page fits a phone's width");
+    save(&b, "demo-section-phone.png", true);
 }

@@ -1,7 +1,8 @@
 //! Health, readiness and metrics with the real binary and a real Mosquitto: `/metrics` parsed
 //! by the Python `prometheus_client` text parser (as a scraper would), its values following
-//! readings and quarantined input as they arrive; `/readyz` failing while the broker is down
-//! and recovering after; none of them needing a sign-in (which the pages do).
+//! readings and quarantined input as they arrive; `/readyz` ready through a short reconnect,
+//! failing while the broker stays down and recovering after; none of them needing a sign-in
+//! (which the pages do).
 
 mod common;
 #[path = "common/web.rs"]
@@ -66,7 +67,7 @@ fn metric(m: &BTreeMap<String, f64>, key: &str) -> f64 {
 #[test]
 fn health_ready_and_metrics_follow_readings_and_the_broker() {
     let port = free_port();
-    let mut rig = web::page_rig(port, "");
+    let mut rig = web::page_rig(port, "ready_reconnect_s = 4");
 
     // Pages need a sign-in; health endpoints do not.
     let a = web::get(port, "/", None);
@@ -114,8 +115,15 @@ fn health_ready_and_metrics_follow_readings_and_the_broker() {
     assert_eq!(metric(&m, "seepd_outbox_messages{state=dead}"), 0.0);
     assert_eq!(metric(&m, "seepd_database_readable{}"), 1.0);
 
-    // The broker stops: not ready, and the metric says so; it comes back: ready again.
+    // The broker stops: ready while reconnecting for less than 4 s, then not ready, and the
+    // metric says so; it comes back: ready again.
     rig.broker.stop();
+    let short = wait_for(Duration::from_secs(20), || {
+        let a = web::get(port, "/readyz", None);
+        a.body.contains("reconnecting for").then_some(a)
+    })
+    .expect("/readyz never said reconnecting");
+    assert_eq!(short.status, 200, "{}", short.body);
     let down = wait_for(Duration::from_secs(20), || {
         let a = web::get(port, "/readyz", None);
         (a.status == 503).then_some(a)
@@ -157,4 +165,20 @@ fn a_bad_http_table_is_refused_with_file_and_line() {
     assert!(all.contains("public_base_url \"ftp://x\""), "{all}");
     assert!(all.contains("allow_anonymous"), "{all}");
     assert!(all.contains("colour"), "{all}");
+}
+
+/// A seepd whose broker is not there at start is not ready (nothing is being received), even
+/// within `ready_reconnect_s`: the grace is for a reconnect, not for a first connection.
+#[test]
+fn not_ready_before_the_first_connection() {
+    let dir = tempfile::tempdir().unwrap();
+    let port = free_port();
+    let cfg = example_config(dir.path(), free_port());
+    web::add_http(&cfg, port, "ready_reconnect_s = 600");
+    let _d = Daemon::start(&cfg, &dir.path().join("seepd.log"));
+    web::wait_up(port);
+    let a = web::get(port, "/readyz", None);
+    assert_eq!(a.status, 503, "{}", a.body);
+    assert!(a.body.contains("NOT CONNECTED yet"), "{}", a.body);
+    assert_eq!(web::get(port, "/healthz", None).status, 200);
 }

@@ -31,6 +31,9 @@ pub struct Http {
     /// `/readyz` fails when the last commit is older than this (s); `None`: commit age is shown
     /// but not judged (a quiet network is not a fault by itself).
     pub ready_commit_age_s: Option<u64>,
+    /// `/readyz` stays ready while the broker link is down and being retried for less than
+    /// this (s): a short reconnect is not an outage.
+    pub ready_reconnect_s: u64,
 }
 
 impl Http {
@@ -49,6 +52,7 @@ struct Raw {
     allow_anonymous: bool,
     ack_link_valid_h: Option<Int<1, { limits::YEAR_S / 3600 }>>,
     ready_commit_age_s: Option<Int<1, { limits::YEAR_S }>>,
+    ready_reconnect_s: Option<Int<0, 3600>>,
 }
 
 /// Read `[http]`; `None` (with problems recorded) when anything is wrong.
@@ -83,6 +87,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Http> {
         allow_anonymous: raw.allow_anonymous,
         ack_link_valid_h: raw.ack_link_valid_h.map_or(72, |h| h.0 as u32),
         ready_commit_age_s: raw.ready_commit_age_s.map(Int::u64),
+        ready_reconnect_s: raw.ready_reconnect_s.map_or(30, Int::u64),
     };
     (cx.problems.len() == before).then_some(http)
 }

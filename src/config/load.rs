@@ -152,6 +152,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         smtp,
         export,
         http,
+        heartbeat,
     }) = service
     else {
         return Err(one(&service_path, "service file could not be read"));
@@ -172,6 +173,7 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
         trends,
         reports: Vec::new(),
         http,
+        heartbeat,
     };
     let mut alerting = Vec::new();
     for (_, sf) in sites {

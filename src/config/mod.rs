@@ -8,6 +8,7 @@
 pub mod alerting;
 mod de;
 mod export;
+pub mod heartbeat;
 pub mod http;
 mod kinds;
 pub mod limits;

@@ -44,6 +44,8 @@ pub struct Config {
     pub reports: Vec<ReportSchedule>,
     /// The on-call web pages (`[http]`), when configured.
     pub http: Option<crate::config::http::Http>,
+    /// How seepd's own silence is noticed (`[heartbeat]`), when configured.
+    pub heartbeat: Option<crate::config::heartbeat::Heartbeat>,
 }
 
 impl Config {

@@ -28,6 +28,8 @@ pub(crate) struct ServiceFile {
     pub smtp: Option<super::alerting::Smtp>,
     /// The on-call web pages (`[http]`, read by `web::config`), when present and valid.
     pub http: Option<crate::config::http::Http>,
+    /// `[heartbeat]`, when present and valid.
+    pub heartbeat: Option<super::heartbeat::Heartbeat>,
 }
 
 /// Where the loader looks up environment variables (the process environment, or a test's map).
@@ -68,7 +70,15 @@ pub(crate) fn existing_file(
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) -> ServiceFile {
     root.check_keys(
         cx,
-        &["service", "mqtt", "subscription", "smtp", "export", "http"],
+        &[
+            "service",
+            "mqtt",
+            "subscription",
+            "smtp",
+            "export",
+            "http",
+            "heartbeat",
+        ],
     );
     let service = match root.sub(cx, "service", "[service]") {
         Some(mut t) => {
@@ -122,6 +132,10 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
         t.what = "[http]".into();
         crate::config::http::read(cx, &t)
     });
+    let heartbeat = root.sub(cx, "heartbeat", "[heartbeat]").and_then(|mut t| {
+        t.what = "[heartbeat]".into();
+        super::heartbeat::read(cx, Some(&t), smtp.is_some())
+    });
     ServiceFile {
         service,
         export,
@@ -129,6 +143,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
         subscriptions,
         smtp,
         http,
+        heartbeat,
     }
 }
 

@@ -152,6 +152,7 @@ fn demo_http() -> anyhow::Result<crate::config::http::Http> {
         allow_anonymous: true,
         ack_link_valid_h: 72,
         ready_commit_age_s: None,
+        ready_reconnect_s: 30,
     })
 }
 

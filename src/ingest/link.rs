@@ -22,6 +22,9 @@ pub struct LinkState {
     /// `host:port` of the broker.
     pub broker: String,
     pub connected: bool,
+    /// Whether the link has been up at least once since start (a link down before its first
+    /// connection is not a reconnect in progress).
+    pub ever_connected: bool,
     /// When the link last changed between connected and not (ms since the epoch).
     pub since_ms: i64,
     /// Failed connection attempts since the link was last up.
@@ -64,6 +67,7 @@ impl LinkState {
         Arc::new(Mutex::new(LinkState {
             broker: format!("{}:{}", m.host, m.port),
             connected: false,
+            ever_connected: false,
             since_ms: now.timestamp_millis(),
             attempts: 0,
             reconnects: 0,
@@ -117,6 +121,7 @@ impl Link {
         let reconnects = self.connects - 1;
         self.update(|s| {
             s.connected = true;
+            s.ever_connected = true;
             s.since_ms = now.timestamp_millis();
             s.attempts = 0;
             s.reconnects = reconnects;

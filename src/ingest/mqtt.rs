@@ -90,7 +90,11 @@ pub async fn run(
     link_state: SharedLink,
     shutdown: Shutdown,
 ) -> anyhow::Result<()> {
-    let options = mqtt_options(&cfg.mqtt)?;
+    let mut options = mqtt_options(&cfg.mqtt)?;
+    crate::heartbeat::set_will(&mut options, &cfg);
+    let beat_every = crate::heartbeat::every(&cfg);
+    let mut beat = tokio::time::interval(beat_every.unwrap_or(Duration::from_secs(3600)));
+    beat.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
     let (client, mut eventloop) = AsyncClient::new(options, REQUEST_QUEUE);
     let (tx, rx) = mpsc::unbounded_channel::<Arrived>();
     let flow = Arc::new(Flow::default());
@@ -141,6 +145,9 @@ pub async fn run(
             _ = tokio::time::sleep_until(retry_at.unwrap_or_else(far)), if retry_at.is_some() => {
                 retry_at = None;
             }
+            _ = beat.tick(), if beat_every.is_some() && !stopping && link.connected() => {
+                crate::heartbeat::beat(&client, &cfg, "running");
+            }
             // While stopping with the link down there is nothing to flush: no new attempts.
             ev = eventloop.poll(), if retry_at.is_none() && (!stopping || link.connected()) => match ev {
                 Ok(Event::Incoming(Packet::ConnAck(ack))) => {
@@ -151,6 +158,7 @@ pub async fn run(
                     if !ack.session_present {
                         subscribe(&client, &cfg);
                     }
+                    crate::heartbeat::beat(&client, &cfg, "running");
                 }
                 Ok(Event::Incoming(Packet::Publish(publish))) => {
                     // While stopping (tx gone) a message is neither stored nor acknowledged:
@@ -193,6 +201,8 @@ pub async fn run(
     // The acks are queued ahead of the disconnect; poll until it has gone out (within the
     // deadline).
     if link.connected() {
+        // A clean stop: say so (the broker sends the will only when the link breaks).
+        crate::heartbeat::beat(&client, &cfg, "stopped");
         let _ = client.try_disconnect();
         let end = deadline
             .unwrap_or_else(|| tokio::time::Instant::now() + Duration::from_secs(2))

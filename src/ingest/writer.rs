@@ -267,9 +267,67 @@ impl Writer {
         true
     }
 
+    /// Take the manual readings waiting in the inbox through the engine and the rules, each
+    /// committed with its mark (so it is taken once) and its result in words. A commit is
+    /// retried like a batch's; at shutdown the rest stay waiting for the next start.
+    fn take_manual(&mut self) {
+        let waiting = match self.store.waiting_manual() {
+            Ok(w) => w,
+            Err(e) => {
+                tracing::warn!(error = %e, "Cannot read the manual-reading inbox");
+                return;
+            }
+        };
+        for m in waiting {
+            let now = Utc::now();
+            let time = DateTime::from_timestamp_millis(m.t_ms).unwrap_or(now);
+            let entered = DateTime::from_timestamp_millis(m.entered_ms).unwrap_or(now);
+            let mut out = self
+                .engine
+                .process_manual(&m.instrument, m.value, time, entered, &m.by);
+            // The writer's engine is in batch mode: close this one-entry batch (its rates).
+            out.append(self.engine.end_batch());
+            let aw = self.alerts.evaluate_outcome(&out);
+            self.alerts.before_commit(&aw);
+            let quarantined = out
+                .quarantined
+                .first()
+                .map(|q| format!("{}: {}", q.reason.code(), q.detail));
+            let mut backoff = crate::backoff::Backoff::commit();
+            let stats = loop {
+                match self.store.write_manual(
+                    &out.readings,
+                    &out.derived,
+                    &out.quarantined,
+                    &out.flag_updates,
+                    &aw,
+                    m.id,
+                    quarantined.as_deref(),
+                    now.timestamp_millis(),
+                ) {
+                    Ok(s) => break s,
+                    Err(e) => {
+                        tracing::error!(error = %e, "Commit of a manual reading failed; retrying");
+                        self.watchdog.ping();
+                        if self.shutdown.sleep_blocking(backoff.fail()) {
+                            return;
+                        }
+                    }
+                }
+            };
+            self.alerts.committed(&aw);
+            self.counters.add(0, &stats);
+            tracing::info!(instrument = %m.instrument, value = m.value, by = %m.by, new = stats.inserted, duplicate = stats.duplicates, quarantined = stats.quarantined, "Manual reading taken");
+        }
+    }
+
     /// Between batches: the rules' timers, and the link state for `seepd status` when it changed.
     fn idle(&mut self, recorded: &mut Option<crate::ingest::link::LinkState>) {
         self.watchdog.ping();
+        self.take_manual();
+        if let Err(e) = crate::heartbeat::daily_email(&self.cfg, &mut self.store, Utc::now()) {
+            tracing::warn!(error = %e, "Cannot queue the daily heartbeat email");
+        }
         self.alerts.tick(&mut self.store, &self.shutdown);
         let now = match self.link.lock() {
             Ok(g) => g.clone(),

@@ -11,6 +11,7 @@ mod duplicates;
 pub mod export;
 mod models;
 pub mod outbox;
+pub mod pages;
 pub mod report_reads;
 pub mod reports;
 mod schema;
@@ -241,6 +242,51 @@ impl Store {
         flag_updates: &[FlagUpdate],
         alerts: &AlertWrites,
     ) -> Result<BatchStats, StoreError> {
+        self.write_all(readings, derived, quarantined, flag_updates, alerts, None)
+    }
+
+    /// `write_batch_flagged` for one manual reading taken from the inbox: entry `inbox` is
+    /// marked taken at `now_ms` in the same transaction (so it is stored once), with its result:
+    /// `rejected` (the engine's quarantine reason) when set, else what the insert found.
+    ///
+    /// # Errors
+    /// SQLite errors; nothing of the batch is stored then, and the entries stay waiting.
+    #[allow(clippy::too_many_arguments)]
+    pub fn write_manual(
+        &mut self,
+        readings: &[ReadingRow],
+        derived: &[DerivedRow],
+        quarantined: &[QuarantineRow],
+        flag_updates: &[FlagUpdate],
+        alerts: &AlertWrites,
+        inbox: i64,
+        rejected: Option<&str>,
+        now_ms: i64,
+    ) -> Result<BatchStats, StoreError> {
+        let done = pages::ManualDone {
+            id: inbox,
+            rejected,
+            now_ms,
+        };
+        self.write_all(
+            readings,
+            derived,
+            quarantined,
+            flag_updates,
+            alerts,
+            Some(done),
+        )
+    }
+
+    fn write_all(
+        &mut self,
+        readings: &[ReadingRow],
+        derived: &[DerivedRow],
+        quarantined: &[QuarantineRow],
+        flag_updates: &[FlagUpdate],
+        alerts: &AlertWrites,
+        manual: Option<pages::ManualDone<'_>>,
+    ) -> Result<BatchStats, StoreError> {
         let tx = self.conn.transaction()?;
         let mut stats = BatchStats::default();
         let mut conflicts = Vec::new();
@@ -341,6 +387,9 @@ impl Store {
             }
         }
         alerts::write(&tx, alerts)?;
+        if let Some(m) = manual {
+            pages::mark_manual(&tx, &m, &stats)?;
+        }
         tx.commit()?;
         for (instrument, c) in &conflicts {
             if self.conflicts_logged.insert(instrument.to_string()) {

@@ -236,6 +236,27 @@ const MIGRATIONS: &[&str] = &[
     // message about an alert refers to that alert's thread id, so a phone shows the raise, the
     // escalations and the all-clear as one conversation.
     "ALTER TABLE outbox ADD COLUMN thread_refs TEXT NOT NULL DEFAULT '';",
+    // 11: web users (made on first use by earlier builds, hence IF NOT EXISTS) get a role;
+    // those already there keep acting as before (responder). Manual readings wait in an inbox
+    // for the service's writer, which takes them through the engine and marks them done in
+    // the transaction that stores them.
+    "CREATE TABLE IF NOT EXISTS web_users (
+        name TEXT PRIMARY KEY,
+        hash TEXT NOT NULL,
+        created_ms INTEGER NOT NULL
+    );
+    ALTER TABLE web_users ADD COLUMN role TEXT NOT NULL DEFAULT 'responder';
+    CREATE TABLE manual_inbox (
+        id INTEGER PRIMARY KEY,
+        instrument TEXT NOT NULL,
+        value REAL NOT NULL,
+        t_ms INTEGER NOT NULL,
+        by TEXT NOT NULL,
+        entered_ms INTEGER NOT NULL,
+        done_ms INTEGER,
+        result TEXT
+    );
+    CREATE INDEX manual_inbox_waiting ON manual_inbox (done_ms);",
 ];
 
 /// The schema version this build writes.

@@ -36,7 +36,7 @@ async fn checked(
     web: &Shared,
     token: &str,
     frame: &Frame<'_>,
-) -> Result<(AckClaim, super::db::Alert), Response> {
+) -> Result<(AckClaim, crate::store::pages::AlertRecord), Response> {
     let now_s = Utc::now().timestamp();
     let claim = match web.key.verify(token, now_s) {
         Ok(c) => c,
@@ -66,7 +66,7 @@ async fn checked(
         }
     };
     let id = claim.alert;
-    let alert = match web.read(move |s| Ok(super::db::alert(s.conn(), id)?)).await {
+    let alert = match web.read(move |s| Ok(s.alert(id)?)).await {
         Ok(Some(a)) => a,
         Ok(None) => {
             return Err(html::message(
@@ -94,7 +94,7 @@ async fn checked(
     Ok((claim, alert))
 }
 
-fn summary(web: &Web, a: &super::db::Alert) -> String {
+fn summary(web: &Web, a: &crate::store::pages::AlertRecord) -> String {
     let tz = web.tz(&a.site);
     let units = web.units(&a.site);
     let now_ms = Utc::now().timestamp_millis();

@@ -14,9 +14,7 @@ use chrono::Utc;
 use serde::Deserialize;
 
 use super::html::{self, escape};
-use super::instrument::{self, beyond};
-use super::{words, Shared};
-use crate::report::chart::{self, Chart, LevelLine, Series};
+use super::{chart, words, Shared};
 
 /// The plot on the alert page covers this many days before now.
 const PLOT_DAYS: i64 = 3;
@@ -29,25 +27,56 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
     };
     let now_ms = Utc::now().timestamp_millis();
     let span_ms = PLOT_DAYS * 86_400_000;
+    let stage_web = std::sync::Arc::clone(&web);
     let data = web
         .read(move |s| {
-            let Some(a) = super::db::alert(s.conn(), id)? else {
+            let Some(a) = s.alert(id)? else {
                 return Ok(None);
             };
             let events = s.alert_events(id)?;
+            let stage = chart::stage_for(&stage_web, &a.object);
             // The plot ends now; when nothing was stored in its period, at the alert's last
             // event (so that the values behind it are shown).
-            let mut end_ms = now_ms + 1;
-            let mut points =
-                instrument::series(s, &a.object, &a.quantity, end_ms - span_ms, end_ms)?;
-            if let (true, Some(e)) = (points.is_empty(), events.last()) {
-                end_ms = e.t_ms + 3_600_000;
-                points = instrument::series(s, &a.object, &a.quantity, end_ms - span_ms, end_ms)?;
+            let end_ms = now_ms + 1;
+            let mut plot = chart::read(
+                s,
+                &a.object,
+                &a.quantity,
+                stage.as_deref(),
+                (end_ms - span_ms, end_ms),
+            )?;
+            if let (true, Some(e)) = (plot.is_empty(), events.last()) {
+                let end_ms = e.t_ms + 3_600_000;
+                plot = chart::read(
+                    s,
+                    &a.object,
+                    &a.quantity,
+                    stage.as_deref(),
+                    (end_ms - span_ms, end_ms),
+                )?;
             }
-            Ok(Some((a, events, points, end_ms)))
+            // A derived value: the heads it was computed from, beside the stage.
+            let inputs: Vec<String> = s
+                .derived_inputs(&a.object, &a.quantity)?
+                .into_iter()
+                .filter(|i| stage.as_deref() != Some(i.as_str()))
+                .collect();
+            let heads = if inputs.is_empty() {
+                None
+            } else {
+                let period = (plot.from_ms, plot.to_ms);
+                Some(chart::read_many(
+                    s,
+                    &inputs,
+                    "total_head",
+                    stage.as_deref(),
+                    period,
+                )?)
+            };
+            Ok(Some((a, events, plot, heads)))
         })
         .await;
-    let (a, events, points, end_ms) = match data {
+    let (a, events, plot, heads) = match data {
         Ok(Some(x)) => x,
         Ok(None) => {
             return html::message(
@@ -151,49 +180,27 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
     );
 
     if a.resolved_ms.is_none() {
-        forms(&mut b, &viewer, &a);
+        let may = web.may_change(&viewer).await;
+        forms(&mut b, &viewer, may, &a);
     }
 
-    let levels = rule.map_or_else(Vec::new, |r| {
-        r.spec
-            .levels
-            .iter()
-            .filter(|l| {
-                l.bound.is_finite() && r.spec.check == crate::domain::rules::Check::Threshold
-            })
-            .map(|l| LevelLine {
-                label: l.name.clone(),
-                value: l.bound,
-                beyond: beyond(l.direction),
-            })
-            .collect()
-    });
-    let svg = chart::render(&Chart {
-        title: format!(
-            "{} — {}, {PLOT_DAYS} days",
-            a.object,
-            web.quantity_name(&a.object, &a.quantity)
-        ),
-        y_label: a.unit.clone(),
-        series: vec![Series {
-            label: web.quantity_name(&a.object, &a.quantity),
-            points,
-        }],
-        stage: None,
-        levels,
-        stage_axis: String::new(),
-        cap: None,
-        zero_line: false,
-        from_ms: end_ms - span_ms,
-        to_ms: end_ms,
-        tz,
-    });
+    let end_ms = plot.to_ms;
+    let title = format!(
+        "{} — {}, {PLOT_DAYS} days",
+        a.object,
+        web.quantity_name(&a.object, &a.quantity)
+    );
+    let svg = chart::render(&web, plot, title);
     let heading = if end_ms > now_ms {
         format!("Last {PLOT_DAYS} days")
     } else {
         format!("The {PLOT_DAYS} days to its last event")
     };
     let _ = write!(b, "<h2>{heading}</h2>{svg}");
+    if let Some(h) = heads {
+        let title = format!("{} — heads it is computed from", a.object);
+        let _ = write!(b, "<h2>Related heads</h2>{}", chart::render(&web, h, title));
+    }
 
     let rows: Vec<Vec<String>> = events
         .iter()
@@ -233,11 +240,20 @@ fn object_link(web: &super::Web, object: &str) -> String {
     }
 }
 
-fn forms(b: &mut String, viewer: &super::auth::Viewer, a: &super::db::Alert) {
+fn forms(
+    b: &mut String,
+    viewer: &super::auth::Viewer,
+    may_change: bool,
+    a: &crate::store::pages::AlertRecord,
+) {
     let Some(s) = &viewer.session else {
         b.push_str("<p class=\"noprint\"><a href=\"/login\">Sign in</a> to acknowledge or silence, or use the link in the alert email.</p>");
         return;
     };
+    if !may_change {
+        b.push_str("<p class=\"noprint note\">You may read this page; acknowledging and silencing need the responder role (or the link in the alert email).</p>");
+        return;
+    }
     let csrf = html::csrf_field(&s.csrf);
     if a.acked_ms.is_none() {
         let _ = write!(
@@ -278,7 +294,7 @@ pub async fn ack(
     headers: HeaderMap,
     Form(f): Form<AckForm>,
 ) -> Response {
-    let session = match web.check_post(&headers, &f.csrf) {
+    let session = match web.check_change(&headers, &f.csrf).await {
         Ok(s) => s,
         Err(r) => return r,
     };
@@ -312,15 +328,16 @@ pub async fn silence(
     headers: HeaderMap,
     Form(f): Form<SilenceForm>,
 ) -> Response {
-    let session = match web.check_post(&headers, &f.csrf) {
+    let session = match web.check_change(&headers, &f.csrf).await {
         Ok(s) => s,
         Err(r) => return r,
     };
     let cfg = std::sync::Arc::clone(&web.cfg);
     let user = session.user.clone();
     let done = tokio::task::spawn_blocking(move || -> anyhow::Result<String> {
-        let store = super::db::open(&cfg.service.database)?;
-        let a = super::db::alert(store.conn(), id)?
+        let store = crate::store::Store::open(&cfg.service.database)?;
+        let a = store
+            .alert(id)?
             .ok_or_else(|| anyhow::anyhow!("there is no alert {id}"))?;
         drop(store);
         let args = crate::alerts::commands::SilenceArgs {

@@ -18,6 +18,7 @@ use serde::Deserialize;
 
 use super::html::{self, escape, Frame};
 use super::{Shared, Web};
+use crate::store::pages::Role;
 
 /// Name of the session cookie.
 const COOKIE: &str = "seepd_session";
@@ -147,6 +148,59 @@ impl Web {
             return Err(refuse_csrf());
         }
         Ok(s)
+    }
+
+    /// A form POST that changes something (acknowledge, silence, manual reading): as
+    /// `check_post`, and the user's role, read from the database now (a role taken away or a
+    /// user removed counts at once), must be responder; otherwise 403.
+    pub async fn check_change(&self, headers: &HeaderMap, csrf: &str) -> Result<Session, Response> {
+        let s = self.check_post(headers, csrf)?;
+        let user = s.user.clone();
+        let role = self
+            .read(move |st| Ok(st.user(&user)?.map(|(_, r)| r)))
+            .await;
+        match role {
+            Ok(Some(Role::Responder)) => Ok(s),
+            Ok(_) => {
+                tracing::warn!(user = %s.user, "Web change refused: the user is not a responder");
+                Err(html::message(
+                    StatusCode::FORBIDDEN,
+                    "Not allowed",
+                    &format!(
+                        "{} may read these pages but not change anything (role viewer). Ask an \
+                         administrator for the responder role (seepd user add --role responder).",
+                        s.user
+                    ),
+                    &Frame {
+                        user: Some(&s.user),
+                        sign_in: true,
+                        csrf: Some(&s.csrf),
+                    },
+                ))
+            }
+            Err(e) => Err(super::failed(
+                &e,
+                &Frame {
+                    user: Some(&s.user),
+                    sign_in: true,
+                    csrf: Some(&s.csrf),
+                },
+            )),
+        }
+    }
+
+    /// Whether the signed-in user of `viewer` may change things (for showing the forms; the
+    /// POSTs check again).
+    pub async fn may_change(&self, viewer: &Viewer) -> bool {
+        let Some(s) = &viewer.session else {
+            return false;
+        };
+        let user = s.user.clone();
+        matches!(
+            self.read(move |st| Ok(st.user(&user)?.map(|(_, r)| r)))
+                .await,
+            Ok(Some(Role::Responder))
+        )
     }
 
     /// Refuse a POST whose `Origin` (or, without one, `Referer`) is another site.
@@ -292,8 +346,8 @@ pub async fn login(
     let password = f.password;
     let u2 = user.clone();
     let ok = tokio::task::spawn_blocking(move || {
-        let store = super::db::open(&db).ok()?;
-        let hash = super::db::user_hash(store.conn(), &u2).ok()??;
+        let store = crate::store::Store::open(&db).ok()?;
+        let (hash, _) = store.user(&u2).ok()??;
         Some(password_ok(&password, &hash))
     })
     .await

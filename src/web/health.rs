@@ -1,6 +1,7 @@
-//! `/healthz` (the process answers), `/readyz` (broker connected, database writable, last
-//! commit age within `[http] ready_commit_age_s` when set) and `/metrics` (Prometheus text
-//! format, version 0.0.4). No sign-in; nothing secret in them.
+//! `/healthz` (the process answers), `/readyz` (broker connected or reconnecting for less than
+//! `[http] ready_reconnect_s`, database writable, last commit age within `[http]
+//! ready_commit_age_s` when set) and `/metrics` (Prometheus text format, version 0.0.4). No
+//! sign-in; nothing secret in them.
 //!
 //! Owns the metric names and the readiness rule.
 
@@ -23,20 +24,29 @@ pub async fn healthz() -> Response {
 pub async fn readyz(State(web): State<Shared>) -> Response {
     let now_ms = Utc::now().timestamp_millis();
     let link = web.link_state();
-    let writable = web.read(|s| Ok(super::db::writable(s.conn())?)).await;
+    let writable = web.read(|s| Ok(s.writable()?)).await;
     let age = web.commit_age_s(now_ms);
-    let mut ready = link.connected && writable.is_ok();
+    // A link that was up and has been down for less than `ready_reconnect_s` is a reconnect in
+    // progress, not an outage. Before its first connection seepd is not ready: nothing is
+    // being received yet.
+    let down_s = (now_ms - link.since_ms).max(0) / 1000;
+    let reconnecting =
+        link.ever_connected && !link.connected && down_s < web.http.ready_reconnect_s as i64;
+    let mut ready = (link.connected || reconnecting) && writable.is_ok();
     let mut body = String::new();
-    let _ = writeln!(
-        body,
-        "broker: {} ({})",
-        if link.connected {
-            "connected"
-        } else {
-            "NOT CONNECTED"
-        },
-        link.broker
-    );
+    let state = if link.connected {
+        "connected".to_string()
+    } else if reconnecting {
+        format!(
+            "reconnecting for {down_s} s (ready up to {} s)",
+            web.http.ready_reconnect_s
+        )
+    } else if !link.ever_connected {
+        format!("NOT CONNECTED yet, {down_s} s since start")
+    } else {
+        format!("NOT CONNECTED for {down_s} s")
+    };
+    let _ = writeln!(body, "broker: {state} ({})", link.broker);
     match &writable {
         Ok(()) => body.push_str("database: writable\n"),
         Err(e) => {
@@ -100,8 +110,8 @@ pub async fn metrics(State(web): State<Shared>) -> Response {
                 }
             }
             Ok(FromDb {
-                quarantined_24h: super::db::quarantined_since(s.conn(), now_ms - 86_400_000)?,
-                outbox: super::db::outbox_counts(s.conn())?,
+                quarantined_24h: s.quarantined_since(now_ms - 86_400_000)?,
+                outbox: s.outbox_counts()?,
                 backlog: export::backlog(s.conn())?,
                 alerts,
             })

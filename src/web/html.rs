@@ -31,7 +31,7 @@ ul.alerts{list-style:none;padding:0;margin:.3rem 0}ul.alerts li{padding:.45rem 0
 form{margin:.4rem 0}label{display:block;margin:.35rem 0 .1rem;font-weight:600}\
 input,select,textarea{font-size:1rem;padding:.45rem;width:100%;max-width:28rem;border:1px solid #888;border-radius:.3rem}\
 button{font-size:1.05rem;padding:.55rem 1.1rem;margin-top:.5rem;border-radius:.3rem;border:1px solid #1f3a4d;background:#1f3a4d;color:#fff}\
-svg.chart{width:100%;height:auto;background:#fff}\
+svg.chart,.drawing svg{width:100%;height:auto;background:#fff}\
 .caution{font-size:.85rem;color:#444;border-top:1px solid #ccc;margin-top:1.5rem;padding-top:.5rem}\
 @media (max-width:40rem){th,td{padding:.25rem .3rem;font-size:.9rem}.wide{display:none}}\
 @media print{header,form,.noprint{display:none}body{background:#fff}.card{border:1px solid #999}a{color:#000;text-decoration:none}}";

@@ -1,7 +1,7 @@
 //! The instrument page: the latest reading with its raw value, the reduction (engineering
 //! value, pore pressure, total head, temperature and barometer used) and flags; a plot of the
 //! total head (or the engineering value) over a selectable period; the rules on it and their
-//! levels. Also `series`, the stored values of any (object, quantity) for plots.
+//! levels.
 //!
 //! Owns that page.
 
@@ -14,51 +14,16 @@ use chrono::Utc;
 use serde::Deserialize;
 
 use super::html::{self, escape};
-use super::{words, Shared};
-use crate::report::chart::{self, Chart, LevelLine, Series};
-use crate::store::Store;
+use super::{chart, words, Shared};
 
 /// Periods offered for the plot, in days.
 const PERIODS: [i64; 5] = [1, 3, 7, 30, 90];
 
-/// Stored values of `quantity` of `object` with `from_ms <= t < to_ms`: reading columns for
-/// an instrument's own quantities, the derived table for anything else.
-///
-/// # Errors
-/// SQLite errors.
-pub fn series(
-    s: &Store,
-    object: &str,
-    quantity: &str,
-    from_ms: i64,
-    to_ms: i64,
-) -> anyhow::Result<Vec<(i64, f64)>> {
-    let pick: Option<fn(&super::db::Reading) -> Option<f64>> = match quantity {
-        "total_head" => Some(|r| r.total_head_m),
-        "engineering_value" => Some(|r| Some(r.eng_value)),
-        "pressure" => Some(|r| r.pressure_kpa),
-        _ => None,
-    };
-    Ok(match pick {
-        Some(f) => super::db::readings_between(s.conn(), object, from_ms, to_ms)?
-            .iter()
-            .filter_map(|r| f(r).map(|v| (r.t_ms, v)))
-            .collect(),
-        None => super::db::derived_between(s.conn(), object, quantity, from_ms, to_ms)?,
-    })
-}
-
-/// The shading side of a rule level's line on a chart.
-pub fn beyond(d: crate::domain::rules::Direction) -> crate::report::chart::Beyond {
-    match d {
-        crate::domain::rules::Direction::Above => crate::report::chart::Beyond::Above,
-        crate::domain::rules::Direction::Below => crate::report::chart::Beyond::Below,
-    }
-}
-
 #[derive(Deserialize)]
 pub struct Period {
     days: Option<i64>,
+    /// A manual reading just entered: show what became of it.
+    entry: Option<i64>,
 }
 
 /// GET /instruments/:id?days=N
@@ -84,20 +49,32 @@ pub async fn page(
     let now_ms = Utc::now().timestamp_millis();
     let span_ms = days * 86_400_000;
     let id2 = id.clone();
+    let entry = p.entry;
+    let stage_web = std::sync::Arc::clone(&web);
     let data = web
         .read(move |s| {
-            let latest = super::db::latest_reading(s.conn(), &id2)?;
+            let latest = s.latest_reading(&id2)?;
             // The period ends now; for an instrument silent longer than the period, at its
             // latest reading (an empty plot would show nothing of what it last said).
             let end_ms = match &latest {
                 Some(r) if r.t_ms < now_ms - span_ms => r.t_ms + 1,
                 _ => now_ms + 1,
             };
-            let rows = super::db::readings_between(s.conn(), &id2, end_ms - span_ms, end_ms)?;
-            Ok((latest, rows, end_ms))
+            // Total head when the instrument has one, else the engineering value.
+            let period = (end_ms - span_ms, end_ms);
+            let stage = chart::stage_for(&stage_web, &id2);
+            let mut plot = chart::read(s, &id2, "total_head", stage.as_deref(), period)?;
+            if plot.is_empty() {
+                plot = chart::read(s, &id2, "engineering_value", None, period)?;
+            }
+            let fate = match entry {
+                Some(n) => Some((n, s.manual_fate(n)?)),
+                None => None,
+            };
+            Ok((latest, plot, fate))
         })
         .await;
-    let (latest, rows, end_ms) = match data {
+    let (latest, plot, fate) = match data {
         Ok(x) => x,
         Err(e) => return super::failed(&e, &viewer.frame()),
     };
@@ -108,6 +85,9 @@ pub async fn page(
         escape(&id),
         escape(&inst.kind.name().replace('_', " "))
     );
+    if let Some((n, f)) = &fate {
+        b.push_str(&super::manual::fate_card(*n, f.as_ref()));
+    }
     match &latest {
         None => b.push_str("<div class=\"card warn\"><p>No reading stored yet.</p></div>"),
         Some(r) => {
@@ -133,7 +113,11 @@ pub async fn page(
                     ),
                 ],
                 vec![
-                    "Raw value (as the logger sent it)".into(),
+                    if r.flags.contains(crate::quality::Flags::MANUAL) {
+                        "Raw value (as read by hand)".into()
+                    } else {
+                        "Raw value (as the logger sent it)".into()
+                    },
                     escape(&r.raw.to_string()),
                 ],
                 vec![
@@ -170,40 +154,12 @@ pub async fn page(
             );
         }
     }
-    // The plot: total head when the instrument has one, else the engineering value.
-    let heads: Vec<(i64, f64)> = rows
-        .iter()
-        .filter_map(|r| r.total_head_m.map(|h| (r.t_ms, h)))
-        .collect();
-    let (quantity, points, unit) = if heads.is_empty() {
-        let unit = rows.first().map_or(String::new(), |r| r.eng_unit.clone());
-        (
-            "engineering_value",
-            rows.iter().map(|r| (r.t_ms, r.eng_value)).collect(),
-            unit,
-        )
-    } else {
-        ("total_head", heads, "m".to_string())
-    };
     let rules: Vec<&crate::config::Rule> = web
         .cfg
         .alerting
         .rules
         .iter()
         .filter(|r| r.object == id)
-        .collect();
-    let levels: Vec<LevelLine> = rules
-        .iter()
-        .filter(|r| {
-            r.quantity == quantity && r.spec.check == crate::domain::rules::Check::Threshold
-        })
-        .flat_map(|r| {
-            r.spec.levels.iter().map(|l| LevelLine {
-                label: l.name.clone(),
-                value: l.bound,
-                beyond: beyond(l.direction),
-            })
-        })
         .collect();
     let picker: Vec<String> = PERIODS
         .iter()
@@ -218,29 +174,14 @@ pub async fn page(
             }
         })
         .collect();
-    let svg = chart::render(&Chart {
-        title: if end_ms > now_ms {
-            format!("{id} — {}, last {days} days", words::quantity(quantity))
-        } else {
-            format!(
-                "{id} — {}, the {days} days to its latest reading",
-                words::quantity(quantity)
-            )
-        },
-        y_label: unit,
-        series: vec![Series {
-            label: words::quantity(quantity),
-            points,
-        }],
-        stage: None,
-        levels,
-        stage_axis: String::new(),
-        cap: None,
-        zero_line: false,
-        from_ms: end_ms - span_ms,
-        to_ms: end_ms,
-        tz,
-    });
+    let end_ms = plot.to_ms;
+    let name = web.quantity_name(&id, &plot.quantity);
+    let title = if end_ms > now_ms {
+        format!("{id} — {name}, last {days} days")
+    } else {
+        format!("{id} — {name}, the {days} days to its latest reading")
+    };
+    let svg = chart::render(&web, plot, title);
     let _ = write!(
         b,
         "<h2>Plot</h2><p class=\"noprint\">Period: {}</p>{svg}",
@@ -260,7 +201,11 @@ pub async fn page(
                             &l.name,
                             r.spec.levels.last().is_some_and(|x| x.name == l.name),
                         ),
-                        escape(&format!("{} {}", l.direction.name(), l.bound)),
+                        escape(&format!(
+                            "{} {}",
+                            l.direction.name(),
+                            rule_bound(l.bound, &r.quantity, units)
+                        )),
                         escape(&l.response),
                     ]
                 })
@@ -272,5 +217,19 @@ pub async fn page(
             html::table(&["Rule", "Quantity", "Level", "Bound", "Response"], &rows)
         );
     }
+    let may = web.may_change(&viewer).await;
+    b.push_str(&super::manual::form(&inst, &viewer, may));
     html::respond(StatusCode::OK, html::page(&id, &viewer.frame(), &b))
+}
+
+/// A rule bound on an instrument's own quantity in the site's display units (the stored unit
+/// of each reading quantity is fixed; the engineering value's is the instrument's own).
+fn rule_bound(bound: f64, quantity: &str, units: crate::config::DisplayUnits) -> String {
+    use crate::model::ReadingQuantity as Q;
+    let unit = match Q::from_name(quantity) {
+        Some(Q::TotalHead | Q::PressureHead) => "m",
+        Some(Q::Pressure) => "kPa",
+        _ => return bound.to_string(),
+    };
+    words::value(Some(bound), quantity, unit, units)
 }

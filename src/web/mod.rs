@@ -8,9 +8,9 @@
 //! connection on the blocking pool; acknowledgements and silences are written through the same
 //! functions as `seepd ack` and `seepd silence`, so the service applies them within a second.
 //! Submodules: `config` (`[http]`), `token` (signed links, web key), `auth` (users, sessions,
-//! CSRF), `db` (reads), `health` (`/healthz`, `/readyz`, `/metrics`), `html` and `words`
-//! (frame and wording), `overview`, `alert`, `instrument`, `quarantine` (pages), `ack` (the
-//! email link), `user_cmd` (`seepd user`).
+//! CSRF), `health` (`/healthz`, `/readyz`, `/metrics`), `html` and `words`
+//! (frame and wording), `overview`, `alert`, `instrument`, `section`, `quarantine` (pages), `chart` (their
+//! plots), `manual` (the manual-reading form), `ack` (the email link), `user_cmd` (`seepd user`).
 
 // Checks return the refusal page itself as their error; one response per request, so
 // boxing it would buy nothing.
@@ -19,12 +19,14 @@
 pub mod ack;
 pub mod alert;
 pub mod auth;
-pub mod db;
+pub mod chart;
 pub mod health;
 pub mod html;
 pub mod instrument;
+pub mod manual;
 pub mod overview;
 pub mod quarantine;
+pub mod section;
 pub mod user_cmd;
 pub mod words;
 
@@ -133,7 +135,9 @@ pub fn routes(web: Shared) -> Router {
         .route("/alerts/:id/ack", post(alert::ack))
         .route("/alerts/:id/silence", post(alert::silence))
         .route("/instruments/:id", get(instrument::page))
+        .route("/instruments/:id/manual", post(manual::post))
         .route("/quarantine", get(quarantine::page))
+        .route("/section/:id", get(section::page))
         .route("/ack/:token", get(ack::confirm).post(ack::acknowledge))
         .route("/login", get(auth::login_form).post(auth::login))
         .route("/logout", post(auth::logout))
@@ -223,7 +227,7 @@ impl Web {
     ) -> anyhow::Result<T> {
         let db = self.cfg.service.database.clone();
         tokio::task::spawn_blocking(move || {
-            let store = db::open(&db)?;
+            let store = crate::store::Store::open(&db)?;
             f(&store)
         })
         .await

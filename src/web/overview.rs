@@ -43,9 +43,9 @@ pub async fn page(State(web): State<Shared>, headers: HeaderMap) -> Response {
                 alerts: s.open_alerts()?,
                 derived: s.latest_derived()?,
                 latest: s.latest_all()?,
-                quarantined_24h: super::db::quarantined_since(s.conn(), now_ms - 86_400_000)?,
+                quarantined_24h: s.quarantined_since(now_ms - 86_400_000)?,
                 backlog: crate::store::export::backlog(s.conn())?,
-                outbox: super::db::outbox_counts(s.conn())?,
+                outbox: s.outbox_counts()?,
             })
         })
         .await;
@@ -105,6 +105,17 @@ fn site_block(b: &mut String, web: &super::Web, site: &crate::config::Site, d: &
             alerts.len(),
             if alerts.len() == 1 { "" } else { "s" },
         );
+    }
+    let sections: Vec<String> = web
+        .cfg
+        .objects
+        .sections
+        .iter()
+        .filter(|s| s.site == site.id)
+        .map(|s| format!("<a href=\"/section/{0}\">Section {0}</a>", escape(&s.id)))
+        .collect();
+    if !sections.is_empty() {
+        let _ = write!(b, "<p>Drawings: {}</p>", sections.join(" · "));
     }
     // Safety quantities of the site's objects, most important quantity first.
     let mut safety: Vec<&LatestDerived> = d

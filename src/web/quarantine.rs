@@ -29,8 +29,8 @@ pub async fn page(State(web): State<Shared>, headers: HeaderMap) -> Response {
         .read(move |s| {
             Ok((
                 s.quarantine_counts()?,
-                super::db::quarantined_since(s.conn(), now_ms - 86_400_000)?,
-                super::db::quarantine_recent(s.conn(), SHOWN)?,
+                s.quarantined_since(now_ms - 86_400_000)?,
+                s.quarantine_recent(SHOWN)?,
             ))
         })
         .await;
@@ -64,7 +64,7 @@ pub async fn page(State(web): State<Shared>, headers: HeaderMap) -> Response {
             vec![
                 escape(&html::time(q.received_ms, chrono_tz::UTC)),
                 escape(&q.topic),
-                escape(&words::reason(&q.reason)),
+                escape(&words::reason(q.reason.code())),
                 format!("{}<br><code>{}</code>", escape(&q.detail), escape(&shown)),
             ]
         })

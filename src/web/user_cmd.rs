@@ -1,6 +1,7 @@
 //! `seepd user add|remove|list`: the people who may sign in to the web pages, kept in the
-//! database's `web_users` table with argon2 password hashes. The password is read from
-//! standard input (one line), never from the command line, and never printed.
+//! database's `web_users` table with argon2 password hashes and a role (viewer or
+//! responder). The password is read from standard input (one line), never from the command
+//! line, and never printed.
 //!
 //! Owns those commands' wording.
 
@@ -9,11 +10,21 @@ use std::path::Path;
 use anyhow::{bail, Context as _};
 use chrono::Utc;
 
+use crate::store::pages::Role;
+
 /// `seepd user add NAME`: read the password from `input`, store its hash.
 ///
 /// # Errors
 /// An empty or short password, a bad name, database errors.
-pub fn add(db: &Path, name: &str, input: &mut dyn std::io::BufRead) -> anyhow::Result<String> {
+pub fn add(
+    db: &Path,
+    name: &str,
+    role: &str,
+    input: &mut dyn std::io::BufRead,
+) -> anyhow::Result<String> {
+    let Some(role) = Role::from_name(role) else {
+        bail!("role {role:?}: expected viewer (reads the pages) or responder (also acknowledges, silences and records manual readings)");
+    };
     let name = name.trim();
     if name.is_empty() || name.len() > 100 || name.chars().any(char::is_control) {
         bail!("user name {name:?}: expected 1 to 100 printable characters");
@@ -27,12 +38,13 @@ pub fn add(db: &Path, name: &str, input: &mut dyn std::io::BufRead) -> anyhow::R
         bail!("the password must be at least 10 characters (read from standard input, one line)");
     }
     let hash = super::auth::hash_password(password)?;
-    let store = super::db::open(db)?;
-    let existed = super::db::put_user(store.conn(), name, &hash, Utc::now().timestamp_millis())?;
+    let store = crate::store::Store::open(db)?;
+    let existed = store.put_user(name, &hash, role, Utc::now().timestamp_millis())?;
+    let role = role.name();
     Ok(if existed {
-        format!("User {name}: password changed.\n")
+        format!("User {name}: password changed; role {role}.\n")
     } else {
-        format!("User {name} added; they can sign in to the web pages.\n")
+        format!("User {name} added with role {role}; they can sign in to the web pages.\n")
     })
 }
 
@@ -41,8 +53,8 @@ pub fn add(db: &Path, name: &str, input: &mut dyn std::io::BufRead) -> anyhow::R
 /// # Errors
 /// Unknown user, database errors.
 pub fn remove(db: &Path, name: &str) -> anyhow::Result<String> {
-    let store = super::db::open(db)?;
-    if !super::db::remove_user(store.conn(), name)? {
+    let store = crate::store::Store::open(db)?;
+    if !store.remove_user(name)? {
         bail!("there is no user {name:?}");
     }
     Ok(format!("User {name} removed.\n"))
@@ -53,12 +65,15 @@ pub fn remove(db: &Path, name: &str) -> anyhow::Result<String> {
 /// # Errors
 /// Database errors.
 pub fn list(db: &Path) -> anyhow::Result<String> {
-    let store = super::db::open(db)?;
-    let users = super::db::users(store.conn())?;
+    let store = crate::store::Store::open(db)?;
+    let users = store.users()?;
     if users.is_empty() {
         return Ok("No users (add one with `seepd user add NAME`).\n".into());
     }
-    Ok(users.iter().map(|u| format!("{u}\n")).collect())
+    Ok(users
+        .iter()
+        .map(|(u, role)| format!("{u}\t{role}\n"))
+        .collect())
 }
 
 /// Read a password line from standard input.

@@ -22,6 +22,7 @@ pub fn flag(f: &str) -> String {
         "flatline" => "flat line (suspect)".into(),
         "thermistor" => "thermistor fault (suspect)".into(),
         "time_ahead" => "stamped ahead of the clock".into(),
+        "manual" => "read by hand".into(),
         other => sentence(other).to_lowercase(),
     }
 }

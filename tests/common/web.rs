@@ -232,10 +232,11 @@ pub fn csrf(page: &str) -> Option<String> {
     Some(page[i..].split('"').next()?.to_string())
 }
 
-/// Add user `name` with `password` through `seepd user add` (password on standard input).
-pub fn add_user(bin: &str, cfg: &Path, name: &str, password: &str) {
+/// Add user `name` with `password` and `role` through `seepd user add` (password on standard
+/// input).
+pub fn add_user(bin: &str, cfg: &Path, name: &str, password: &str, role: &str) {
     let mut child = std::process::Command::new(bin)
-        .args(["user", "add", name, "--config"])
+        .args(["user", "add", name, "--role", role, "--config"])
         .arg(cfg)
         .stdin(std::process::Stdio::piped())
         .stdout(std::process::Stdio::piped())
