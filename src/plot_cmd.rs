@@ -62,7 +62,7 @@ pub fn render(
     let fs = quantity.contains("factor_of_safety");
     Ok(chart::render(&Chart {
         title: format!("{id} — {name}"),
-        y_label: format!("{name} ({})", unit_label(m, units, &unit_si)),
+        y_label: crate::present::labels::axis_label(&name, unit_label(m, units, &unit_si)),
         series: vec![Series {
             label: name.clone(),
             points: crate::report::to_display(points, m, units),

@@ -110,9 +110,28 @@ pub fn system_name(u: DisplayUnits) -> &'static str {
     }
 }
 
+/// An axis label: the quantity in words and its unit in brackets ("Water level (ft)"), or the
+/// words alone for a quantity without a unit ("Factor of safety").
+pub fn axis_label(name: &str, unit: &str) -> String {
+    if unit.is_empty() {
+        name.to_string()
+    } else {
+        format!("{name} ({unit})")
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn axis_labels_carry_the_unit_when_there_is_one() {
+        assert_eq!(axis_label("Water level", "ft"), "Water level (ft)");
+        assert_eq!(
+            axis_label("Factor of safety against heave", ""),
+            "Factor of safety against heave"
+        );
+    }
 
     #[test]
     fn identifiers_become_words() {

@@ -148,7 +148,10 @@ pub fn render(web: &Web, p: Plot, title: String) -> String {
     };
     chart::render(&Chart {
         title,
-        y_label: unit_label(m, units, &p.unit_si).to_string(),
+        y_label: crate::present::labels::axis_label(
+            &web.quantity_name(&first, &p.quantity),
+            unit_label(m, units, &p.unit_si),
+        ),
         series,
         stage,
         levels: crate::report::level_lines(&web.cfg, &p.objects, (&p.quantity, &p.unit_si), units),

@@ -126,9 +126,10 @@ pub async fn page(
                 ],
                 vec![
                     "Temperature".into(),
-                    escape(&r.temperature_c.map_or("none".into(), |t| {
-                        format!("{} °C", crate::present::format::fixed(t, 1))
-                    })),
+                    escape(
+                        &r.temperature_c
+                            .map_or("none".into(), |t| opt(Some(t), "temperature", "degC")),
+                    ),
                 ],
                 vec![
                     "Barometric pressure used".into(),
@@ -142,7 +143,10 @@ pub async fn page(
                     escape(&opt(r.pressure_kpa, "pressure", "kPa")),
                 ],
                 vec![
-                    "Total head".into(),
+                    escape(&crate::present::labels::quantity_name(
+                        "total_head",
+                        Some(inst.kind.name()),
+                    )),
                     escape(&opt(r.total_head_m, "total_head", "m")),
                 ],
                 vec!["Flags".into(), escape(&flags)],
@@ -190,13 +194,16 @@ pub async fn page(
     if rules.is_empty() {
         b.push_str("<h2>Rules</h2><p>No rule watches this instrument.</p>");
     } else {
-        let rows: Vec<Vec<String>> = rules
-            .iter()
-            .flat_map(|r| {
-                r.spec.levels.iter().map(move |l| {
+        // One heading per rule (its quantity in words, the rule id small), then its levels:
+        // three columns that stay readable at phone width.
+        b.push_str("<h2>Rules</h2>");
+        for r in &rules {
+            let rows: Vec<Vec<String>> = r
+                .spec
+                .levels
+                .iter()
+                .map(|l| {
                     vec![
-                        escape(&r.id),
-                        escape(&words::quantity(&r.quantity)),
                         html::level(
                             &l.name,
                             r.spec.levels.last().is_some_and(|x| x.name == l.name),
@@ -209,13 +216,16 @@ pub async fn page(
                         escape(&l.response),
                     ]
                 })
-            })
-            .collect();
-        let _ = write!(
-            b,
-            "<h2>Rules</h2>{}",
-            html::table(&["Rule", "Quantity", "Level", "Bound", "Response"], &rows)
-        );
+                .collect();
+            let name = crate::present::labels::quantity_name(&r.quantity, Some(inst.kind.name()));
+            let _ = write!(
+                b,
+                "<h3>{} <span class=\"note\">rule {}</span></h3>{}",
+                escape(&name),
+                escape(&r.id),
+                html::table(&["Level", "Bound", "Response"], &rows)
+            );
+        }
     }
     let may = web.may_change(&viewer).await;
     b.push_str(&super::manual::form(&inst, &viewer, may));
