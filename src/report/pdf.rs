@@ -19,7 +19,7 @@ use super::data::{DerivedStats, InstrumentStats, ReportData};
 use super::html::{local, Extras};
 use super::raster::{svg_options, FONT};
 use crate::config::DisplayUnits;
-use crate::present::format::{shown, shown_bare, FS_CAP_RULE};
+use crate::present::format::{shown_bare, FS_CAP_RULE};
 use crate::present::labels::system_name;
 use crate::present::units::unit_label;
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
@@ -349,14 +349,20 @@ fn derived_rows(rows: &[DerivedStats], d: &ReportData) -> Vec<Vec<String>> {
     let tz = d.time_zone.parse().unwrap_or(chrono_tz::UTC);
     rows.iter()
         .map(|r| {
+            // The unit goes with the quantity's name, the value columns hold numbers only: a
+            // flow in ft³/s per ft would not fit beside its number in a value column.
+            let m = measure_of(&r.quantity, &r.unit);
             let v = |x: Option<(i64, f64)>| {
-                x.map_or_else(|| "—".into(), |x| shown(x.1, &r.quantity, &r.unit, d.units))
+                x.map_or_else(|| "—".into(), |x| shown_bare(x.1, m, d.units))
             };
             let at = |x: Option<(i64, f64)>| x.map_or_else(|| "—".into(), |x| local(x.0, tz));
-            let fs = measure_of(&r.quantity, &r.unit) == Measure::FactorOfSafety;
+            let fs = m == Measure::FactorOfSafety;
             vec![
                 r.object.clone(),
-                quantity_name(&r.quantity, None),
+                crate::present::labels::axis_label(
+                    &quantity_name(&r.quantity, None),
+                    unit_label(m, d.units, &r.unit),
+                ),
                 v(r.latest),
                 v(r.min),
                 at(r.min),
@@ -372,7 +378,7 @@ fn derived_table(l: &mut Layout, rows: &[DerivedStats], d: &ReportData) {
         &[
             "Object", "Quantity", "Latest", "Minimum", "at", "Maximum", "at",
         ],
-        &[0.9, 3.6, 1.1, 1.1, 1.5, 1.1, 1.5],
+        &[0.8, 4.3, 1.0, 1.0, 1.5, 1.0, 1.5],
         2,
         &derived_rows(rows, d),
     );
