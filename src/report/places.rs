@@ -65,7 +65,14 @@ pub(crate) fn columns(d: &ReportData, tz: Tz) -> Vec<Column> {
             num(all[k].tip_elevation_m, Measure::Length)
         }),
         column("Installed".into(), false, 1.5, &|k| {
-            local(all[k].installed_ms, tz)
+            // Written as a date (midnight UTC): shown as that date, never as the evening before
+            // in a time zone west of UTC; written with a time: in the site's time.
+            let t = all[k].installed_ms;
+            if t.rem_euclid(86_400_000) == 0 {
+                date(Some(t))
+            } else {
+                local(t, tz)
+            }
         }),
         column("Last calibration".into(), false, 1.3, &|k| {
             date(all[k].calibrated_ms)
