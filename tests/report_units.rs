@@ -47,6 +47,8 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
         "levee-ash-bend.toml",
         &[
             ("display_units = \"si\"", "display_units = \"us\""),
+            // A US site keeps its own time: dates written in the site file stay those dates.
+            ("time_zone = \"UTC\"", "time_zone = \"America/Chicago\""),
             ("length_unit = \"m\"", "length_unit = \"ft\""),
             (
                 "# [[report]]",
@@ -122,13 +124,17 @@ fn a_us_site_reads_in_feet_and_psi_everywhere_a_person_reads() {
         .iter()
         .position(|h| h == "Last calibration")
         .expect("the column");
-    let last_calibration = |id: &str| {
+    let cell = |id: &str, col: usize| {
         let row = table
             .lines()
             .find(|l| l.contains(&format!(">{id}</td>")))
             .unwrap();
         cells(row)[col].clone()
     };
+    let last_calibration = |id: &str| cell(id, col);
+    // `installed = "2025-03-01"` (a date) reads 2025-03-01 in Chicago, not the evening before.
+    let installed = header.iter().position(|h| h == "Installed").unwrap();
+    assert_eq!(cell("AB-PZ-2B", installed), "2025-03-01");
     assert_eq!(last_calibration("AB-PZ-2B"), "2025-02-13");
     assert_eq!(last_calibration("AB-RIVER"), "2025-09-30");
     assert_eq!(last_calibration("AB-BARO"), "—");
