@@ -55,6 +55,10 @@ fn from_entries<T: DeserializeOwned>(entries: &[(&str, &Item)]) -> Result<T, tom
 /// The rest of a problem after `key "name" `, in our words: serde's "invalid type: string "x",
 /// expected i64" becomes `is "x", expected an integer`; our value types already speak so.
 fn tail(message: &str, found: Option<String>) -> String {
+    if message == "wanted string or table" {
+        // toml_edit's word for a choice (an enum) written as something other than a string.
+        return format!("is {}, expected a string", found.unwrap_or_default());
+    }
     let prefixes = ["invalid type: ", "invalid value: ", "unknown variant "];
     let Some((kind, rest)) = prefixes
         .iter()
@@ -199,6 +203,94 @@ impl<'de> Deserialize<'de> for Num {
     }
 }
 
+/// `[low, high]`: two finite numbers with low < high.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Pair(pub f64, pub f64);
+
+impl<'de> Deserialize<'de> for Pair {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> de::Visitor<'de> for V {
+            type Value = Pair;
+            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                f.write_str("[low, high] (two numbers)")
+            }
+            fn visit_seq<A: de::SeqAccess<'de>>(self, mut seq: A) -> Result<Pair, A::Error> {
+                let bad = || de::Error::custom("is an array, expected [low, high] (two numbers)");
+                let mut n = Vec::new();
+                while let Some(x) = seq.next_element::<f64>().map_err(|_| bad())? {
+                    n.push(x);
+                }
+                let &[lo, hi] = n.as_slice() else {
+                    return Err(bad());
+                };
+                if !(lo.is_finite() && hi.is_finite() && lo < hi) {
+                    return Err(de::Error::custom(format!(
+                        "is [{lo}, {hi}], expected finite [low, high] with low < high"
+                    )));
+                }
+                Ok(Pair(lo, hi))
+            }
+        }
+        d.deserialize_seq(V)
+    }
+}
+
+/// A non-empty label written as a string or an integer (`channel = 3` means `"3"`).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct Label(pub String);
+
+impl<'de> Deserialize<'de> for Label {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl de::Visitor<'_> for V {
+            type Value = String;
+            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                f.write_str("a string or an integer")
+            }
+            fn visit_str<E: de::Error>(self, s: &str) -> Result<String, E> {
+                Ok(s.to_string())
+            }
+            fn visit_i64<E: de::Error>(self, i: i64) -> Result<String, E> {
+                Ok(i.to_string())
+            }
+        }
+        let s = d.deserialize_any(V)?;
+        if s.trim().is_empty() {
+            return Err(de::Error::custom("is empty"));
+        }
+        Ok(Label(s))
+    }
+}
+
+/// A date or date-time as text: a TOML string or a TOML date/date-time value (the caller
+/// parses it and says what it expected).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct DateText(pub String);
+
+impl<'de> Deserialize<'de> for DateText {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> de::Visitor<'de> for V {
+            type Value = String;
+            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                f.write_str("an RFC 3339 date or date-time")
+            }
+            fn visit_str<E: de::Error>(self, s: &str) -> Result<String, E> {
+                Ok(s.to_string())
+            }
+            fn visit_map<A: de::MapAccess<'de>>(self, mut map: A) -> Result<String, A::Error> {
+                // A TOML date-time reaches serde as a one-entry map holding its text.
+                let (Some(de::IgnoredAny), Ok(text)) = (map.next_key()?, map.next_value()) else {
+                    return Err(de::Error::invalid_type(de::Unexpected::Map, &self));
+                };
+                Ok(text)
+            }
+        }
+        d.deserialize_any(V).map(DateText)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -221,6 +313,10 @@ mod tests {
             "is \"ssl\", expected one of: starttls, tls, plain"
         );
         assert_eq!(tail("is empty", None), "is empty");
+        assert_eq!(
+            tail("wanted string or table", Some("3".into())),
+            "is 3, expected a string"
+        );
     }
 
     #[test]

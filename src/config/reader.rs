@@ -256,29 +256,6 @@ impl<'t> Tbl<'t> {
         Some(s)
     }
 
-    /// A date or date-time, as text: a TOML string or a TOML date/date-time value.
-    pub fn date_text(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<String> {
-        self.get(cx, key, req, "an RFC 3339 date or date-time", |v| match v {
-            Value::String(s) => Some(s.value().clone()),
-            Value::Datetime(d) => Some(d.value().to_string()),
-            _ => None,
-        })
-    }
-
-    /// A non-empty label written as a string or an integer (`channel = 3` means `"3"`).
-    pub fn label(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
-        let s = self.get(cx, key, false, "a string or an integer", |v| match v {
-            Value::String(s) => Some(s.value().clone()),
-            Value::Integer(i) => Some(i.value().to_string()),
-            _ => None,
-        })?;
-        if s.trim().is_empty() {
-            self.problem_at(cx, key, format!("key \"{key}\" is empty"));
-            return None;
-        }
-        Some(s)
-    }
-
     /// A finite number (`req`: required).
     pub fn number(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<f64> {
         let n = self.get(cx, key, req, "a number", number)?;
