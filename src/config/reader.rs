@@ -296,30 +296,6 @@ impl<'t> Tbl<'t> {
         Some(n)
     }
 
-    /// `[low, high]`: two finite numbers with low < high.
-    pub fn pair(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<(f64, f64)> {
-        let expected = "[low, high] (two numbers)";
-        let pair = self.get(cx, key, req, expected, |v| {
-            let a = v.as_array()?;
-            if a.len() != 2 {
-                return None;
-            }
-            Some((number(a.get(0)?)?, number(a.get(1)?)?))
-        })?;
-        let (lo, hi) = pair;
-        if !(lo.is_finite() && hi.is_finite() && lo < hi) {
-            self.problem_at(
-                cx,
-                key,
-                format!(
-                    "key \"{key}\" is [{lo}, {hi}], expected finite [low, high] with low < high"
-                ),
-            );
-            return None;
-        }
-        Some(pair)
-    }
-
     /// An array (`expected` describes it) whose every element `conv` accepts, each element with
     /// its span (`req`: required). A problem names the first element `conv` rejects and what
     /// each `element` should be.

@@ -281,7 +281,8 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
             Some(s) => Some(s),
             None => {
                 if let Some((_, item)) = t.entries().find(|(k, _)| *k == "level") {
-                    let message = format!("key \"level\" is {}, expected a string", found_item(item));
+                    let message =
+                        format!("key \"level\" is {}, expected a string", found_item(item));
                     t.problem_at(cx, "level", message);
                 }
                 None

@@ -324,12 +324,36 @@ fn pattern_filter_replaces_placeholders() {
 fn instrument_values_are_described_in_our_words() {
     let cases: &[(usize, &str, &str)] = &[
         (5, "kind = 3", "key \"kind\" is 3, expected a string"),
-        (9, "range = \"x\"", "key \"range\" is \"x\", expected [low, high] (two numbers)"),
-        (9, "range = [1.0, \"a\"]", "key \"range\" is an array, expected [low, high] (two numbers)"),
-        (9, "range = [1.0, 2.0, 3.0]", "key \"range\" is an array, expected [low, high]"),
-        (9, "range = [1, inf]", "key \"range\" is [1, inf], expected finite [low, high] with low < high"),
-        (11, "channel = 1.5", "key \"channel\" is 1.5, expected a string or an integer"),
-        (8, "interval_s = \"x\"", "key \"interval_s\" is \"x\", expected an integer"),
+        (
+            9,
+            "range = \"x\"",
+            "key \"range\" is \"x\", expected [low, high] (two numbers)",
+        ),
+        (
+            9,
+            "range = [1.0, \"a\"]",
+            "key \"range\" is an array, expected [low, high] (two numbers)",
+        ),
+        (
+            9,
+            "range = [1.0, 2.0, 3.0]",
+            "key \"range\" is an array, expected [low, high]",
+        ),
+        (
+            9,
+            "range = [1, inf]",
+            "key \"range\" is [1, inf], expected finite [low, high] with low < high",
+        ),
+        (
+            11,
+            "channel = 1.5",
+            "key \"channel\" is 1.5, expected a string or an integer",
+        ),
+        (
+            8,
+            "interval_s = \"x\"",
+            "key \"interval_s\" is \"x\", expected an integer",
+        ),
         (13, "reading = 3", "key \"reading\" is 3, expected a string"),
     ];
     for (n, text, needle) in cases {
