@@ -30,23 +30,9 @@ pub(crate) enum KindName {
 }
 
 impl KindName {
-    pub const ALL: [KindName; 5] = [
-        KindName::VibratingWire,
-        KindName::PressureTransducer,
-        KindName::Standpipe,
-        KindName::StageGauge,
-        KindName::Barometer,
-    ];
-
-    /// The name as written.
+    /// The name as written (also its sub-table's).
     pub fn name(self) -> &'static str {
-        match self {
-            KindName::VibratingWire => "vibrating_wire",
-            KindName::PressureTransducer => "pressure_transducer",
-            KindName::Standpipe => "standpipe",
-            KindName::StageGauge => "stage_gauge",
-            KindName::Barometer => "barometer",
-        }
+        de::variants::<KindName>()[self as usize]
     }
 
     /// A piezometer kind (needs a tip elevation; may be barometrically corrected).
@@ -96,16 +82,6 @@ enum Mode {
     Absolute,
 }
 
-impl Mode {
-    fn name(self) -> &'static str {
-        match self {
-            Mode::None => "none",
-            Mode::Sealed => "sealed",
-            Mode::Absolute => "absolute",
-        }
-    }
-}
-
 /// The barometric correction's keys, shared by both pressure-sensor kinds.
 fn baro(
     cx: &mut Cx<'_>,
@@ -116,7 +92,7 @@ fn baro(
         return None;
     }
     let mode = mode.unwrap_or(Mode::None);
-    let name = mode.name();
+    let name = de::variants::<Mode>()[mode as usize];
     if mode == Mode::None && t.has("barometer") {
         t.problem_at(
             cx,

@@ -247,10 +247,7 @@ struct RawLevel {
 
 fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> RuleEntry {
     let before = cx.problems.len();
-    if let Some(id) = t.peek_str("id").filter(|s| !s.trim().is_empty()) {
-        t.what = format!("rule {id:?}");
-    }
-    let r: RawRule = de::table(cx, t).unwrap_or_default();
+    let r: RawRule = de::named(cx, t, ("rule", "id"));
     let id = t.need(cx, "id", r.id.clone().map(|s| s.0));
     let id_pos = cx.pos(t.value_span("id"));
     let no_data = r.kind == Some(RuleKind::NoData);

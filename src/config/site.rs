@@ -88,46 +88,21 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         Some(mut t) => {
             t.what = "[site]".into();
             let before = cx.problems.len();
-            if let Some(sid) = t.peek_str("id").filter(|s| !s.trim().is_empty()) {
-                t.what = format!("site {sid:?}");
-            }
-            let r: RawSite = de::table(cx, &t).unwrap_or_default();
+            let r: RawSite = de::named(cx, &mut t, ("site", "id"));
             let sid = t.need(cx, "id", r.id.map(|s| s.0));
             if t.has("id") {
                 id = sid.clone().map(|s| (s, cx.pos(t.value_span("id"))));
             }
-            let name = r.name.map(|n| n.0);
-            let time_zone = r.time_zone.map_or_else(|| "UTC".into(), |z| z.0);
-            if time_zone.parse::<chrono_tz::Tz>().is_err() {
-                t.problem_at(
-                    cx,
-                    "time_zone",
-                    format!(
-                        "key \"time_zone\" is {time_zone:?}, expected an IANA time zone name such as \"UTC\" or \"America/Chicago\""
-                    ),
-                );
-            }
-            let gamma = r.unit_weight_water_kn_m3.map(|g| g.0);
-            if let Some(g) = gamma.filter(|g| accepted_gamma_w(*g).is_none()) {
-                t.problem_at(
-                    cx,
-                    "unit_weight_water_kn_m3",
-                    format!(
-                        "key \"unit_weight_water_kn_m3\" is {g}, expected one of: 9.81, 9.80665, 9.802258 (62.4 pcf)"
-                    ),
-                );
-            }
-            let display_units = r.display_units.unwrap_or(DisplayUnits::Si);
             if r.length_unit == Some(Length::Ft) {
                 m_per_unit = M_PER_FT;
             }
-            gamma_w = gamma.and_then(accepted_gamma_w).unwrap_or(gamma_w);
+            gamma_w = r.unit_weight_water_kn_m3.map_or(gamma_w, |g| g.0);
             let site = sid.map(|sid| Site {
-                name: name.unwrap_or_else(|| sid.clone()),
+                name: r.name.map_or_else(|| sid.clone(), |n| n.0),
                 id: sid,
-                time_zone,
+                time_zone: r.time_zone.map_or_else(|| "UTC".into(), |z| z.0),
                 gamma_w_kn_m3: gamma_w,
-                display_units,
+                display_units: r.display_units.unwrap_or(DisplayUnits::Si),
                 file: file.to_path_buf(),
             });
             site.filter(|_| cx.problems.len() == before)
@@ -160,15 +135,44 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     }
 }
 
-/// `[site]` as written; checks in `read`.
+/// `[site]` as written; checks in its value types and `read`.
 #[derive(Deserialize, Default)]
 struct RawSite {
     id: Option<Text>,
     name: Option<Text>,
-    time_zone: Option<Text>,
-    unit_weight_water_kn_m3: Option<Num>,
+    time_zone: Option<Zone>,
+    unit_weight_water_kn_m3: Option<GammaW>,
     display_units: Option<DisplayUnits>,
     length_unit: Option<Length>,
+}
+
+/// `time_zone`: an IANA time zone name.
+struct Zone(String);
+
+impl<'de> Deserialize<'de> for Zone {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let z = String::deserialize(d)?;
+        if z.parse::<chrono_tz::Tz>().is_err() {
+            return Err(serde::de::Error::custom(format!(
+                "is {z:?}, expected an IANA time zone name such as \"UTC\" or \"America/Chicago\""
+            )));
+        }
+        Ok(Zone(z))
+    }
+}
+
+/// `unit_weight_water_kn_m3`: one of the accepted unit weights of water (kN/m³), exactly.
+struct GammaW(f64);
+
+impl<'de> Deserialize<'de> for GammaW {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let Num(g) = Num::deserialize(d)?;
+        accepted_gamma_w(g).map(GammaW).ok_or_else(|| {
+            serde::de::Error::custom(format!(
+                "is {g}, expected one of: 9.81, 9.80665, 9.802258 (62.4 pcf)"
+            ))
+        })
+    }
 }
 
 /// `length_unit` as written.
@@ -227,25 +231,19 @@ fn instant(
 
 fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> Entry {
     let before = cx.problems.len();
-    if let Some(id) = t.peek_str("id").filter(|s| !s.trim().is_empty()) {
-        t.what = format!("instrument {id:?}");
-    }
-    let r: RawInstrument = de::table(cx, t).unwrap_or_default();
+    let r: RawInstrument = de::named(cx, t, ("instrument", "id"));
     let id = t.need(cx, "id", r.id.map(|s| s.0));
     let id_pos = cx.pos(t.value_span("id"));
     let kind_name = t.need(cx, "kind", r.kind);
-    let present: Vec<KindName> = KindName::ALL
-        .into_iter()
-        .filter(|k| t.has(k.name()))
+    let present: Vec<&str> = de::variants::<KindName>()
+        .iter()
+        .copied()
+        .filter(|k| t.has(k))
         .collect();
     let mut kind_read = None;
     if let Some(kind) = kind_name {
         let name = kind.name();
-        let others: Vec<&str> = present
-            .iter()
-            .filter(|k| **k != kind)
-            .map(|k| k.name())
-            .collect();
+        let others: Vec<&str> = present.into_iter().filter(|k| *k != name).collect();
         if let ([other], false) = (others.as_slice(), t.has(name)) {
             // The usual slip: `kind` and the settings table disagree. One problem, not two.
             cx.at(
@@ -347,5 +345,21 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
         has_tip: t.has("tip_elevation"),
         has_station: t.has("station"),
         instrument,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_kind_has_its_sub_table_key() {
+        let keys = de::fields::<RawInstrument>();
+        for kind in de::variants::<KindName>() {
+            assert!(
+                keys.contains(kind),
+                "RawInstrument lacks `{kind}: Option<Nested>`"
+            );
+        }
     }
 }
