@@ -1,8 +1,9 @@
 //! Typed, located reads from one TOML table of a parsed (span-keeping) document.
 //!
-//! Owns the generic checks every table gets: unknown keys, wrong types, missing required keys,
-//! bad choice strings and non-finite numbers, each reported as a located problem. It does not
-//! know what any key means; `service` and `site` decide that.
+//! Owns the generic checks every table gets: unknown keys, missing required keys, a table's
+//! located problems, its sub-tables and `[[arrays]]`. The typed reads below (`nonempty`,
+//! `number`, `opt_int_in`, `choice`, `array`) serve the tables not read through `de`: the object
+//! tables and `[trends]`'s `rate_windows`. It does not know what any key means.
 
 use std::ops::Range;
 
