@@ -55,6 +55,10 @@ fn from_entries<T: DeserializeOwned>(entries: &[(&str, &Item)]) -> Result<T, tom
 /// The rest of a problem after `key "name" `, in our words: serde's "invalid type: string "x",
 /// expected i64" becomes `is "x", expected an integer`; our value types already speak so.
 fn tail(message: &str, found: Option<String>) -> String {
+    // toml_edit's words for a choice (an enum) written as something other than a string.
+    if message == "wanted string or table" {
+        return format!("is {}, expected a string", found.unwrap_or_default());
+    }
     let prefixes = ["invalid type: ", "invalid value: ", "unknown variant "];
     let Some((kind, rest)) = prefixes
         .iter()
@@ -145,6 +149,10 @@ impl<'de> Deserialize<'de> for Nested {
     }
 }
 
+/// A value read after the table through `Tbl`'s reads (an array whose elements are located one
+/// by one): accepted here as a key, not read.
+pub(crate) type Later = Nested;
+
 /// An integer within `LO..=HI` ("is 0, expected between 1 and 65535" otherwise).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) struct Int<const LO: i64, const HI: i64>(pub i64);
@@ -221,6 +229,10 @@ mod tests {
             "is \"ssl\", expected one of: starttls, tls, plain"
         );
         assert_eq!(tail("is empty", None), "is empty");
+        assert_eq!(
+            tail("wanted string or table", Some("3".into())),
+            "is 3, expected a string"
+        );
     }
 
     #[test]

@@ -1,21 +1,15 @@
-//! Typed reads of object values on top of `reader::Tbl`: numbers with a range rule, lengths in
-//! metres, instrument references (recorded for `refs`), levels from a gauge or a fixed
-//! elevation, and lengths that a case needs or excludes.
+//! Checks of object values shared by every kind, on top of the raw values `de::table` read:
+//! numbers with a range rule, lengths in metres, instrument references (recorded for `refs`),
+//! levels from a gauge or a fixed elevation, and lengths that a case needs or excludes; lists
+//! of instrument ids, whose elements are located one by one, read through `reader::Tbl`.
 //!
-//! Owns those messages. Must not know which keys a table has (that is `objects`).
+//! Owns those messages. Must not know which keys a table has (each kind's raw struct does).
 
 use super::{Ref, Want};
+use crate::config::de::{Num, Text};
 use crate::config::model::Level;
 use crate::config::problem::Cx;
 use crate::config::reader::Tbl;
-
-/// The spelling of a case, for messages.
-pub(super) fn name<T: PartialEq>(options: &[(&'static str, T)], case: &T) -> &'static str {
-    options
-        .iter()
-        .find(|(_, o)| o == case)
-        .map_or("", |(n, _)| *n)
-}
 
 /// What a number must be.
 #[derive(Clone, Copy)]
@@ -55,9 +49,18 @@ pub(super) struct Reader<'t> {
 }
 
 impl Reader<'_> {
-    /// A finite number obeying `rule`, as written (no unit conversion).
-    pub(super) fn number(&self, cx: &mut Cx<'_>, key: &str, req: bool, rule: Rule) -> Option<f64> {
-        let v = self.t.number(cx, key, req)?;
+    /// A number as written (no unit conversion) obeying `rule`; `req`: a missing key is a
+    /// problem.
+    pub(super) fn number(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        v: Option<Num>,
+        req: bool,
+        rule: Rule,
+    ) -> Option<f64> {
+        let v = if req { self.t.need(cx, key, v) } else { v };
+        let Num(v) = v?;
         if !rule.admits(v) {
             let expected = rule.text();
             self.t.problem_at(
@@ -71,8 +74,15 @@ impl Reader<'_> {
     }
 
     /// A length in the site's unit obeying `rule`, in metres.
-    pub(super) fn length(&self, cx: &mut Cx<'_>, key: &str, req: bool, rule: Rule) -> Option<f64> {
-        self.number(cx, key, req, rule).map(|v| v * self.m)
+    pub(super) fn length(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        v: Option<Num>,
+        req: bool,
+        rule: Rule,
+    ) -> Option<f64> {
+        self.number(cx, key, v, req, rule).map(|v| v * self.m)
     }
 
     /// One instrument id under `key`, recorded as a reference.
@@ -80,14 +90,12 @@ impl Reader<'_> {
         &mut self,
         cx: &mut Cx<'_>,
         key: &'static str,
+        v: Option<Text>,
         req: bool,
         want: Want,
     ) -> Option<String> {
-        if req && !self.t.has(key) {
-            self.t.missing(cx, key, "");
-            return None;
-        }
-        let id = self.t.nonempty(cx, key)?;
+        let v = if req { self.t.need(cx, key, v) } else { v };
+        let Text(id) = v?;
         let pos = cx.pos(self.t.value_span(key));
         self.refs.push(Ref {
             key,
@@ -156,13 +164,13 @@ impl Reader<'_> {
         Some(ids).filter(|_| cx.problems.len() == before)
     }
 
-    /// A level from a stage gauge (`gauge_key`) or a fixed elevation (`level_key`): never both;
-    /// one of them when `req`. `None` when neither is written (or after a problem).
+    /// A level from a stage gauge (`gauge`) or a fixed elevation (`level`): never both; one
+    /// of them when `req`. `None` when neither is written (or after a problem).
     pub(super) fn level(
         &mut self,
         cx: &mut Cx<'_>,
-        gauge_key: &'static str,
-        level_key: &str,
+        (gauge_key, gauge): (&'static str, Option<Text>),
+        (level_key, level): (&str, Option<Num>),
         req: bool,
     ) -> Option<Level> {
         let (g, l) = (self.t.has(gauge_key), self.t.has(level_key));
@@ -185,8 +193,8 @@ impl Reader<'_> {
                 ),
             );
         }
-        let gauge = self.reference(cx, gauge_key, false, Want::StageGauge);
-        let fixed = self.length(cx, level_key, false, Rule::Any);
+        let gauge = self.reference(cx, gauge_key, gauge, false, Want::StageGauge);
+        let fixed = self.length(cx, level_key, level, false, Rule::Any);
         match (gauge, fixed) {
             (Some(id), None) => Some(Level::Gauge(id)),
             (None, Some(m)) => Some(Level::Fixed(m)),
@@ -198,9 +206,8 @@ impl Reader<'_> {
     pub(super) fn case_length(
         &self,
         cx: &mut Cx<'_>,
-        key: &str,
-        case_key: &str,
-        case: &str,
+        (key, v): (&str, Option<Num>),
+        (case_key, case): (&str, &str),
         needed: bool,
     ) -> Option<f64> {
         if needed && !self.t.has(key) {
@@ -213,6 +220,6 @@ impl Reader<'_> {
                 format!("key \"{key}\" does not apply to {case_key} = \"{case}\"; remove it or change {case_key}"),
             );
         }
-        self.length(cx, key, false, Rule::Positive)
+        self.length(cx, key, v, false, Rule::Positive)
     }
 }
