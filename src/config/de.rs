@@ -207,6 +207,38 @@ impl<'de> Deserialize<'de> for Num {
     }
 }
 
+/// A finite number above `LO` ("is 0, expected a number > 0" otherwise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Above<const LO: i64>(pub f64);
+
+impl<'de, const LO: i64> Deserialize<'de> for Above<LO> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let Num(n) = Num::deserialize(d)?;
+        if n > LO as f64 {
+            return Ok(Above(n));
+        }
+        Err(de::Error::custom(format!(
+            "is {n}, expected a number > {LO}"
+        )))
+    }
+}
+
+/// A finite number of at least `LO` ("is -1, expected a number >= 0" otherwise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct AtLeast<const LO: i64>(pub f64);
+
+impl<'de, const LO: i64> Deserialize<'de> for AtLeast<LO> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let Num(n) = Num::deserialize(d)?;
+        if n >= LO as f64 {
+            return Ok(AtLeast(n));
+        }
+        Err(de::Error::custom(format!(
+            "is {n}, expected a number >= {LO}"
+        )))
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

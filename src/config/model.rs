@@ -575,7 +575,7 @@ pub struct Section {
 }
 
 /// All derived-quantity objects of the configuration, one list per kind
-/// (`crate::objkind::ObjectKind`); `of`, `inputs` and `push` are the exhaustive matches.
+/// (`crate::objkind::ObjectKind`); `of` and `push` are the exhaustive matches.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Objects {
     pub nests: Vec<Nest>,
@@ -634,51 +634,5 @@ impl Objects {
         ObjectKind::ALL
             .into_iter()
             .flat_map(|k| self.of(k).into_iter().map(move |(id, site)| (k, id, site)))
-    }
-
-    /// The instruments each object of `kind` reads (a gauge only when a level is measured),
-    /// in configuration order.
-    pub fn inputs(&self, kind: ObjectKind) -> Vec<Vec<&str>> {
-        fn gauge(l: Option<&Level>) -> Option<&str> {
-            match l {
-                Some(Level::Gauge(g)) => Some(g),
-                _ => None,
-            }
-        }
-        fn strs(v: &[String]) -> Vec<&str> {
-            v.iter().map(String::as_str).collect()
-        }
-        match kind {
-            ObjectKind::Nest => self.nests.iter().map(|c| strs(&c.piezometers)).collect(),
-            ObjectKind::Toe => self
-                .toes
-                .iter()
-                .map(|t| {
-                    let mut v = vec![t.piezometer.as_str()];
-                    v.extend(gauge(t.water.as_ref()));
-                    v
-                })
-                .collect(),
-            ObjectKind::Blanket => self
-                .blankets
-                .iter()
-                .map(|b| {
-                    let mut v = vec![b.river_gauge.as_str()];
-                    v.extend(gauge(Some(&b.landside_level)));
-                    v.extend(b.toe_piezometer.as_deref());
-                    v
-                })
-                .collect(),
-            ObjectKind::Section => self
-                .sections
-                .iter()
-                .map(|s| {
-                    let mut v = vec![s.pool_gauge.as_str()];
-                    v.extend(gauge(s.tail.as_ref()));
-                    v.extend(strs(&s.piezometers));
-                    v
-                })
-                .collect(),
-        }
     }
 }

@@ -6,9 +6,9 @@
 
 use serde::Deserialize;
 
-use super::values::{Reader, Rule};
+use super::values::Reader;
 use super::{id_of, Read, Site, Tolerance, Want};
-use crate::config::de::{self, Later, Num, Text};
+use crate::config::de::{self, Above, AtLeast, Later, Num, Text};
 use crate::config::model::{BlanketReach, LandsideCase, LandwardDistance, Object, RiversideCase};
 use crate::config::problem::Cx;
 use crate::config::reader::finite;
@@ -21,15 +21,15 @@ struct Raw {
     landside_level: Option<Num>,
     landside_gauge: Option<Text>,
     toe_piezometer: Option<Text>,
-    base_width: Option<Num>,
-    foundation_thickness: Option<Num>,
-    k_foundation_m_s: Option<Num>,
-    k_blanket_m_s: Option<Num>,
-    blanket_thickness: Option<Num>,
+    base_width: Option<Above<0>>,
+    foundation_thickness: Option<Above<0>>,
+    k_foundation_m_s: Option<Above<0>>,
+    k_blanket_m_s: Option<AtLeast<0>>,
+    blanket_thickness: Option<Above<0>>,
     riverside: Option<River>,
-    l1: Option<Num>,
+    l1: Option<Above<0>>,
     landside: Option<Land>,
-    l3: Option<Num>,
+    l3: Option<Above<0>>,
     #[allow(dead_code)] // read element by element (`Tbl::array`)
     distances: Option<Later>,
     tolerance_s: Tolerance,
@@ -44,16 +44,6 @@ enum River {
     Impervious,
 }
 
-impl River {
-    fn name(self) -> &'static str {
-        match self {
-            River::Open => "open_entrance",
-            River::NoBlanket => "no_blanket",
-            River::Impervious => "impervious",
-        }
-    }
-}
-
 #[derive(Clone, Copy, PartialEq, Deserialize)]
 #[serde(rename_all = "snake_case")]
 enum Land {
@@ -61,17 +51,6 @@ enum Land {
     SeepageBlock,
     OpenExit,
     Impervious,
-}
-
-impl Land {
-    fn name(self) -> &'static str {
-        match self {
-            Land::Endless => "endless",
-            Land::SeepageBlock => "seepage_block",
-            Land::OpenExit => "open_exit",
-            Land::Impervious => "impervious",
-        }
-    }
 }
 
 pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read {
@@ -92,42 +71,18 @@ pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read
         false,
         Want::Piezometer,
     );
-    let base_width = r.length(cx, "base_width", raw.base_width, true, Rule::Positive);
-    let d = r.length(
-        cx,
-        "foundation_thickness",
-        raw.foundation_thickness,
-        true,
-        Rule::Positive,
-    );
-    let k_f = r.number(
-        cx,
-        "k_foundation_m_s",
-        raw.k_foundation_m_s,
-        true,
-        Rule::Positive,
-    );
-    let k_b = r.number(
-        cx,
-        "k_blanket_m_s",
-        raw.k_blanket_m_s,
-        true,
-        Rule::NonNegative,
-    );
-    let z_bl = r.length(
-        cx,
-        "blanket_thickness",
-        raw.blanket_thickness,
-        true,
-        Rule::Positive,
-    );
+    let base_width = r.length(cx, "base_width", raw.base_width, true);
+    let d = r.length(cx, "foundation_thickness", raw.foundation_thickness, true);
+    let k_f = r.number(cx, "k_foundation_m_s", raw.k_foundation_m_s, true);
+    let k_b = r.number(cx, "k_blanket_m_s", raw.k_blanket_m_s, true);
+    let z_bl = r.length(cx, "blanket_thickness", raw.blanket_thickness, true);
     let river = r.t.need(cx, "riverside", raw.riverside);
     let land = r.t.need(cx, "landside", raw.landside);
     let riverside = river.and_then(|c| {
         let l1 = r.case_length(
             cx,
             ("l1", raw.l1),
-            ("riverside", c.name()),
+            ("riverside", r.t.peek_str("riverside").unwrap_or_default()),
             c != River::NoBlanket,
         );
         match c {
@@ -140,7 +95,7 @@ pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read
         let l3 = r.case_length(
             cx,
             ("l3", raw.l3),
-            ("landside", c.name()),
+            ("landside", r.t.peek_str("landside").unwrap_or_default()),
             c != Land::Endless,
         );
         match c {

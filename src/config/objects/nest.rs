@@ -4,9 +4,9 @@
 
 use serde::Deserialize;
 
-use super::values::{Reader, Rule};
+use super::values::Reader;
 use super::{id_of, Read, Site, Tolerance, Want};
-use crate::config::de::{self, Later, Num, Text};
+use crate::config::de::{self, AtLeast, Later, Text};
 use crate::config::model::{Nest, Object};
 use crate::config::problem::Cx;
 
@@ -19,7 +19,7 @@ struct Raw {
     id: Option<Text>,
     #[allow(dead_code)] // read element by element (`Tbl::array`)
     piezometers: Option<Later>,
-    deadband: Option<Num>,
+    deadband: Option<AtLeast<0>>,
     tolerance_s: Tolerance,
 }
 
@@ -28,7 +28,7 @@ pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read
         return Read::nothing();
     };
     let piezometers = r.references(cx, "piezometers", 2, "piezometer", Want::Piezometer);
-    let deadband = r.number(cx, "deadband", raw.deadband, false, Rule::NonNegative);
+    let deadband = r.number(cx, "deadband", raw.deadband, false);
     let object = piezometers.map(|piezometers| {
         Object::Nest(Nest {
             id: id_of(&raw.id),

@@ -5,7 +5,7 @@
 
 use serde::Deserialize;
 
-use super::values::{Reader, Rule};
+use super::values::Reader;
 use super::{id_of, Read, Site, Tolerance, Want};
 use crate::config::de::{self, Later, Nested, Num, Text};
 use crate::config::model::{Object, Section};
@@ -41,7 +41,7 @@ pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read
         ("tail_level", raw.tail_level),
         false,
     );
-    let toe = r.length(cx, "toe_station", raw.toe_station, true, Rule::Any);
+    let toe = r.length(cx, "toe_station", raw.toe_station, true);
     if let (Some(g), Some(toe)) = (&ground, toe) {
         let (first, last) = (g[0].0, g[g.len() - 1].0);
         if toe < first || toe > last {

@@ -5,9 +5,9 @@
 
 use serde::Deserialize;
 
-use super::values::{Reader, Rule};
+use super::values::Reader;
 use super::{id_of, Read, Site, Tolerance, Want};
-use crate::config::de::{self, Num, Text};
+use crate::config::de::{self, Above, AtLeast, Num, Text};
 use crate::config::model::{CriticalGradientFrom, Object, ToeCheck};
 use crate::config::problem::Cx;
 
@@ -22,11 +22,11 @@ struct Raw {
     ground_elevation: Option<Num>,
     water_gauge: Option<Text>,
     water_level: Option<Num>,
-    blanket_thickness: Option<Num>,
+    blanket_thickness: Option<Above<0>>,
     gamma_sat_kn_m3: Option<Num>,
-    specific_gravity: Option<Num>,
-    void_ratio: Option<Num>,
-    fs_target: Option<Num>,
+    specific_gravity: Option<Above<1>>,
+    void_ratio: Option<AtLeast<0>>,
+    fs_target: Option<Above<1>>,
     tolerance_s: Tolerance,
 }
 
@@ -35,29 +35,17 @@ pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read
         return Read::nothing();
     };
     let piezometer = r.reference(cx, "piezometer", raw.piezometer, true, Want::Piezometer);
-    let ground = r.length(
-        cx,
-        "ground_elevation",
-        raw.ground_elevation,
-        true,
-        Rule::Any,
-    );
+    let ground = r.length(cx, "ground_elevation", raw.ground_elevation, true);
     let water = r.level(
         cx,
         ("water_gauge", raw.water_gauge),
         ("water_level", raw.water_level),
         false,
     );
-    let thickness = r.length(
-        cx,
-        "blanket_thickness",
-        raw.blanket_thickness,
-        true,
-        Rule::Positive,
-    );
+    let thickness = r.length(cx, "blanket_thickness", raw.blanket_thickness, true);
     let weights = (raw.gamma_sat_kn_m3, raw.specific_gravity, raw.void_ratio);
     let critical = critical(cx, r, weights, site.gamma_w);
-    let fs_target = r.number(cx, "fs_target", raw.fs_target, false, Rule::Above(1.0));
+    let fs_target = r.number(cx, "fs_target", raw.fs_target, false);
     let object = (|| {
         Some(Object::Toe(ToeCheck {
             id: id_of(&raw.id),
@@ -82,7 +70,7 @@ pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read
 fn critical(
     cx: &mut Cx<'_>,
     r: &Reader<'_>,
-    (gamma_sat, gs, e): (Option<Num>, Option<Num>, Option<Num>),
+    (gamma_sat, gs, e): (Option<Num>, Option<Above<1>>, Option<AtLeast<0>>),
     gamma_w: f64,
 ) -> Option<CriticalGradientFrom> {
     let unit_weight = r.t.has("gamma_sat_kn_m3");
@@ -100,7 +88,7 @@ fn critical(
         );
     }
     if unit_weight {
-        let g = r.number(cx, "gamma_sat_kn_m3", gamma_sat, true, Rule::Any)?;
+        let g = r.number(cx, "gamma_sat_kn_m3", gamma_sat, true)?;
         if g <= gamma_w {
             r.t.problem_at(
                 cx,
@@ -121,8 +109,8 @@ fn critical(
         );
         return None;
     }
-    let gs = r.number(cx, "specific_gravity", gs, true, Rule::Above(1.0));
-    let e = r.number(cx, "void_ratio", e, true, Rule::NonNegative);
+    let gs = r.number(cx, "specific_gravity", gs, true);
+    let e = r.number(cx, "void_ratio", e, true);
     Some(CriticalGradientFrom::GsE {
         specific_gravity: gs?,
         void_ratio: e?,

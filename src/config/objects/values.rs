@@ -1,42 +1,36 @@
 //! Checks of object values shared by every kind, on top of the raw values `de::table` read:
-//! numbers with a range rule, lengths in metres, instrument references (recorded for `refs`),
+//! required numbers, lengths in metres, instrument references (recorded for `refs`),
 //! levels from a gauge or a fixed elevation, and lengths that a case needs or excludes; lists
 //! of instrument ids, whose elements are located one by one, read through `reader::Tbl`.
 //!
 //! Owns those messages. Must not know which keys a table has (each kind's raw struct does).
 
 use super::{Ref, Want};
-use crate::config::de::{Num, Text};
+use crate::config::de::{Above, AtLeast, Num, Text};
 use crate::config::model::Level;
 use crate::config::problem::Cx;
 use crate::config::reader::Tbl;
 
-/// What a number must be.
-#[derive(Clone, Copy)]
-pub(super) enum Rule {
-    Any,
-    Positive,
-    NonNegative,
-    Above(f64),
+/// A number `de::table` read and checked (`Num`, or one with a bound).
+pub(super) trait Number: Copy {
+    fn get(self) -> f64;
 }
 
-impl Rule {
-    fn admits(self, v: f64) -> bool {
-        match self {
-            Rule::Any => true,
-            Rule::Positive => v > 0.0,
-            Rule::NonNegative => v >= 0.0,
-            Rule::Above(lo) => v > lo,
-        }
+impl Number for Num {
+    fn get(self) -> f64 {
+        self.0
     }
+}
 
-    fn text(self) -> String {
-        match self {
-            Rule::Any => "a number".into(),
-            Rule::Positive => "a number > 0".into(),
-            Rule::NonNegative => "a number >= 0".into(),
-            Rule::Above(lo) => format!("a number > {lo}"),
-        }
+impl<const LO: i64> Number for Above<LO> {
+    fn get(self) -> f64 {
+        self.0
+    }
+}
+
+impl<const LO: i64> Number for AtLeast<LO> {
+    fn get(self) -> f64 {
+        self.0
     }
 }
 
@@ -49,40 +43,27 @@ pub(super) struct Reader<'t> {
 }
 
 impl Reader<'_> {
-    /// A number as written (no unit conversion) obeying `rule`; `req`: a missing key is a
-    /// problem.
-    pub(super) fn number(
+    /// A number as written; `req`: a missing key is a problem.
+    pub(super) fn number<N: Number>(
         &self,
         cx: &mut Cx<'_>,
         key: &str,
-        v: Option<Num>,
+        v: Option<N>,
         req: bool,
-        rule: Rule,
     ) -> Option<f64> {
         let v = if req { self.t.need(cx, key, v) } else { v };
-        let Num(v) = v?;
-        if !rule.admits(v) {
-            let expected = rule.text();
-            self.t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {v}, expected {expected}"),
-            );
-            return None;
-        }
-        Some(v)
+        v.map(N::get)
     }
 
-    /// A length in the site's unit obeying `rule`, in metres.
-    pub(super) fn length(
+    /// A length in the site's unit, in metres; `req`: a missing key is a problem.
+    pub(super) fn length<N: Number>(
         &self,
         cx: &mut Cx<'_>,
         key: &str,
-        v: Option<Num>,
+        v: Option<N>,
         req: bool,
-        rule: Rule,
     ) -> Option<f64> {
-        self.number(cx, key, v, req, rule).map(|v| v * self.m)
+        self.number(cx, key, v, req).map(|v| v * self.m)
     }
 
     /// One instrument id under `key`, recorded as a reference.
@@ -194,7 +175,7 @@ impl Reader<'_> {
             );
         }
         let gauge = self.reference(cx, gauge_key, gauge, false, Want::StageGauge);
-        let fixed = self.length(cx, level_key, level, false, Rule::Any);
+        let fixed = self.length(cx, level_key, level, false);
         match (gauge, fixed) {
             (Some(id), None) => Some(Level::Gauge(id)),
             (None, Some(m)) => Some(Level::Fixed(m)),
@@ -206,7 +187,7 @@ impl Reader<'_> {
     pub(super) fn case_length(
         &self,
         cx: &mut Cx<'_>,
-        (key, v): (&str, Option<Num>),
+        (key, v): (&str, Option<Above<0>>),
         (case_key, case): (&str, &str),
         needed: bool,
     ) -> Option<f64> {
@@ -220,6 +201,6 @@ impl Reader<'_> {
                 format!("key \"{key}\" does not apply to {case_key} = \"{case}\"; remove it or change {case_key}"),
             );
         }
-        self.length(cx, key, v, false, Rule::Positive)
+        self.length(cx, key, v, false)
     }
 }
