@@ -23,6 +23,7 @@ pub mod ingest;
 pub mod manual;
 pub mod model;
 pub mod notify;
+pub mod objkind;
 pub mod payload;
 pub mod plot_cmd;
 pub mod present;

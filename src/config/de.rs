@@ -181,6 +181,10 @@ impl<'de> Deserialize<'de> for Nested {
     }
 }
 
+/// A value read after the table through `Tbl`'s reads (an array whose elements are located one
+/// by one): accepted here as a key, not read.
+pub(crate) type Later = Nested;
+
 /// An integer within `LO..=HI` ("is 0, expected between 1 and 65535" otherwise).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) struct Int<const LO: i64, const HI: i64>(pub i64);
@@ -319,6 +323,38 @@ impl<'de> de::Visitor<'de> for TextOf {
             (DATE, Some(_)) => map.next_value(),
             _ => Err(de::Error::invalid_type(de::Unexpected::Map, &self)),
         }
+    }
+}
+
+/// A finite number above `LO` ("is 0, expected a number > 0" otherwise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Above<const LO: i64>(pub f64);
+
+impl<'de, const LO: i64> Deserialize<'de> for Above<LO> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let Num(n) = Num::deserialize(d)?;
+        if n > LO as f64 {
+            return Ok(Above(n));
+        }
+        Err(de::Error::custom(format!(
+            "is {n}, expected a number > {LO}"
+        )))
+    }
+}
+
+/// A finite number of at least `LO` ("is -1, expected a number >= 0" otherwise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct AtLeast<const LO: i64>(pub f64);
+
+impl<'de, const LO: i64> Deserialize<'de> for AtLeast<LO> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let Num(n) = Num::deserialize(d)?;
+        if n >= LO as f64 {
+            return Ok(AtLeast(n));
+        }
+        Err(de::Error::custom(format!(
+            "is {n}, expected a number >= {LO}"
+        )))
     }
 }
 

@@ -15,7 +15,7 @@ use toml_edit::ImDocument;
 
 use super::alerting::Alerting;
 use super::model::{Config, Objects, PayloadFormat, Trends};
-use super::objects::{self, Known, Object};
+use super::objects::{self, Known};
 use super::problem::{whole_file, Cx, LineIndex};
 use super::reader::Tbl;
 use super::reports;
@@ -24,6 +24,7 @@ use super::section_model;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
 use super::trends::{self, Model};
+use crate::objkind::ObjectKind;
 
 pub use super::problem::{Problem, Problems};
 
@@ -108,12 +109,8 @@ pub(crate) fn load_dir_with(dir: &Path, env: Env<'_>) -> Result<Config, Problems
             .map(|(p, sf)| (p.clone(), &sf.alerting))
             .collect();
         let object_ids: BTreeSet<String> = objects
-            .nests
-            .iter()
-            .map(|o| o.id.clone())
-            .chain(objects.toes.iter().map(|o| o.id.clone()))
-            .chain(objects.blankets.iter().map(|o| o.id.clone()))
-            .chain(objects.sections.iter().map(|o| o.id.clone()))
+            .all()
+            .map(|(_, id, _)| id.to_string())
             .chain(trends.stage_responses.iter().map(|m| m.id.clone()))
             .chain(trends.hst.iter().map(|m| m.id.clone()))
             .collect();
@@ -394,7 +391,12 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
     }
     for (file, sf) in sites {
         let models = sf.trends.models.iter().map(|m| (m.table, &m.id));
-        for (table, id) in sf.objects.iter().map(|o| (o.table, &o.id)).chain(models) {
+        for (table, id) in sf
+            .objects
+            .iter()
+            .map(|o| (o.kind.table(), &o.id))
+            .chain(models)
+        {
             let Some((id, pos)) = id else { continue };
             if let Some(k) = known.get(id.as_str()) {
                 let by = if k.object {
@@ -429,12 +431,8 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
         for o in &sf.objects {
             let (found, object) = objects::resolve(o, site_of(sf), &known);
             problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
-            match object {
-                Some(Object::Nest(c)) => out.nests.push(c),
-                Some(Object::Toe(t)) => out.toes.push(t),
-                Some(Object::Blanket(b)) => out.blankets.push(b),
-                Some(Object::Section(s)) => out.sections.push(s),
-                None => {}
+            if let Some(object) = object {
+                out.push(object);
             }
         }
     }
@@ -564,20 +562,14 @@ pub fn summary(cfg: &Config) -> String {
 }
 
 /// A site's object ids per table name, in the order the tables are read.
-fn site_objects<'a>(o: &'a Objects, site: &str) -> [(&'static str, Vec<&'a str>); 4] {
-    fn ids<'a, T>(v: &'a [T], site: &str, f: fn(&T) -> (&str, &str)) -> Vec<&'a str> {
-        v.iter()
-            .map(f)
-            .filter(|(s, _)| *s == site)
-            .map(|(_, id)| id)
-            .collect()
-    }
-    [
-        ("nest", ids(&o.nests, site, |c| (&c.site, &c.id))),
-        ("toe", ids(&o.toes, site, |t| (&t.site, &t.id))),
-        ("blanket", ids(&o.blankets, site, |b| (&b.site, &b.id))),
-        ("section", ids(&o.sections, site, |x| (&x.site, &x.id))),
-    ]
+fn site_objects<'a>(o: &'a Objects, site: &str) -> Vec<(&'static str, Vec<&'a str>)> {
+    ObjectKind::ALL
+        .into_iter()
+        .map(|k| {
+            let ids = o.of(k).into_iter().filter(|(_, s)| *s == site);
+            (k.table(), ids.map(|(id, _)| id).collect())
+        })
+        .collect()
 }
 
 #[cfg(test)]

@@ -9,6 +9,8 @@ use std::path::PathBuf;
 
 use chrono::{DateTime, Utc};
 
+use crate::objkind::ObjectKind;
+
 /// A secret (password, token). Never printed by `Debug` or `Display`.
 #[derive(Clone, PartialEq, Eq)]
 pub struct Secret(pub String);
@@ -56,18 +58,17 @@ impl Config {
 
     /// The site of an instrument or derived object, by id.
     pub fn site_of_object(&self, id: &str) -> Option<&Site> {
-        let o = &self.objects;
-        let site = self.instruments.get(id).map(|i| &i.site).or_else(|| {
-            o.nests
-                .iter()
-                .map(|x| (&x.id, &x.site))
-                .chain(o.toes.iter().map(|x| (&x.id, &x.site)))
-                .chain(o.blankets.iter().map(|x| (&x.id, &x.site)))
-                .chain(o.sections.iter().map(|x| (&x.id, &x.site)))
-                .find(|(x, _)| *x == id)
-                .map(|(_, s)| s)
-        })?;
-        self.sites.iter().find(|s| &s.id == site)
+        let site = self
+            .instruments
+            .get(id)
+            .map(|i| i.site.as_str())
+            .or_else(|| {
+                self.objects
+                    .all()
+                    .find(|(_, x, _)| *x == id)
+                    .map(|(_, _, s)| s)
+            })?;
+        self.sites.iter().find(|s| s.id == site)
     }
 }
 
@@ -576,11 +577,65 @@ pub struct Section {
     pub model: Option<super::section_model::SeepageSpec>,
 }
 
-/// All derived-quantity objects of the configuration.
+/// All derived-quantity objects of the configuration, one list per kind
+/// (`crate::objkind::ObjectKind`); `of` and `push` are the exhaustive matches.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Objects {
     pub nests: Vec<Nest>,
     pub toes: Vec<ToeCheck>,
     pub blankets: Vec<BlanketReach>,
     pub sections: Vec<Section>,
+}
+
+/// One validated derived-quantity object, of any kind.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Object {
+    Nest(Nest),
+    Toe(ToeCheck),
+    Blanket(BlanketReach),
+    Section(Section),
+}
+
+impl Object {
+    /// The object's tolerance, settled once every site file is read.
+    pub(crate) fn set_tolerance(&mut self, t: i64) {
+        match self {
+            Object::Nest(c) => c.tolerance_s = t,
+            Object::Toe(c) => c.tolerance_s = t,
+            Object::Blanket(c) => c.tolerance_s = t,
+            Object::Section(c) => c.tolerance_s = t,
+        }
+    }
+}
+
+impl Objects {
+    /// Add one object to its kind's list.
+    pub fn push(&mut self, o: Object) {
+        match o {
+            Object::Nest(c) => self.nests.push(c),
+            Object::Toe(t) => self.toes.push(t),
+            Object::Blanket(b) => self.blankets.push(b),
+            Object::Section(s) => self.sections.push(s),
+        }
+    }
+
+    /// (id, site) of every object of `kind`, in configuration order.
+    pub fn of(&self, kind: ObjectKind) -> Vec<(&str, &str)> {
+        fn ids<T>(v: &[T], f: fn(&T) -> (&str, &str)) -> Vec<(&str, &str)> {
+            v.iter().map(f).collect()
+        }
+        match kind {
+            ObjectKind::Nest => ids(&self.nests, |x| (&x.id, &x.site)),
+            ObjectKind::Toe => ids(&self.toes, |x| (&x.id, &x.site)),
+            ObjectKind::Blanket => ids(&self.blankets, |x| (&x.id, &x.site)),
+            ObjectKind::Section => ids(&self.sections, |x| (&x.id, &x.site)),
+        }
+    }
+
+    /// Every object as (kind, id, site), kinds in registry order.
+    pub fn all(&self) -> impl Iterator<Item = (ObjectKind, &str, &str)> {
+        ObjectKind::ALL
+            .into_iter()
+            .flat_map(|k| self.of(k).into_iter().map(move |(id, site)| (k, id, site)))
+    }
 }

@@ -242,61 +242,6 @@ impl<'t> Tbl<'t> {
         converted
     }
 
-    /// An optional string.
-    pub fn string(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
-        self.get(cx, key, false, "a string", |v| v.as_str().map(String::from))
-    }
-
-    /// An optional non-empty string.
-    pub fn nonempty(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
-        let s = self.string(cx, key)?;
-        if s.trim().is_empty() {
-            self.problem_at(cx, key, format!("key \"{key}\" is empty"));
-            return None;
-        }
-        Some(s)
-    }
-
-    /// A finite number (`req`: required).
-    pub fn number(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<f64> {
-        let n = self.get(cx, key, req, "a number", number)?;
-        if !n.is_finite() {
-            self.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {n}, expected a finite number"),
-            );
-            return None;
-        }
-        Some(n)
-    }
-
-    /// An integer within `lo..=hi`; `None` when absent (a problem if `req`) or invalid.
-    pub fn opt_int_in(
-        &self,
-        cx: &mut Cx<'_>,
-        key: &str,
-        lo: i64,
-        hi: i64,
-        req: bool,
-    ) -> Option<i64> {
-        let n = self.get(cx, key, req, "an integer", Value::as_integer)?;
-        if n < lo || n > hi {
-            let expected = if hi == i64::MAX {
-                format!("at least {lo}")
-            } else {
-                format!("between {lo} and {hi}")
-            };
-            self.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {n}, expected {expected}"),
-            );
-            return None;
-        }
-        Some(n)
-    }
-
     /// An array (`expected` describes it) whose every element `conv` accepts, each element with
     /// its span (`req`: required). A problem names the first element `conv` rejects and what
     /// each `element` should be.
@@ -326,30 +271,6 @@ impl<'t> Tbl<'t> {
             out.push((t, v.span()));
         }
         Some(out)
-    }
-
-    /// One of a fixed set of strings; the problem lists the accepted spellings.
-    pub fn choice<T: Copy>(
-        &self,
-        cx: &mut Cx<'_>,
-        key: &str,
-        req: bool,
-        options: &[(&str, T)],
-    ) -> Option<T> {
-        let s = self.get(cx, key, req, "a string", |v| v.as_str().map(String::from))?;
-        if let Some((_, t)) = options.iter().find(|(name, _)| *name == s) {
-            return Some(*t);
-        }
-        let names: Vec<&str> = options.iter().map(|(n, _)| *n).collect();
-        self.problem_at(
-            cx,
-            key,
-            format!(
-                "key \"{key}\" is {s:?}, expected one of: {}",
-                names.join(", ")
-            ),
-        );
-        None
     }
 
     /// A sub-table, if present (a problem if `key` holds something else).

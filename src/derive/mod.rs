@@ -15,8 +15,9 @@ mod tests;
 use std::collections::HashMap;
 use std::sync::Arc;
 
-use crate::config::{Config, Level};
+use crate::config::{Config, Level, Objects};
 use crate::model::{DerivedRow, ReadingRow};
+use crate::objkind::ObjectKind;
 use crate::quality::Flags;
 
 pub use objects::{blanket_ratio, section_input};
@@ -66,14 +67,8 @@ pub struct Head {
     pub flags: Flags,
 }
 
-/// Which object an instrument feeds.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum ObjRef {
-    Nest(usize),
-    Toe(usize),
-    Blanket(usize),
-    Section(usize),
-}
+/// Which object an instrument feeds: its kind and its place in the kind's list.
+type ObjRef = (ObjectKind, usize);
 
 /// The derived-quantity state: latest heads and which objects depend on which instruments.
 pub struct Deriver {
@@ -82,6 +77,52 @@ pub struct Deriver {
     latest: HashMap<String, Head>,
     /// Instrument id → the objects it is an input of.
     dependents: HashMap<String, Vec<ObjRef>>,
+}
+
+/// The instruments each object of `kind` reads (a gauge only when a level is measured),
+/// in configuration order.
+fn inputs(objs: &Objects, kind: ObjectKind) -> Vec<Vec<&str>> {
+    fn gauge(l: Option<&Level>) -> Option<&str> {
+        match l {
+            Some(Level::Gauge(g)) => Some(g),
+            _ => None,
+        }
+    }
+    fn strs(v: &[String]) -> Vec<&str> {
+        v.iter().map(String::as_str).collect()
+    }
+    match kind {
+        ObjectKind::Nest => objs.nests.iter().map(|c| strs(&c.piezometers)).collect(),
+        ObjectKind::Toe => objs
+            .toes
+            .iter()
+            .map(|t| {
+                let mut v = vec![t.piezometer.as_str()];
+                v.extend(gauge(t.water.as_ref()));
+                v
+            })
+            .collect(),
+        ObjectKind::Blanket => objs
+            .blankets
+            .iter()
+            .map(|b| {
+                let mut v = vec![b.river_gauge.as_str()];
+                v.extend(gauge(Some(&b.landside_level)));
+                v.extend(b.toe_piezometer.as_deref());
+                v
+            })
+            .collect(),
+        ObjectKind::Section => objs
+            .sections
+            .iter()
+            .map(|s| {
+                let mut v = vec![s.pool_gauge.as_str()];
+                v.extend(gauge(s.tail.as_ref()));
+                v.extend(strs(&s.piezometers));
+                v
+            })
+            .collect(),
+    }
 }
 
 /// One computed quantity before it becomes a row.
@@ -118,38 +159,15 @@ impl Quantity {
 impl Deriver {
     pub fn new(cfg: Arc<Config>) -> Deriver {
         let mut dependents: HashMap<String, Vec<ObjRef>> = HashMap::new();
-        let mut add = |id: &str, o: ObjRef| dependents.entry(id.to_string()).or_default().push(o);
-        let level = |l: &Option<Level>| match l {
-            Some(Level::Gauge(g)) => Some(g.clone()),
-            _ => None,
-        };
-        let objs = &cfg.objects;
-        for (k, c) in objs.nests.iter().enumerate() {
-            c.piezometers.iter().for_each(|p| add(p, ObjRef::Nest(k)));
-        }
-        for (k, t) in objs.toes.iter().enumerate() {
-            add(&t.piezometer, ObjRef::Toe(k));
-            if let Some(g) = level(&t.water) {
-                add(&g, ObjRef::Toe(k));
+        for kind in ObjectKind::ALL {
+            for (k, inputs) in inputs(&cfg.objects, kind).into_iter().enumerate() {
+                for id in inputs {
+                    dependents
+                        .entry(id.to_string())
+                        .or_default()
+                        .push((kind, k));
+                }
             }
-        }
-        for (k, b) in objs.blankets.iter().enumerate() {
-            add(&b.river_gauge, ObjRef::Blanket(k));
-            if let Some(g) = level(&Some(b.landside_level.clone())) {
-                add(&g, ObjRef::Blanket(k));
-            }
-            if let Some(p) = &b.toe_piezometer {
-                add(p, ObjRef::Blanket(k));
-            }
-        }
-        for (k, s) in objs.sections.iter().enumerate() {
-            add(&s.pool_gauge, ObjRef::Section(k));
-            if let Some(g) = level(&s.tail) {
-                add(&g, ObjRef::Section(k));
-            }
-            s.piezometers
-                .iter()
-                .for_each(|p| add(p, ObjRef::Section(k)));
         }
         Deriver {
             cfg,
@@ -234,13 +252,12 @@ impl Deriver {
                 t_ms: head.t_ms,
                 suspect: std::cell::RefCell::new(Vec::new()),
             };
+            let (cfg, objs) = (&self.cfg, &self.cfg.objects);
             let (id, names, mut qs) = match o {
-                ObjRef::Nest(k) => objects::nest(&self.cfg.objects.nests[k], &inputs),
-                ObjRef::Toe(k) => objects::toe(&self.cfg, &self.cfg.objects.toes[k], &inputs),
-                ObjRef::Blanket(k) => objects::blanket(&self.cfg.objects.blankets[k], &inputs),
-                ObjRef::Section(k) => {
-                    objects::section(&self.cfg, &self.cfg.objects.sections[k], &inputs)
-                }
+                (ObjectKind::Nest, k) => objects::nest(&objs.nests[k], &inputs),
+                (ObjectKind::Toe, k) => objects::toe(cfg, &objs.toes[k], &inputs),
+                (ObjectKind::Blanket, k) => objects::blanket(&objs.blankets[k], &inputs),
+                (ObjectKind::Section, k) => objects::section(cfg, &objs.sections[k], &inputs),
             };
             let suspect = inputs.suspect.into_inner();
             if !suspect.is_empty() {

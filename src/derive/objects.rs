@@ -15,6 +15,7 @@ use crate::domain::toe::{
 };
 
 use super::{Inputs, Quantity};
+use crate::objkind::{ObjectKind, MEASURED_BLANKET};
 
 type Computed = (String, Vec<String>, Vec<Quantity>);
 
@@ -25,8 +26,6 @@ fn all_none(names: &[(&str, &'static str)], reason: &str) -> Vec<Quantity> {
         .map(|(n, u)| Quantity::none(*n, u, reason))
         .collect()
 }
-
-const NEST_QUANTITIES: [(&str, &str); 2] = [("vertical_gradient", "-"), ("flow_direction", "-")];
 
 /// Vertical gradients of nested piezometers: overall (deepest to shallowest), its direction
 /// (+1 upward, 0 none within the deadband, −1 downward), and between adjacent tips when there
@@ -55,12 +54,12 @@ pub(super) fn nest(c: &Nest, inp: &Inputs<'_>) -> Computed {
         })
         .collect();
     let qs = match tips {
-        Err(reason) => all_none(&NEST_QUANTITIES, &reason),
+        Err(reason) => all_none(ObjectKind::Nest.quantities(), &reason),
         Ok(mut tips) => {
             tips.sort_by(|a, b| a.2.total_cmp(&b.2));
             let plain: Vec<Tip> = tips.iter().map(|t| t.1).collect();
             match nest_gradients(&plain, c.deadband) {
-                Err(e) => all_none(&NEST_QUANTITIES, &e.to_string()),
+                Err(e) => all_none(ObjectKind::Nest.quantities(), &e.to_string()),
                 Ok(g) => {
                     let dir = match g.overall.direction {
                         Direction::Upward => 1.0,
@@ -84,15 +83,6 @@ pub(super) fn nest(c: &Nest, inp: &Inputs<'_>) -> Computed {
     };
     (c.id.clone(), c.piezometers.clone(), qs)
 }
-
-const TOE_QUANTITIES: [(&str, &str); 6] = [
-    ("excess_head", "m"),
-    ("head_above_ground", "m"),
-    ("exit_gradient", "-"),
-    ("critical_gradient", "-"),
-    ("factor_of_safety", "-"),
-    ("allowable_head", "m"),
-];
 
 /// Toe check: exit gradient `i = h_o/z_t`, critical gradient, `FS = i_c/i` (no value when
 /// `i ≤ 0`), excess head and the allowable head at the blanket base for the target FS.
@@ -155,7 +145,7 @@ pub(super) fn toe(cfg: &Config, t: &ToeCheck, inp: &Inputs<'_>) -> Computed {
             Quantity::some("allowable_head", allowable, "m"),
         ])
     };
-    let qs = compute().unwrap_or_else(|reason| all_none(&TOE_QUANTITIES, &reason));
+    let qs = compute().unwrap_or_else(|reason| all_none(ObjectKind::Toe.quantities(), &reason));
     (t.id.clone(), names, qs)
 }
 
@@ -206,19 +196,14 @@ pub(super) fn blanket(b: &BlanketReach, inp: &Inputs<'_>) -> Computed {
         names.push(g.clone());
     }
     names.extend(b.toe_piezometer.clone());
-    let mut all: Vec<(String, &'static str)> = [
-        ("net_head", "m"),
-        ("expected_excess_head", "m"),
-        ("expected_exit_gradient", "-"),
-        ("expected_residual_ratio", "-"),
-        ("expected_flow", "m2/s"),
-    ]
-    .iter()
-    .map(|(n, u)| (n.to_string(), *u))
-    .collect();
+    let mut all: Vec<(String, &'static str)> = ObjectKind::Blanket
+        .quantities()
+        .iter()
+        .map(|(n, u)| (n.to_string(), *u))
+        .collect();
     all.extend(b.distances.iter().map(|x| (at_distance(x), "m")));
     if b.toe_piezometer.is_some() {
-        all.extend(MEASURED.iter().map(|(n, u)| (n.to_string(), *u)));
+        all.extend(MEASURED_BLANKET.iter().map(|(n, u)| (n.to_string(), *u)));
     }
     let compute = || -> Result<Vec<Quantity>, String> {
         let river = inp.head(&b.river_gauge, b.tolerance_s)?;
@@ -277,7 +262,7 @@ pub(super) fn blanket(b: &BlanketReach, inp: &Inputs<'_>) -> Computed {
                 });
             }
             Some(Err(reason)) => {
-                for (q, u) in MEASURED {
+                for (q, u) in MEASURED_BLANKET {
                     qs.push(Quantity::none(q, u, reason.clone()));
                 }
             }
@@ -297,21 +282,6 @@ pub(super) fn blanket(b: &BlanketReach, inp: &Inputs<'_>) -> Computed {
     });
     (b.id.clone(), names, qs)
 }
-
-/// Quantities of a blanket reach that need the toe piezometer.
-const MEASURED: [(&str, &str); 3] = [
-    ("measured_excess_head", "m"),
-    ("measured_residual_ratio", "-"),
-    ("effective_x3", "m"),
-];
-
-const SECTION_QUANTITIES: [(&str, &str); 5] = [
-    ("exit_station", "m"),
-    ("exit_elevation", "m"),
-    ("seepage_face_height", "m"),
-    ("min_cover", "m"),
-    ("min_cover_station", "m"),
-];
 
 /// Build a section's analysis input from heads looked up by `head(id)`.
 ///
@@ -392,6 +362,6 @@ pub(super) fn section(cfg: &Config, s: &Section, inp: &Inputs<'_>) -> Computed {
             Quantity::some("min_cover_station", r.min_cover.station_m, "m"),
         ])
     };
-    let qs = compute().unwrap_or_else(|reason| all_none(&SECTION_QUANTITIES, &reason));
+    let qs = compute().unwrap_or_else(|reason| all_none(ObjectKind::Section.quantities(), &reason));
     (s.id.clone(), names, qs)
 }

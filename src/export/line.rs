@@ -31,29 +31,11 @@ pub struct ObjectTags {
 impl ObjectTags {
     /// The objects of `cfg`.
     pub fn from_config(cfg: &Config) -> ObjectTags {
-        let o = &cfg.objects;
-        let mut map = HashMap::new();
-        let all = [
-            o.nests
-                .iter()
-                .map(|c| (&c.id, &c.site, "nest"))
-                .collect::<Vec<_>>(),
-            o.toes
-                .iter()
-                .map(|t| (&t.id, &t.site, "toe_check"))
-                .collect(),
-            o.blankets
-                .iter()
-                .map(|b| (&b.id, &b.site, "blanket_reach"))
-                .collect(),
-            o.sections
-                .iter()
-                .map(|s| (&s.id, &s.site, "section"))
-                .collect(),
-        ];
-        for (id, site, kind) in all.into_iter().flatten() {
-            map.insert(id.clone(), (site.clone(), kind));
-        }
+        let map = cfg
+            .objects
+            .all()
+            .map(|(kind, id, site)| (id.to_string(), (site.to_string(), kind.export_tag())))
+            .collect();
         ObjectTags { map }
     }
 }

@@ -419,3 +419,44 @@ fn feet_site_objects_are_converted_to_metres() {
         "{s:?}"
     );
 }
+/// Values of the wrong type are named with what was found and what each key expects.
+#[test]
+fn wrong_types_say_what_was_found_and_expected() {
+    let cases = [
+        (
+            46,
+            "riverside = 3",
+            46,
+            "key \"riverside\" is 3, expected a string",
+        ),
+        (
+            46,
+            "riverside = [\"x\"]",
+            46,
+            "key \"riverside\" is an array, expected a string",
+        ),
+        (
+            30,
+            "piezometers = [\"P1\", \"P2\"]\ndeadband = \"x\"",
+            31,
+            "nest \"C1\": key \"deadband\" is \"x\", expected a number",
+        ),
+        (
+            33,
+            "piezometer = 3",
+            33,
+            "key \"piezometer\" is 3, expected a string",
+        ),
+        (29, "id = \" \"", 29, "nest #1: key \"id\" is empty"),
+    ];
+    for (n, text, line, needle) in cases {
+        let got = problems(&[("s.toml", &site_edit(&[(n, text)]))]);
+        assert_eq!(got.len(), 1, "{text:?}: {got:#?}");
+        assert_eq!(got[0].1, line, "{text:?}: {got:#?}");
+        assert!(
+            got[0].2.ends_with(needle),
+            "{:?} should end with {needle:?}",
+            got[0].2
+        );
+    }
+}

@@ -55,20 +55,14 @@ pub(crate) fn resolve(
         Some(i64::try_from(t).unwrap_or(i64::MAX))
     });
     let object = match (&e.object, tolerance) {
-        (Some(o), Some(t)) if problems.is_empty() => Some(with_tolerance(o.clone(), t)),
+        (Some(o), Some(t)) if problems.is_empty() => {
+            let mut o = o.clone();
+            o.set_tolerance(t);
+            Some(o)
+        }
         _ => None,
     };
     (problems, object)
-}
-
-fn with_tolerance(mut o: Object, t: i64) -> Object {
-    match &mut o {
-        Object::Nest(c) => c.tolerance_s = t,
-        Object::Toe(c) => c.tolerance_s = t,
-        Object::Blanket(c) => c.tolerance_s = t,
-        Object::Section(c) => c.tolerance_s = t,
-    }
-    o
 }
 
 /// How a reference's expected target is named.

@@ -1,48 +1,36 @@
-//! Typed reads of object values on top of `reader::Tbl`: numbers with a range rule, lengths in
-//! metres, instrument references (recorded for `refs`), levels from a gauge or a fixed
-//! elevation, and lengths that a case needs or excludes.
+//! Checks of object values shared by every kind, on top of the raw values `de::table` read:
+//! required numbers, lengths in metres, instrument references (recorded for `refs`),
+//! levels from a gauge or a fixed elevation, and lengths that a case needs or excludes; lists
+//! of instrument ids, whose elements are located one by one, read through `reader::Tbl`.
 //!
-//! Owns those messages. Must not know which keys a table has (that is `objects`).
+//! Owns those messages. Must not know which keys a table has (each kind's raw struct does).
 
 use super::{Ref, Want};
+use crate::config::de::{Above, AtLeast, Num, Text};
 use crate::config::model::Level;
 use crate::config::problem::Cx;
 use crate::config::reader::Tbl;
 
-/// The spelling of a case, for messages.
-pub(super) fn name<T: PartialEq>(options: &[(&'static str, T)], case: &T) -> &'static str {
-    options
-        .iter()
-        .find(|(_, o)| o == case)
-        .map_or("", |(n, _)| *n)
+/// A number `de::table` read and checked (`Num`, or one with a bound).
+pub(super) trait Number: Copy {
+    fn get(self) -> f64;
 }
 
-/// What a number must be.
-#[derive(Clone, Copy)]
-pub(super) enum Rule {
-    Any,
-    Positive,
-    NonNegative,
-    Above(f64),
-}
-
-impl Rule {
-    fn admits(self, v: f64) -> bool {
-        match self {
-            Rule::Any => true,
-            Rule::Positive => v > 0.0,
-            Rule::NonNegative => v >= 0.0,
-            Rule::Above(lo) => v > lo,
-        }
+impl Number for Num {
+    fn get(self) -> f64 {
+        self.0
     }
+}
 
-    fn text(self) -> String {
-        match self {
-            Rule::Any => "a number".into(),
-            Rule::Positive => "a number > 0".into(),
-            Rule::NonNegative => "a number >= 0".into(),
-            Rule::Above(lo) => format!("a number > {lo}"),
-        }
+impl<const LO: i64> Number for Above<LO> {
+    fn get(self) -> f64 {
+        self.0
+    }
+}
+
+impl<const LO: i64> Number for AtLeast<LO> {
+    fn get(self) -> f64 {
+        self.0
     }
 }
 
@@ -55,24 +43,27 @@ pub(super) struct Reader<'t> {
 }
 
 impl Reader<'_> {
-    /// A finite number obeying `rule`, as written (no unit conversion).
-    pub(super) fn number(&self, cx: &mut Cx<'_>, key: &str, req: bool, rule: Rule) -> Option<f64> {
-        let v = self.t.number(cx, key, req)?;
-        if !rule.admits(v) {
-            let expected = rule.text();
-            self.t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {v}, expected {expected}"),
-            );
-            return None;
-        }
-        Some(v)
+    /// A number as written; `req`: a missing key is a problem.
+    pub(super) fn number<N: Number>(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        v: Option<N>,
+        req: bool,
+    ) -> Option<f64> {
+        let v = if req { self.t.need(cx, key, v) } else { v };
+        v.map(N::get)
     }
 
-    /// A length in the site's unit obeying `rule`, in metres.
-    pub(super) fn length(&self, cx: &mut Cx<'_>, key: &str, req: bool, rule: Rule) -> Option<f64> {
-        self.number(cx, key, req, rule).map(|v| v * self.m)
+    /// A length in the site's unit, in metres; `req`: a missing key is a problem.
+    pub(super) fn length<N: Number>(
+        &self,
+        cx: &mut Cx<'_>,
+        key: &str,
+        v: Option<N>,
+        req: bool,
+    ) -> Option<f64> {
+        self.number(cx, key, v, req).map(|v| v * self.m)
     }
 
     /// One instrument id under `key`, recorded as a reference.
@@ -80,14 +71,12 @@ impl Reader<'_> {
         &mut self,
         cx: &mut Cx<'_>,
         key: &'static str,
+        v: Option<Text>,
         req: bool,
         want: Want,
     ) -> Option<String> {
-        if req && !self.t.has(key) {
-            self.t.missing(cx, key, "");
-            return None;
-        }
-        let id = self.t.nonempty(cx, key)?;
+        let v = if req { self.t.need(cx, key, v) } else { v };
+        let Text(id) = v?;
         let pos = cx.pos(self.t.value_span(key));
         self.refs.push(Ref {
             key,
@@ -156,13 +145,13 @@ impl Reader<'_> {
         Some(ids).filter(|_| cx.problems.len() == before)
     }
 
-    /// A level from a stage gauge (`gauge_key`) or a fixed elevation (`level_key`): never both;
-    /// one of them when `req`. `None` when neither is written (or after a problem).
+    /// A level from a stage gauge (`gauge`) or a fixed elevation (`level`): never both; one
+    /// of them when `req`. `None` when neither is written (or after a problem).
     pub(super) fn level(
         &mut self,
         cx: &mut Cx<'_>,
-        gauge_key: &'static str,
-        level_key: &str,
+        (gauge_key, gauge): (&'static str, Option<Text>),
+        (level_key, level): (&str, Option<Num>),
         req: bool,
     ) -> Option<Level> {
         let (g, l) = (self.t.has(gauge_key), self.t.has(level_key));
@@ -185,8 +174,8 @@ impl Reader<'_> {
                 ),
             );
         }
-        let gauge = self.reference(cx, gauge_key, false, Want::StageGauge);
-        let fixed = self.length(cx, level_key, false, Rule::Any);
+        let gauge = self.reference(cx, gauge_key, gauge, false, Want::StageGauge);
+        let fixed = self.length(cx, level_key, level, false);
         match (gauge, fixed) {
             (Some(id), None) => Some(Level::Gauge(id)),
             (None, Some(m)) => Some(Level::Fixed(m)),
@@ -198,9 +187,8 @@ impl Reader<'_> {
     pub(super) fn case_length(
         &self,
         cx: &mut Cx<'_>,
-        key: &str,
-        case_key: &str,
-        case: &str,
+        (key, v): (&str, Option<Above<0>>),
+        (case_key, case): (&str, &str),
         needed: bool,
     ) -> Option<f64> {
         if needed && !self.t.has(key) {
@@ -213,6 +201,6 @@ impl Reader<'_> {
                 format!("key \"{key}\" does not apply to {case_key} = \"{case}\"; remove it or change {case_key}"),
             );
         }
-        self.length(cx, key, false, Rule::Positive)
+        self.length(cx, key, v, false)
     }
 }
