@@ -17,18 +17,13 @@ use crate::config::{Config, Level, Section};
 use crate::derive::calibration::{fit_section, LoadCase, SectionFit};
 use crate::derive::excluding_flags;
 use crate::derive::flownet::tips;
+use crate::fit_cmd::time;
 use crate::flownet_cmd::{fit_in_use, section, stored_levels};
 use crate::store::Store;
 
 /// Conditions count as steady when the driving levels stayed within `resolve_change` over this
 /// long before a calibration time, s.
 pub const STEADY_S: i64 = 24 * 3600;
-
-fn time(t_ms: i64) -> String {
-    DateTime::from_timestamp_millis(t_ms).map_or(t_ms.to_string(), |t| {
-        t.to_rfc3339_opts(chrono::SecondsFormat::Secs, true)
-    })
-}
 
 /// The load case of section `s` at `t_ms`, with warnings about the data.
 fn load_case(
