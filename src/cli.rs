@@ -60,8 +60,11 @@ pub struct DbFile {
 impl DbFile {
     /// Open the chosen database, or the configured one.
     fn open(&self, cfg: &Config) -> anyhow::Result<crate::store::Store> {
-        let path = self.file.as_ref().unwrap_or(&cfg.service.database);
-        Ok(crate::store::Store::open(path)?)
+        Ok(crate::store::Store::open(self.path(cfg))?)
+    }
+
+    fn path<'a>(&'a self, cfg: &'a Config) -> &'a std::path::Path {
+        self.file.as_ref().unwrap_or(&cfg.service.database)
     }
 }
 
@@ -235,16 +238,27 @@ pub enum Command {
         #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
         to: DateTime<Utc>,
     },
-    /// Refit the stage-response and HST models now and keep them in the model history.
+    /// Refit the stage-response and HST models now, or calibrate a section's seepage model to
+    /// its piezometers (`--id SECTION`), and keep the fits in the model history.
     Fit {
         #[command(flatten)]
         config: ConfigDir,
         /// Database (default: the configured one); a replay database works too.
         #[command(flatten)]
         db: DbFile,
-        /// Fit only this model (default: every configured model).
-        #[arg(long, value_name = "MODEL")]
+        /// Fit only this model, or calibrate this section (default: every configured model).
+        #[arg(long, value_name = "MODEL|SECTION")]
         id: Option<String>,
+        /// Section: calibrate to the heads stored at this time (RFC 3339 or YYYY-MM-DD, UTC;
+        /// repeat for several times, fitted together); default: now.
+        #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant, requires = "id")]
+        at: Vec<DateTime<Utc>>,
+        /// Section: fit this zone's permeability factor (repeat; default: every zone).
+        #[arg(long, value_name = "NAME", requires = "id")]
+        zone: Vec<String>,
+        /// Section: print one JSON object (SI units).
+        #[arg(long, requires = "id")]
+        json: bool,
     },
     /// Record a hand-read value (a standpipe dipped, a readout box read): it goes through
     /// the same reduction, rules and store as telemetry, flagged `manual`.
@@ -525,6 +539,12 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
                     Some(db.open(&cfg)?),
                 ),
             };
+            // Given levels: the calibration in use still applies when the database exists.
+            let store = match store {
+                Some(s) => Some(s),
+                None if db.path(&cfg).exists() => Some(db.open(&cfg)?),
+                None => None,
+            };
             let solved = crate::flownet_cmd::solve(&cfg, store.as_ref(), s, &levels)?;
             if let Some(path) = &out {
                 let svg = crate::section_cmd::flownet_svg(&cfg, s, &solved.net);
@@ -612,10 +632,35 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             };
             emit(&alerts::commands::silence(&db, cfg.as_ref(), &args, now)?)
         }
-        Command::Fit { config, db, id } => {
+        Command::Fit {
+            config,
+            db,
+            id,
+            at,
+            zone,
+            json,
+        } => {
             let cfg = load(&config)?;
             let mut out = String::new();
-            let code = crate::fit_cmd::run(&cfg, &db.open(&cfg)?, id.as_deref(), &mut out)?;
+            let store = db.open(&cfg)?;
+            let section = id
+                .as_deref()
+                .filter(|id| cfg.objects.sections.iter().any(|s| s.id == *id));
+            let code = match section {
+                Some(id) => {
+                    let req = crate::calibrate_cmd::Request {
+                        id,
+                        times: &at,
+                        zones: &zone,
+                        json,
+                    };
+                    crate::calibrate_cmd::run(&cfg, &store, &req, now, &mut out)?
+                }
+                None if !at.is_empty() || !zone.is_empty() || json => {
+                    anyhow::bail!("--at, --zone and --json are for calibrating a section")
+                }
+                None => crate::fit_cmd::run(&cfg, &store, id.as_deref(), &mut out)?,
+            };
             emit(&out)?;
             match u8::try_from(code) {
                 Ok(0) => Ok(()),

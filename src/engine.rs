@@ -71,8 +71,8 @@ pub struct Engine {
 }
 
 impl Engine {
-    /// An engine for `cfg` with its barometer memory, latest heads and trend state seeded from
-    /// `store` (at start, and on a reload).
+    /// An engine for `cfg` with its barometer memory, latest heads, trend state and the
+    /// sections' calibrations in use seeded from `store` (at start, and on a reload).
     ///
     /// # Errors
     /// Database errors.
@@ -96,6 +96,10 @@ impl Engine {
             }
         }
         crate::watch::seed::from_store(engine.watch_mut(), cfg, store, now.timestamp_millis())?;
+        let calibrations = store.models_of_kind(crate::derive::calibration::KIND)?;
+        engine
+            .live
+            .use_fits(crate::derive::calibration::in_use(&calibrations));
         Ok(engine)
     }
 

@@ -11,7 +11,8 @@ use crate::config::Config;
 use crate::store::{ModelRow, Store};
 use crate::watch::fit::{fit_and_store, model_ids, FitError};
 
-fn time(t_ms: i64) -> String {
+/// A time as RFC 3339 to the second, UTC (the raw number when out of range).
+pub fn time(t_ms: i64) -> String {
     Utc.timestamp_millis_opt(t_ms).single().map_or_else(
         || t_ms.to_string(),
         |t| t.to_rfc3339_opts(SecondsFormat::Secs, true),
@@ -50,7 +51,7 @@ pub fn describe(m: &ModelRow) -> String {
 pub fn run(cfg: &Config, store: &Store, id: Option<&str>, out: &mut String) -> anyhow::Result<i32> {
     let ids = match id {
         Some(id) if !model_ids(cfg).iter().any(|m| m == id) => anyhow::bail!(
-            "no [[stage_response]] or [[hst]] model with id {id:?} (configured: {})",
+            "no [[stage_response]] or [[hst]] model or [[section]] with id {id:?} (models: {})",
             model_ids(cfg).join(", ")
         ),
         Some(id) => vec![id.to_string()],

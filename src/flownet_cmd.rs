@@ -1,6 +1,7 @@
 //! `seepd flownet`: solve a section's seepage model once, at the levels stored at a time or at
 //! levels given on the command line, and print the results (text, or one JSON object in SI),
-//! optionally drawing the flow net as SVG.
+//! optionally drawing the flow net as SVG. A section with a calibration in use (the newest
+//! applied fit in the model history) is solved with its zone factors, and the output says so.
 //!
 //! Owns the command's output. Must not compute engineering quantities (`derive::flownet` does).
 
@@ -10,6 +11,7 @@ use chrono::{DateTime, Utc};
 use serde_json::{json, Value};
 
 use crate::config::{Config, Level, Section};
+use crate::derive::calibration::{in_use, SectionFit, KIND};
 use crate::derive::flownet::{solve_section, tips, FlowNet};
 use crate::store::Store;
 
@@ -25,6 +27,55 @@ pub enum Levels {
 pub struct Solved {
     pub net: FlowNet,
     pub solve_ms: f64,
+    /// The calibration solved with (none: the permeabilities as written).
+    pub fit: Option<SectionFit>,
+}
+
+/// The calibration in use for `section`: the newest applied fit in the model history.
+///
+/// # Errors
+/// Database errors.
+pub fn fit_in_use(store: &Store, section: &str) -> anyhow::Result<Option<SectionFit>> {
+    Ok(in_use(&store.models_of_kind(KIND)?).remove(section))
+}
+
+/// The water levels and piezometer heads stored at a time.
+pub struct StoredLevels {
+    pub pool_m: f64,
+    pub tail_m: Option<f64>,
+    /// Per piezometer of the section, in its order: (id, (reading time ms, head m)), none when
+    /// it has no reading at or before the time.
+    pub heads: Vec<(String, Option<(i64, f64)>)>,
+}
+
+/// The levels of section `s` and its piezometers' heads stored at or before `t_ms`.
+///
+/// # Errors
+/// A level with no reading at or before the time; database errors.
+pub fn stored_levels(store: &Store, s: &Section, t_ms: i64) -> anyhow::Result<StoredLevels> {
+    let head = |id: &str| -> anyhow::Result<f64> {
+        store.head_at(id, t_ms)?.map(|(_, h, _)| h).ok_or_else(|| {
+            anyhow::anyhow!(
+                "input {id} has no reading at or before {}",
+                DateTime::from_timestamp_millis(t_ms).map_or(t_ms.to_string(), |t| t.to_string())
+            )
+        })
+    };
+    let tail_m = match &s.tail {
+        Some(Level::Fixed(m)) => Some(*m),
+        Some(Level::Gauge(g)) => Some(head(g)?),
+        None => None,
+    };
+    let heads = s
+        .piezometers
+        .iter()
+        .map(|id| Ok((id.clone(), store.head_at(id, t_ms)?.map(|(t, h, _)| (t, h)))))
+        .collect::<anyhow::Result<_>>()?;
+    Ok(StoredLevels {
+        pool_m: head(&s.pool_gauge)?,
+        tail_m,
+        heads,
+    })
 }
 
 /// The section `id` of `cfg`, with a model.
@@ -67,24 +118,9 @@ pub fn solve(
         }
         Levels::At(at) => {
             let store = store.ok_or_else(|| anyhow::anyhow!("no database"))?;
-            let t = at.timestamp_millis();
-            let head = |id: &str| -> anyhow::Result<f64> {
-                store
-                    .head_at(id, t)?
-                    .map(|(_, h, _)| h)
-                    .ok_or_else(|| anyhow::anyhow!("input {id} has no reading at or before {at}"))
-            };
-            let tail = match &s.tail {
-                Some(Level::Fixed(m)) => Some(*m),
-                Some(Level::Gauge(g)) => Some(head(g)?),
-                None => None,
-            };
-            let measured = s
-                .piezometers
-                .iter()
-                .map(|id| Ok(store.head_at(id, t)?.map(|(_, h, _)| h)))
-                .collect::<anyhow::Result<_>>()?;
-            (head(&s.pool_gauge)?, tail, measured)
+            let l = stored_levels(store, s, at.timestamp_millis())?;
+            let measured = l.heads.iter().map(|h| h.1.map(|(_, v)| v)).collect();
+            (l.pool_m, l.tail_m, measured)
         }
     };
     let tip_list = tips(cfg, s);
@@ -96,11 +132,21 @@ pub fn solve(
             (id, tip, m)
         })
         .collect();
+    let fit = match store {
+        Some(store) => fit_in_use(store, &s.id)?,
+        None => None,
+    };
+    let calibrated = fit.as_ref().map(|f| f.apply(spec));
     let started = Instant::now();
-    let net = solve_section(spec, pool_m, tail_m, &piezometers)
-        .map_err(|e| anyhow::anyhow!("section {:?}: {e}", s.id))?;
+    let net = solve_section(
+        calibrated.as_ref().unwrap_or(spec),
+        pool_m,
+        tail_m,
+        &piezometers,
+    )
+    .map_err(|e| anyhow::anyhow!("section {:?}: {e}", s.id))?;
     let solve_ms = started.elapsed().as_secs_f64() * 1000.0;
-    Ok(Solved { net, solve_ms })
+    Ok(Solved { net, solve_ms, fit })
 }
 
 /// The JSON object of `seepd flownet --json` (SI units).
@@ -132,6 +178,17 @@ pub fn json(id: &str, solved: &Solved) -> Value {
         "iterations": n.solution.iterations,
         "converged": n.solution.converged,
         "solve_ms": solved.solve_ms,
+        "calibration": solved.fit.as_ref().map(|f| json!({
+            "fitted": DateTime::from_timestamp_millis(f.fitted_ms).map(|t| t.to_rfc3339()),
+            "rms_m": f.rms_calibrated_m,
+            "rms_written_m": f.rms_written_m,
+            "factors": f.factors.iter().map(|z| json!({
+                "zone": z.zone,
+                "factor": z.factor(),
+                "log10_factor": z.log10_factor,
+                "std_error": z.std_error,
+            })).collect::<Vec<_>>(),
+        })),
     })
 }
 
@@ -143,6 +200,13 @@ pub fn text(id: &str, solved: &Solved) -> String {
         "section {id}: pool {:.2} m, tail {}\n",
         n.pool_m,
         n.tail_m.map_or("none".into(), |t| format!("{t:.2} m"))
+    );
+    s += &format!(
+        "permeabilities: {}\n",
+        solved.fit.as_ref().map_or_else(
+            || "as written (no calibration in use)".into(),
+            SectionFit::label
+        )
     );
     s += &format!(
         "flow {:.3e} m3/s per m; max exit gradient {:.3}\n",

@@ -8,6 +8,7 @@ pub mod ack_token;
 pub mod alerts;
 pub mod background;
 pub mod backoff;
+pub mod calibrate_cmd;
 pub mod cli;
 pub mod config;
 #[cfg(feature = "demo-broker")]

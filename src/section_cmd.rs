@@ -3,7 +3,8 @@
 //! uses its newest head at or before the time; a head older than the section's tolerance is
 //! still drawn, marked "stale" with its age, so a silent gauge never hides the drawing. A
 //! section with a seepage model is drawn as its flow net at those levels, with the measured
-//! heads beside the modelled ones.
+//! heads beside the modelled ones, solved with the section's calibration in use (named in the
+//! drawing's note).
 
 use std::cell::RefCell;
 
@@ -80,9 +81,12 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
                     (p.id.clone(), tip, Some(p.head_m))
                 })
                 .collect();
+            let fit = crate::flownet_cmd::fit_in_use(store, id)?;
+            let calibrated = fit.as_ref().map(|f| f.apply(spec));
+            let spec = calibrated.as_ref().unwrap_or(spec);
             let net = solve_section(spec, input.pool_m, input.tail_water_m, &piezometers)
                 .map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
-            Some(net)
+            Some((net, fit))
         }
         None => None,
     };
@@ -98,7 +102,16 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
         .map(|(i, a)| (i, format!("stale, {a} old")))
         .collect();
     let title = format!("Section {id} at {}", at.format("%Y-%m-%d %H:%M UTC"));
-    if let Some(net) = net {
+    if let Some((net, fit)) = net {
+        let permeabilities = fit.as_ref().map_or_else(
+            || "permeabilities as written".to_string(),
+            crate::derive::calibration::SectionFit::label,
+        );
+        let note = if note.is_empty() {
+            permeabilities
+        } else {
+            format!("{permeabilities}; {note}")
+        };
         return Ok(render_flownet_svg(
             &net,
             &SvgOptions {

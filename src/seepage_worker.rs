@@ -1,6 +1,6 @@
 //! The solver thread of `seepd run`: takes the live re-solve requests of the engine's
 //! `LiveModels`, solves each section's seepage model (`derive::flownet`) and sends the answer
-//! back; requests that queued up while it solved are coalesced to the newest per section. It
+//! back (with the section's calibration applied when the request carries one); requests that queued up while it solved are coalesced to the newest per section. It
 //! ends when the engine drops its end of the channel.
 //!
 //! Owns the thread. Must not touch the database (the answers become rows in the writer's next
@@ -39,8 +39,12 @@ fn run(requests: &Receiver<SolveRequest>, answers: &Sender<SolveAnswer>) {
             // waiting for an answer that will not come.
             let result =
                 std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match &s.model {
-                    Some(spec) => solve_section(spec, r.pool_m, r.tail_m, &r.piezometers)
-                        .map(|net| SolveSummary::of(&net)),
+                    Some(spec) => {
+                        let calibrated = r.fit.as_ref().map(|f| f.apply(spec));
+                        let spec = calibrated.as_ref().unwrap_or(spec);
+                        solve_section(spec, r.pool_m, r.tail_m, &r.piezometers)
+                            .map(|net| SolveSummary::of(&net))
+                    }
                     None => Err("the section has no model".into()),
                 }))
                 .unwrap_or_else(|_| Err("the solver failed unexpectedly".into()));

@@ -6,6 +6,7 @@
 //! naming the suspect inputs when an input carries a soft flag) and the naming of derived
 //! quantities. The engineering is in `domain`; nothing here does I/O or reads the clock.
 
+pub mod calibration;
 pub mod flownet;
 pub mod model_live;
 mod objects;

@@ -4,7 +4,9 @@
 //! answer — per section `model_exit_station`, `model_exit_elevation`,
 //! `model_seepage_face_height`, `model_max_exit_gradient`, `model_flow`; per piezometer
 //! `model_head` and `model_residual` (measured − modelled), the residual also on every later
-//! reading of the piezometer against the latest solve.
+//! reading of the piezometer against the latest solve. A section with a calibration in use
+//! (`derive::calibration`, seeded from the model history at start and on a reload) is solved
+//! with its fitted zone factors.
 //!
 //! Owns those decisions and names. Must not solve on the caller's thread or wait: requests go
 //! out with `send` and answers are taken with `try_recv` (the solver thread is
@@ -14,6 +16,7 @@ use std::collections::HashMap;
 use std::sync::mpsc::{Receiver, Sender};
 use std::sync::Arc;
 
+use super::calibration::SectionFit;
 use super::flownet::{tips, FlowNet};
 use super::Deriver;
 use crate::config::{Config, Level};
@@ -41,6 +44,8 @@ pub struct SolveRequest {
     pub tail_m: Option<f64>,
     /// (piezometer id, tip, latest measured head).
     pub piezometers: Vec<(String, Point, Option<f64>)>,
+    /// The calibration to solve with (none: the permeabilities as written).
+    pub fit: Option<Arc<SectionFit>>,
 }
 
 /// What a solve found, reduced to what is stored.
@@ -101,12 +106,23 @@ pub struct LiveModels {
     modelled: HashMap<String, f64>,
     /// Answers taken from the channel, not yet turned into rows.
     ready: Vec<SolveAnswer>,
+    /// Section id → the calibration in use.
+    fits: HashMap<String, Arc<SectionFit>>,
 }
 
 impl LiveModels {
     /// Solve through this channel pair from now on.
     pub fn connect(&mut self, tx: Sender<SolveRequest>, rx: Receiver<SolveAnswer>) {
         self.link = Some((tx, rx));
+    }
+
+    /// Solve each section in `fits` with its calibration from now on (the others with the
+    /// permeabilities as written).
+    pub fn use_fits(&mut self, fits: HashMap<String, SectionFit>) {
+        for (id, f) in &fits {
+            tracing::info!(section = %id, calibration = %f.label(), "Seepage calibration in use");
+        }
+        self.fits = fits.into_iter().map(|(k, v)| (k, Arc::new(v))).collect();
     }
 
     /// Hand the channel pair over (to a rebuilt engine, on reload).
@@ -201,6 +217,7 @@ impl LiveModels {
                 pool_m: pool.head_m,
                 tail_m,
                 piezometers,
+                fit: self.fits.get(&s.id).cloned(),
             };
             if let Some((tx, _)) = &self.link {
                 if tx.send(request).is_ok() {

@@ -1,7 +1,8 @@
 //! Calibration to the piezometers: the solved head at each tip beside the measured one
 //! (residuals, RMS), and a bounded Levenberg–Marquardt fit of zone permeability factors on a
 //! log10 scale that minimises the residuals, with each parameter's standard error and a warning
-//! when the data cannot determine it.
+//! when the data cannot determine it. One fit may take several load cases (the same section at
+//! different water levels, each with its own measured heads): the factors are shared.
 //!
 //! Owns: the fit loop, the finite-difference Jacobian and the uncertainty. Must not: store fits
 //! or read instruments. The damped step is a least-squares problem `[J; √λ·D]·Δ ≈ [−r; 0]`
@@ -80,6 +81,18 @@ pub struct Calibration {
     pub iterations: usize,
     /// Seepage solves done.
     pub solves: usize,
+}
+
+/// A parameter whose standard error exceeds this (log10 units) is reported as poorly
+/// determined.
+pub const POORLY_DETERMINED: f64 = 0.5;
+
+/// One load case of a fit: the model at its water levels, its mesh and the heads measured then.
+#[derive(Debug, Clone, Copy)]
+pub struct Case<'a> {
+    pub model: &'a SectionModel,
+    pub mesh: &'a Mesh,
+    pub obs: &'a [Observation],
 }
 
 /// Why a calibration failed.
@@ -195,11 +208,26 @@ pub fn calibrate(
     obs: &[Observation],
     params: &[FitParameter],
 ) -> Result<Calibration, CalibrationError> {
-    if params.is_empty() {
-        return Err(CalibrationError::Parameters("no parameter to fit".into()));
+    calibrate_cases(&[Case { model, mesh, obs }], opts, params)
+}
+
+/// Fit the zone factors in `params` to the heads of every case at once (zone indices are the
+/// same in every case's model); the residuals are the cases' in order.
+///
+/// # Errors
+/// [`CalibrationError`] for bad parameters, no case, tips outside a mesh, or a failed solve.
+pub fn calibrate_cases(
+    cases: &[Case<'_>],
+    opts: &SolveOptions,
+    params: &[FitParameter],
+) -> Result<Calibration, CalibrationError> {
+    if params.is_empty() || cases.is_empty() {
+        return Err(CalibrationError::Parameters(
+            "no parameter to fit, or no case".into(),
+        ));
     }
     for fp in params {
-        if fp.zone >= model.zones.len()
+        if cases.iter().any(|c| fp.zone >= c.model.zones.len())
             || fp.lower.is_nan()
             || fp.lower >= fp.upper
             || !(fp.lower..=fp.upper).contains(&fp.start)
@@ -210,22 +238,28 @@ pub fn calibrate(
             )));
         }
     }
-    let tips = Tips::new(mesh, obs)?;
-    let measured: Vec<f64> = obs.iter().map(|o| o.head_m).collect();
+    let tips: Vec<Tips> = cases
+        .iter()
+        .map(|c| Tips::new(c.mesh, c.obs))
+        .collect::<Result<_, _>>()?;
+    let measured: Vec<f64> = cases
+        .iter()
+        .flat_map(|c| c.obs.iter().map(|o| o.head_m))
+        .collect();
+    let model = cases[0].model;
     let mut solves = 0;
     let mut warnings = Vec::new();
     let mut eval = |p: &[f64], warnings: &mut Vec<String>| -> Result<Vec<f64>, CalibrationError> {
-        solves += 1;
-        let sol = solve(&scaled(model, params, p), mesh, opts)?;
-        if !sol.converged && warnings.iter().all(|w| !w.starts_with("a solve")) {
-            warnings.push("a solve did not converge; residuals may be noisy".into());
+        let mut heads = Vec::with_capacity(measured.len());
+        for (c, t) in cases.iter().zip(&tips) {
+            solves += 1;
+            let sol = solve(&scaled(c.model, params, p), c.mesh, opts)?;
+            if !sol.converged && warnings.iter().all(|w| !w.starts_with("a solve")) {
+                warnings.push("a solve did not converge; residuals may be noisy".into());
+            }
+            heads.extend(t.heads(c.mesh, &sol));
         }
-        Ok(tips
-            .heads(mesh, &sol)
-            .iter()
-            .zip(&measured)
-            .map(|(h, m)| h - m)
-            .collect())
+        Ok(heads.iter().zip(&measured).map(|(h, m)| h - m).collect())
     };
     let sse = |r: &[f64]| r.iter().map(|v| v * v).sum::<f64>();
     let clamp = |p: &mut [f64]| {
@@ -233,7 +267,7 @@ pub fn calibrate(
             *v = v.clamp(fp.lower, fp.upper);
         }
     };
-    let (n, np) = (obs.len(), params.len());
+    let (n, np) = (measured.len(), params.len());
     let mut p: Vec<f64> = params.iter().map(|fp| fp.start).collect();
     let mut r = eval(&p, &mut warnings)?;
     let mut lambda = 1e-2;
@@ -318,7 +352,7 @@ pub fn calibrate(
     let s2 = (n > np).then(|| sse(&r) / (n - np) as f64);
     if s2.is_none() {
         warnings.push(format!(
-            "{n} piezometers for {np} parameters: no residual left to estimate uncertainty"
+            "{n} measured heads for {np} parameters: too few piezometers to estimate uncertainty"
         ));
     }
     let mut parameters = Vec::new();
@@ -332,7 +366,7 @@ pub fn calibrate(
             warnings.push(format!("zone '{name}': the fit stopped on a bound"));
         }
         if let Some(se) = std_error {
-            if se > 0.5 {
+            if se > POORLY_DETERMINED {
                 warnings.push(format!(
                     "zone '{name}': poorly determined (standard error {se:.2} in log10)"
                 ));
@@ -344,12 +378,21 @@ pub fn calibrate(
             std_error,
         });
     }
-    let sol = solve(&scaled(model, params, &p), mesh, opts)?;
-    solves += 1;
-    let (residuals, rms_m) = residuals(mesh, &sol, obs)?;
+    let mut residuals_all = Vec::with_capacity(n);
+    for c in cases {
+        let sol = solve(&scaled(c.model, params, &p), c.mesh, opts)?;
+        solves += 1;
+        residuals_all.extend(residuals(c.mesh, &sol, c.obs)?.0);
+    }
+    let rms_m = (residuals_all
+        .iter()
+        .map(|r| r.residual_m.powi(2))
+        .sum::<f64>()
+        / n.max(1) as f64)
+        .sqrt();
     Ok(Calibration {
         parameters,
-        residuals,
+        residuals: residuals_all,
         rms_m,
         warnings,
         iterations,

@@ -1,4 +1,5 @@
-//! SQL for trends, stage-response and HST models: the model history table, the head series a
+//! SQL for trends, stage-response and HST models and the sections' seepage calibrations: the
+//! model history table, the head series a
 //! fit is trained on, and the recent readings the engine's trend and health state is seeded
 //! from at start.
 //!
@@ -14,7 +15,7 @@ use crate::quality::Flags;
 pub struct ModelRow {
     /// Model id from the configuration.
     pub id: String,
-    /// `response` or `hst`.
+    /// `response`, `hst`, or `seepage` (a section's calibration; id = the section id).
     pub kind: String,
     /// When the fit ran (wall clock), ms.
     pub fitted_ms: i64,
@@ -53,6 +54,23 @@ pub struct InstrumentSpan {
     pub last_ms: i64,
 }
 
+fn model_row(r: &rusqlite::Row<'_>) -> rusqlite::Result<ModelRow> {
+    Ok(ModelRow {
+        id: r.get(0)?,
+        kind: r.get(1)?,
+        fitted_ms: r.get(2)?,
+        train_start_ms: r.get(3)?,
+        train_end_ms: r.get(4)?,
+        a: r.get(5)?,
+        b: r.get(6)?,
+        lag_ms: r.get(7)?,
+        r_squared: r.get(8)?,
+        sigma: r.get(9)?,
+        n: r.get(10)?,
+        params: r.get(11)?,
+    })
+}
+
 impl Store {
     /// Append a fitted model to the history.
     ///
@@ -81,15 +99,31 @@ impl Store {
         Ok(())
     }
 
-    /// The newest fit of every model id.
+    /// The newest fit of every stage-response and HST model id (section calibrations are
+    /// `models_of_kind`'s).
     ///
     /// # Errors
     /// SQLite errors.
     pub fn latest_models(&self) -> Result<Vec<ModelRow>, StoreError> {
         self.models_where(
-            "JOIN (SELECT id AS mid, max(fitted_ms) AS mt FROM models GROUP BY id) l
-               ON l.mid = m.id AND l.mt = m.fitted_ms",
+            "JOIN (SELECT id AS mid, max(fitted_ms) AS mt FROM models
+                   WHERE kind IN ('response', 'hst') GROUP BY id) l
+               ON l.mid = m.id AND l.mt = m.fitted_ms
+             WHERE m.kind IN ('response', 'hst')",
         )
+    }
+
+    /// Every fit of `kind`, oldest first per id.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn models_of_kind(&self, kind: &str) -> Result<Vec<ModelRow>, StoreError> {
+        let mut st = self.conn.prepare(
+            "SELECT id, kind, fitted_ms, train_start_ms, train_end_ms, a, b, lag_ms, r_squared,
+                sigma, n, params FROM models WHERE kind = ?1 ORDER BY id, fitted_ms",
+        )?;
+        let rows = st.query_map(params![kind], model_row)?;
+        Ok(rows.collect::<Result<_, _>>()?)
     }
 
     /// Every fit of every model, oldest first (the model history).
@@ -106,22 +140,7 @@ impl Store {
                 m.lag_ms, m.r_squared, m.sigma, m.n, m.params FROM models m {join}
              ORDER BY m.id, m.fitted_ms"
         ))?;
-        let rows = st.query_map([], |r| {
-            Ok(ModelRow {
-                id: r.get(0)?,
-                kind: r.get(1)?,
-                fitted_ms: r.get(2)?,
-                train_start_ms: r.get(3)?,
-                train_end_ms: r.get(4)?,
-                a: r.get(5)?,
-                b: r.get(6)?,
-                lag_ms: r.get(7)?,
-                r_squared: r.get(8)?,
-                sigma: r.get(9)?,
-                n: r.get(10)?,
-                params: r.get(11)?,
-            })
-        })?;
+        let rows = st.query_map([], model_row)?;
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
