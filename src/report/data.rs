@@ -135,6 +135,9 @@ fn main_quantity(i: &Instrument) -> (&'static str, &'static str, ReadingQuantity
     }
 }
 
+/// One instrument's readings of the period: (time ms, value, quality flags), oldest first.
+type Points = Rc<Vec<(i64, f64, u32)>>;
+
 /// Readings of one period, read from the database once per instrument and kept for the
 /// report's tables and plots (each piezometer is in a table and a plot; the stage gauge is
 /// drawn on every group's chart).
@@ -142,7 +145,7 @@ fn main_quantity(i: &Instrument) -> (&'static str, &'static str, ReadingQuantity
 pub struct Readings {
     from_ms: i64,
     to_ms: i64,
-    read: RefCell<HashMap<String, Rc<Vec<(i64, f64, u32)>>>>,
+    read: RefCell<HashMap<String, Points>>,
 }
 
 impl Readings {
@@ -156,7 +159,7 @@ impl Readings {
     }
 
     /// `i`'s main quantity in the period, oldest first, each with its quality flags.
-    fn of(&self, store: &Store, i: &Instrument) -> Result<Rc<Vec<(i64, f64, u32)>>, StoreError> {
+    fn of(&self, store: &Store, i: &Instrument) -> Result<Points, StoreError> {
         if let Some(p) = self.read.borrow().get(&i.id) {
             return Ok(Rc::clone(p));
         }
