@@ -7,6 +7,9 @@ use crate::model::ReadingQuantity;
 use crate::quality::Flags;
 use crate::store::{Store, StoreError};
 use chrono::{DateTime, Utc};
+use std::cell::RefCell;
+use std::collections::HashMap;
+use std::rc::Rc;
 
 /// Statistics of one instrument's main quantity over the period.
 #[derive(Debug, Clone, PartialEq)]
@@ -132,6 +135,49 @@ fn main_quantity(i: &Instrument) -> (&'static str, &'static str, ReadingQuantity
     }
 }
 
+/// One instrument's readings of the period: (time ms, value, quality flags), oldest first.
+type Points = Rc<Vec<(i64, f64, u32)>>;
+
+/// Readings of one period, read from the database once per instrument and kept for the
+/// report's tables and plots (each piezometer is in a table and a plot; the stage gauge is
+/// drawn on every group's chart).
+#[derive(Debug)]
+pub struct Readings {
+    from_ms: i64,
+    to_ms: i64,
+    read: RefCell<HashMap<String, Points>>,
+}
+
+impl Readings {
+    /// Readings in [from, to), none read yet.
+    pub fn new(from_ms: i64, to_ms: i64) -> Readings {
+        Readings {
+            from_ms,
+            to_ms,
+            read: RefCell::default(),
+        }
+    }
+
+    /// `i`'s main quantity in the period, oldest first, each with its quality flags.
+    fn of(&self, store: &Store, i: &Instrument) -> Result<Points, StoreError> {
+        if let Some(p) = self.read.borrow().get(&i.id) {
+            return Ok(Rc::clone(p));
+        }
+        let (_, _, q) = main_quantity(i);
+        let p = Rc::new(store.reading_points(&i.id, q, self.from_ms, self.to_ms)?);
+        self.read.borrow_mut().insert(i.id.clone(), Rc::clone(&p));
+        Ok(p)
+    }
+
+    /// `i`'s main quantity in the period, time ms and value, for plots.
+    ///
+    /// # Errors
+    /// SQLite errors.
+    pub fn series(&self, store: &Store, i: &Instrument) -> Result<Vec<(i64, f64)>, StoreError> {
+        Ok(self.of(store, i)?.iter().map(|&(t, v, _)| (t, v)).collect())
+    }
+}
+
 /// Statistics of one instrument's main quantity in [from, to).
 ///
 /// # Errors
@@ -142,7 +188,17 @@ pub fn instrument_stats(
     from_ms: i64,
     to_ms: i64,
 ) -> Result<InstrumentStats, StoreError> {
-    let (quantity, unit, q) = main_quantity(i);
+    stats_in(store, i, &Readings::new(from_ms, to_ms))
+}
+
+/// Statistics of one instrument's main quantity over the period of `readings`.
+fn stats_in(
+    store: &Store,
+    i: &Instrument,
+    readings: &Readings,
+) -> Result<InstrumentStats, StoreError> {
+    let (from_ms, to_ms) = (readings.from_ms, readings.to_ms);
+    let (quantity, unit, _) = main_quantity(i);
     let mut s = InstrumentStats {
         id: i.id.clone(),
         kind: i.kind.name(),
@@ -162,7 +218,7 @@ pub fn instrument_stats(
         interval_s: i.interval_s,
         flag_counts: Flags::NAMES.iter().map(|(_, n)| (*n, 0)).collect(),
     };
-    for (t, v, flags) in store.reading_points(&i.id, q, from_ms, to_ms)? {
+    for &(t, v, flags) in readings.of(store, i)?.iter() {
         s.readings += 1;
         s.first.get_or_insert((t, v));
         s.latest = Some((t, v));
@@ -220,6 +276,23 @@ pub fn gather(
     to: DateTime<Utc>,
     now: DateTime<Utc>,
 ) -> anyhow::Result<ReportData> {
+    let readings = Readings::new(from.timestamp_millis(), to.timestamp_millis());
+    gather_from(cfg, store, site, (from, to), now, &readings)
+}
+
+/// Gather a site's report data for [from, to), the period of `readings`, keeping the readings
+/// read there for the plots.
+///
+/// # Errors
+/// Unknown site; SQLite errors.
+pub fn gather_from(
+    cfg: &Config,
+    store: &Store,
+    site: &str,
+    (from, to): (DateTime<Utc>, DateTime<Utc>),
+    now: DateTime<Utc>,
+    readings: &Readings,
+) -> anyhow::Result<ReportData> {
     let s = cfg
         .sites
         .iter()
@@ -244,7 +317,7 @@ pub fn gather(
         quarantine: Vec::new(),
     };
     for i in cfg.instruments.values().filter(|i| i.site == site) {
-        let stats = instrument_stats(store, i, f, t)?;
+        let stats = stats_in(store, i, readings)?;
         match i.kind {
             Kind::StageGauge(_) => data.stages.push(stats),
             Kind::Barometer(_) => data.others.push(stats),
@@ -281,19 +354,4 @@ pub fn gather(
     }
     data.quarantine = store.quarantine_by_reason(f, t)?;
     Ok(data)
-}
-
-/// Readings of `instrument`'s main quantity in [from, to), time ms and value, for plots.
-///
-/// # Errors
-/// SQLite errors.
-pub fn series(
-    store: &Store,
-    i: &Instrument,
-    from_ms: i64,
-    to_ms: i64,
-) -> Result<Vec<(i64, f64)>, StoreError> {
-    let (_, _, q) = main_quantity(i);
-    let points = store.reading_points(&i.id, q, from_ms, to_ms)?;
-    Ok(points.into_iter().map(|(t, v, _)| (t, v)).collect())
 }

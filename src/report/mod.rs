@@ -28,7 +28,7 @@ use crate::present::{measure_of, Measure, FS_DISPLAY_CAP};
 use crate::store::Store;
 
 use chart::{Beyond, Chart, LevelLine, Series};
-use data::ReportData;
+use data::{Readings, ReportData};
 pub use files::{generate, render_report, write_files, Document};
 
 /// A chart group: a title and its piezometers, with the stage gauge drawn on the second axis.
@@ -145,15 +145,14 @@ fn chart(title: String, y_label: String, f: i64, t: i64, tz: Tz) -> Chart {
 /// The stage series of gauge `id` in display units, with its axis title.
 fn stage_of(
     cfg: &Config,
-    store: &Store,
+    (store, readings): (&Store, &Readings),
     id: Option<&String>,
-    (f, t): (i64, i64),
     units: DisplayUnits,
 ) -> anyhow::Result<(Option<Series>, String)> {
     let Some(i) = id.and_then(|id| cfg.instruments.get(id)) else {
         return Ok((None, String::new()));
     };
-    let points = to_display(data::series(store, i, f, t)?, Measure::Length, units);
+    let points = to_display(readings.series(store, i)?, Measure::Length, units);
     let axis = format!("{} water level ({})", i.id, length_unit(units));
     Ok((
         Some(Series {
@@ -174,7 +173,7 @@ fn length_unit(units: DisplayUnits) -> &'static str {
 /// axis.
 fn safety_charts(
     cfg: &Config,
-    store: &Store,
+    (store, readings): (&Store, &Readings),
     site: &str,
     (f, t): (i64, i64),
     tz: Tz,
@@ -271,7 +270,7 @@ fn safety_charts(
                 ),
             });
         }
-        let (stage, axis) = stage_of(cfg, store, Some(&b.river_gauge), (f, t), units)?;
+        let (stage, axis) = stage_of(cfg, (store, readings), Some(&b.river_gauge), units)?;
         c.stage = stage;
         c.stage_axis = axis;
         out.push((format!("Excess head {}", b.id), c));
@@ -317,12 +316,14 @@ pub fn build(
     to: DateTime<Utc>,
     now: DateTime<Utc>,
 ) -> anyhow::Result<(ReportData, html::Extras)> {
-    let data = data::gather(cfg, store, site, from, to, now)?;
+    let (f, t) = (from.timestamp_millis(), to.timestamp_millis());
+    // Each instrument's readings are read once, for its table row and its plots.
+    let readings = Readings::new(f, t);
+    let data = data::gather_from(cfg, store, site, (from, to), now, &readings)?;
     let units = data.units;
     let tz: Tz = data.time_zone.parse().unwrap_or(chrono_tz::UTC);
-    let (f, t) = (from.timestamp_millis(), to.timestamp_millis());
     let mut charts = Vec::new();
-    for (title, c) in safety_charts(cfg, store, site, (f, t), tz, units)? {
+    for (title, c) in safety_charts(cfg, (store, &readings), site, (f, t), tz, units)? {
         charts.push((title, chart::render(&c)));
     }
     for g in groups(cfg, site) {
@@ -337,11 +338,11 @@ pub fn build(
             if let Some(i) = cfg.instruments.get(id) {
                 c.series.push(Series {
                     label: id.clone(),
-                    points: to_display(data::series(store, i, f, t)?, Measure::Length, units),
+                    points: to_display(readings.series(store, i)?, Measure::Length, units),
                 });
             }
         }
-        (c.stage, c.stage_axis) = stage_of(cfg, store, g.stage.as_ref(), (f, t), units)?;
+        (c.stage, c.stage_axis) = stage_of(cfg, (store, &readings), g.stage.as_ref(), units)?;
         c.levels = level_lines(cfg, &g.piezometers, ("total_head", "m"), units);
         charts.push((g.title, chart::render(&c)));
     }

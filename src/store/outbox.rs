@@ -5,6 +5,7 @@
 
 use rusqlite::{params, OptionalExtension};
 
+use super::pages::{alert_record, AlertRecord, ALERT_RECORD_COLUMNS};
 use super::{SilenceRow, Store, StoreError};
 
 /// An outbox message as the worker sends it.
@@ -45,22 +46,6 @@ pub struct Undeliverable {
     pub refused: Vec<(String, String)>,
     /// Recipients who did get it.
     pub delivered: Vec<String>,
-}
-
-/// An alert not yet resolved, for `seepd alerts`.
-#[derive(Debug, Clone, PartialEq)]
-pub struct OpenAlert {
-    pub id: i64,
-    pub rule: String,
-    pub site: String,
-    pub object: String,
-    pub quantity: String,
-    pub level: String,
-    pub raised_ms: i64,
-    pub value: Option<f64>,
-    pub unit: String,
-    pub acked_by: Option<String>,
-    pub acked_ms: Option<i64>,
 }
 
 /// What `seepd ack` did.
@@ -296,26 +281,11 @@ impl Store {
     ///
     /// # Errors
     /// SQLite errors.
-    pub fn open_alerts(&self) -> Result<Vec<OpenAlert>, StoreError> {
-        let mut st = self.conn.prepare(
-            "SELECT id, rule, site, object, quantity, level, raised_ms, value, unit, acked_by,
-                acked_ms FROM alerts WHERE resolved_ms IS NULL ORDER BY id",
-        )?;
-        let rows = st.query_map([], |r| {
-            Ok(OpenAlert {
-                id: r.get(0)?,
-                rule: r.get(1)?,
-                site: r.get(2)?,
-                object: r.get(3)?,
-                quantity: r.get(4)?,
-                level: r.get(5)?,
-                raised_ms: r.get(6)?,
-                value: r.get(7)?,
-                unit: r.get(8)?,
-                acked_by: r.get(9)?,
-                acked_ms: r.get(10)?,
-            })
-        })?;
+    pub fn open_alerts(&self) -> Result<Vec<AlertRecord>, StoreError> {
+        let mut st = self.conn.prepare(&format!(
+            "SELECT {ALERT_RECORD_COLUMNS} FROM alerts WHERE resolved_ms IS NULL ORDER BY id"
+        ))?;
+        let rows = st.query_map([], alert_record)?;
         Ok(rows.collect::<Result<_, _>>()?)
     }
 

@@ -28,6 +28,32 @@ impl std::ops::Deref for AlertRecord {
     }
 }
 
+/// The columns of `alerts` that `alert_record` maps, in its order.
+pub(super) const ALERT_RECORD_COLUMNS: &str = "id, rule, site, object, quantity, level, \
+     raised_ms, value, unit, resolved_ms, acked_ms, acked_by, ack_note";
+
+/// An alert row selected with `ALERT_RECORD_COLUMNS` (the one mapping of an alert with its
+/// state: the web pages' alert and `open_alerts`).
+pub(super) fn alert_record(r: &rusqlite::Row<'_>) -> rusqlite::Result<AlertRecord> {
+    Ok(AlertRecord {
+        raised: AlertRow {
+            id: r.get(0)?,
+            rule: r.get(1)?,
+            site: r.get(2)?,
+            object: r.get(3)?,
+            quantity: r.get(4)?,
+            level: r.get(5)?,
+            raised_ms: r.get(6)?,
+            value: r.get(7)?,
+            unit: r.get(8)?,
+        },
+        resolved_ms: r.get(9)?,
+        acked_ms: r.get(10)?,
+        acked_by: r.get(11)?,
+        ack_note: r.get(12)?,
+    })
+}
+
 /// One stored reading, every column a person may want to see.
 #[derive(Debug, Clone, PartialEq)]
 pub struct StoredReading {
@@ -117,29 +143,9 @@ impl Store {
         Ok(self
             .conn
             .query_row(
-                "SELECT id, rule, site, object, quantity, level, raised_ms, value, unit,
-                        resolved_ms, acked_ms, acked_by, ack_note
-                 FROM alerts WHERE id = ?1",
+                &format!("SELECT {ALERT_RECORD_COLUMNS} FROM alerts WHERE id = ?1"),
                 [id],
-                |r| {
-                    Ok(AlertRecord {
-                        raised: AlertRow {
-                            id: r.get(0)?,
-                            rule: r.get(1)?,
-                            site: r.get(2)?,
-                            object: r.get(3)?,
-                            quantity: r.get(4)?,
-                            level: r.get(5)?,
-                            raised_ms: r.get(6)?,
-                            value: r.get(7)?,
-                            unit: r.get(8)?,
-                        },
-                        resolved_ms: r.get(9)?,
-                        acked_ms: r.get(10)?,
-                        acked_by: r.get(11)?,
-                        ack_note: r.get(12)?,
-                    })
-                },
+                alert_record,
             )
             .optional()?)
     }

@@ -106,7 +106,7 @@ pub async fn metrics(State(web): State<Shared>) -> Response {
                 let acked = a.acked_ms.is_some();
                 match alerts.iter_mut().find(|x| x.0 == a.level && x.1 == acked) {
                     Some(x) => x.2 += 1,
-                    None => alerts.push((a.level, acked, 1)),
+                    None => alerts.push((a.raised.level, acked, 1)),
                 }
             }
             Ok(FromDb {

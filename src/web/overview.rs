@@ -14,12 +14,12 @@ use chrono::Utc;
 
 use super::html::{self, escape};
 use super::{words, Shared};
-use crate::store::outbox::OpenAlert;
+use crate::store::pages::AlertRecord;
 use crate::store::{Latest, LatestDerived};
 
 /// What the overview reads.
 struct Data {
-    alerts: Vec<OpenAlert>,
+    alerts: Vec<AlertRecord>,
     derived: Vec<LatestDerived>,
     latest: Vec<Latest>,
     quarantined_24h: i64,
@@ -70,7 +70,7 @@ fn site_block(b: &mut String, web: &super::Web, site: &crate::config::Site, d: &
         escape(&site.name),
         escape(&site.id)
     );
-    let mut alerts: Vec<&OpenAlert> = d.alerts.iter().filter(|a| a.site == site.id).collect();
+    let mut alerts: Vec<&AlertRecord> = d.alerts.iter().filter(|a| a.site == site.id).collect();
     alerts.sort_by_key(|a| (a.acked_ms.is_some(), a.raised_ms));
     if alerts.is_empty() {
         b.push_str("<div class=\"card ok\"><p>No open alerts.</p></div>");
