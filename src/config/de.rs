@@ -6,6 +6,9 @@
 //! file:line:column, all keys of a table at once. The raw structs and their validation live
 //! with their tables; a table declares each key once, with its type, bound and default.
 //!
+//! Value types beside `Int`/`Text`/`Num`: `Pair` (`[low, high]`), `Label` (a string or an
+//! integer), `DateText` (a string or a TOML date), `Nested` (a sub-table read on its own).
+//!
 //! Raw structs: every field optional (`Option<T>` or `#[serde(default)]`), required keys asked
 //! for in validation with `Tbl::need`; no `#[serde(flatten)]` (the key list is read from the
 //! derive).
@@ -41,6 +44,19 @@ pub(crate) fn table<T: DeserializeOwned>(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option
     from_entries::<T>(&known).ok()
 }
 
+/// `table` for one of several tables told apart by a key (`[[rule]]` by its `id`): messages
+/// name it `noun "value"` once the key holds text; a table with problems reads as the default.
+pub(crate) fn named<T: DeserializeOwned + Default>(
+    cx: &mut Cx<'_>,
+    t: &mut Tbl<'_>,
+    (noun, key): (&str, &str),
+) -> T {
+    if let Some(v) = t.peek_str(key).filter(|v| !v.trim().is_empty()) {
+        t.what = format!("{noun} {v:?}");
+    }
+    table(cx, t).unwrap_or_default()
+}
+
 /// `T` from some entries of a table (values keep their spans).
 fn from_entries<T: DeserializeOwned>(entries: &[(&str, &Item)]) -> Result<T, toml_edit::de::Error> {
     let mut inline = InlineTable::new();
@@ -55,6 +71,10 @@ fn from_entries<T: DeserializeOwned>(entries: &[(&str, &Item)]) -> Result<T, tom
 /// The rest of a problem after `key "name" `, in our words: serde's "invalid type: string "x",
 /// expected i64" becomes `is "x", expected an integer`; our value types already speak so.
 fn tail(message: &str, found: Option<String>) -> String {
+    if message == "wanted string or table" {
+        // toml_edit's word for a choice (an enum) written as something other than a string.
+        return format!("is {}, expected a string", found.unwrap_or_default());
+    }
     let prefixes = ["invalid type: ", "invalid value: ", "unknown variant "];
     let Some((kind, rest)) = prefixes
         .iter()
@@ -101,13 +121,19 @@ fn serde_found(unexpected: &str) -> String {
 }
 
 /// The keys `T` accepts, as its derive lists them.
-fn fields<T: DeserializeOwned>() -> &'static [&'static str] {
+pub(crate) fn fields<T: DeserializeOwned>() -> &'static [&'static str] {
     let mut probe = Fields(&[]);
     let _ = T::deserialize(&mut probe);
     probe.0
 }
 
-/// A deserializer that only records the field list a derived struct asks for.
+/// The names of a derived enum's variants as written, in declaration order (`Kind::X as usize`
+/// indexes them).
+pub(crate) fn variants<T: DeserializeOwned>() -> &'static [&'static str] {
+    fields::<T>()
+}
+
+/// A deserializer that only records the field (or variant) list a derived type asks for.
 struct Fields(&'static [&'static str]);
 
 impl<'de> Deserializer<'de> for &mut Fields {
@@ -127,9 +153,19 @@ impl<'de> Deserializer<'de> for &mut Fields {
         Err(de::Error::custom("fields recorded"))
     }
 
+    fn deserialize_enum<V: de::Visitor<'de>>(
+        self,
+        _: &'static str,
+        variants: &'static [&'static str],
+        _: V,
+    ) -> Result<V::Value, Self::Error> {
+        self.0 = variants;
+        Err(de::Error::custom("variants recorded"))
+    }
+
     serde::forward_to_deserialize_any! {
         bool i8 i16 i32 i64 i128 u8 u16 u32 u64 u128 f32 f64 char str string bytes byte_buf
-        option unit unit_struct newtype_struct seq tuple tuple_struct map enum identifier
+        option unit unit_struct newtype_struct seq tuple tuple_struct map identifier
         ignored_any
     }
 }
@@ -199,6 +235,93 @@ impl<'de> Deserialize<'de> for Num {
     }
 }
 
+/// `[low, high]`: two finite numbers with low < high.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Pair(pub f64, pub f64);
+
+impl<'de> Deserialize<'de> for Pair {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> de::Visitor<'de> for V {
+            type Value = Pair;
+            fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+                f.write_str("[low, high] (two numbers)")
+            }
+            fn visit_seq<A: de::SeqAccess<'de>>(self, mut seq: A) -> Result<Pair, A::Error> {
+                let bad = || de::Error::custom("is an array, expected [low, high] (two numbers)");
+                let mut n = Vec::new();
+                while let Some(x) = seq.next_element::<f64>().map_err(|_| bad())? {
+                    n.push(x);
+                }
+                let &[lo, hi] = n.as_slice() else {
+                    return Err(bad());
+                };
+                if !(lo.is_finite() && hi.is_finite() && lo < hi) {
+                    return Err(de::Error::custom(format!(
+                        "is [{lo}, {hi}], expected finite [low, high] with low < high"
+                    )));
+                }
+                Ok(Pair(lo, hi))
+            }
+        }
+        d.deserialize_seq(V)
+    }
+}
+
+/// A non-empty label written as a string or an integer (`channel = 3` means `"3"`).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct Label(pub String);
+
+impl<'de> Deserialize<'de> for Label {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let s = d.deserialize_any(TextOf("a string or an integer"))?;
+        if s.trim().is_empty() {
+            return Err(de::Error::custom("is empty"));
+        }
+        Ok(Label(s))
+    }
+}
+
+/// A date or date-time as text: a TOML string or a TOML date/date-time value (the caller
+/// parses it and says what it expected).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct DateText(pub String);
+
+impl<'de> Deserialize<'de> for DateText {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        d.deserialize_any(TextOf(DATE)).map(DateText)
+    }
+}
+
+const DATE: &str = "an RFC 3339 date or date-time";
+
+/// Text written as a string, or as what `.0` (the expected, in messages) says: an integer for
+/// a label, a TOML date-time for a date.
+struct TextOf(&'static str);
+
+impl<'de> de::Visitor<'de> for TextOf {
+    type Value = String;
+    fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+        f.write_str(self.0)
+    }
+    fn visit_str<E: de::Error>(self, s: &str) -> Result<String, E> {
+        Ok(s.to_string())
+    }
+    fn visit_i64<E: de::Error>(self, i: i64) -> Result<String, E> {
+        match self.0 {
+            DATE => Err(de::Error::invalid_type(de::Unexpected::Signed(i), &self)),
+            _ => Ok(i.to_string()),
+        }
+    }
+    fn visit_map<A: de::MapAccess<'de>>(self, mut map: A) -> Result<String, A::Error> {
+        // A TOML date-time reaches serde as a one-entry map holding its text.
+        match (self.0, map.next_key::<de::IgnoredAny>()?) {
+            (DATE, Some(_)) => map.next_value(),
+            _ => Err(de::Error::invalid_type(de::Unexpected::Map, &self)),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -221,6 +344,10 @@ mod tests {
             "is \"ssl\", expected one of: starttls, tls, plain"
         );
         assert_eq!(tail("is empty", None), "is empty");
+        assert_eq!(
+            tail("wanted string or table", Some("3".into())),
+            "is 3, expected a string"
+        );
     }
 
     #[test]
@@ -270,5 +397,13 @@ mod tests {
             b_c: Option<String>,
         }
         assert_eq!(fields::<Raw>(), ["a", "b_c"]);
+        #[derive(Deserialize)]
+        #[serde(rename_all = "snake_case")]
+        #[allow(dead_code)]
+        enum Choice {
+            One,
+            TwoWords,
+        }
+        assert_eq!(variants::<Choice>(), ["one", "two_words"]);
     }
 }

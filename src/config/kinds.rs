@@ -1,11 +1,16 @@
 //! Reading an instrument's kind sub-table (`[instrument.vibrating_wire]` and friends) into the
 //! reduction settings of `model::Kind`.
 //!
-//! Owns the keys and checks of the five kind sub-tables. Cross-instrument checks (does the
-//! barometer exist?) belong to `load`.
+//! Owns the kind names, the keys of the five kind sub-tables (one raw struct each, read by
+//! `de::table`) and the checks between their keys. Cross-instrument checks (does the barometer
+//! exist?) belong to `load`.
 
 use std::ops::Range;
 
+use serde::de::value::StrDeserializer;
+use serde::Deserialize;
+
+use super::de::{self, Num, Pair, Text};
 use super::model::{
     BaroCorrection, Barometer, Kind, LengthUnit, PressureUnit, StageGauge, StageMode, Standpipe,
     Transducer, TransducerOutput, VibratingWire, VwCalibration, VwReading, VwSign, WaterBody,
@@ -13,32 +18,31 @@ use super::model::{
 use super::problem::Cx;
 use super::reader::Tbl;
 
-/// Names of the kinds, as written in `kind = "..."` and as sub-table names.
-pub(crate) const KINDS: [&str; 5] = [
-    "vibrating_wire",
-    "pressure_transducer",
-    "standpipe",
-    "stage_gauge",
-    "barometer",
-];
+/// An instrument kind as written in `kind = "..."`; its name is also its sub-table's.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub(crate) enum KindName {
+    VibratingWire,
+    PressureTransducer,
+    Standpipe,
+    StageGauge,
+    Barometer,
+}
+
+impl KindName {
+    /// The name as written (also its sub-table's).
+    pub fn name(self) -> &'static str {
+        de::variants::<KindName>()[self as usize]
+    }
+
+    /// A piezometer kind (needs a tip elevation; may be barometrically corrected).
+    pub fn piezometer(self) -> bool {
+        matches!(self, KindName::VibratingWire | KindName::PressureTransducer)
+    }
+}
 
 /// Metres per foot, exactly.
 pub(crate) const M_PER_FT: f64 = 0.3048;
-
-/// Accepted pressure unit spellings.
-pub(crate) const PRESSURE_UNITS: [(&str, PressureUnit); 7] = [
-    ("kPa", PressureUnit::Kpa),
-    ("psi", PressureUnit::Psi),
-    ("bar", PressureUnit::Bar),
-    ("MPa", PressureUnit::Mpa),
-    ("hPa", PressureUnit::Hpa),
-    ("m_water", PressureUnit::MWater),
-    ("ft_water", PressureUnit::FtWater),
-];
-
-/// Accepted length unit spellings.
-pub(crate) const LENGTH_UNITS: [(&str, LengthUnit); 2] =
-    [("m", LengthUnit::M), ("ft", LengthUnit::Ft)];
 
 /// The kind settings read, plus where a barometer reference was written (for `load`).
 pub(crate) struct KindRead {
@@ -49,20 +53,19 @@ pub(crate) struct KindRead {
 }
 
 /// Read the sub-table of `kind`; `m_per_unit` converts the site's length unit to metres.
-pub(crate) fn read(cx: &mut Cx<'_>, kind: &str, t: &Tbl<'_>, m_per_unit: f64) -> KindRead {
+pub(crate) fn read(cx: &mut Cx<'_>, kind: KindName, t: &Tbl<'_>, m_per_unit: f64) -> KindRead {
     let before = cx.problems.len();
-    let reference = if kind == "vibrating_wire" || kind == "pressure_transducer" {
-        t.peek_str("barometer")
-            .map(|b| (b.to_string(), t.value_span("barometer")))
-    } else {
-        None
-    };
+    let reference = kind
+        .piezometer()
+        .then(|| t.peek_str("barometer"))
+        .flatten()
+        .map(|b| (b.to_string(), t.value_span("barometer")));
     let kind = match kind {
-        "vibrating_wire" => vibrating_wire(cx, t).map(Kind::VibratingWire),
-        "pressure_transducer" => transducer(cx, t).map(Kind::Transducer),
-        "standpipe" => standpipe(cx, t, m_per_unit).map(Kind::Standpipe),
-        "stage_gauge" => stage_gauge(cx, t, m_per_unit).map(Kind::StageGauge),
-        _ => barometer(cx, t).map(Kind::Barometer),
+        KindName::VibratingWire => vibrating_wire(cx, t).map(Kind::VibratingWire),
+        KindName::PressureTransducer => transducer(cx, t).map(Kind::Transducer),
+        KindName::Standpipe => standpipe(cx, t, m_per_unit).map(Kind::Standpipe),
+        KindName::StageGauge => stage_gauge(cx, t, m_per_unit).map(Kind::StageGauge),
+        KindName::Barometer => barometer(cx, t).map(Kind::Barometer),
     };
     KindRead {
         kind: kind.filter(|_| cx.problems.len() == before),
@@ -70,37 +73,26 @@ pub(crate) fn read(cx: &mut Cx<'_>, kind: &str, t: &Tbl<'_>, m_per_unit: f64) ->
     }
 }
 
-/// Keys of the barometric correction, shared by both pressure-sensor kinds.
-const BARO_KEYS: [&str; 3] = ["barometric_correction", "barometer", "zero_barometric_kpa"];
+/// `barometric_correction` as written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "lowercase")]
+enum Mode {
+    None,
+    Sealed,
+    Absolute,
+}
 
-fn baro(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<BaroCorrection> {
-    #[derive(Clone, Copy, PartialEq)]
-    enum Mode {
-        None,
-        Sealed,
-        Absolute,
-    }
-    let mode = t.choice(
-        cx,
-        "barometric_correction",
-        false,
-        &[
-            ("none", Mode::None),
-            ("sealed", Mode::Sealed),
-            ("absolute", Mode::Absolute),
-        ],
-    );
+/// The barometric correction's keys, shared by both pressure-sensor kinds.
+fn baro(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+    (mode, barometer, zero): (Option<Mode>, Option<Text>, Option<Num>),
+) -> Option<BaroCorrection> {
     if mode.is_none() && t.has("barometric_correction") {
         return None;
     }
     let mode = mode.unwrap_or(Mode::None);
-    let barometer = t.nonempty(cx, "barometer");
-    let zero = t.number(cx, "zero_barometric_kpa", false);
-    let name = match mode {
-        Mode::None => "none",
-        Mode::Sealed => "sealed",
-        Mode::Absolute => "absolute",
-    };
+    let name = de::variants::<Mode>()[mode as usize];
     if mode == Mode::None && t.has("barometer") {
         t.problem_at(
             cx,
@@ -119,25 +111,19 @@ fn baro(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<BaroCorrection> {
             ),
         );
     }
-    if mode != Mode::None && barometer.is_none() && !t.has("barometer") {
-        t.missing(
-            cx,
-            "barometer",
-            &format!(" (required by barometric_correction = \"{name}\")"),
-        );
+    let why = format!(" (required by barometric_correction = \"{name}\")");
+    if mode != Mode::None && !t.has("barometer") {
+        t.missing(cx, "barometer", &why);
     }
     if mode == Mode::Sealed && !t.has("zero_barometric_kpa") {
-        t.missing(
-            cx,
-            "zero_barometric_kpa",
-            " (required by barometric_correction = \"sealed\")",
-        );
+        t.missing(cx, "zero_barometric_kpa", &why);
     }
+    let barometer = barometer.map(|b| b.0);
     match mode {
         Mode::None => Some(BaroCorrection::None),
         Mode::Sealed => Some(BaroCorrection::Sealed {
             barometer: barometer?,
-            zero_kpa: zero?,
+            zero_kpa: zero?.0,
         }),
         Mode::Absolute => Some(BaroCorrection::Absolute {
             barometer: barometer?,
@@ -145,147 +131,123 @@ fn baro(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<BaroCorrection> {
     }
 }
 
+/// `calibration` of a vibrating-wire piezometer as written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "lowercase")]
+enum Form {
+    Linear,
+    Polynomial,
+}
+
+/// `[instrument.vibrating_wire]` as written.
+#[derive(Deserialize, Default)]
+struct RawVw {
+    reading: Option<VwReading>,
+    calibration: Option<Form>,
+    gauge_factor: Option<Num>,
+    zero_reading: Option<Num>,
+    sign: Option<VwSign>,
+    poly_a: Option<Num>,
+    poly_b: Option<Num>,
+    poly_c: Option<Num>,
+    calibration_unit: Option<PressureUnit>,
+    thermal_factor: Option<Num>,
+    zero_temperature_c: Option<Num>,
+    barometric_correction: Option<Mode>,
+    barometer: Option<Text>,
+    zero_barometric_kpa: Option<Num>,
+}
+
+const LINEAR_KEYS: [&str; 3] = ["gauge_factor", "zero_reading", "sign"];
+const POLY_KEYS: [&str; 3] = ["poly_a", "poly_b", "poly_c"];
+
 fn vibrating_wire(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<VibratingWire> {
-    let mut keys = vec![
-        "reading",
-        "calibration",
-        "gauge_factor",
-        "zero_reading",
-        "sign",
-        "poly_a",
-        "poly_b",
-        "poly_c",
-        "calibration_unit",
-        "thermal_factor",
-        "zero_temperature_c",
-    ];
-    keys.extend(BARO_KEYS);
-    t.check_keys(cx, &keys);
-    let reading = t.choice(
-        cx,
-        "reading",
-        true,
-        &[
-            ("frequency_hz", VwReading::FrequencyHz),
-            ("period_s", VwReading::PeriodS),
-            ("period_us", VwReading::PeriodUs),
-            ("digits", VwReading::Digits),
-        ],
-    );
-    let linear = t.choice(
-        cx,
-        "calibration",
-        true,
-        &[("linear", true), ("polynomial", false)],
-    );
-    let (used, unused): (&[&str], &[&str]) = match linear {
-        Some(true) => (
-            &["gauge_factor", "zero_reading", "sign"],
-            &["poly_a", "poly_b", "poly_c"],
-        ),
-        Some(false) => (
-            &["poly_a", "poly_b", "poly_c"],
-            &["gauge_factor", "zero_reading", "sign"],
-        ),
-        None => (&[], &[]),
+    let r: RawVw = de::table(cx, t).unwrap_or_default();
+    let reading = t.need(cx, "reading", r.reading);
+    let form = t.need(cx, "calibration", r.calibration);
+    let (used, unused, name) = match form {
+        Some(Form::Linear) => (LINEAR_KEYS, POLY_KEYS, "linear"),
+        Some(Form::Polynomial) => (POLY_KEYS, LINEAR_KEYS, "polynomial"),
+        None => ([""; 3], [""; 3], ""),
     };
-    let form = if linear == Some(true) {
-        "linear"
-    } else {
-        "polynomial"
-    };
-    for key in used {
-        if !t.has(key) {
-            t.missing(cx, key, &format!(" (required by calibration = \"{form}\")"));
-        }
+    for key in used.into_iter().filter(|k| !k.is_empty() && !t.has(k)) {
+        t.missing(cx, key, &format!(" (required by calibration = \"{name}\")"));
     }
-    for key in unused {
-        if t.has(key) {
-            t.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" does not apply to calibration = \"{form}\"; remove it or change calibration"),
-            );
-        }
+    for key in unused.into_iter().filter(|k| !k.is_empty() && t.has(k)) {
+        let message = format!(
+            "key \"{key}\" does not apply to calibration = \"{name}\"; remove it or change calibration"
+        );
+        t.problem_at(cx, key, message);
     }
-    let calibration = match linear {
-        Some(true) => {
-            let gauge_factor = t.number(cx, "gauge_factor", false);
-            let zero_reading_digits = t.number(cx, "zero_reading", false);
-            let sign = t.choice(
-                cx,
-                "sign",
-                false,
-                &[
-                    ("zero_minus_current", VwSign::ZeroMinusCurrent),
-                    ("current_minus_zero", VwSign::CurrentMinusZero),
-                ],
-            );
-            Some(VwCalibration::Linear {
-                gauge_factor: gauge_factor?,
-                zero_reading_digits: zero_reading_digits?,
-                sign: sign?,
-            })
-        }
-        Some(false) => {
-            let a = t.number(cx, "poly_a", false);
-            let b = t.number(cx, "poly_b", false);
-            let c = t.number(cx, "poly_c", false);
-            Some(VwCalibration::Polynomial {
-                a: a?,
-                b: b?,
-                c: c?,
-            })
-        }
-        None => None,
-    };
-    let calibration_unit = t.choice(cx, "calibration_unit", true, &PRESSURE_UNITS);
-    let thermal_factor = t.number(cx, "thermal_factor", false).unwrap_or(0.0);
-    let zero_temperature_c = t.number(cx, "zero_temperature_c", false).unwrap_or(20.0);
-    let baro = baro(cx, t);
+    let calibration = form.and_then(|form| match form {
+        Form::Linear => Some(VwCalibration::Linear {
+            gauge_factor: r.gauge_factor?.0,
+            zero_reading_digits: r.zero_reading?.0,
+            sign: r.sign?,
+        }),
+        Form::Polynomial => Some(VwCalibration::Polynomial {
+            a: r.poly_a?.0,
+            b: r.poly_b?.0,
+            c: r.poly_c?.0,
+        }),
+    });
+    let calibration_unit = t.need(cx, "calibration_unit", r.calibration_unit);
+    let baro = baro(
+        cx,
+        t,
+        (r.barometric_correction, r.barometer, r.zero_barometric_kpa),
+    );
     Some(VibratingWire {
         reading: reading?,
         calibration: calibration?,
         calibration_unit: calibration_unit?,
-        thermal_factor,
-        zero_temperature_c,
+        thermal_factor: r.thermal_factor.map_or(0.0, |k| k.0),
+        zero_temperature_c: r.zero_temperature_c.map_or(20.0, |z| z.0),
         baro: baro?,
     })
 }
 
+/// `[instrument.pressure_transducer]` as written (`output` is a pressure unit or "mA").
+#[derive(Deserialize, Default)]
+struct RawTransducer {
+    output: Option<String>,
+    current_range_ma: Option<Pair>,
+    pressure_span: Option<Pair>,
+    span_unit: Option<PressureUnit>,
+    barometric_correction: Option<Mode>,
+    barometer: Option<Text>,
+    zero_barometric_kpa: Option<Num>,
+}
+
 fn transducer(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Transducer> {
-    let mut keys = vec!["output", "current_range_ma", "pressure_span", "span_unit"];
-    keys.extend(BARO_KEYS);
-    t.check_keys(cx, &keys);
-    let mut outputs: Vec<(&str, Option<PressureUnit>)> =
-        PRESSURE_UNITS.iter().map(|(n, u)| (*n, Some(*u))).collect();
-    outputs.push(("mA", None));
-    let output = t.choice(cx, "output", true, &outputs);
+    let r: RawTransducer = de::table(cx, t).unwrap_or_default();
+    let output = t.need(cx, "output", r.output).and_then(|o| {
+        let unit = PressureUnit::deserialize(StrDeserializer::<serde::de::value::Error>::new(&o));
+        match (o.as_str(), unit) {
+            ("mA", _) => Some(None),
+            (_, Ok(unit)) => Some(Some(unit)),
+            _ => {
+                let message = format!("key \"output\" is {o:?}, expected one of: kPa, psi, bar, MPa, hPa, m_water, ft_water, mA");
+                t.problem_at(cx, "output", message);
+                None
+            }
+        }
+    });
     let ma_keys = ["current_range_ma", "pressure_span", "span_unit"];
     let output = match output {
         Some(Some(unit)) => {
-            for key in ma_keys {
-                if t.has(key) {
-                    t.problem_at(
-                        cx,
-                        key,
-                        format!("key \"{key}\" applies only to output = \"mA\""),
-                    );
-                }
+            for key in ma_keys.into_iter().filter(|k| t.has(k)) {
+                let message = format!("key \"{key}\" applies only to output = \"mA\"");
+                t.problem_at(cx, key, message);
             }
             Some(TransducerOutput::Pressure(unit))
         }
         Some(None) => {
-            for key in ma_keys {
-                if !t.has(key) {
-                    t.missing(cx, key, " (required by output = \"mA\")");
-                }
+            for key in ma_keys.into_iter().filter(|k| !t.has(k)) {
+                t.missing(cx, key, " (required by output = \"mA\")");
             }
-            let ma = t.pair(cx, "current_range_ma", false);
-            let p = t.pair(cx, "pressure_span", false);
-            let unit = t.choice(cx, "span_unit", false, &PRESSURE_UNITS);
-            match (ma, p, unit) {
-                (Some((ma_low, ma_high)), Some((p_low, p_high)), Some(unit)) => {
+            match (r.current_range_ma, r.pressure_span, r.span_unit) {
+                (Some(Pair(ma_low, ma_high)), Some(Pair(p_low, p_high)), Some(unit)) => {
                     Some(TransducerOutput::Current {
                         ma_low,
                         ma_high,
@@ -299,78 +261,91 @@ fn transducer(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Transducer> {
         }
         None => None,
     };
-    let baro = baro(cx, t);
+    let baro = baro(
+        cx,
+        t,
+        (r.barometric_correction, r.barometer, r.zero_barometric_kpa),
+    );
     Some(Transducer {
         output: output?,
         baro: baro?,
     })
 }
 
+/// `[instrument.standpipe]` as written.
+#[derive(Deserialize, Default)]
+struct RawStandpipe {
+    reference_elevation: Option<Num>,
+    depth_unit: Option<LengthUnit>,
+}
+
 fn standpipe(cx: &mut Cx<'_>, t: &Tbl<'_>, m_per_unit: f64) -> Option<Standpipe> {
-    t.check_keys(cx, &["reference_elevation", "depth_unit"]);
-    let reference = t.number(cx, "reference_elevation", true);
-    let depth_unit = t.choice(cx, "depth_unit", true, &LENGTH_UNITS);
+    let r: RawStandpipe = de::table(cx, t).unwrap_or_default();
+    let reference = t.need(cx, "reference_elevation", r.reference_elevation);
+    let depth_unit = t.need(cx, "depth_unit", r.depth_unit);
     Some(Standpipe {
-        reference_elevation_m: reference? * m_per_unit,
+        reference_elevation_m: reference?.0 * m_per_unit,
         depth_unit: depth_unit?,
     })
 }
 
+/// `mode` of a stage gauge as written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "snake_case")]
+enum Stage {
+    Elevation,
+    DepthAboveDatum,
+}
+
+/// `[instrument.stage_gauge]` as written.
+#[derive(Deserialize, Default)]
+struct RawStage {
+    water_body: Option<WaterBody>,
+    mode: Option<Stage>,
+    datum_elevation: Option<Num>,
+    unit: Option<LengthUnit>,
+}
+
 fn stage_gauge(cx: &mut Cx<'_>, t: &Tbl<'_>, m_per_unit: f64) -> Option<StageGauge> {
-    t.check_keys(cx, &["water_body", "mode", "datum_elevation", "unit"]);
-    let water_body = t.choice(
-        cx,
-        "water_body",
-        true,
-        &[
-            ("reservoir", WaterBody::Reservoir),
-            ("river", WaterBody::River),
-            ("tailwater", WaterBody::Tailwater),
-            ("pond", WaterBody::Pond),
-        ],
-    );
-    let depth = t.choice(
-        cx,
-        "mode",
-        true,
-        &[("elevation", false), ("depth_above_datum", true)],
-    );
-    let unit = t.choice(cx, "unit", true, &LENGTH_UNITS);
-    let mode = match depth {
-        Some(true) => {
-            let datum = t.number(cx, "datum_elevation", false);
+    let r: RawStage = de::table(cx, t).unwrap_or_default();
+    let water_body = t.need(cx, "water_body", r.water_body);
+    let stage = t.need(cx, "mode", r.mode);
+    let unit = t.need(cx, "unit", r.unit);
+    let mode = match stage? {
+        Stage::DepthAboveDatum => {
             if !t.has("datum_elevation") {
-                t.missing(
-                    cx,
-                    "datum_elevation",
-                    " (required by mode = \"depth_above_datum\")",
-                );
+                let why = " (required by mode = \"depth_above_datum\")";
+                t.missing(cx, "datum_elevation", why);
             }
-            Some(StageMode::DepthAboveDatum {
-                datum_m: datum? * m_per_unit,
+            StageMode::DepthAboveDatum {
+                datum_m: r.datum_elevation?.0 * m_per_unit,
                 unit: unit?,
-            })
-        }
-        Some(false) => {
-            if t.has("datum_elevation") {
-                t.problem_at(
-                    cx,
-                    "datum_elevation",
-                    "key \"datum_elevation\" applies only to mode = \"depth_above_datum\"",
-                );
             }
-            Some(StageMode::Elevation(unit?))
         }
-        None => None,
+        Stage::Elevation => {
+            if t.has("datum_elevation") {
+                let message =
+                    "key \"datum_elevation\" applies only to mode = \"depth_above_datum\"";
+                t.problem_at(cx, "datum_elevation", message);
+            }
+            StageMode::Elevation(unit?)
+        }
     };
     Some(StageGauge {
-        mode: mode?,
+        mode,
         water_body: water_body?,
     })
 }
 
+/// `[instrument.barometer]` as written.
+#[derive(Deserialize, Default)]
+struct RawBarometer {
+    unit: Option<PressureUnit>,
+}
+
 fn barometer(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<Barometer> {
-    t.check_keys(cx, &["unit"]);
-    let unit = t.choice(cx, "unit", true, &PRESSURE_UNITS);
-    Some(Barometer { unit: unit? })
+    let r: RawBarometer = de::table(cx, t).unwrap_or_default();
+    Some(Barometer {
+        unit: t.need(cx, "unit", r.unit)?,
+    })
 }

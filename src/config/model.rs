@@ -248,7 +248,8 @@ pub struct Location {
 pub use crate::domain::units::{LengthUnit, PressureUnit};
 
 /// What a vibrating-wire logger channel reports.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
 pub enum VwReading {
     FrequencyHz,
     PeriodS,
@@ -257,7 +258,8 @@ pub enum VwReading {
 }
 
 /// Sign convention of the linear vibrating-wire reduction.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
 pub enum VwSign {
     /// `P = G·(R0 − R1) + ...` (pressure rises as digits fall).
     ZeroMinusCurrent,
@@ -353,7 +355,8 @@ pub enum StageMode {
 }
 
 /// Which water body a stage gauge reads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum WaterBody {
     Reservoir,
     River,

@@ -1,8 +1,9 @@
 //! Typed, located reads from one TOML table of a parsed (span-keeping) document.
 //!
-//! Owns the generic checks every table gets: unknown keys, wrong types, missing required keys,
-//! bad choice strings and non-finite numbers, each reported as a located problem. It does not
-//! know what any key means; `service` and `site` decide that.
+//! Owns the generic checks every table gets: unknown keys, missing required keys, a table's
+//! located problems, its sub-tables and `[[arrays]]`. The typed reads below (`nonempty`,
+//! `number`, `opt_int_in`, `choice`, `array`) serve the tables not read through `de`: the object
+//! tables and `[trends]`'s `rate_windows`. It does not know what any key means.
 
 use std::ops::Range;
 
@@ -256,29 +257,6 @@ impl<'t> Tbl<'t> {
         Some(s)
     }
 
-    /// A date or date-time, as text: a TOML string or a TOML date/date-time value.
-    pub fn date_text(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<String> {
-        self.get(cx, key, req, "an RFC 3339 date or date-time", |v| match v {
-            Value::String(s) => Some(s.value().clone()),
-            Value::Datetime(d) => Some(d.value().to_string()),
-            _ => None,
-        })
-    }
-
-    /// A non-empty label written as a string or an integer (`channel = 3` means `"3"`).
-    pub fn label(&self, cx: &mut Cx<'_>, key: &str) -> Option<String> {
-        let s = self.get(cx, key, false, "a string or an integer", |v| match v {
-            Value::String(s) => Some(s.value().clone()),
-            Value::Integer(i) => Some(i.value().to_string()),
-            _ => None,
-        })?;
-        if s.trim().is_empty() {
-            self.problem_at(cx, key, format!("key \"{key}\" is empty"));
-            return None;
-        }
-        Some(s)
-    }
-
     /// A finite number (`req`: required).
     pub fn number(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<f64> {
         let n = self.get(cx, key, req, "a number", number)?;
@@ -317,30 +295,6 @@ impl<'t> Tbl<'t> {
             return None;
         }
         Some(n)
-    }
-
-    /// `[low, high]`: two finite numbers with low < high.
-    pub fn pair(&self, cx: &mut Cx<'_>, key: &str, req: bool) -> Option<(f64, f64)> {
-        let expected = "[low, high] (two numbers)";
-        let pair = self.get(cx, key, req, expected, |v| {
-            let a = v.as_array()?;
-            if a.len() != 2 {
-                return None;
-            }
-            Some((number(a.get(0)?)?, number(a.get(1)?)?))
-        })?;
-        let (lo, hi) = pair;
-        if !(lo.is_finite() && hi.is_finite() && lo < hi) {
-            self.problem_at(
-                cx,
-                key,
-                format!(
-                    "key \"{key}\" is [{lo}, {hi}], expected finite [low, high] with low < high"
-                ),
-            );
-            return None;
-        }
-        Some(pair)
     }
 
     /// An array (`expected` describes it) whose every element `conv` accepts, each element with

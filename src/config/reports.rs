@@ -82,10 +82,7 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> Vec<ReportEnt
 
 fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
     let before = cx.problems.len();
-    if let Some(id) = t.peek_str("id").filter(|id| !id.trim().is_empty()) {
-        t.what = format!("report {id:?}");
-    }
-    let r: Raw = de::table(cx, t).unwrap_or_default();
+    let r: Raw = de::named(cx, t, ("report", "id"));
     let id = t.need(cx, "id", r.id.map(|i| i.0));
     let id_pos = cx.pos(t.value_span("id"));
     let kind = t.need(cx, "every", r.every);

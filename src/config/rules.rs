@@ -14,11 +14,11 @@ use serde::Deserialize;
 use crate::domain::rules::{Check, Direction, LevelSpec, Spec};
 
 use super::alerting::{Contacts, Policy, Rule, SiteAlerting};
-use super::de::{self, Int, Text};
+use super::de::{self, Int, Nested, Num, Text};
 use super::limits;
 use super::model::{Config, Instrument};
 use super::problem::{Cx, Problem};
-use super::reader::Tbl;
+use super::reader::{found_item, Tbl};
 use super::site::Pos;
 use super::smtp::plain_address;
 
@@ -201,110 +201,115 @@ fn read_contacts(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Contacts> {
     (cx.problems.len() == before).then_some(c)
 }
 
-/// Settings a level takes from its rule unless it sets them itself.
-struct LevelDefaults {
-    deadband: Option<f64>,
-    persist_readings: Option<i64>,
-    persist_s: Option<i64>,
-    keep_active_s: Option<i64>,
-    response: Option<String>,
+/// A count of readings a level must hold for.
+type Readings = Int<1, { u32::MAX as i64 }>;
+/// A duration in seconds.
+type Secs = Int<0, { limits::YEAR_S }>;
+
+/// `kind` of a rule as written.
+#[derive(Deserialize, Clone, Copy, PartialEq, Eq)]
+#[serde(rename_all = "snake_case")]
+enum RuleKind {
+    Threshold,
+    NoData,
 }
 
-fn read_defaults(cx: &mut Cx<'_>, t: &Tbl<'_>) -> LevelDefaults {
-    LevelDefaults {
-        deadband: t.number(cx, "deadband", false),
-        persist_readings: t.opt_int_in(cx, "persist_readings", 1, u32::MAX.into(), false),
-        persist_s: t.opt_int_in(cx, "persist_s", 0, super::limits::YEAR_S, false),
-        keep_active_s: t.opt_int_in(cx, "keep_active_s", 0, super::limits::YEAR_S, false),
-        response: t.nonempty(cx, "response"),
-    }
+/// `[[rule]]` as written; its `deadband` … `response` are the defaults of its levels.
+#[derive(Deserialize, Default)]
+struct RawRule {
+    id: Option<Text>,
+    kind: Option<RuleKind>,
+    object: Option<Text>,
+    quantity: Option<Text>,
+    /// `[[rule.level]]` tables (read on their own), or a no-data rule's level name.
+    #[serde(rename = "level")]
+    _level: Option<Nested>,
+    factor: Option<Num>,
+    deadband: Option<Num>,
+    persist_readings: Option<Readings>,
+    persist_s: Option<Secs>,
+    keep_active_s: Option<Secs>,
+    response: Option<Text>,
 }
 
-const RULE_KEYS: [&str; 11] = [
-    "id",
-    "kind",
-    "object",
-    "quantity",
-    "level",
-    "factor",
-    "deadband",
-    "persist_readings",
-    "persist_s",
-    "keep_active_s",
-    "response",
-];
+/// `[[rule.level]]` as written; an absent setting is the rule's.
+#[derive(Deserialize, Default)]
+struct RawLevel {
+    name: Option<Text>,
+    above: Option<Num>,
+    below: Option<Num>,
+    deadband: Option<Num>,
+    persist_readings: Option<Readings>,
+    persist_s: Option<Secs>,
+    keep_active_s: Option<Secs>,
+    response: Option<Text>,
+}
 
 fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> RuleEntry {
     let before = cx.problems.len();
-    let id = t.nonempty(cx, "id");
-    if let Some(id) = &id {
-        t.what = format!("rule {id:?}");
-    } else if !t.has("id") {
-        t.missing(cx, "id", "");
-    }
+    let r: RawRule = de::named(cx, t, ("rule", "id"));
+    let id = t.need(cx, "id", r.id.clone().map(|s| s.0));
     let id_pos = cx.pos(t.value_span("id"));
-    t.check_keys(cx, &RULE_KEYS);
-    let no_data = t.choice(
-        cx,
-        "kind",
-        false,
-        &[("threshold", false), ("no_data", true)],
-    ) == Some(true);
-    let object = t.nonempty(cx, "object");
+    let no_data = r.kind == Some(RuleKind::NoData);
     if !t.has("object") {
         t.missing(cx, "object", " (an instrument or derived-object id)");
     }
+    let object = r.object.clone().map(|s| s.0);
     let object_pos = cx.pos(t.value_span("object"));
-    let defaults = read_defaults(cx, t);
     let (quantity, levels, factor) = if no_data {
         for key in ["quantity", "deadband", "persist_readings", "persist_s"] {
             if t.has(key) {
-                t.problem_at(
-                    cx,
-                    key,
-                    format!("key \"{key}\" does not apply to kind = \"no_data\""),
-                );
+                let message = format!("key \"{key}\" does not apply to kind = \"no_data\"");
+                t.problem_at(cx, key, message);
             }
         }
-        let factor = t.number(cx, "factor", true);
+        let factor = t.need(cx, "factor", r.factor).map(|f| f.0);
         if let Some(f) = factor.filter(|f| *f <= 1.0) {
             t.problem_at(cx, "factor", format!("key \"factor\" is {f}, expected more than 1 (silent for more than factor × interval_s)"));
         }
-        let name = t.nonempty(cx, "level");
         if !t.has("level") {
             t.missing(cx, "level", " (the level name of the no-data alert)");
         }
+        let name = match t.peek_str("level") {
+            Some(s) if s.trim().is_empty() => {
+                t.problem_at(cx, "level", "key \"level\" is empty");
+                None
+            }
+            Some(s) => Some(s),
+            None => {
+                if let Some((_, item)) = t.entries().find(|(k, _)| *k == "level") {
+                    let message =
+                        format!("key \"level\" is {}, expected a string", found_item(item));
+                    t.problem_at(cx, "level", message);
+                }
+                None
+            }
+        };
         let level = name.map(|name| LevelSpec {
-            name,
+            name: name.to_string(),
             direction: Direction::Above,
             bound: f64::INFINITY, // set from the instrument's interval in `finish`
             deadband: 0.0,
             persist_readings: 1,
             persist_ms: 0,
-            keep_active_ms: defaults.keep_active_s.unwrap_or(0) * 1000,
-            response: defaults.response.clone().unwrap_or_default(),
+            keep_active_ms: r.keep_active_s.map_or(0, |s| s.0 * 1000),
+            response: r.response.clone().map(|s| s.0).unwrap_or_default(),
         });
-        if defaults.response.is_none() {
+        if r.response.is_none() {
             t.missing(cx, "response", " (what the on-call should do)");
         }
         (Some("no_data".to_string()), level.map(|l| vec![l]), factor)
     } else {
         if t.has("factor") {
-            t.problem_at(
-                cx,
-                "factor",
-                "key \"factor\" applies only to kind = \"no_data\"",
-            );
+            let message = "key \"factor\" applies only to kind = \"no_data\"";
+            t.problem_at(cx, "factor", message);
         }
-        let quantity = t.nonempty(cx, "quantity");
         if !t.has("quantity") {
-            t.missing(
-                cx,
-                "quantity",
-                " (e.g. \"total_head\", \"factor_of_safety\")",
-            );
+            let why = " (e.g. \"total_head\", \"factor_of_safety\")";
+            t.missing(cx, "quantity", why);
         }
-        (quantity, read_levels(cx, t, &defaults), None)
+        let quantity = r.quantity.clone().map(|s| s.0);
+        (quantity, read_levels(cx, t, &r), None)
     };
     let rule = match (&id, &object, &quantity, levels) {
         (Some(id), Some(object), Some(quantity), Some(levels)) if cx.problems.len() == before => {
@@ -336,7 +341,7 @@ fn read_rule(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, policy: &Policy) -> R
     }
 }
 
-fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<LevelSpec>> {
+fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &RawRule) -> Option<Vec<LevelSpec>> {
     let tables = t.tables(cx, "level");
     if tables.is_empty() {
         if !t.has("level") {
@@ -353,78 +358,44 @@ fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<Le
     for (i, mut l) in tables.into_iter().enumerate() {
         l.what = format!("{} level #{}", t.what, i + 1);
         l.header = "[[rule.level]]".into();
-        l.check_keys(
-            cx,
-            &[
-                "name",
-                "above",
-                "below",
-                "deadband",
-                "persist_readings",
-                "persist_s",
-                "keep_active_s",
-                "response",
-            ],
-        );
-        let name = l.nonempty(cx, "name");
+        let r: RawLevel = de::table(cx, &l).unwrap_or_default();
+        let name = r.name.map(|n| n.0);
         if !l.has("name") {
             l.missing(cx, "name", " (your name for the level, e.g. \"watch\")");
         }
         if let Some(n) = name.as_ref().filter(|n| !names.insert(n.to_string())) {
-            l.problem_at(
-                cx,
-                "name",
-                format!("level name {n:?} is used twice in this rule"),
-            );
+            let message = format!("level name {n:?} is used twice in this rule");
+            l.problem_at(cx, "name", message);
         }
-        let bound = match (l.number(cx, "above", false), l.number(cx, "below", false)) {
-            (Some(b), None) => Some((Direction::Above, b)),
-            (None, Some(b)) => Some((Direction::Below, b)),
+        let bound = match (r.above, r.below) {
+            (Some(b), None) => Some((Direction::Above, b.0)),
+            (None, Some(b)) => Some((Direction::Below, b.0)),
             (Some(_), Some(_)) => {
-                l.problem(
-                    cx,
-                    "both \"above\" and \"below\" are set; expected one bound per level",
-                );
+                let message = "both \"above\" and \"below\" are set; expected one bound per level";
+                l.problem(cx, message);
                 None
             }
             (None, None) => {
                 if !l.has("above") && !l.has("below") {
-                    l.problem(
-                        cx,
-                        "no bound; expected \"above = <value>\" or \"below = <value>\"",
-                    );
+                    let message = "no bound; expected \"above = <value>\" or \"below = <value>\"";
+                    l.problem(cx, message);
                 }
                 None
             }
         };
-        let deadband = l
-            .number(cx, "deadband", false)
-            .or(d.deadband)
-            .unwrap_or(0.0);
+        let deadband = r.deadband.or(d.deadband).map_or(0.0, |b| b.0);
         if deadband < 0.0 {
-            l.problem_at(
-                cx,
-                "deadband",
-                format!("deadband is {deadband}, expected 0 or more"),
-            );
+            let message = format!("deadband is {deadband}, expected 0 or more");
+            l.problem_at(cx, "deadband", message);
         }
-        let persist = l
-            .opt_int_in(cx, "persist_readings", 1, u32::MAX.into(), false)
-            .or(d.persist_readings)
-            .unwrap_or(1);
-        let persist_s = l
-            .opt_int_in(cx, "persist_s", 0, super::limits::YEAR_S, false)
-            .or(d.persist_s);
-        let keep_s = l
-            .opt_int_in(cx, "keep_active_s", 0, super::limits::YEAR_S, false)
-            .or(d.keep_active_s);
-        let response = l.nonempty(cx, "response").or_else(|| d.response.clone());
+        let persist = r.persist_readings.or(d.persist_readings).map_or(1, |p| p.0);
+        let secs = |v: Option<Secs>| v.map_or(0, |s| s.0 * 1000);
+        let persist_ms = secs(r.persist_s.or(d.persist_s));
+        let keep_active_ms = secs(r.keep_active_s.or(d.keep_active_s));
+        let response = r.response.or_else(|| d.response.clone()).map(|s| s.0);
         if response.is_none() {
-            l.missing(
-                cx,
-                "response",
-                " (or in the [[rule]]: what the on-call should do)",
-            );
+            let why = " (or in the [[rule]]: what the on-call should do)";
+            l.missing(cx, "response", why);
         }
         if let (Some((dir, b)), Some(prev)) = (bound, levels.last()) {
             let ordered = match dir {
@@ -451,8 +422,8 @@ fn read_levels(cx: &mut Cx<'_>, t: &Tbl<'_>, d: &LevelDefaults) -> Option<Vec<Le
                 bound,
                 deadband,
                 persist_readings: persist as u32,
-                persist_ms: persist_s.unwrap_or(0) * 1000,
-                keep_active_ms: keep_s.unwrap_or(0) * 1000,
+                persist_ms,
+                keep_active_ms,
                 response,
             });
         }

@@ -12,8 +12,8 @@ use serde::Deserialize;
 
 use crate::domain::units::GAMMA_W_62_4_PCF_KN_M3;
 
-use super::de::{self, Num, Text};
-use super::kinds::{self, KINDS, M_PER_FT};
+use super::de::{self, DateText, Int, Label, Nested, Num, Pair, Text};
+use super::kinds::{self, KindName, M_PER_FT};
 use super::limits;
 use super::model::{DisplayUnits, Instrument, Location, Site};
 use super::objects::{self, ObjEntry};
@@ -88,46 +88,21 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
         Some(mut t) => {
             t.what = "[site]".into();
             let before = cx.problems.len();
-            if let Some(sid) = t.peek_str("id").filter(|s| !s.trim().is_empty()) {
-                t.what = format!("site {sid:?}");
-            }
-            let r: RawSite = de::table(cx, &t).unwrap_or_default();
+            let r: RawSite = de::named(cx, &mut t, ("site", "id"));
             let sid = t.need(cx, "id", r.id.map(|s| s.0));
             if t.has("id") {
                 id = sid.clone().map(|s| (s, cx.pos(t.value_span("id"))));
             }
-            let name = r.name.map(|n| n.0);
-            let time_zone = r.time_zone.map_or_else(|| "UTC".into(), |z| z.0);
-            if time_zone.parse::<chrono_tz::Tz>().is_err() {
-                t.problem_at(
-                    cx,
-                    "time_zone",
-                    format!(
-                        "key \"time_zone\" is {time_zone:?}, expected an IANA time zone name such as \"UTC\" or \"America/Chicago\""
-                    ),
-                );
-            }
-            let gamma = r.unit_weight_water_kn_m3.map(|g| g.0);
-            if let Some(g) = gamma.filter(|g| accepted_gamma_w(*g).is_none()) {
-                t.problem_at(
-                    cx,
-                    "unit_weight_water_kn_m3",
-                    format!(
-                        "key \"unit_weight_water_kn_m3\" is {g}, expected one of: 9.81, 9.80665, 9.802258 (62.4 pcf)"
-                    ),
-                );
-            }
-            let display_units = r.display_units.unwrap_or(DisplayUnits::Si);
             if r.length_unit == Some(Length::Ft) {
                 m_per_unit = M_PER_FT;
             }
-            gamma_w = gamma.and_then(accepted_gamma_w).unwrap_or(gamma_w);
+            gamma_w = r.unit_weight_water_kn_m3.map_or(gamma_w, |g| g.0);
             let site = sid.map(|sid| Site {
-                name: name.unwrap_or_else(|| sid.clone()),
+                name: r.name.map_or_else(|| sid.clone(), |n| n.0),
                 id: sid,
-                time_zone,
+                time_zone: r.time_zone.map_or_else(|| "UTC".into(), |z| z.0),
                 gamma_w_kn_m3: gamma_w,
-                display_units,
+                display_units: r.display_units.unwrap_or(DisplayUnits::Si),
                 file: file.to_path_buf(),
             });
             site.filter(|_| cx.problems.len() == before)
@@ -160,15 +135,44 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     }
 }
 
-/// `[site]` as written; checks in `read`.
+/// `[site]` as written; checks in its value types and `read`.
 #[derive(Deserialize, Default)]
 struct RawSite {
     id: Option<Text>,
     name: Option<Text>,
-    time_zone: Option<Text>,
-    unit_weight_water_kn_m3: Option<Num>,
+    time_zone: Option<Zone>,
+    unit_weight_water_kn_m3: Option<GammaW>,
     display_units: Option<DisplayUnits>,
     length_unit: Option<Length>,
+}
+
+/// `time_zone`: an IANA time zone name.
+struct Zone(String);
+
+impl<'de> Deserialize<'de> for Zone {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let z = String::deserialize(d)?;
+        if z.parse::<chrono_tz::Tz>().is_err() {
+            return Err(serde::de::Error::custom(format!(
+                "is {z:?}, expected an IANA time zone name such as \"UTC\" or \"America/Chicago\""
+            )));
+        }
+        Ok(Zone(z))
+    }
+}
+
+/// `unit_weight_water_kn_m3`: one of the accepted unit weights of water (kN/m³), exactly.
+struct GammaW(f64);
+
+impl<'de> Deserialize<'de> for GammaW {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let Num(g) = Num::deserialize(d)?;
+        accepted_gamma_w(g).map(GammaW).ok_or_else(|| {
+            serde::de::Error::custom(format!(
+                "is {g}, expected one of: 9.81, 9.80665, 9.802258 (62.4 pcf)"
+            ))
+        })
+    }
 }
 
 /// `length_unit` as written.
@@ -179,21 +183,30 @@ enum Length {
     Ft,
 }
 
-const COMMON_KEYS: [&str; 13] = [
-    "id",
-    "calibrated",
-    "kind",
-    "reach",
-    "section",
-    "station",
-    "offset",
-    "tip_elevation",
-    "installed",
-    "interval_s",
-    "range",
-    "logger",
-    "channel",
-];
+/// `[[instrument]]` as written (the kind sub-tables, `Nested`, are read by `kinds`); checks in
+/// `instrument`.
+#[derive(Deserialize, Default)]
+#[allow(dead_code)] // the `Nested` fields: accepted keys, read as tables of their own
+struct RawInstrument {
+    id: Option<Text>,
+    calibrated: Option<DateText>,
+    kind: Option<KindName>,
+    reach: Option<Text>,
+    section: Option<Text>,
+    station: Option<Num>,
+    offset: Option<Num>,
+    tip_elevation: Option<Num>,
+    installed: Option<DateText>,
+    interval_s: Option<Int<1, { limits::YEAR_S }>>,
+    range: Option<Pair>,
+    logger: Option<Label>,
+    channel: Option<Label>,
+    vibrating_wire: Option<Nested>,
+    pressure_transducer: Option<Nested>,
+    standpipe: Option<Nested>,
+    stage_gauge: Option<Nested>,
+    barometer: Option<Nested>,
+}
 
 /// Parse `installed`: an RFC 3339 date (midnight UTC) or date-time.
 pub(crate) fn parse_installed(s: &str) -> Option<DateTime<Utc>> {
@@ -204,45 +217,40 @@ pub(crate) fn parse_installed(s: &str) -> Option<DateTime<Utc>> {
 fn instant(
     cx: &mut Cx<'_>,
     t: &Tbl<'_>,
-    (key, required): (&str, bool),
+    (key, text): (&str, Option<DateText>),
     expected: &str,
 ) -> Option<DateTime<Utc>> {
-    let text = t.date_text(cx, key, required)?;
+    let text = text?.0;
     let parsed = parse_installed(&text);
     if parsed.is_none() {
-        t.problem_at(
-            cx,
-            key,
-            format!("key \"{key}\" is {text:?}, expected {expected}"),
-        );
+        let message = format!("key \"{key}\" is {text:?}, expected {expected}");
+        t.problem_at(cx, key, message);
     }
     parsed
 }
 
 fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> Entry {
     let before = cx.problems.len();
-    let mut keys: Vec<&str> = COMMON_KEYS.to_vec();
-    keys.extend(KINDS);
-    let id = t.nonempty(cx, "id");
-    if let Some(id) = &id {
-        t.what = format!("instrument {id:?}");
-    } else if !t.has("id") {
-        t.missing(cx, "id", "");
-    }
+    let r: RawInstrument = de::named(cx, t, ("instrument", "id"));
+    let id = t.need(cx, "id", r.id.map(|s| s.0));
     let id_pos = cx.pos(t.value_span("id"));
-    t.check_keys(cx, &keys);
-    let kind_name = t.choice(cx, "kind", true, &KINDS.map(|k| (k, k)));
-    let present: Vec<&str> = KINDS.into_iter().filter(|k| t.has(k)).collect();
+    let kind_name = t.need(cx, "kind", r.kind);
+    let present: Vec<&str> = de::variants::<KindName>()
+        .iter()
+        .copied()
+        .filter(|k| t.has(k))
+        .collect();
     let mut kind_read = None;
     if let Some(kind) = kind_name {
-        let others: Vec<&str> = present.iter().copied().filter(|k| *k != kind).collect();
-        if let ([other], false) = (others.as_slice(), t.has(kind)) {
+        let name = kind.name();
+        let others: Vec<&str> = present.into_iter().filter(|k| *k != name).collect();
+        if let ([other], false) = (others.as_slice(), t.has(name)) {
             // The usual slip: `kind` and the settings table disagree. One problem, not two.
             cx.at(
                 t.key_span(other),
                 format!(
-                    "{}: kind = \"{kind}\" but the settings table is [instrument.{other}]; \
-                     expected [instrument.{kind}] (or kind = \"{other}\")",
+                    "{}: kind = \"{name}\" but the settings table is [instrument.{other}]; \
+                     expected [instrument.{name}] (or kind = \"{other}\")",
                     t.what
                 ),
             );
@@ -251,60 +259,55 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
                 cx.at(
                     t.key_span(other),
                     format!(
-                        "{}: [instrument.{other}] does not match kind = \"{kind}\"; expected only [instrument.{kind}]",
+                        "{}: [instrument.{other}] does not match kind = \"{name}\"; expected only [instrument.{name}]",
                         t.what
                     ),
                 );
             }
-            match t.sub(cx, kind, &format!("[instrument.{kind}]")) {
+            match t.sub(cx, name, &format!("[instrument.{name}]")) {
                 Some(sub) => kind_read = Some(kinds::read(cx, kind, &sub, m_per_unit)),
-                None if !t.has(kind) => t.problem(
+                None if !t.has(name) => t.problem(
                     cx,
-                    format!("kind = \"{kind}\" but there is no [instrument.{kind}] table; expected one with its settings"),
+                    format!("kind = \"{name}\" but there is no [instrument.{name}] table; expected one with its settings"),
                 ),
                 None => {}
             }
         }
-        let piezometer = kind == "vibrating_wire" || kind == "pressure_transducer";
-        if piezometer && !t.has("tip_elevation") {
-            t.missing(
-                cx,
-                "tip_elevation",
-                &format!(" (required for kind = \"{kind}\")"),
-            );
+        if kind.piezometer() && !t.has("tip_elevation") {
+            let why = format!(" (required for kind = \"{name}\")");
+            t.missing(cx, "tip_elevation", &why);
         }
     }
-    let (has_tip, has_station) = (t.has("tip_elevation"), t.has("station"));
-    let tip = t.number(cx, "tip_elevation", false).map(|v| v * m_per_unit);
+    let metres = |v: Option<Num>| v.map(|v| v.0 * m_per_unit);
     let location = Location {
-        reach: t.nonempty(cx, "reach"),
-        section: t.nonempty(cx, "section"),
-        station_m: t.number(cx, "station", false).map(|v| v * m_per_unit),
-        offset_m: t.number(cx, "offset", false).map(|v| v * m_per_unit),
+        reach: r.reach.map(|s| s.0),
+        section: r.section.map(|s| s.0),
+        station_m: metres(r.station),
+        offset_m: metres(r.offset),
     };
+    let installed = t.need(cx, "installed", r.installed);
     let installed = instant(
         cx,
         t,
-        ("installed", true),
+        ("installed", installed),
         "an RFC 3339 date (2025-03-01) or date-time (2025-03-01T08:00:00Z)",
     );
     // The date of the last calibration (optional; shown in the report's instrument table).
     let calibrated = instant(
         cx,
         t,
-        ("calibrated", false),
+        ("calibrated", r.calibrated),
         "the date of the last calibration (2025-03-01)",
     );
-    let interval_s = t.opt_int_in(cx, "interval_s", 1, limits::YEAR_S, true);
-    let raw_range = t.pair(cx, "range", true);
-    let logger = t.label(cx, "logger");
-    let channel = t.label(cx, "channel");
+    let interval_s = t.need(cx, "interval_s", r.interval_s);
+    let raw_range = t.need(cx, "range", r.range);
     if t.has("logger") != t.has("channel") {
         t.problem(
             cx,
             "expected both \"logger\" and \"channel\", or neither (they map logger channels to this instrument)",
         );
     }
+    let (logger, channel) = (r.logger.map(|l| l.0), r.channel.map(|c| c.0));
     let barometer = kind_read
         .as_mut()
         .and_then(|k| k.barometer.take())
@@ -315,7 +318,7 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
     };
     let kind = kind_read.and_then(|k| k.kind);
     let instrument = match (&id, kind, installed, interval_s, raw_range) {
-        (Some(id), Some(kind), Some(installed), Some(interval_s), Some(raw_range))
+        (Some(id), Some(kind), Some(installed), Some(interval_s), Some(Pair(lo, hi)))
             if cx.problems.len() == before =>
         {
             Some(Instrument {
@@ -323,11 +326,11 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
                 site: site.to_string(),
                 kind,
                 location,
-                tip_elevation_m: tip,
+                tip_elevation_m: metres(r.tip_elevation),
                 installed,
                 calibrated,
-                interval_s: interval_s as u64,
-                raw_range,
+                interval_s: interval_s.u64(),
+                raw_range: (lo, hi),
                 logger,
                 channel,
             })
@@ -336,11 +339,27 @@ fn instrument(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str, m_per_unit: f64) -> 
     };
     Entry {
         id: id.map(|s| (s, id_pos)),
-        kind: kind_name,
+        kind: kind_name.map(KindName::name),
         barometer,
         logger_channel,
-        has_tip,
-        has_station,
+        has_tip: t.has("tip_elevation"),
+        has_station: t.has("station"),
         instrument,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_kind_has_its_sub_table_key() {
+        let keys = de::fields::<RawInstrument>();
+        for kind in de::variants::<KindName>() {
+            assert!(
+                keys.contains(kind),
+                "RawInstrument lacks `{kind}: Option<Nested>`"
+            );
+        }
     }
 }

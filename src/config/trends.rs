@@ -40,14 +40,12 @@ struct RawHealth {
     flatline_count: Option<Int<2, 10_000>>,
     flatline_tolerance: Option<Num>,
     no_data_factor: Option<Num>,
-    /// `[low, high]`, read by `Tbl::pair`.
-    #[serde(rename = "thermistor_range")]
-    _thermistor_range: Option<de::Nested>,
+    thermistor_range: Option<de::Pair>,
     thermistor_max_jump: Option<Num>,
     use_flagged: Option<bool>,
 }
 
-/// `[[stage_response]]` as written; `lag_range_h` is read by `Tbl::pair`.
+/// `[[stage_response]]` as written.
 #[derive(Deserialize, Default)]
 struct RawStageResponse {
     #[serde(rename = "id")]
@@ -55,8 +53,7 @@ struct RawStageResponse {
     piezometer: Option<Text>,
     stage_gauge: Option<Text>,
     training_days: Option<Num>,
-    #[serde(rename = "lag_range_h")]
-    _lag_range_h: Option<de::Nested>,
+    lag_range_h: Option<de::Pair>,
     lag_step_h: Option<Num>,
     refit_interval_h: Option<Num>,
 }
@@ -266,9 +263,9 @@ fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, r: RawHealth, m: f64) -> HealthSettings 
             (factor_ok, &factor),
         )
         .unwrap_or(d.no_data_factor),
-        thermistor_range_c: t
-            .pair(cx, "thermistor_range", false)
-            .unwrap_or(d.thermistor_range_c),
+        thermistor_range_c: r
+            .thermistor_range
+            .map_or(d.thermistor_range_c, |p| (p.0, p.1)),
         thermistor_max_jump_c: max_jump.unwrap_or(d.thermistor_max_jump_c),
         use_flagged: r.use_flagged.unwrap_or(d.use_flagged),
     }
@@ -320,9 +317,7 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
             limits::TRAINING_DAYS,
             DEFAULT_TRAINING_DAYS,
         );
-        let (lo, hi) = t
-            .pair(cx, "lag_range_h", false)
-            .unwrap_or(DEFAULT_LAG_RANGE_H);
+        let (lo, hi) = r.lag_range_h.map_or(DEFAULT_LAG_RANGE_H, |p| (p.0, p.1));
         if lo < 0.0 || hi > limits::YEAR_H {
             t.problem_at(
                 cx,

@@ -1,21 +1,29 @@
 //! Unit conversions to and from SI (kPa, m). Exact definitions only.
 
-/// A pressure unit accepted in configuration and payloads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+/// A pressure unit accepted in configuration and payloads (serde: the spellings a file uses).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
 pub enum PressureUnit {
+    #[serde(rename = "kPa")]
     Kpa,
+    #[serde(rename = "psi")]
     Psi,
+    #[serde(rename = "bar")]
     Bar,
+    #[serde(rename = "MPa")]
     Mpa,
+    #[serde(rename = "hPa")]
     Hpa,
     /// Metres of water column (converted with the site's γw).
+    #[serde(rename = "m_water")]
     MWater,
     /// Feet of water column (converted with the site's γw).
+    #[serde(rename = "ft_water")]
     FtWater,
 }
 
 /// A length unit accepted in configuration and payloads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum LengthUnit {
     M,
     Ft,

@@ -319,3 +319,47 @@ fn pattern_filter_replaces_placeholders() {
     assert!(pattern_filter("a/{site}x").is_err());
     assert!(pattern_filter("a/{nope}").is_err());
 }
+
+#[test]
+fn instrument_values_are_described_in_our_words() {
+    let cases: &[(usize, &str, &str)] = &[
+        (5, "kind = 3", "key \"kind\" is 3, expected a string"),
+        (
+            9,
+            "range = \"x\"",
+            "key \"range\" is \"x\", expected [low, high] (two numbers)",
+        ),
+        (
+            9,
+            "range = [1.0, \"a\"]",
+            "key \"range\" is an array, expected [low, high] (two numbers)",
+        ),
+        (
+            9,
+            "range = [1.0, 2.0, 3.0]",
+            "key \"range\" is an array, expected [low, high]",
+        ),
+        (
+            9,
+            "range = [1, inf]",
+            "key \"range\" is [1, inf], expected finite [low, high] with low < high",
+        ),
+        (
+            11,
+            "channel = 1.5",
+            "key \"channel\" is 1.5, expected a string or an integer",
+        ),
+        (
+            8,
+            "interval_s = \"x\"",
+            "key \"interval_s\" is \"x\", expected an integer",
+        ),
+        (13, "reading = 3", "key \"reading\" is 3, expected a string"),
+    ];
+    for (n, text, needle) in cases {
+        expect_one(&run(SERVICE, &site_with(*n, text)), "s.toml", *n, needle);
+    }
+    // A channel written as an integer and a TOML date are accepted as written.
+    let edits = [(11, "channel = 3"), (7, "installed = 2025-01-01")];
+    assert_eq!(run(SERVICE, &site_edit(&edits)), Vec::new());
+}
