@@ -7,12 +7,16 @@
 //!   scenarios' faults, queued in a real Mosquitto (started here on a free port) while seepd is
 //!   down; then `mosquitto_sub -q 1` drains the same backlog from its own persistent session,
 //!   and seepd catches up (stored with `synchronous=FULL` and acknowledged, start-up included).
+//! - live, re-solving: the same backlog once more with the example dam's section model set to
+//!   re-solve on every pool reading (`resolve_change` 1 µm, `resolve_every_s` 60 with hourly
+//!   readings), to show that the seepage solves on their own thread do not hold up ingest.
 //! - replay: `seepd replay --db` of hourly readings of an invented 200-instrument fleet
 //!   (`benches/fleet`), next to `benches/reference_pipeline.py` doing the same reductions and
 //!   gradients in Python, and a plain Python sqlite3 batched insert of the same readings; the
 //!   Python pipeline's values are checked against seepd's database.
 //!
-//! Run: `cargo bench --bench ingest` (`SEEPD_BENCH_PART=live|replay` for one part;
+//! Run: `cargo bench --bench ingest` (`SEEPD_BENCH_PART=live|replay` for one part, `live` runs
+//! both live variants;
 //! `SEEPD_BENCH_N` the backlog, default 30,000 messages; `SEEPD_BENCH_REPLAY_N` the replay
 //! readings, default 1,000,000; `SEEPD_BENCH_DIR` keeps the files there). Figures go to the
 //! README.
@@ -41,7 +45,13 @@ fn main() {
     let root =
         std::env::var_os("SEEPD_BENCH_DIR").map_or_else(|| tmp.path().to_path_buf(), Into::into);
     if part.is_empty() || part == "live" {
-        live(&root, env_n("SEEPD_BENCH_N", 30_000));
+        let n = env_n("SEEPD_BENCH_N", 30_000);
+        let plain = live(&root, n, false);
+        let resolving = live(&root, n, true);
+        println!(
+            "  ratio re-solving / plain seepd : {:.2}",
+            resolving / plain
+        );
     }
     if part.is_empty() || part == "replay" {
         replay(&root, env_n("SEEPD_BENCH_REPLAY_N", 1_000_000));
@@ -78,12 +88,22 @@ fn example_mix(cfg: &seepd::config::Config, n: usize) -> Vec<(String, String)> {
         .collect()
 }
 
-/// Live catch-up of a queued backlog of `n` messages vs `mosquitto_sub -q 1`.
-fn live(root: &Path, n: usize) {
-    let dir = root.join("live");
+/// Live catch-up of a queued backlog of `n` messages vs `mosquitto_sub -q 1`; with `resolve`,
+/// the example dam's section model re-solves on every pool reading. Returns seepd's rate.
+fn live(root: &Path, n: usize, resolve: bool) -> f64 {
+    let dir = root.join(if resolve { "live-resolve" } else { "live" });
     std::fs::create_dir_all(&dir).expect("dir");
     let broker = Broker::start(&dir);
     let cfg = example_config(&dir, broker.port);
+    if resolve {
+        let site = cfg.join("dam-tarn.toml");
+        let text = std::fs::read_to_string(&site).expect("dam site file");
+        let patched = text
+            .replace("resolve_change = 0.1\n", "resolve_change = 0.000001\n")
+            .replace("resolve_every_s = 21600\n", "resolve_every_s = 60\n");
+        assert_ne!(text, patched, "the example dam's model keys moved");
+        std::fs::write(&site, patched).expect("write site file");
+    }
     let loaded = seepd::config::load_dir(&cfg).unwrap_or_else(|p| panic!("{p}"));
     let messages = example_mix(&loaded, n);
     let n = messages.len();
@@ -138,16 +158,27 @@ fn live(root: &Path, n: usize) {
     let stored = count(&dir, "readings", "1=1");
     let quarantined = count(&dir, "quarantine", "1=1");
     let derived = count(&dir, "derived", "1=1");
+    let solves = count(&dir, "derived", "quantity = 'model_flow'");
+    let pool = count(&dir, "readings", "instrument = 'TH-POOL'");
 
     let sub_rate = n as f64 / sub_s;
     let seepd_rate = n as f64 / seepd_s;
-    println!("live catch-up, {n} queued QoS 1 messages, example site mix, hourly readings:");
+    println!(
+        "live catch-up, {n} queued QoS 1 messages, example site mix, hourly readings{}:",
+        if resolve {
+            ", section model re-solving on every pool reading"
+        } else {
+            ""
+        }
+    );
     println!("  mosquitto_sub -q 1 drain : {sub_rate:>9.0} msg/s ({sub_s:.2} s)");
     println!(
         "  seepd stored + acked     : {seepd_rate:>9.0} readings/s ({seepd_s:.2} s, incl. start-up; \
          {stored} readings, {quarantined} quarantined, {derived} derived rows)"
     );
+    println!("  section solves answered  : {solves} (pool readings {pool})");
     println!("  ratio                    : {:.2}", seepd_rate / sub_rate);
+    seepd_rate
 }
 
 /// `seepd replay --db` of `n` hourly readings of a 200-instrument fleet vs the Python anchors.

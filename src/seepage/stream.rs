@@ -13,7 +13,7 @@ use std::collections::HashMap;
 use super::mesh::Mesh;
 use super::model::SectionModel;
 use super::solve::{element_matrix, SeepageError, Solution};
-use super::sparse::{pcg, Csr};
+use super::sparse::{solve_spd, Csr};
 
 /// Nodes of the longest boundary loop, in order with the domain on the left.
 fn outer_loop(mesh: &Mesh) -> Vec<usize> {
@@ -75,9 +75,10 @@ pub fn stream_function(
             a.val[*slot] += v;
         }
     }
+    a.check_anchored(&fixed.iter().map(Option::is_some).collect::<Vec<_>>())?;
     let mut rhs = vec![0.0; n];
     a.fix_values(&fixed, &mut rhs);
-    let mut x: Vec<f64> = fixed.iter().map(|f| f.unwrap_or(psi / 2.0)).collect();
-    pcg(&a, &rhs, &mut x, linear_tol)?;
+    let mut x = vec![0.0; n];
+    solve_spd(&a, &rhs, &mut x, linear_tol)?;
     Ok(x)
 }
