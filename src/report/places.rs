@@ -16,6 +16,7 @@ use crate::present::{kind_name, Measure};
 pub(crate) struct Column {
     pub header: String,
     pub left: bool,
+    #[cfg_attr(not(feature = "pdf"), allow(dead_code))]
     pub pdf_width: f32,
     pub cells: Vec<String>,
 }

@@ -334,9 +334,12 @@ mod tests {
         assert!(x.iter().all(|v| v.is_finite()));
     }
 
+    /// A triangle's corner coordinates.
+    type Corners = [(f64, f64); 3];
+
     /// A strip of `m` unit squares, each cut into two triangles; node `2i` at (i, 0) and `2i+1`
     /// at (i, 1). Returns the triangles and their coordinates.
-    fn strip(m: usize) -> (Vec<[usize; 3]>, Vec<[(f64, f64); 3]>) {
+    fn strip(m: usize) -> (Vec<[usize; 3]>, Vec<Corners>) {
         let mut tris = Vec::new();
         let mut xy = Vec::new();
         for i in 0..m {
