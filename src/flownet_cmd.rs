@@ -85,9 +85,7 @@ pub fn stored_levels(store: &Store, s: &Section, t_ms: i64) -> anyhow::Result<St
 pub fn section<'a>(cfg: &'a Config, id: &str) -> anyhow::Result<&'a Section> {
     let s = cfg
         .objects
-        .sections
-        .iter()
-        .find(|s| s.id == id)
+        .section(id)
         .ok_or_else(|| anyhow::anyhow!("no section {id:?} in the configuration"))?;
     if s.model.is_none() {
         anyhow::bail!("section {id:?} has no [section.model]");

@@ -47,9 +47,7 @@ pub fn flownet_svg(cfg: &Config, s: &Section, net: &FlowNet) -> String {
 pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyhow::Result<String> {
     let s = cfg
         .objects
-        .sections
-        .iter()
-        .find(|s| s.id == id)
+        .section(id)
         .ok_or_else(|| anyhow::anyhow!("no section {id:?} in the configuration"))?;
     let units = units_of(cfg, s);
     let t_ms = at.timestamp_millis();

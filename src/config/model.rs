@@ -609,6 +609,11 @@ impl Object {
 }
 
 impl Objects {
+    /// The section `id`, if configured.
+    pub fn section(&self, id: &str) -> Option<&Section> {
+        self.sections.iter().find(|s| s.id == id)
+    }
+
     /// Add one object to its kind's list.
     pub fn push(&mut self, o: Object) {
         match o {

@@ -24,14 +24,7 @@ pub async fn page(
         Ok(v) => v,
         Err(r) => return r,
     };
-    let Some(section) = web
-        .cfg
-        .objects
-        .sections
-        .iter()
-        .find(|s| s.id == id)
-        .cloned()
-    else {
+    let Some(section) = web.cfg.objects.section(&id).cloned() else {
         return html::message(
             StatusCode::NOT_FOUND,
             "No such section",
