@@ -136,7 +136,7 @@ impl Store {
 
     fn init(conn: Connection, name: &str) -> Result<Store, StoreError> {
         conn.busy_timeout(std::time::Duration::from_secs(10))?;
-        conn.pragma_update(None, "journal_mode", "WAL")?;
+        wal_mode(&conn)?;
         conn.pragma_update(None, "synchronous", "FULL")?;
         conn.pragma_update(None, "foreign_keys", "ON")?;
         // A page cache big enough that one group commit's dirty pages (readings, derived rows,
@@ -533,3 +533,21 @@ impl Store {
 
 #[cfg(test)]
 mod tests;
+
+/// Switch to WAL. On a fresh file another process opening it at the same moment can make the
+/// switch answer "database is locked" at once (SQLite does not wait on the busy timeout for
+/// it), so it is tried again for up to 10 s like every other lock.
+fn wal_mode(conn: &Connection) -> Result<(), rusqlite::Error> {
+    let mut tries = 0;
+    loop {
+        match conn.pragma_update(None, "journal_mode", "WAL") {
+            Err(rusqlite::Error::SqliteFailure(e, _))
+                if e.code == rusqlite::ErrorCode::DatabaseBusy && tries < 200 =>
+            {
+                tries += 1;
+                std::thread::sleep(std::time::Duration::from_millis(50));
+            }
+            other => return other,
+        }
+    }
+}
