@@ -1,5 +1,5 @@
-//! `seepd fit --id SECTION`: calibrate a section's seepage model to its piezometers at one or
-//! several times from the store, keep the fit in the model history and print it (text, or one
+//! `seepd fit --id SECTION`: calibrate a section's seepage model (zone permeability factors,
+//! water boundary level offsets) to its piezometers at one or several times from the store, keep the fit in the model history and print it (text, or one
 //! JSON object in SI). Each time is solved at the pool and tail levels stored then; a
 //! piezometer whose newest reading at the time is older than the section's `tolerance_s` is left
 //! out, and a pool (or tail gauge) that moved more than the model's `resolve_change` in the
@@ -14,11 +14,12 @@ use chrono::{DateTime, Utc};
 use serde_json::json;
 
 use crate::config::{Config, Level, Section};
-use crate::derive::calibration::{fit_section, LoadCase, SectionFit};
+use crate::derive::calibration::{fit_section, Choice, LoadCase, SectionFit};
 use crate::derive::excluding_flags;
 use crate::derive::flownet::tips;
 use crate::fit_cmd::time;
 use crate::flownet_cmd::{fit_in_use, section, stored_levels};
+use crate::present::format::fixed;
 use crate::store::Store;
 
 /// Conditions count as steady when the driving levels stayed within `resolve_change` over this
@@ -73,50 +74,83 @@ fn load_case(
     })
 }
 
+/// `v` with `decimals` decimals and its sign, "+" included; a value that rounds to zero has none.
+fn signed(v: f64, decimals: usize) -> String {
+    let s = fixed(v, decimals);
+    if s.starts_with('-') || s.bytes().all(|b| b == b'0' || b == b'.') {
+        s
+    } else {
+        format!("+{s}")
+    }
+}
+
+/// "1 time", "3 times".
+fn count(n: usize, what: &str) -> String {
+    format!("{n} {what}{}", if n == 1 { "" } else { "s" })
+}
+
+/// "± 0.012", or "not determined".
+fn error(se: Option<f64>, decimals: usize, unit: &str) -> String {
+    se.map_or_else(
+        || "not determined".into(),
+        |e| format!("± {}{unit}", fixed(e, decimals)),
+    )
+}
+
 /// The text output of a fit.
 fn text(fit: &SectionFit, in_use: Option<&SectionFit>) -> String {
     let mut s = format!(
-        "{}: calibrated to {} heads at {} time(s) ({}); {} iterations, {} solves\n",
+        "{}: calibrated to {} at {} ({}); {}, {}\n",
         fit.section,
-        fit.tips.len(),
-        fit.times_ms.len(),
+        count(fit.tips.len(), "head"),
+        count(fit.times_ms.len(), "time"),
         fit.times_ms
             .iter()
             .map(|t| time(*t))
             .collect::<Vec<_>>()
             .join(", "),
-        fit.iterations,
-        fit.solves
+        count(fit.iterations, "iteration"),
+        count(fit.solves, "solve"),
     );
+    let bound = |b: bool| if b { ", on a bound" } else { "" };
     for z in &fit.factors {
-        let se = z
-            .std_error
-            .map_or_else(|| "not determined".into(), |e| format!("± {e:.3}"));
         let _ = writeln!(
             s,
-            "  zone {}: factor {:.4} (log10 {:.4} {se}){}",
+            "  zone {}: factor {} (log10 {} {}){}",
             z.zone,
-            z.factor(),
-            z.log10_factor,
-            if z.at_bound { ", on a bound" } else { "" }
+            fixed(z.factor(), 4),
+            fixed(z.log10_factor, 4),
+            error(z.std_error, 3, ""),
+            bound(z.at_bound)
+        );
+    }
+    for o in &fit.boundary_offsets {
+        let _ = writeln!(
+            s,
+            "  boundary {}: level offset {} m ({}){}",
+            o.boundary,
+            signed(o.offset_m, 3),
+            error(o.std_error_m, 3, " m"),
+            bound(o.at_bound)
         );
     }
     let _ = writeln!(
         s,
-        "  RMS residual: {:.4} m as written, {:.4} m calibrated",
-        fit.rms_written_m, fit.rms_calibrated_m
+        "  RMS residual: {} m as written, {} m calibrated",
+        fixed(fit.rms_written_m, 4),
+        fixed(fit.rms_calibrated_m, 4)
     );
     for t in &fit.tips {
         let _ = writeln!(
             s,
-            "  {} at {}: measured {:.3} m; as written {:.3} m (residual {:+.3}); calibrated {:.3} m (residual {:+.3})",
+            "  {} at {}: measured {} m; as written {} m (residual {}); calibrated {} m (residual {})",
             t.id,
             time(t.t_ms),
-            t.measured_m,
-            t.written_m,
-            t.measured_m - t.written_m,
-            t.calibrated_m,
-            t.measured_m - t.calibrated_m
+            fixed(t.measured_m, 3),
+            fixed(t.written_m, 3),
+            signed(t.measured_m - t.written_m, 3),
+            fixed(t.calibrated_m, 3),
+            signed(t.measured_m - t.calibrated_m, 3)
         );
     }
     for w in &fit.warnings {
@@ -129,7 +163,7 @@ fn text(fit: &SectionFit, in_use: Option<&SectionFit>) -> String {
             s,
             "  stored, not applied: {}; in use: {}",
             fit.not_applied.join("; "),
-            in_use.map_or_else(|| "the permeabilities as written".into(), SectionFit::label)
+            in_use.map_or_else(|| "the model as written".into(), SectionFit::label)
         );
     }
     s
@@ -141,17 +175,21 @@ pub struct Request<'a> {
     pub id: &'a str,
     /// Calibration times (none: now).
     pub times: &'a [DateTime<Utc>],
-    /// Zones to fit (none: every zone of the model).
+    /// Zones to fit (none: every zone of the model, unless boundaries are given).
     pub zones: &'a [String],
+    /// Water boundaries whose level offset is fitted (none: no offset).
+    pub boundaries: &'a [String],
+    /// Offsets are searched within ±this, m.
+    pub offset_limit_m: f64,
     /// One JSON object instead of text.
     pub json: bool,
 }
 
-/// Calibrate as `req` says, store the fit and write it to `out`. Returns the exit code: 0 when the fit is applied, 1 when it is
-/// stored but not applied.
+/// Calibrate as `req` says, store the fit and write it to `out`. Returns the exit code: 0 when
+/// the fit is applied, 1 when it is stored but not applied.
 ///
 /// # Errors
-/// Unknown section or zone, a level with no reading, no piezometer head, solve or database
+/// Unknown section, zone or boundary, a level with no reading, no piezometer head, solve or database
 /// failures.
 pub fn run(
     cfg: &Config,
@@ -164,6 +202,8 @@ pub fn run(
         id,
         times,
         zones,
+        boundaries,
+        offset_limit_m,
         json,
     } = *req;
     let s = section(cfg, id)?;
@@ -181,7 +221,12 @@ pub fn run(
         .iter()
         .map(|&t| load_case(cfg, store, s, spec.resolve_change_m, t, &mut warnings))
         .collect::<anyhow::Result<Vec<_>>>()?;
-    let mut fit = fit_section(id, spec, &cases, zones, now.timestamp_millis())
+    let choice = Choice {
+        zones,
+        boundaries,
+        offset_limit_m,
+    };
+    let mut fit = fit_section(id, spec, &cases, &choice, now.timestamp_millis())
         .map_err(|e| anyhow::anyhow!("section {id:?}: {e}"))?;
     warnings.append(&mut fit.warnings);
     fit.warnings = warnings;

@@ -253,9 +253,16 @@ pub enum Command {
         /// repeat for several times, fitted together); default: now.
         #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant, requires = "id")]
         at: Vec<DateTime<Utc>>,
-        /// Section: fit this zone's permeability factor (repeat; default: every zone).
+        /// Section: fit this zone's permeability factor (repeat; default: every zone, unless
+        /// --boundary is given).
         #[arg(long, value_name = "NAME", requires = "id")]
         zone: Vec<String>,
+        /// Section: fit an offset on this water boundary's level (repeat; default: none).
+        #[arg(long, value_name = "NAME", requires = "id")]
+        boundary: Vec<String>,
+        /// Section: search boundary offsets within ± this many metres.
+        #[arg(long, value_name = "M", default_value_t = crate::derive::calibration::OFFSET_LIMIT_M, requires = "boundary")]
+        offset_limit: f64,
         /// Section: print one JSON object (SI units).
         #[arg(long, requires = "id")]
         json: bool,
@@ -638,6 +645,8 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             id,
             at,
             zone,
+            boundary,
+            offset_limit,
             json,
         } => {
             let cfg = load(&config)?;
@@ -652,12 +661,16 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
                         id,
                         times: &at,
                         zones: &zone,
+                        boundaries: &boundary,
+                        offset_limit_m: offset_limit,
                         json,
                     };
                     crate::calibrate_cmd::run(&cfg, &store, &req, now, &mut out)?
                 }
-                None if !at.is_empty() || !zone.is_empty() || json => {
-                    anyhow::bail!("--at, --zone and --json are for calibrating a section")
+                None if !at.is_empty() || !zone.is_empty() || !boundary.is_empty() || json => {
+                    anyhow::bail!(
+                        "--at, --zone, --boundary and --json are for calibrating a section"
+                    )
                 }
                 None => crate::fit_cmd::run(&cfg, &store, id.as_deref(), &mut out)?,
             };

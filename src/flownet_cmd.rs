@@ -12,7 +12,7 @@ use serde_json::{json, Value};
 
 use crate::config::{Config, Level, Section};
 use crate::derive::calibration::{in_use, SectionFit, KIND};
-use crate::derive::flownet::{solve_section, tips, FlowNet};
+use crate::derive::flownet::{solve_calibrated, tips, FlowNet};
 use crate::store::Store;
 
 /// The water levels to solve at.
@@ -27,7 +27,7 @@ pub enum Levels {
 pub struct Solved {
     pub net: FlowNet,
     pub solve_ms: f64,
-    /// The calibration solved with (none: the permeabilities as written).
+    /// The calibration solved with (none: the model as written).
     pub fit: Option<SectionFit>,
 }
 
@@ -134,14 +134,8 @@ pub fn solve(
         Some(store) => fit_in_use(store, &s.id)?,
         None => None,
     };
-    let calibrated = fit.as_ref().map(|f| f.apply(spec));
     let started = Instant::now();
-    let net = solve_section(
-        calibrated.as_ref().unwrap_or(spec),
-        pool_m,
-        tail_m,
-        &piezometers,
-    )
+    let net = solve_calibrated(spec, fit.as_ref(), pool_m, tail_m, &piezometers)
     .map_err(|e| anyhow::anyhow!("section {:?}: {e}", s.id))?;
     let solve_ms = started.elapsed().as_secs_f64() * 1000.0;
     Ok(Solved { net, solve_ms, fit })
@@ -186,6 +180,11 @@ pub fn json(id: &str, solved: &Solved) -> Value {
                 "log10_factor": z.log10_factor,
                 "std_error": z.std_error,
             })).collect::<Vec<_>>(),
+            "boundary_offsets": f.boundary_offsets.iter().map(|o| json!({
+                "boundary": o.boundary,
+                "offset_m": o.offset_m,
+                "std_error_m": o.std_error_m,
+            })).collect::<Vec<_>>(),
         })),
     })
 }
@@ -200,7 +199,7 @@ pub fn text(id: &str, solved: &Solved) -> String {
         n.tail_m.map_or("none".into(), |t| format!("{t:.2} m"))
     );
     s += &format!(
-        "permeabilities: {}\n",
+        "model: {}\n",
         solved.fit.as_ref().map_or_else(
             || "as written (no calibration in use)".into(),
             SectionFit::label

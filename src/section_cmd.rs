@@ -11,7 +11,7 @@ use std::cell::RefCell;
 use chrono::{DateTime, Utc};
 
 use crate::config::{Config, Section};
-use crate::derive::flownet::{solve_section, FlowNet};
+use crate::derive::flownet::{solve_calibrated, FlowNet};
 use crate::derive::section_input;
 use crate::domain::section::analyse;
 use crate::section_svg::{render_flownet_svg, render_section_svg, SvgOptions};
@@ -80,10 +80,14 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
                 })
                 .collect();
             let fit = crate::flownet_cmd::fit_in_use(store, id)?;
-            let calibrated = fit.as_ref().map(|f| f.apply(spec));
-            let spec = calibrated.as_ref().unwrap_or(spec);
-            let net = solve_section(spec, input.pool_m, input.tail_water_m, &piezometers)
-                .map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
+            let net = solve_calibrated(
+                spec,
+                fit.as_ref(),
+                input.pool_m,
+                input.tail_water_m,
+                &piezometers,
+            )
+            .map_err(|e| anyhow::anyhow!("section {id}: {e}"))?;
             Some((net, fit))
         }
         None => None,
@@ -102,7 +106,7 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
     let title = format!("Section {id} at {}", at.format("%Y-%m-%d %H:%M UTC"));
     if let Some((net, fit)) = net {
         let permeabilities = fit.as_ref().map_or_else(
-            || "permeabilities as written".to_string(),
+            || "model as written".to_string(),
             crate::derive::calibration::SectionFit::label,
         );
         let note = if note.is_empty() {

@@ -9,7 +9,7 @@
 use std::collections::BTreeMap;
 use std::sync::mpsc::{channel, Receiver, Sender};
 
-use crate::derive::flownet::solve_section;
+use crate::derive::flownet::solve_calibrated;
 use crate::derive::model_live::{SolveAnswer, SolveRequest, SolveSummary};
 
 /// Start the solver thread; the engine keeps the returned ends.
@@ -40,9 +40,7 @@ fn run(requests: &Receiver<SolveRequest>, answers: &Sender<SolveAnswer>) {
             let result =
                 std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match &s.model {
                     Some(spec) => {
-                        let calibrated = r.fit.as_ref().map(|f| f.apply(spec));
-                        let spec = calibrated.as_ref().unwrap_or(spec);
-                        solve_section(spec, r.pool_m, r.tail_m, &r.piezometers)
+                        solve_calibrated(spec, r.fit.as_deref(), r.pool_m, r.tail_m, &r.piezometers)
                             .map(|net| SolveSummary::of(&net))
                     }
                     None => Err("the section has no model".into()),

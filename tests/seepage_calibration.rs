@@ -2,7 +2,7 @@
 //! permeability ratio (a synthetic truth) are handed to the fit, which must recover the ratio;
 //! with two zones whose common scale the heads cannot see, the fit must say so.
 
-use seepd::seepage::calibrate::{calibrate, residuals, FitParameter, Observation};
+use seepd::seepage::calibrate::{calibrate, residuals, FitParameter, Observation, Target};
 use seepd::seepage::outputs::head_at;
 use seepd::seepage::solve::{solve, SolveOptions};
 use seepd::seepage::{
@@ -111,7 +111,7 @@ fn fit_recovers_a_known_blanket_permeability_ratio() {
     .expect("residuals");
     assert_eq!(before.len(), obs.len());
     let params = [FitParameter {
-        zone: 1,
+        target: Target::Zone(1),
         start: 0.0,
         lower: -3.0,
         upper: 1.0,
@@ -121,7 +121,7 @@ fn fit_recovers_a_known_blanket_permeability_ratio() {
         "calibration: rms before {rms_before:.4} m, after {:.2e} m, factor {:?}, {} iterations, {} solves, warnings {:?}",
         fit.rms_m, fit.parameters, fit.iterations, fit.solves, fit.warnings
     );
-    let got = fit.parameters[0].log10_factor;
+    let got = fit.parameters[0].value;
     assert!(
         (got - (-1.3)).abs() < 0.01,
         "log10 factor {got}, truth −1.3"
@@ -149,13 +149,13 @@ fn fit_warns_when_only_the_ratio_is_determined() {
     start.base = Material::isotropic(1e-4);
     let params = [
         FitParameter {
-            zone: 0,
+            target: Target::Zone(0),
             start: 0.0,
             lower: -2.0,
             upper: 2.0,
         },
         FitParameter {
-            zone: 1,
+            target: Target::Zone(1),
             start: 0.0,
             lower: -2.0,
             upper: 2.0,
@@ -173,6 +173,6 @@ fn fit_warns_when_only_the_ratio_is_determined() {
         "{:?}",
         fit.warnings
     );
-    let ratio = fit.parameters[1].log10_factor - fit.parameters[0].log10_factor;
+    let ratio = fit.parameters[1].value - fit.parameters[0].value;
     assert!((ratio - (-1.0)).abs() < 0.05, "fitted ratio {ratio}");
 }

@@ -1,16 +1,20 @@
-//! A section's calibration to its piezometers: the zone permeability factors fitted to the heads
-//! measured at one or several times (each time solved at its own pool and tail levels, the
-//! factors shared), the residuals before and after, whether the fit may be used live, the row
-//! it is kept as in the model history, and the section model with the factors applied.
+//! A section's calibration to its piezometers: the zone permeability factors and the boundary
+//! level offsets fitted to the heads measured at one or several times (each time solved at its
+//! own pool and tail levels, the parameters shared), the residuals before and after, whether the
+//! fit may be used live, the row it is kept as in the model history, and the section model with
+//! the fit applied.
 //!
 //! The base material is the reference and stays as written: from heads alone only permeability
-//! ratios can be determined, so the zones are fitted relative to it. A fit is used live only
-//! when every factor is determined (a standard error, at most `POORLY_DETERMINED` in log10),
-//! none stopped on a bound, and the RMS residual is below that of the permeabilities as
-//! written; otherwise it is kept in the history with the reasons and the previous fit (or the
-//! written permeabilities) stays in use.
+//! ratios can be determined, so the zones are fitted relative to it. A boundary offset is added
+//! to a water boundary's level (gauged or written) whenever the section is solved: an ungauged
+//! ditch or tail water, or a loss through a silted bed at the entry. A fit is used live only
+//! when every parameter is determined (a standard error, at most `POORLY_DETERMINED` in log10
+//! or `POORLY_DETERMINED_M`), none stopped on a bound, and the RMS residual is below that of the
+//! model as written; otherwise it is kept in the history with the reasons and the previous fit
+//! (or the model as written) stays in use.
 //!
-//! Owns those decisions and the stored JSON. Must not do I/O or read the clock.
+//! Owns those decisions and the stored JSON (rows written before boundary offsets existed read
+//! as fits without any). Must not do I/O or read the clock.
 
 use std::collections::HashMap;
 use std::fmt::Write as _;
@@ -20,17 +24,24 @@ use serde::{Deserialize, Serialize};
 
 use crate::config::section_model::SeepageSpec;
 use crate::seepage::calibrate::{
-    calibrate_cases, residuals, Case, FitParameter, Observation, POORLY_DETERMINED,
+    calibrate_cases, offset, residuals, Case, Observation, Target,
 };
 use crate::seepage::outputs::locate;
-use crate::seepage::{build_mesh, solve, MeshOptions, Point, SolveOptions};
+use crate::seepage::{build_mesh, solve, MeshOptions, Point, SectionModel, SolveOptions};
 use crate::store::ModelRow;
+use choice::{not_applied, parameters};
+pub use choice::Choice;
 
 /// The `kind` of a section calibration in the model history.
 pub const KIND: &str = "seepage";
 
 /// Zone factors are searched within 10^±this.
 pub const BOUND_LOG10: f64 = 2.0;
+
+/// Boundary offsets are searched within ±this unless the command says otherwise, m: more
+/// than a staff gauge read from afar or a ditch level guessed from the drawings is out, less
+/// than a whole loss through a silted river bed at a high dam.
+pub const OFFSET_LIMIT_M: f64 = 2.0;
 
 /// One fitted zone factor.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -53,15 +64,28 @@ impl ZoneFactor {
     }
 }
 
+/// One fitted boundary offset.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BoundaryOffset {
+    /// Boundary name in the section model (a water boundary).
+    pub boundary: String,
+    /// Added to the boundary's water level, m.
+    pub offset_m: f64,
+    /// Its standard error, m; `None` when the data cannot determine it.
+    pub std_error_m: Option<f64>,
+    /// The fit stopped on a bound of the search.
+    pub at_bound: bool,
+}
+
 /// A piezometer at one calibration time: measured head and the modelled ones before and after.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct TipFit {
     pub t_ms: i64,
     pub id: String,
     pub measured_m: f64,
-    /// Modelled with the permeabilities as written, m.
+    /// Modelled with the model as written, m.
     pub written_m: f64,
-    /// Modelled with the fitted factors, m.
+    /// Modelled with the fit, m.
     pub calibrated_m: f64,
 }
 
@@ -74,9 +98,12 @@ pub struct SectionFit {
     /// The calibration times, ms.
     pub times_ms: Vec<i64>,
     pub factors: Vec<ZoneFactor>,
-    /// RMS residual with the permeabilities as written, m.
+    /// Fitted boundary offsets (none in rows written before they were fitted).
+    #[serde(default)]
+    pub boundary_offsets: Vec<BoundaryOffset>,
+    /// RMS residual with the model as written, m.
     pub rms_written_m: f64,
-    /// RMS residual with the fitted factors, m.
+    /// RMS residual with the fit, m.
     pub rms_calibrated_m: f64,
     pub tips: Vec<TipFit>,
     pub warnings: Vec<String>,
@@ -110,19 +137,6 @@ impl SectionFit {
         self.not_applied.is_empty()
     }
 
-    /// `spec` with each fitted zone's permeability multiplied by its factor (zones are matched
-    /// by name; one renamed since the fit keeps its written permeability).
-    #[must_use]
-    pub fn apply(&self, spec: &SeepageSpec) -> SeepageSpec {
-        let mut out = spec.clone();
-        for z in &mut out.model.zones {
-            if let Some(f) = self.factors.iter().find(|f| f.zone == z.name) {
-                z.material = z.material.scaled(f.factor());
-            }
-        }
-        out
-    }
-
     /// One line saying which fit this is: time, RMS, factors.
     #[must_use]
     pub fn label(&self) -> String {
@@ -134,6 +148,9 @@ impl SectionFit {
         );
         for f in &self.factors {
             let _ = write!(s, " {} ×{:.3}", f.zone, f.factor());
+        }
+        for o in &self.boundary_offsets {
+            let _ = write!(s, " {} {:+.2} m", o.boundary, o.offset_m);
         }
         s
     }
@@ -183,6 +200,32 @@ impl SectionFit {
     }
 }
 
+/// The model of `spec` at `pool_m` and `tail_m` (see [`SeepageSpec::at`]) with `fit` applied,
+/// when one is given: each fitted zone's permeability multiplied by its factor and each fitted
+/// boundary's level moved by its offset. Both are matched by name: a zone or boundary renamed
+/// since the fit stays as written.
+#[must_use]
+pub fn model_at(
+    spec: &SeepageSpec,
+    fit: Option<&SectionFit>,
+    pool_m: f64,
+    tail_m: Option<f64>,
+) -> SectionModel {
+    let mut m = spec.at(pool_m, tail_m);
+    let Some(fit) = fit else { return m };
+    for z in &mut m.zones {
+        if let Some(f) = fit.factors.iter().find(|f| f.zone == z.name) {
+            z.material = z.material.scaled(f.factor());
+        }
+    }
+    for b in &mut m.boundaries {
+        if let Some(o) = fit.boundary_offsets.iter().find(|o| o.boundary == b.name) {
+            b.kind = offset(b.kind, o.offset_m);
+        }
+    }
+    m
+}
+
 /// The fit in use per section: the newest applied one in `rows` (calibration rows, any order).
 #[must_use]
 pub fn in_use(rows: &[ModelRow]) -> HashMap<String, SectionFit> {
@@ -204,47 +247,19 @@ pub fn in_use(rows: &[ModelRow]) -> HashMap<String, SectionFit> {
     out
 }
 
-/// Fit `zones` of `spec` (all its zones when empty) to the heads of `cases`.
+/// Fit what `choice` asks for in `spec` to the heads of `cases`.
 ///
 /// # Errors
-/// A message: no zone to fit, an unknown zone, no piezometer head inside the model, a mesh or
-/// solve failure.
+/// A message: nothing to fit, an unknown zone or boundary, a boundary without a water level,
+/// no piezometer head inside the model, a mesh or solve failure.
 pub fn fit_section(
     section: &str,
     spec: &SeepageSpec,
     cases: &[LoadCase],
-    zones: &[String],
+    choice: &Choice<'_>,
     fitted_ms: i64,
 ) -> Result<SectionFit, String> {
-    let names: Vec<&str> = spec.model.zones.iter().map(|z| z.name.as_str()).collect();
-    if names.is_empty() {
-        return Err(
-            "the model has no [[section.model.zone]]: from heads alone only permeability ratios \
-             to the base material can be fitted"
-                .into(),
-        );
-    }
-    let chosen: Vec<usize> = if zones.is_empty() {
-        (0..names.len()).collect()
-    } else {
-        zones
-            .iter()
-            .map(|z| {
-                names.iter().position(|n| n == z).ok_or_else(|| {
-                    format!("no zone {z:?} in the model (zones: {})", names.join(", "))
-                })
-            })
-            .collect::<Result<_, _>>()?
-    };
-    let params: Vec<FitParameter> = chosen
-        .iter()
-        .map(|&zone| FitParameter {
-            zone,
-            start: 0.0,
-            lower: -BOUND_LOG10,
-            upper: BOUND_LOG10,
-        })
-        .collect();
+    let params = parameters(spec, choice)?;
     let opts = SolveOptions {
         unconfined: spec.unconfined,
         ..SolveOptions::default()
@@ -275,7 +290,7 @@ pub fn fit_section(
     if n == 0 {
         return Err("no piezometer head to fit".into());
     }
-    // Residuals with the permeabilities as written.
+    // Residuals with the model as written.
     let mut written = Vec::with_capacity(n);
     for (_, model, mesh, obs) in &built {
         let sol = solve(model, mesh, &opts).map_err(|e| format!("solve: {e}"))?;
@@ -306,44 +321,38 @@ pub fn fit_section(
         .collect();
     let rms_written_m =
         (written.iter().map(|r| r.residual_m.powi(2)).sum::<f64>() / n as f64).sqrt();
-    let factors: Vec<ZoneFactor> = fit
-        .parameters
-        .iter()
-        .map(|p| ZoneFactor {
-            zone: names[p.zone].to_string(),
-            log10_factor: p.log10_factor,
-            std_error: p.std_error,
-            at_bound: (p.log10_factor.abs() - BOUND_LOG10).abs() < 1e-9,
-        })
-        .collect();
-    let mut not_applied = Vec::new();
-    for f in &factors {
-        match f.std_error {
-            None => not_applied.push(format!("zone {}: not determined by the data", f.zone)),
-            Some(se) if se > POORLY_DETERMINED => not_applied.push(format!(
-                "zone {}: poorly determined (standard error {se:.2} in log10)",
-                f.zone
-            )),
-            Some(_) => {}
-        }
-        if f.at_bound {
-            not_applied.push(format!(
-                "zone {}: on a bound of the search (factor 10^±{BOUND_LOG10})",
-                f.zone
-            ));
+    let on_bound = |v: f64, limit: f64| (v.abs() - limit).abs() < 1e-9;
+    let mut factors = Vec::new();
+    let mut boundary_offsets = Vec::new();
+    for p in &fit.parameters {
+        match p.target {
+            Target::Zone(z) => factors.push(ZoneFactor {
+                zone: spec.model.zones[z].name.clone(),
+                log10_factor: p.value,
+                std_error: p.std_error,
+                at_bound: on_bound(p.value, BOUND_LOG10),
+            }),
+            Target::Boundary(b) => boundary_offsets.push(BoundaryOffset {
+                boundary: spec.model.boundaries[b].name.clone(),
+                offset_m: p.value,
+                std_error_m: p.std_error,
+                at_bound: on_bound(p.value, choice.offset_limit_m),
+            }),
         }
     }
-    if fit.rms_m >= rms_written_m {
-        not_applied.push(format!(
-            "not better than the permeabilities as written (RMS {:.4} m against {rms_written_m:.4} m)",
-            fit.rms_m
-        ));
-    }
+    let not_applied = not_applied(
+        &factors,
+        &boundary_offsets,
+        choice.offset_limit_m,
+        fit.rms_m,
+        rms_written_m,
+    );
     Ok(SectionFit {
         section: section.to_string(),
         fitted_ms,
         times_ms: built.iter().map(|b| b.0).collect(),
         factors,
+        boundary_offsets,
         rms_written_m,
         rms_calibrated_m: fit.rms_m,
         tips,
@@ -354,66 +363,6 @@ pub fn fit_section(
     })
 }
 
+mod choice;
 #[cfg(test)]
-mod tests {
-    //! The row round trip and which stored fit is in use.
-
-    use super::*;
-
-    fn fit(section: &str, fitted_ms: i64, applied: bool) -> SectionFit {
-        SectionFit {
-            section: section.into(),
-            fitted_ms,
-            times_ms: vec![1000, 5000],
-            factors: vec![ZoneFactor {
-                zone: "foundation".into(),
-                log10_factor: -0.5,
-                std_error: Some(0.01),
-                at_bound: false,
-            }],
-            rms_written_m: 0.5,
-            rms_calibrated_m: 0.01,
-            tips: vec![TipFit {
-                t_ms: 1000,
-                id: "PZ".into(),
-                measured_m: 10.0,
-                written_m: 10.5,
-                calibrated_m: 10.01,
-            }],
-            warnings: Vec::new(),
-            not_applied: if applied {
-                Vec::new()
-            } else {
-                vec!["zone foundation: not determined by the data".into()]
-            },
-            iterations: 3,
-            solves: 9,
-        }
-    }
-
-    #[test]
-    fn a_fit_round_trips_through_its_row() {
-        let f = fit("S1", 7, true);
-        let row = f.to_row();
-        assert_eq!((row.kind.as_str(), row.id.as_str()), (KIND, "S1"));
-        assert_eq!((row.train_start_ms, row.train_end_ms), (1000, 5000));
-        assert_eq!(row.sigma, 0.01);
-        assert_eq!(SectionFit::from_row(&row), Ok(f));
-    }
-
-    #[test]
-    fn the_newest_applied_fit_is_in_use_and_a_flagged_one_never() {
-        let rows: Vec<ModelRow> = [
-            fit("S1", 1, true),
-            fit("S1", 3, false),
-            fit("S1", 2, true),
-            fit("S2", 5, false),
-        ]
-        .iter()
-        .map(SectionFit::to_row)
-        .collect();
-        let used = in_use(&rows);
-        assert_eq!(used.get("S1").map(|f| f.fitted_ms), Some(2));
-        assert!(!used.contains_key("S2"));
-    }
-}
+mod tests;

@@ -6,6 +6,7 @@
 //!
 //! Owns the choice of outputs from `seepage`'s tools. Must not do I/O or read the clock.
 
+use super::calibration::{model_at, SectionFit};
 use crate::config::section_model::{SeepageSpec, WaterFrom};
 use crate::config::{Config, Section};
 use crate::seepage::outputs::{
@@ -87,7 +88,8 @@ pub fn tips(cfg: &Config, s: &Section) -> Vec<(String, Point)> {
         .collect()
 }
 
-/// Solve `spec` at `pool_m` and `tail_m`; `piezometers` are (id, tip, measured head).
+/// Solve `spec` as written at `pool_m` and `tail_m`; `piezometers` are (id, tip, measured
+/// head).
 ///
 /// # Errors
 /// A message when the mesh or the solve fails, or the free surface does not converge.
@@ -97,7 +99,22 @@ pub fn solve_section(
     tail_m: Option<f64>,
     piezometers: &[(String, Point, Option<f64>)],
 ) -> Result<FlowNet, String> {
-    let model = spec.at(pool_m, tail_m);
+    solve_calibrated(spec, None, pool_m, tail_m, piezometers)
+}
+
+/// Solve `spec` at `pool_m` and `tail_m` with `fit` applied when one is given (zone factors,
+/// boundary offsets: [`model_at`]); `piezometers` are (id, tip, measured head).
+///
+/// # Errors
+/// A message when the mesh or the solve fails, or the free surface does not converge.
+pub fn solve_calibrated(
+    spec: &SeepageSpec,
+    fit: Option<&SectionFit>,
+    pool_m: f64,
+    tail_m: Option<f64>,
+    piezometers: &[(String, Point, Option<f64>)],
+) -> Result<FlowNet, String> {
+    let model = model_at(spec, fit, pool_m, tail_m);
     let mesh = build_mesh(&model, &MeshOptions::uniform(spec.element_size_m))
         .map_err(|e| format!("mesh: {e}"))?;
     let opts = SolveOptions {

@@ -1,21 +1,28 @@
 //! Calibration to the piezometers: the solved head at each tip beside the measured one
-//! (residuals, RMS), and a bounded Levenberg–Marquardt fit of zone permeability factors on a
-//! log10 scale that minimises the residuals, with each parameter's standard error and a warning
-//! when the data cannot determine it. One fit may take several load cases (the same section at
-//! different water levels, each with its own measured heads): the factors are shared.
+//! (residuals, RMS), and a bounded Levenberg–Marquardt fit that minimises the residuals, with
+//! each parameter's standard error and a warning when the data cannot determine it. Two kinds
+//! of parameter: a zone permeability factor on a log10 scale, and an additive offset, metres,
+//! on the level of a water (or fixed-head) boundary. One fit may take several load cases (the
+//! same section at different water levels, each with its own measured heads): the parameters
+//! are shared.
 //!
 //! Owns: the fit loop, the finite-difference Jacobian and the uncertainty. Must not: store fits
 //! or read instruments. The damped step is a least-squares problem `[J; √λ·D]·Δ ≈ [−r; 0]`
-//! solved by the domain's QR (`domain::lsq`).
+//! solved by the domain's QR (`domain::lsq`), with `D` the column norms of `J` (Marquardt's
+//! scaling), so a step does not depend on the units of a parameter; the finite-difference
+//! step and the convergence test are set per kind ([`Target::step`]).
+
+mod uncertainty;
 
 use thiserror::Error;
 
 use super::geometry::Point;
 use super::mesh::Mesh;
-use super::model::SectionModel;
+use super::model::{BoundaryKind, SectionModel};
 use super::outputs::locate;
 use super::solve::{solve, SeepageError, Solution, SolveOptions};
 use crate::domain::lsq::least_squares;
+use uncertainty::uncertainty;
 
 /// A measured total head at a piezometer tip.
 #[derive(Debug, Clone, PartialEq)]
@@ -41,13 +48,46 @@ pub struct Residual {
     pub residual_m: f64,
 }
 
-/// A zone whose permeability (kh and kv together, so its anisotropy stays) is multiplied by
-/// `10^p`, with `p` kept within bounds.
+/// What a fit parameter `p` adjusts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Target {
+    /// A zone (index in the model) whose permeability, kh and kv together so its anisotropy
+    /// stays, is multiplied by `10^p`.
+    Zone(usize),
+    /// A boundary stretch (index in the model) whose water level, or fixed head, is moved by
+    /// `p` metres: the head on the stretch and, for free water, how far up it is wetted.
+    Boundary(usize),
+}
+
+impl Target {
+    /// The finite-difference step in `p`: 0.01 in log10 (a 2.3 % change of permeability) or
+    /// 0.05 m of head. Both move the tip heads by a few centimetres in a typical section: well
+    /// above the solver's noise, small enough for the heads to stay close to linear.
+    #[must_use]
+    pub const fn step(self) -> f64 {
+        match self {
+            Self::Zone(_) => 1e-2,
+            Self::Boundary(_) => 5e-2,
+        }
+    }
+
+    /// A standard error above this is reported as poorly determined: 0.5 in log10 (a factor of
+    /// about 3) or 0.25 m of head. Both are this program's choices.
+    #[must_use]
+    pub const fn poorly_determined(self) -> f64 {
+        match self {
+            Self::Zone(_) => POORLY_DETERMINED,
+            Self::Boundary(_) => POORLY_DETERMINED_M,
+        }
+    }
+}
+
+/// A parameter to fit: what it adjusts, where it starts and the bounds it is kept within.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FitParameter {
-    /// Zone index in the model.
-    pub zone: usize,
-    /// Starting value of `p` (log10 of the factor).
+    /// What `p` adjusts.
+    pub target: Target,
+    /// Starting value of `p` (log10 of the factor, or the offset in m).
     pub start: f64,
     /// Lower bound of `p`.
     pub lower: f64,
@@ -58,11 +98,11 @@ pub struct FitParameter {
 /// One fitted parameter.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FittedParameter {
-    /// Zone index.
-    pub zone: usize,
-    /// Fitted log10 factor.
-    pub log10_factor: f64,
-    /// Its standard error (log10 units), when the data determine it.
+    /// What it adjusts.
+    pub target: Target,
+    /// Fitted `p`: log10 of a zone's factor, or a boundary's offset in m.
+    pub value: f64,
+    /// Its standard error (log10 units or m), when the data determine it.
     pub std_error: Option<f64>,
 }
 
@@ -83,9 +123,12 @@ pub struct Calibration {
     pub solves: usize,
 }
 
-/// A parameter whose standard error exceeds this (log10 units) is reported as poorly
+/// A zone factor whose standard error exceeds this (log10 units) is reported as poorly
 /// determined.
 pub const POORLY_DETERMINED: f64 = 0.5;
+
+/// A boundary offset whose standard error exceeds this, m, is reported as poorly determined.
+pub const POORLY_DETERMINED_M: f64 = 0.25;
 
 /// One load case of a fit: the model at its water levels, its mesh and the heads measured then.
 #[derive(Debug, Clone, Copy)]
@@ -101,7 +144,7 @@ pub enum CalibrationError {
     /// A tip lies outside the mesh.
     #[error("piezometer '{0}' lies outside the mesh")]
     Outside(String),
-    /// Nothing to fit, a bad bound, or an unknown zone.
+    /// Nothing to fit, a bad bound, an unknown zone, or a boundary without a level.
     #[error("bad fit parameters: {0}")]
     Parameters(String),
     /// A solve failed.
@@ -156,48 +199,72 @@ pub fn residuals(
     Ok((out, rms))
 }
 
-/// The model with each fitted zone's permeability scaled by `10^p`.
-fn scaled(model: &SectionModel, params: &[FitParameter], p: &[f64]) -> SectionModel {
+/// The model with each fitted zone's permeability scaled by `10^p` and each fitted boundary's
+/// level moved by `p` m.
+fn adjusted(model: &SectionModel, params: &[FitParameter], p: &[f64]) -> SectionModel {
     let mut m = model.clone();
     for (fp, v) in params.iter().zip(p) {
-        m.zones[fp.zone].material = model.zones[fp.zone].material.scaled(10f64.powf(*v));
+        match fp.target {
+            Target::Zone(z) => m.zones[z].material = model.zones[z].material.scaled(10f64.powf(*v)),
+            Target::Boundary(b) => m.boundaries[b].kind = offset(model.boundaries[b].kind, *v),
+        }
     }
     m
 }
 
-/// Inverse of a small symmetric positive definite matrix by Gauss–Jordan; `None` if singular.
-fn invert(a: &[Vec<f64>]) -> Option<Vec<Vec<f64>>> {
-    let n = a.len();
-    let mut m: Vec<Vec<f64>> = a
-        .iter()
-        .enumerate()
-        .map(|(i, r)| {
-            let mut row = r.clone();
-            row.extend((0..n).map(|j| f64::from(u8::from(i == j))));
-            row
-        })
-        .collect();
-    let scale = (0..n).map(|i| a[i][i].abs()).fold(0.0, f64::max);
-    for c in 0..n {
-        let p = (c..n).max_by(|&x, &y| m[x][c].abs().total_cmp(&m[y][c].abs()))?;
-        if m[p][c].abs() <= 1e-12 * scale {
-            return None;
-        }
-        m.swap(c, p);
-        let d = m[c][c];
-        m[c].iter_mut().for_each(|v| *v /= d);
-        for r in 0..n {
-            if r != c {
-                let f = m[r][c];
-                let row_c = m[c].clone();
-                m[r].iter_mut().zip(&row_c).for_each(|(v, w)| *v -= f * w);
-            }
-        }
+/// A water or fixed-head condition with its level moved by `offset_m`; any other unchanged.
+#[must_use]
+pub fn offset(kind: BoundaryKind, offset_m: f64) -> BoundaryKind {
+    match kind {
+        BoundaryKind::Water { level_m } => BoundaryKind::Water {
+            level_m: level_m + offset_m,
+        },
+        BoundaryKind::FixedHead { head_m } => BoundaryKind::FixedHead {
+            head_m: head_m + offset_m,
+        },
+        other => other,
     }
-    Some(m.into_iter().map(|r| r[n..].to_vec()).collect())
 }
 
-/// Fit the zone factors in `params` to the observed heads.
+/// A parameter's name for warnings: `zone 'core'`, `boundary 'tail water'`.
+fn describe(model: &SectionModel, t: Target) -> String {
+    match t {
+        Target::Zone(z) => format!("zone '{}'", model.zones[z].name),
+        Target::Boundary(b) => format!("boundary '{}'", model.boundaries[b].name),
+    }
+}
+
+/// Why `fp` cannot be fitted in `model`, if it cannot.
+fn unfit(model: &SectionModel, fp: &FitParameter) -> Option<String> {
+    let bad_range =
+        fp.lower.is_nan() || fp.lower >= fp.upper || !(fp.lower..=fp.upper).contains(&fp.start);
+    let what = match fp.target {
+        Target::Zone(z) if z >= model.zones.len() => return Some(format!("no zone {z}")),
+        Target::Boundary(b) if b >= model.boundaries.len() => {
+            return Some(format!("no boundary {b}"))
+        }
+        Target::Boundary(b)
+            if !matches!(
+                model.boundaries[b].kind,
+                BoundaryKind::Water { .. } | BoundaryKind::FixedHead { .. }
+            ) =>
+        {
+            return Some(format!(
+                "boundary '{}' has no water level or head to offset",
+                model.boundaries[b].name
+            ))
+        }
+        t => describe(model, t),
+    };
+    bad_range.then(|| {
+        format!(
+            "{what} with start {} in [{}, {}]",
+            fp.start, fp.lower, fp.upper
+        )
+    })
+}
+
+/// Fit `params` to the observed heads.
 ///
 /// # Errors
 /// [`CalibrationError`] for bad parameters, tips outside the mesh, or a failed solve.
@@ -211,8 +278,8 @@ pub fn calibrate(
     calibrate_cases(&[Case { model, mesh, obs }], opts, params)
 }
 
-/// Fit the zone factors in `params` to the heads of every case at once (zone indices are the
-/// same in every case's model); the residuals are the cases' in order.
+/// Fit `params` to the heads of every case at once (zone and boundary indices are the same in
+/// every case's model); the residuals are the cases' in order.
 ///
 /// # Errors
 /// [`CalibrationError`] for bad parameters, no case, tips outside a mesh, or a failed solve.
@@ -227,15 +294,8 @@ pub fn calibrate_cases(
         ));
     }
     for fp in params {
-        if cases.iter().any(|c| fp.zone >= c.model.zones.len())
-            || fp.lower.is_nan()
-            || fp.lower >= fp.upper
-            || !(fp.lower..=fp.upper).contains(&fp.start)
-        {
-            return Err(CalibrationError::Parameters(format!(
-                "zone {} with start {} in [{}, {}]",
-                fp.zone, fp.start, fp.lower, fp.upper
-            )));
+        if let Some(why) = cases.iter().find_map(|c| unfit(c.model, fp)) {
+            return Err(CalibrationError::Parameters(why));
         }
     }
     let tips: Vec<Tips> = cases
@@ -253,7 +313,7 @@ pub fn calibrate_cases(
         let mut heads = Vec::with_capacity(measured.len());
         for (c, t) in cases.iter().zip(&tips) {
             solves += 1;
-            let sol = solve(&scaled(c.model, params, p), c.mesh, opts)?;
+            let sol = solve(&adjusted(c.model, params, p), c.mesh, opts)?;
             if !sol.converged && warnings.iter().all(|w| !w.starts_with("a solve")) {
                 warnings.push("a solve did not converge; residuals may be noisy".into());
             }
@@ -273,17 +333,13 @@ pub fn calibrate_cases(
     let mut lambda = 1e-2;
     let mut jac = vec![vec![0.0; np]; n];
     let mut iterations = 0;
-    const STEP: f64 = 1e-2;
     for _ in 0..40 {
         iterations += 1;
         for j in 0..np {
+            let h = params[j].target.step();
             let mut q = p.clone();
             // Step inward at the upper bound.
-            q[j] += if q[j] + STEP > params[j].upper {
-                -STEP
-            } else {
-                STEP
-            };
+            q[j] += if q[j] + h > params[j].upper { -h } else { h };
             let rq = eval(&q, &mut warnings)?;
             for i in 0..n {
                 jac[i][j] = (rq[i] - r[i]) / (q[j] - p[j]);
@@ -313,14 +369,16 @@ pub fn calibrate_cases(
                 .map(|(a, d)| a + d)
                 .collect();
             clamp(&mut q);
+            // The largest move, in finite-difference steps of its parameter's kind.
             let step = q
                 .iter()
                 .zip(&p)
-                .map(|(a, b)| (a - b).abs())
+                .zip(params)
+                .map(|((a, b), fp)| (a - b).abs() / fp.target.step())
                 .fold(0.0, f64::max);
             let rq = eval(&q, &mut warnings)?;
             if sse(&rq) < sse(&r) {
-                small_step = step < 1e-4;
+                small_step = step < 1e-2;
                 p = q;
                 r = rq;
                 lambda = (lambda / 3.0).max(1e-9);
@@ -333,54 +391,51 @@ pub fn calibrate_cases(
             break;
         }
     }
-    // Uncertainty from the last Jacobian: cov = s²·(JᵀJ)⁻¹, s² = SSE/(n − p).
-    let jtj: Vec<Vec<f64>> = (0..np)
-        .map(|a| {
-            (0..np)
-                .map(|b| (0..n).map(|i| jac[i][a] * jac[i][b]).sum())
-                .collect()
-        })
-        .collect();
-    let cov = invert(&jtj);
-    if cov.is_none() {
+    let u = uncertainty(&jac, sse(&r));
+    if u.dependent {
         warnings.push(
             "the piezometers cannot separate these parameters (only permeability ratios matter, \
-             or a zone does not affect any tip)"
+             or parameters act on the tips alike)"
                 .into(),
         );
     }
-    let s2 = (n > np).then(|| sse(&r) / (n - np) as f64);
-    if s2.is_none() {
+    if u.too_few {
         warnings.push(format!(
             "{n} measured heads for {np} parameters: too few piezometers to estimate uncertainty"
         ));
     }
     let mut parameters = Vec::new();
     for (j, fp) in params.iter().enumerate() {
-        let std_error = match (&cov, s2) {
-            (Some(c), Some(s2)) => Some((s2 * c[j][j]).sqrt()),
-            _ => None,
-        };
-        let name = &model.zones[fp.zone].name;
-        if (p[j] - fp.lower).abs() < 1e-9 || (p[j] - fp.upper).abs() < 1e-9 {
-            warnings.push(format!("zone '{name}': the fit stopped on a bound"));
+        let name = describe(model, fp.target);
+        if u.no_effect[j] {
+            warnings.push(format!(
+                "{name}: no piezometer head depends on it (not determined)"
+            ));
         }
-        if let Some(se) = std_error {
-            if se > POORLY_DETERMINED {
-                warnings.push(format!(
-                    "zone '{name}': poorly determined (standard error {se:.2} in log10)"
-                ));
+        if (p[j] - fp.lower).abs() < 1e-9 || (p[j] - fp.upper).abs() < 1e-9 {
+            warnings.push(format!("{name}: the fit stopped on a bound"));
+        }
+        if let Some(se) = u.std_errors[j] {
+            if se > fp.target.poorly_determined() {
+                warnings.push(match fp.target {
+                    Target::Zone(_) => {
+                        format!("{name}: poorly determined (standard error {se:.2} in log10)")
+                    }
+                    Target::Boundary(_) => {
+                        format!("{name}: poorly determined (standard error {se:.2} m)")
+                    }
+                });
             }
         }
         parameters.push(FittedParameter {
-            zone: fp.zone,
-            log10_factor: p[j],
-            std_error,
+            target: fp.target,
+            value: p[j],
+            std_error: u.std_errors[j],
         });
     }
     let mut residuals_all = Vec::with_capacity(n);
     for c in cases {
-        let sol = solve(&scaled(c.model, params, &p), c.mesh, opts)?;
+        let sol = solve(&adjusted(c.model, params, &p), c.mesh, opts)?;
         solves += 1;
         residuals_all.extend(residuals(c.mesh, &sol, c.obs)?.0);
     }
