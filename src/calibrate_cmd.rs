@@ -89,11 +89,11 @@ fn count(n: usize, what: &str) -> String {
     format!("{n} {what}{}", if n == 1 { "" } else { "s" })
 }
 
-/// "± 0.012", or "not determined".
+/// " ± 0.012 m" after a value, or ", not determined".
 fn error(se: Option<f64>, decimals: usize, unit: &str) -> String {
     se.map_or_else(
-        || "not determined".into(),
-        |e| format!("± {}{unit}", fixed(e, decimals)),
+        || ", not determined".into(),
+        |e| format!(" ± {}{unit}", fixed(e, decimals)),
     )
 }
 
@@ -116,7 +116,7 @@ fn text(fit: &SectionFit, in_use: Option<&SectionFit>) -> String {
     for z in &fit.factors {
         let _ = writeln!(
             s,
-            "  zone {}: factor {} (log10 {} {}){}",
+            "  zone {}: factor {} (log10 {}{}){}",
             z.zone,
             fixed(z.factor(), 4),
             fixed(z.log10_factor, 4),
@@ -127,7 +127,7 @@ fn text(fit: &SectionFit, in_use: Option<&SectionFit>) -> String {
     for o in &fit.boundary_offsets {
         let _ = writeln!(
             s,
-            "  boundary {}: level offset {} m ({}){}",
+            "  boundary {}: level offset {} m{}{}",
             o.boundary,
             signed(o.offset_m, 3),
             error(o.std_error_m, 3, " m"),

@@ -136,7 +136,7 @@ pub fn solve(
     };
     let started = Instant::now();
     let net = solve_calibrated(spec, fit.as_ref(), pool_m, tail_m, &piezometers)
-    .map_err(|e| anyhow::anyhow!("section {:?}: {e}", s.id))?;
+        .map_err(|e| anyhow::anyhow!("section {:?}: {e}", s.id))?;
     let solve_ms = started.elapsed().as_secs_f64() * 1000.0;
     Ok(Solved { net, solve_ms, fit })
 }

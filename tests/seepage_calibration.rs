@@ -1,6 +1,8 @@
 //! Calibration of zone permeabilities to piezometer heads: heads solved with a known
 //! permeability ratio (a synthetic truth) are handed to the fit, which must recover the ratio;
-//! with two zones whose common scale the heads cannot see, the fit must say so.
+//! with two zones whose common scale the heads cannot see, the fit must say so. A landside head
+//! written 0.35 m too low is recovered together with the blanket's ratio (a log10 factor and a
+//! head in metres in one parameter vector).
 
 use seepd::seepage::calibrate::{calibrate, residuals, FitParameter, Observation, Target};
 use seepd::seepage::outputs::head_at;
@@ -175,4 +177,70 @@ fn fit_warns_when_only_the_ratio_is_determined() {
     );
     let ratio = fit.parameters[1].value - fit.parameters[0].value;
     assert!((ratio - (-1.0)).abs() < 0.05, "fitted ratio {ratio}");
+}
+
+#[test]
+fn fit_recovers_a_landside_head_offset_with_the_blanket_ratio() {
+    let mut truth = foundation(1e-4 * 10f64.powf(-1.3));
+    truth.boundaries[1].kind = BoundaryKind::FixedHead { head_m: 12.35 };
+    let mesh = build_mesh(&truth, &MeshOptions::uniform(1.5)).expect("mesh");
+    let sol = solve(&truth, &mesh, &confined()).expect("solve");
+    let obs: Vec<Observation> = tips()
+        .into_iter()
+        .map(|(id, at)| Observation {
+            head_m: head_at(&mesh, &sol, at).expect("inside"),
+            id,
+            at,
+        })
+        .collect();
+    // Written: the blanket 10^0.3 too pervious, the landside head at 12.0 m.
+    let start = foundation(1e-4 * 10f64.powf(-1.0));
+    let params = [
+        FitParameter {
+            target: Target::Zone(1),
+            start: 0.0,
+            lower: -2.0,
+            upper: 2.0,
+        },
+        FitParameter {
+            target: Target::Boundary(1),
+            start: 0.0,
+            lower: -2.0,
+            upper: 2.0,
+        },
+    ];
+    let fit = calibrate(&start, &mesh, &confined(), &obs, &params).expect("fit");
+    eprintln!(
+        "blanket and landside head: {:?}, rms {:.2e} m, {} iterations, {} solves, warnings {:?}",
+        fit.parameters, fit.rms_m, fit.iterations, fit.solves, fit.warnings
+    );
+    let (z, b) = (&fit.parameters[0], &fit.parameters[1]);
+    assert!((z.value - (-0.3)).abs() < 0.01, "log10 factor {}", z.value);
+    assert!((b.value - 0.35).abs() < 0.01, "offset {} m", b.value);
+    assert!(z.std_error.is_some() && b.std_error.is_some());
+    assert!(fit.warnings.is_empty(), "{:?}", fit.warnings);
+}
+
+#[test]
+fn an_offset_on_a_boundary_without_a_level_is_refused() {
+    let m = foundation(1e-6);
+    let mesh = build_mesh(&m, &MeshOptions::uniform(3.0)).expect("mesh");
+    let mut dry = m.clone();
+    dry.boundaries[1].kind = BoundaryKind::SeepageFace;
+    let params = [FitParameter {
+        target: Target::Boundary(1),
+        start: 0.0,
+        lower: -1.0,
+        upper: 1.0,
+    }];
+    let obs = [Observation {
+        id: "PZ".into(),
+        at: p(40.0, 5.0),
+        head_m: 13.0,
+    }];
+    let e = calibrate(&dry, &mesh, &confined(), &obs, &params).unwrap_err();
+    assert_eq!(
+        e.to_string(),
+        "bad fit parameters: boundary 'landside' has no water level or head to offset"
+    );
 }

@@ -231,10 +231,7 @@ fn a_section_is_calibrated_stored_with_history_and_used_live() {
         out.contains("stored, not applied") && out.contains("not determined"),
         "{out}"
     );
-    assert!(
-        out.contains("in use: the permeabilities as written"),
-        "{out}"
-    );
+    assert!(out.contains("in use: the model as written"), "{out}");
     let flownet = || {
         let (code, out, err) = seepd_output(&[
             "flownet",

@@ -23,14 +23,12 @@ use chrono::{TimeZone, Utc};
 use serde::{Deserialize, Serialize};
 
 use crate::config::section_model::SeepageSpec;
-use crate::seepage::calibrate::{
-    calibrate_cases, offset, residuals, Case, Observation, Target,
-};
+use crate::seepage::calibrate::{calibrate_cases, offset, residuals, Case, Observation, Target};
 use crate::seepage::outputs::locate;
 use crate::seepage::{build_mesh, solve, MeshOptions, Point, SectionModel, SolveOptions};
 use crate::store::ModelRow;
-use choice::{not_applied, parameters};
 pub use choice::Choice;
+use choice::{not_applied, parameters};
 
 /// The `kind` of a section calibration in the model history.
 pub const KIND: &str = "seepage";

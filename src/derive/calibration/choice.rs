@@ -21,7 +21,10 @@ pub struct Choice<'a> {
 
 /// The parameters `choice` asks for in `spec`: zone factors from 1 within 10^±`BOUND_LOG10`,
 /// boundary offsets from 0 within ±`offset_limit_m`.
-pub(super) fn parameters(spec: &SeepageSpec, choice: &Choice<'_>) -> Result<Vec<FitParameter>, String> {
+pub(super) fn parameters(
+    spec: &SeepageSpec,
+    choice: &Choice<'_>,
+) -> Result<Vec<FitParameter>, String> {
     let model = &spec.model;
     let zones: Vec<&str> = model.zones.iter().map(|z| z.name.as_str()).collect();
     let water: Vec<&str> = model
@@ -51,9 +54,10 @@ pub(super) fn parameters(spec: &SeepageSpec, choice: &Choice<'_>) -> Result<Vec<
             .zones
             .iter()
             .map(|z| {
-                zones.iter().position(|n| n == z).ok_or_else(|| {
-                    format!("no zone {z:?} in the model (zones: {})", list(&zones))
-                })
+                zones
+                    .iter()
+                    .position(|n| n == z)
+                    .ok_or_else(|| format!("no zone {z:?} in the model (zones: {})", list(&zones)))
             })
             .collect::<Result<_, _>>()?
     };
@@ -135,7 +139,10 @@ pub(super) fn not_applied(
     }
     for o in offsets {
         match o.std_error_m {
-            None => out.push(format!("boundary {}: not determined by the data", o.boundary)),
+            None => out.push(format!(
+                "boundary {}: not determined by the data",
+                o.boundary
+            )),
             Some(se) if se > POORLY_DETERMINED_M => out.push(format!(
                 "boundary {}: poorly determined (standard error {se:.2} m)",
                 o.boundary
@@ -156,4 +163,3 @@ pub(super) fn not_applied(
     }
     out
 }
-

@@ -125,7 +125,8 @@ mod tests {
         let plain: Vec<Vec<f64>> = x.iter().map(|&x| vec![1.0, x]).collect();
         let scaled: Vec<Vec<f64>> = x.iter().map(|&x| vec![1e-6, x * 1e4]).collect();
         let (p, s) = (uncertainty(&plain, 0.2), uncertainty(&scaled, 0.2));
-        let rel = |a: Option<f64>, b: Option<f64>, f: f64| (a.unwrap() / (b.unwrap() * f) - 1.0).abs();
+        let rel =
+            |a: Option<f64>, b: Option<f64>, f: f64| (a.unwrap() / (b.unwrap() * f) - 1.0).abs();
         assert!(rel(s.std_errors[0], p.std_errors[0], 1e6) < 1e-9);
         assert!(rel(s.std_errors[1], p.std_errors[1], 1e-4) < 1e-9);
     }
