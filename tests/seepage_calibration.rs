@@ -8,7 +8,7 @@ use seepd::seepage::calibrate::{calibrate, residuals, FitParameter, Observation,
 use seepd::seepage::outputs::head_at;
 use seepd::seepage::solve::{solve, SolveOptions};
 use seepd::seepage::{
-    build_mesh, check_points, validate, Boundary, BoundaryKind, Material, MeshOptions, Point,
+    build_mesh, check_points, validate, Boundary, BoundaryKind, Material, Mesh, MeshOptions, Point,
     SectionModel, Zone,
 };
 
@@ -76,6 +76,19 @@ fn tips() -> Vec<(String, Point)> {
     .collect()
 }
 
+/// The heads at the tips solved with `truth`, each raised by `bias_m`.
+fn observed(truth: &SectionModel, mesh: &Mesh, bias_m: f64) -> Vec<Observation> {
+    let sol = solve(truth, mesh, &confined()).expect("solve");
+    tips()
+        .into_iter()
+        .map(|(id, at)| Observation {
+            head_m: head_at(mesh, &sol, at).expect("inside") + bias_m,
+            id,
+            at,
+        })
+        .collect()
+}
+
 fn confined() -> SolveOptions {
     SolveOptions {
         unconfined: false,
@@ -89,15 +102,7 @@ fn fit_recovers_a_known_blanket_permeability_ratio() {
     assert_eq!(validate(&truth), vec![]);
     assert_eq!(check_points(&truth, &tips()), vec![]);
     let mesh = build_mesh(&truth, &MeshOptions::uniform(1.5)).expect("mesh");
-    let sol = solve(&truth, &mesh, &confined()).expect("solve");
-    let obs: Vec<Observation> = tips()
-        .into_iter()
-        .map(|(id, at)| Observation {
-            head_m: head_at(&mesh, &sol, at).expect("inside"),
-            id,
-            at,
-        })
-        .collect();
+    let obs = observed(&truth, &mesh, 0.0);
     // The heads must actually feel the blanket, or the test proves nothing.
     let spread = obs.iter().map(|o| o.head_m).fold(0.0, f64::max)
         - obs.iter().map(|o| o.head_m).fold(f64::INFINITY, f64::min);
@@ -137,15 +142,7 @@ fn fit_recovers_a_known_blanket_permeability_ratio() {
 fn fit_warns_when_only_the_ratio_is_determined() {
     let truth = foundation(1e-6);
     let mesh = build_mesh(&truth, &MeshOptions::uniform(2.0)).expect("mesh");
-    let sol = solve(&truth, &mesh, &confined()).expect("solve");
-    let obs: Vec<Observation> = tips()
-        .into_iter()
-        .map(|(id, at)| Observation {
-            head_m: head_at(&mesh, &sol, at).expect("inside") + 0.01,
-            id,
-            at,
-        })
-        .collect();
+    let obs = observed(&truth, &mesh, 0.01);
     // Every permeability in the model is a fitted zone: scaling both leaves the heads alone.
     let mut start = foundation(1e-5);
     start.base = Material::isotropic(1e-4);
@@ -184,15 +181,7 @@ fn fit_recovers_a_landside_head_offset_with_the_blanket_ratio() {
     let mut truth = foundation(1e-4 * 10f64.powf(-1.3));
     truth.boundaries[1].kind = BoundaryKind::FixedHead { head_m: 12.35 };
     let mesh = build_mesh(&truth, &MeshOptions::uniform(1.5)).expect("mesh");
-    let sol = solve(&truth, &mesh, &confined()).expect("solve");
-    let obs: Vec<Observation> = tips()
-        .into_iter()
-        .map(|(id, at)| Observation {
-            head_m: head_at(&mesh, &sol, at).expect("inside"),
-            id,
-            at,
-        })
-        .collect();
+    let obs = observed(&truth, &mesh, 0.0);
     // Written: the blanket 10^0.3 too pervious, the landside head at 12.0 m.
     let start = foundation(1e-4 * 10f64.powf(-1.0));
     let params = [

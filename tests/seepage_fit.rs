@@ -8,14 +8,15 @@
 //! uses the newest applied fit and the residuals fall to near zero; `seepd flownet` names it.
 
 mod common;
+mod fit_common;
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Command;
 use std::time::Duration;
 
-use common::{count, db, example_config, seepd_output, wait_for, Daemon, Publisher};
+use common::{db, seepd_output, wait_for, Daemon, Publisher};
+use fit_common::{on_section, residual_at, site_config, tip_heads, Feed};
 use seepd::config::section_model::SeepageSpec;
-use seepd::derive::flownet::{solve_section, tips};
 
 const SITE: &str = r#"
 [site]
@@ -102,62 +103,19 @@ path = [[120.0, 199.0], [88.0, 200.0], [48.0, 225.0]]
 /// log10 of the true foundation permeability over the written one.
 const TRUTH_LOG10: f64 = -0.6;
 
-/// The example service file with only the test site.
-fn test_config(dir: &Path, port: u16) -> PathBuf {
-    let cfg = example_config(dir, port);
-    for e in std::fs::read_dir(&cfg).unwrap() {
-        let p = e.unwrap().path();
-        if p.file_name().is_some_and(|n| n != "seepd.toml") {
-            std::fs::remove_file(p).unwrap();
-        }
-    }
-    std::fs::write(cfg.join("fit-dam.toml"), SITE).unwrap();
-    cfg
-}
-
-fn message(t_ms: i64, id: &str, value: f64) -> String {
-    format!(r#"{{"time": {t_ms}, "instrument": "{id}", "value": {value}}}"#)
-}
-
-/// Heads at the two tips solved with `spec` at `pool`.
 fn heads(cfg: &seepd::config::Config, spec: &SeepageSpec, pool: f64) -> Vec<f64> {
-    let pz: Vec<_> = tips(cfg, &cfg.objects.sections[0])
-        .into_iter()
-        .map(|(id, p)| (id, p, None))
-        .collect();
-    solve_section(spec, pool, Some(199.5), &pz)
-        .unwrap()
-        .piezometers
-        .iter()
-        .map(|p| p.modelled_m.unwrap())
-        .collect()
-}
-
-fn residual_at(dir: &Path, id: &str, t_ms: i64) -> f64 {
-    wait_for(Duration::from_secs(30), || {
-        db(dir)
-            .query_row(
-                "SELECT value FROM derived WHERE object = ?1 AND quantity = 'model_residual'
-                   AND t_ms = ?2 AND value IS NOT NULL",
-                rusqlite::params![id, t_ms],
-                |r| r.get::<_, f64>(0),
-            )
-            .ok()
-    })
-    .unwrap_or_else(|| panic!("no model_residual of {id} at {t_ms}"))
+    tip_heads(cfg, 0, spec, pool, 199.5)
 }
 
 fn fit(cfg: &Path, extra: &[&str]) -> (i32, String, String) {
-    let mut args = vec!["fit", "--config", cfg.to_str().unwrap(), "--id", "FD-S1"];
-    args.extend_from_slice(extra);
-    seepd_output(&args)
+    on_section(cfg, "fit", "FD-S1", extra)
 }
 
 #[test]
 fn a_section_is_calibrated_stored_with_history_and_used_live() {
     let dir = tempfile::tempdir().unwrap();
     let broker = common::Broker::start(dir.path());
-    let cfg_dir = test_config(dir.path(), broker.port);
+    let cfg_dir = site_config(dir.path(), broker.port, "fit-dam.toml", SITE);
     let cfg = seepd::config::load_dir(&cfg_dir).unwrap_or_else(|p| panic!("{p}"));
     let written = cfg.objects.sections[0].model.clone().expect("model");
     let mut truth = written.clone();
@@ -171,36 +129,24 @@ fn a_section_is_calibrated_stored_with_history_and_used_live() {
     let t0 = (chrono::Utc::now().timestamp_millis() / 3_600_000 - 30) * 3_600_000;
     let hour = |h: i64| t0 + h * 3_600_000;
     let pool = |h: i64| if h < 3 { 214.0 } else { 216.0 + (h - 3) as f64 };
-    let mut sent = 0;
+    let mut feeder = Feed {
+        dir: dir.path(),
+        publisher: &publisher,
+        topic: "demo/FD-LOG/json",
+        pool_gauge: "FD-POOL",
+        sections: 1,
+        sent: 0,
+    };
     // Hours 0–2 at pool 214, hours 3–4 at 216 (hour 5 and later: see below). The piezometers
     // read the truth's flow net ten minutes after each pool reading.
     // A live solve is due when the pool moved more than 0.9 m since the last one (and first).
     let mut feed = |h: i64, solves: bool| {
-        publisher.send("demo/FD-LOG/json", message(hour(h), "FD-POOL", pool(h)));
-        if solves {
-            wait_for(Duration::from_secs(60), || {
-                (count(
-                    dir.path(),
-                    "derived",
-                    &format!(
-                        "object = 'FD-S1' AND quantity = 'model_flow' AND t_ms = {}",
-                        hour(h)
-                    ),
-                ) == 1)
-                    .then_some(())
-            })
-            .unwrap_or_else(|| panic!("no live solve at hour {h}"));
-        }
-        let t = hour(h) + 600_000;
         let want = heads(&cfg, &truth, pool(h));
-        publisher.send("demo/FD-LOG/json", message(t, "FD-PZ-1", want[0] - 201.0));
-        publisher.send("demo/FD-LOG/json", message(t, "FD-PZ-2", want[1] - 195.0));
-        sent += 3;
-        publisher.wait_acked(sent, Duration::from_secs(30));
-        wait_for(Duration::from_secs(30), || {
-            (count(dir.path(), "readings", &format!("t_ms = {t}")) == 2).then_some(())
-        })
-        .unwrap_or_else(|| panic!("readings of hour {h} not stored"));
+        let raw = [
+            ("FD-PZ-1".to_string(), want[0] - 201.0),
+            ("FD-PZ-2".to_string(), want[1] - 195.0),
+        ];
+        feeder.send(hour(h), pool(h), solves, &raw);
     };
     for h in 0..5 {
         feed(h, h == 0 || h >= 3);

@@ -15,15 +15,15 @@
 //! - A calibration row as stored before offsets existed still loads and is used.
 
 mod common;
+mod fit_common;
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Command;
 use std::time::Duration;
 
-use common::{count, db, example_config, seepd_output, wait_for, Daemon, Publisher};
+use common::{db, wait_for, Daemon, Publisher};
+use fit_common::{on_section as run, residual_at, site_config, tip_heads as heads, Feed};
 use seepd::config::section_model::SeepageSpec;
-use seepd::config::Config;
-use seepd::derive::flownet::{solve_section, tips};
 
 /// One instrumented section: ids prefixed `prefix`, tips at the same places in both.
 fn section(id: &str, prefix: &str, log10_foundation: f64) -> String {
@@ -131,57 +131,6 @@ unit = "m"
     s
 }
 
-/// The example service file with only the test site.
-fn test_config(dir: &Path, port: u16) -> PathBuf {
-    let cfg = example_config(dir, port);
-    for e in std::fs::read_dir(&cfg).unwrap() {
-        let p = e.unwrap().path();
-        if p.file_name().is_some_and(|n| n != "seepd.toml") {
-            std::fs::remove_file(p).unwrap();
-        }
-    }
-    std::fs::write(cfg.join("tail-dam.toml"), site()).unwrap();
-    cfg
-}
-
-fn message(t_ms: i64, id: &str, value: f64) -> String {
-    format!(r#"{{"time": {t_ms}, "instrument": "{id}", "value": {value}}}"#)
-}
-
-/// Heads at section `s`'s tips solved with `spec` at `pool` and `tail`.
-fn heads(cfg: &Config, s: usize, spec: &SeepageSpec, pool: f64, tail: f64) -> Vec<f64> {
-    let pz: Vec<_> = tips(cfg, &cfg.objects.sections[s])
-        .into_iter()
-        .map(|(id, p)| (id, p, None))
-        .collect();
-    solve_section(spec, pool, Some(tail), &pz)
-        .unwrap()
-        .piezometers
-        .iter()
-        .map(|p| p.modelled_m.unwrap())
-        .collect()
-}
-
-fn residual_at(dir: &Path, id: &str, t_ms: i64) -> f64 {
-    wait_for(Duration::from_secs(30), || {
-        db(dir)
-            .query_row(
-                "SELECT value FROM derived WHERE object = ?1 AND quantity = 'model_residual'
-                   AND t_ms = ?2 AND value IS NOT NULL",
-                rusqlite::params![id, t_ms],
-                |r| r.get::<_, f64>(0),
-            )
-            .ok()
-    })
-    .unwrap_or_else(|| panic!("no model_residual of {id} at {t_ms}"))
-}
-
-fn run(cfg: &Path, cmd: &str, id: &str, extra: &[&str]) -> (i32, String, String) {
-    let mut args = vec![cmd, "--config", cfg.to_str().unwrap(), "--id", id];
-    args.extend_from_slice(extra);
-    seepd_output(&args)
-}
-
 fn json(out: &str) -> serde_json::Value {
     serde_json::from_str(out).unwrap_or_else(|e| panic!("{e}: {out}"))
 }
@@ -197,7 +146,7 @@ fn flownet(cfg: &Path, id: &str) -> serde_json::Value {
 fn boundary_offsets_are_fitted_warned_stored_and_used_live() {
     let dir = tempfile::tempdir().unwrap();
     let broker = common::Broker::start(dir.path());
-    let cfg_dir = test_config(dir.path(), broker.port);
+    let cfg_dir = site_config(dir.path(), broker.port, "tail-dam.toml", &site());
     let cfg = seepd::config::load_dir(&cfg_dir).unwrap_or_else(|p| panic!("{p}"));
     let written: Vec<SeepageSpec> = cfg
         .objects
@@ -219,36 +168,25 @@ fn boundary_offsets_are_fitted_warned_stored_and_used_live() {
     let t0 = (chrono::Utc::now().timestamp_millis() / 3_600_000 - 30) * 3_600_000;
     let hour = |h: i64| t0 + h * 3_600_000;
     let pool = |h: i64| if h < 3 { 214.0 } else { 216.0 + (h - 3) as f64 };
-    let mut sent = 0;
+    let mut feeder = Feed {
+        dir: dir.path(),
+        publisher: &publisher,
+        topic: "demo/TD-LOG/json",
+        pool_gauge: "TD-POOL",
+        sections: 2,
+        sent: 0,
+    };
     // Hours 0–2 at pool 214, 3–4 at 216 and 217 (and 6 below); the piezometers of both
     // sections read the truth ten minutes after each pool reading.
     let mut feed = |h: i64, solves: bool| {
-        publisher.send("demo/TD-LOG/json", message(hour(h), "TD-POOL", pool(h)));
-        if solves {
-            wait_for(Duration::from_secs(60), || {
-                let solved = count(
-                    dir.path(),
-                    "derived",
-                    &format!("quantity = 'model_flow' AND t_ms = {}", hour(h)),
-                );
-                (solved == 2).then_some(())
-            })
-            .unwrap_or_else(|| panic!("no live solves at hour {h}"));
-        }
-        let t = hour(h) + 600_000;
+        let mut raw = Vec::new();
         for (s, prefix) in ["TA-PZ", "TB-PZ"].iter().enumerate() {
             let want = heads(&cfg, s, truth[s], pool(h), tail);
             for (i, (head, tip)) in want.iter().zip(TIPS).enumerate() {
-                let id = format!("{prefix}-{}", i + 1);
-                publisher.send("demo/TD-LOG/json", message(t, &id, head - tip.1));
+                raw.push((format!("{prefix}-{}", i + 1), head - tip.1));
             }
         }
-        sent += 7;
-        publisher.wait_acked(sent, Duration::from_secs(30));
-        wait_for(Duration::from_secs(30), || {
-            (count(dir.path(), "readings", &format!("t_ms = {t}")) == 6).then_some(())
-        })
-        .unwrap_or_else(|| panic!("readings of hour {h} not stored"));
+        feeder.send(hour(h), pool(h), solves, &raw);
     };
     for h in 0..5 {
         feed(h, h == 0 || h >= 3);

@@ -112,6 +112,20 @@ fn list(names: &[&str]) -> String {
     }
 }
 
+/// One parameter as the applying rule sees it.
+struct Judged<'a> {
+    /// "zone foundation", "boundary tail water".
+    what: String,
+    std_error: Option<f64>,
+    /// Above this the parameter is poorly determined.
+    poor: f64,
+    /// " in log10", " m".
+    unit: &'a str,
+    at_bound: bool,
+    /// "factor 10^±2", "offset ±2 m".
+    bound: String,
+}
+
 /// Why a fit with these parameters is not used live (empty: it is).
 pub(super) fn not_applied(
     factors: &[ZoneFactor],
@@ -120,39 +134,36 @@ pub(super) fn not_applied(
     rms_m: f64,
     rms_written_m: f64,
 ) -> Vec<String> {
+    let zones = factors.iter().map(|f| Judged {
+        what: format!("zone {}", f.zone),
+        std_error: f.std_error,
+        poor: POORLY_DETERMINED,
+        unit: " in log10",
+        at_bound: f.at_bound,
+        bound: format!("factor 10^±{BOUND_LOG10}"),
+    });
+    let boundaries = offsets.iter().map(|o| Judged {
+        what: format!("boundary {}", o.boundary),
+        std_error: o.std_error_m,
+        poor: POORLY_DETERMINED_M,
+        unit: " m",
+        at_bound: o.at_bound,
+        bound: format!("offset ±{limit_m} m"),
+    });
     let mut out = Vec::new();
-    for f in factors {
-        match f.std_error {
-            None => out.push(format!("zone {}: not determined by the data", f.zone)),
-            Some(se) if se > POORLY_DETERMINED => out.push(format!(
-                "zone {}: poorly determined (standard error {se:.2} in log10)",
-                f.zone
+    for p in zones.chain(boundaries) {
+        match p.std_error {
+            None => out.push(format!("{}: not determined by the data", p.what)),
+            Some(se) if se > p.poor => out.push(format!(
+                "{}: poorly determined (standard error {se:.2}{})",
+                p.what, p.unit
             )),
             Some(_) => {}
         }
-        if f.at_bound {
+        if p.at_bound {
             out.push(format!(
-                "zone {}: on a bound of the search (factor 10^±{BOUND_LOG10})",
-                f.zone
-            ));
-        }
-    }
-    for o in offsets {
-        match o.std_error_m {
-            None => out.push(format!(
-                "boundary {}: not determined by the data",
-                o.boundary
-            )),
-            Some(se) if se > POORLY_DETERMINED_M => out.push(format!(
-                "boundary {}: poorly determined (standard error {se:.2} m)",
-                o.boundary
-            )),
-            Some(_) => {}
-        }
-        if o.at_bound {
-            out.push(format!(
-                "boundary {}: on a bound of the search (offset ±{limit_m} m)",
-                o.boundary
+                "{}: on a bound of the search ({})",
+                p.what, p.bound
             ));
         }
     }

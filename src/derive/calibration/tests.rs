@@ -100,6 +100,7 @@ fn spec() -> SeepageSpec {
         kind,
         path,
     };
+    let water = |name: &str, path| boundary(name, BoundaryKind::Water { level_m: 0.0 }, path);
     SeepageSpec {
         model: SectionModel {
             outline: vec![p(0.0, 0.0), p(20.0, 0.0), p(20.0, 10.0), p(0.0, 10.0)],
@@ -111,21 +112,9 @@ fn spec() -> SeepageSpec {
             }],
             lines: vec![],
             boundaries: vec![
-                boundary(
-                    "river",
-                    BoundaryKind::Water { level_m: 0.0 },
-                    vec![p(0.0, 10.0), p(0.0, 0.0)],
-                ),
-                boundary(
-                    "tail water",
-                    BoundaryKind::Water { level_m: 0.0 },
-                    vec![p(20.0, 0.0), p(20.0, 10.0)],
-                ),
-                boundary(
-                    "ditch",
-                    BoundaryKind::Water { level_m: 0.0 },
-                    vec![p(20.0, 10.0), p(15.0, 10.0)],
-                ),
+                water("river", vec![p(0.0, 10.0), p(0.0, 0.0)]),
+                water("tail water", vec![p(20.0, 0.0), p(20.0, 10.0)]),
+                water("ditch", vec![p(20.0, 10.0), p(15.0, 10.0)]),
                 boundary(
                     "face",
                     BoundaryKind::SeepageFace,
