@@ -242,3 +242,76 @@ pub fn run(
     }
     Ok(i32::from(!fit.applied()))
 }
+
+#[cfg(test)]
+mod tests {
+    //! The wording of the text output.
+
+    use super::*;
+    use crate::derive::calibration::{BoundaryOffset, TipFit, ZoneFactor};
+
+    #[test]
+    fn values_that_round_to_zero_have_no_sign_and_counts_agree() {
+        assert_eq!(signed(-0.00004, 3), "0.000");
+        assert_eq!(signed(0.0, 3), "0.000");
+        assert_eq!(signed(0.45, 3), "+0.450");
+        assert_eq!(signed(-0.45, 3), "-0.450");
+        assert_eq!(count(1, "time"), "1 time");
+        assert_eq!(count(2, "time"), "2 times");
+    }
+
+    #[test]
+    fn the_text_has_no_negative_zero_and_names_the_offsets() {
+        let fit = SectionFit {
+            section: "S1".into(),
+            fitted_ms: 0,
+            times_ms: vec![0],
+            factors: vec![ZoneFactor {
+                zone: "core".into(),
+                log10_factor: -1e-7,
+                std_error: Some(0.0123),
+                at_bound: false,
+            }],
+            boundary_offsets: vec![BoundaryOffset {
+                boundary: "ditch".into(),
+                offset_m: -2.0,
+                std_error_m: None,
+                at_bound: true,
+            }],
+            rms_written_m: 0.2,
+            rms_calibrated_m: 0.1,
+            tips: vec![TipFit {
+                t_ms: 0,
+                id: "PZ".into(),
+                measured_m: 10.0,
+                written_m: 10.0000001,
+                calibrated_m: 9.5,
+            }],
+            warnings: vec![],
+            not_applied: vec!["boundary ditch: not determined by the data".into()],
+            iterations: 1,
+            solves: 4,
+        };
+        let t = text(&fit, None);
+        assert!(
+            t.starts_with(
+                "S1: calibrated to 1 head at 1 time (1970-01-01T00:00:00Z); 1 iteration, 4 solves\n"
+            ),
+            "{t}"
+        );
+        assert!(!t.contains("-0.0"), "{t}");
+        assert!(
+            t.contains("  zone core: factor 1.0000 (log10 0.0000 ± 0.012)\n"),
+            "{t}"
+        );
+        assert!(
+            t.contains("  boundary ditch: level offset -2.000 m, not determined, on a bound\n"),
+            "{t}"
+        );
+        assert!(
+            t.contains("(residual 0.000); calibrated 9.500 m (residual +0.500)"),
+            "{t}"
+        );
+        assert!(t.contains("in use: the model as written"), "{t}");
+    }
+}

@@ -336,7 +336,11 @@ pub fn calibrate_cases(
     for _ in 0..40 {
         iterations += 1;
         for j in 0..np {
-            let h = params[j].target.step();
+            // At most half the search range, so the step stays inside it.
+            let h = params[j]
+                .target
+                .step()
+                .min((params[j].upper - params[j].lower) / 2.0);
             let mut q = p.clone();
             // Step inward at the upper bound.
             q[j] += if q[j] + h > params[j].upper { -h } else { h };
