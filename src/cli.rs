@@ -460,11 +460,12 @@ fn write_or_emit(out: Option<&Path>, text: &str) -> anyhow::Result<()> {
     }
 }
 
-/// Who runs the command ($USER, else "operator").
+/// Who runs the command, for `--by` (`$USER`, else `$LOGNAME`, else "operator").
 fn who() -> String {
-    std::env::var("USER")
-        .ok()
-        .filter(|u| !u.is_empty())
+    ["USER", "LOGNAME"]
+        .iter()
+        .filter_map(|v| std::env::var(v).ok())
+        .find(|u| !u.trim().is_empty())
         .unwrap_or_else(|| "operator".into())
 }
 
@@ -681,7 +682,7 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             by,
         } => {
             let cfg = load(&config)?;
-            let by = by.unwrap_or_else(crate::manual::login_name);
+            let by = by.unwrap_or_else(who);
             let given = crate::manual::Given {
                 instrument: &instrument,
                 value: &value,

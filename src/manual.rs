@@ -198,13 +198,6 @@ pub fn record_cmd(cfg: &Config, given: &Given<'_>) -> anyhow::Result<String> {
     ))
 }
 
-/// The login name of whoever runs the command (`$USER`, `$LOGNAME`), for `--by`.
-pub fn login_name() -> String {
-    std::env::var("USER")
-        .or_else(|_| std::env::var("LOGNAME"))
-        .unwrap_or_else(|_| "unknown".into())
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
