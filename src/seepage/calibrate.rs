@@ -412,8 +412,12 @@ pub fn calibrate_cases(
     for (j, fp) in params.iter().enumerate() {
         let name = describe(model, fp.target);
         if u.no_effect[j] {
+            let why = match fp.target {
+                Target::Zone(_) => "",
+                Target::Boundary(_) => "; a level below the whole stretch leaves it dry",
+            };
             warnings.push(format!(
-                "{name}: no piezometer head depends on it (not determined)"
+                "{name}: no piezometer head depends on it at the fitted value (not determined{why})"
             ));
         }
         if (p[j] - fp.lower).abs() < 1e-9 || (p[j] - fp.upper).abs() < 1e-9 {
