@@ -1,9 +1,10 @@
 //! The seepage solver against closed forms from the literature (check-values.md, "Seepage
-//! analysis"): Dupuit–Charny, Kozeny, Harr, Schaffernak and L. Casagrande; and a
+//! analysis"): Dupuit–Charny, Kozeny, Harr; S4 (a dam's exit point) against an independent
+//! trial free-surface solve and Schaffernak's and L. Casagrande's approximations (`s4`); and a
 //! mesh-refinement study.
 
 use seepd::seepage::outputs::{
-    exit_gradients, exit_points, phreatic_line, phreatic_segments, stretch_flows, total_flow,
+    exit_gradients, phreatic_line, phreatic_segments, stretch_flows, total_flow,
 };
 use seepd::seepage::solve::{solve, Solution, SolveOptions};
 use seepd::seepage::stream::stream_function;
@@ -11,6 +12,9 @@ use seepd::seepage::{
     build_mesh, validate, Boundary, BoundaryKind, ImperviousLine, LocalSize, Material, Mesh,
     MeshOptions, Point, SectionModel,
 };
+
+#[path = "seepage_checks/s4.rs"]
+mod s4;
 
 fn p(x: f64, y: f64) -> Point {
     Point::new(x, y)
@@ -226,67 +230,6 @@ fn s3_harr_sheet_pile_exit_gradient() {
     // Vertical and normal agree on horizontal ground; no flow crosses the pile.
     let up = exit_gradients(&model, &mesh, &sol, &[1]);
     assert!(up.iter().all(|e| (e.vertical - e.normal).abs() < 1e-9));
-}
-
-/// S4: homogeneous dam on an impervious base, H 12 m, downstream slope 1V:2.5H, d 40 m from
-/// A. Casagrande's corrected entry point (0.3·Δ upstream of where the pool meets the upstream
-/// slope) to the toe. Schaffernak (1917): `a = d/cos α − sqrt(d²/cos²α − H²/sin²α)`;
-/// L. Casagrande (1932): `a = sqrt(d² + H²) − sqrt(d² − H²·cot²α)`; check-values.md S4:
-/// a = 14.5857 m (Schaffernak), 15.3037 m (L. Casagrande); the numerical exit point within 10 %
-/// of these (approximations; tolerance from memory, as the table marks it).
-///
-/// Not met: the solver puts the exit 18.4 m up the slope (the same node at element sizes 0.4 m
-/// and 0.25 m) with q/k = 2.29 m, 20–26 % above both approximations; reported, not loosened.
-#[test]
-#[ignore = "exit point 18.4 m vs 14.6 / 15.3 m: outside the 10 % tolerance; see the report"]
-fn s4_exit_point_on_downstream_slope() {
-    let (h, k) = (12.0, 1e-6);
-    // Upstream slope 1V:1.5H (Δ = 18 m, entry correction 5.4 m), crest 12.5 m high and 2.6 m
-    // wide, downstream slope 1V:2.5H: the toe is 40 m from the corrected entry point.
-    let (crest_y, crest_w) = (12.5, 2.6);
-    let up_crest = p(1.5 * crest_y, crest_y);
-    let down_crest = p(up_crest.x + crest_w, crest_y);
-    let toe = p(down_crest.x + 2.5 * crest_y, 0.0);
-    let entry = 1.5 * h - 0.3 * 1.5 * h;
-    assert!((toe.x - entry - 40.0).abs() < 1e-9);
-    let model = SectionModel {
-        outline: vec![p(0.0, 0.0), toe, down_crest, up_crest],
-        base: Material::isotropic(k),
-        zones: vec![],
-        lines: vec![],
-        boundaries: vec![
-            stretch(
-                "pool",
-                BoundaryKind::Water { level_m: h },
-                &[up_crest, p(0.0, 0.0)],
-            ),
-            stretch(
-                "downstream slope",
-                BoundaryKind::SeepageFace,
-                &[toe, down_crest],
-            ),
-        ],
-    };
-    assert_eq!(validate(&model), vec![]);
-    let mesh = build_mesh(&model, &MeshOptions::uniform(0.4)).expect("mesh");
-    let sol = solve(&model, &mesh, &SolveOptions::default()).expect("solve");
-    report("S4", &mesh, &sol);
-    assert!(sol.converged);
-    let exit = &exit_points(&model, &mesh, &sol)[0];
-    let alpha = (1.0f64 / 2.5).atan();
-    let a = exit.exit.y / alpha.sin();
-    let q = total_flow(&sol) / k;
-    eprintln!(
-        "S4: exit at ({:.3}, {:.3}), a = {a:.3} m along the slope, q/k = {q:.4} m \
-         (Schaffernak a 14.5857, q/k 2.16680; L. Casagrande a 15.3037, q/k 2.11086)",
-        exit.exit.x, exit.exit.y
-    );
-    for (name, expected) in [("Schaffernak", 14.5857), ("L. Casagrande", 15.3037)] {
-        assert!(
-            (a / expected - 1.0).abs() < 0.10,
-            "exit distance {a:.3} m vs {name} {expected} m"
-        );
-    }
 }
 
 /// A curvilinear quadrilateral of Kozeny's flow net (parabolic coordinates σ, τ with
