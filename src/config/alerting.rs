@@ -7,6 +7,8 @@ use std::path::PathBuf;
 
 use crate::domain::rules::Spec;
 
+use super::de::{self, Int, Text};
+use super::limits;
 use super::model::Secret;
 
 /// Everything about alerts and email.
@@ -134,21 +136,50 @@ pub enum SmtpSecurity {
     Plain,
 }
 
-/// The mail relay.
-#[derive(Debug, Clone)]
+/// The mail relay (`[smtp]`, read straight into this; the password is read after).
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct Smtp {
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub host: String,
+    /// By `security` when not written: 587, 465 or 25.
+    #[serde(deserialize_with = "de::via::<Int<1, 65535>, _, _>")]
     pub port: u16,
     pub security: SmtpSecurity,
+    #[serde(deserialize_with = "de::via_opt::<Text, _, _>")]
     pub username: Option<String>,
+    #[serde(skip)]
     pub password: Option<Secret>,
     /// Extra trusted CA (PEM) for the relay's certificate; the built-in roots otherwise.
+    #[serde(deserialize_with = "de::via_opt::<Text, _, _>")]
     pub ca_file: Option<PathBuf>,
     /// Sender address (`From`, envelope sender, Message-ID domain).
+    #[serde(deserialize_with = "super::smtp::address")]
     pub from: String,
     /// Connection and command timeout (s).
+    #[serde(deserialize_with = "de::via::<Int<1, 3600>, _, _>")]
     pub timeout_s: u64,
     /// Retry backoff after a connection failure or a 4xx reply: first delay and cap (s).
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::MAIL_RETRY_S }>, _, _>")]
     pub retry_min_s: u64,
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::MAIL_RETRY_S }>, _, _>")]
     pub retry_max_s: u64,
+}
+
+impl Default for Smtp {
+    /// The defaults; `host` and `from` are required.
+    fn default() -> Self {
+        Smtp {
+            host: String::new(),
+            port: 587,
+            security: SmtpSecurity::Starttls,
+            username: None,
+            password: None,
+            ca_file: None,
+            from: String::new(),
+            timeout_s: 30,
+            retry_min_s: 5,
+            retry_max_s: 600,
+        }
+    }
 }

@@ -24,8 +24,24 @@ use super::reader::{found_item, Tbl};
 /// failed value checks. A key at fault is left out, as if absent, so that validation still runs
 /// and reports its own problems; callers judge the table by the problem count, as before.
 pub(crate) fn table<T: DeserializeOwned>(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<T> {
+    t.check_keys(cx, fields::<T>());
+    keys_of(cx, t)
+}
+
+/// `table` for a table whose keys are shared by two structs: a model type read straight from
+/// the table, and `U`, the keys it does not keep (secrets, sub-tables read on their own).
+pub(crate) fn table2<T: DeserializeOwned, U: DeserializeOwned>(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+) -> Option<(T, U)> {
+    t.check_keys(cx, &[fields::<T>(), fields::<U>()].concat());
+    let u = keys_of(cx, t);
+    Some((keys_of(cx, t)?, u?))
+}
+
+/// `T` from the keys of `t` it declares, each key at fault reported and left out.
+fn keys_of<T: DeserializeOwned>(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<T> {
     let keys = fields::<T>();
-    t.check_keys(cx, keys);
     let mut known: Vec<(&str, &Item)> = t.entries().filter(|(k, _)| keys.contains(k)).collect();
     if let Ok(v) = from_entries::<T>(&known) {
         return Some(v);
@@ -210,6 +226,51 @@ impl<'de, const LO: i64, const HI: i64> Deserialize<'de> for Int<LO, HI> {
     }
 }
 
+/// A model field read through the checking type `C` (`Int`, `Text`...):
+/// `#[serde(deserialize_with = "de::via::<Int<1, 65535>, _, _>")]` on a plain `u16`.
+pub(crate) fn via<'de, C: Deserialize<'de> + Into<T>, T, D: Deserializer<'de>>(
+    d: D,
+) -> Result<T, D::Error> {
+    C::deserialize(d).map(Into::into)
+}
+
+/// `via` for an optional model field (absent stays `None`, with `#[serde(default)]`).
+pub(crate) fn via_opt<'de, C: Deserialize<'de> + Into<T>, T, D: Deserializer<'de>>(
+    d: D,
+) -> Result<Option<T>, D::Error> {
+    C::deserialize(d).map(|c| Some(c.into()))
+}
+
+macro_rules! int_into {
+    ($($t:ty),*) => {$(
+        impl<const LO: i64, const HI: i64> From<Int<LO, HI>> for $t {
+            /// In range by construction (`LO..=HI` fits the field's type).
+            fn from(n: Int<LO, HI>) -> $t {
+                n.0 as $t
+            }
+        }
+    )*};
+}
+int_into!(u8, u16, u32, u64, usize, i64);
+
+impl From<Pair> for (f64, f64) {
+    fn from(p: Pair) -> (f64, f64) {
+        (p.0, p.1)
+    }
+}
+
+impl From<Text> for String {
+    fn from(t: Text) -> String {
+        t.0
+    }
+}
+
+impl From<Text> for std::path::PathBuf {
+    fn from(t: Text) -> std::path::PathBuf {
+        t.0.into()
+    }
+}
+
 /// A string that is not blank ("is empty" otherwise).
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub(crate) struct Text(pub String);
@@ -357,6 +418,34 @@ impl<'de, const LO: i64> Deserialize<'de> for AtLeast<LO> {
         )))
     }
 }
+
+/// A finite number above `LO` and at most `HI` ("is 0, expected a number > 0 and at most 8784"
+/// otherwise).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Within<const LO: i64, const HI: i64>(pub f64);
+
+impl<'de, const LO: i64, const HI: i64> Deserialize<'de> for Within<LO, HI> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let Num(n) = Num::deserialize(d)?;
+        if n > LO as f64 && n <= HI as f64 {
+            return Ok(Within(n));
+        }
+        Err(de::Error::custom(format!(
+            "is {n}, expected a number > {LO} and at most {HI}"
+        )))
+    }
+}
+
+macro_rules! number_into {
+    ($($t:ident $(<$($c:ident),*>)?),*) => {$(
+        impl$(<$(const $c: i64),*>)? From<$t$(<$($c),*>)?> for f64 {
+            fn from(n: $t$(<$($c),*>)?) -> f64 {
+                n.0
+            }
+        }
+    )*};
+}
+number_into!(Num, Above<LO>, AtLeast<LO>, Within<LO, HI>);
 
 #[cfg(test)]
 mod tests {

@@ -25,9 +25,9 @@ use super::problem::Cx;
 use super::reader::Tbl;
 use super::site::Pos;
 use crate::objkind::ObjectKind;
-use values::Reader;
 
 pub(crate) use refs::{problem as reference_problem, resolve, Known};
+pub(crate) use values::Reader;
 
 /// The object tables of a site file, as written (`[[nest]]` ...), from the registry.
 pub(crate) const TABLES: [&str; ObjectKind::ALL.len()] = {

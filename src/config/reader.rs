@@ -103,6 +103,13 @@ impl<'t> Tbl<'t> {
         value
     }
 
+    /// A "missing key" problem at the table header for each of `keys` not written.
+    pub fn require(&self, cx: &mut Cx<'_>, keys: &[&str]) {
+        for key in keys.iter().filter(|k| !self.has(k)) {
+            self.missing(cx, key, "");
+        }
+    }
+
     /// A problem when the lower bound `(min_key, min)` is above the upper `(max_key, max)`,
     /// located at the one of the two keys written (the lower when both are).
     pub fn min_max(

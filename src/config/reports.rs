@@ -5,7 +5,6 @@
 //! contact lists that exist in the same site) are in `cross_check`, called by `load`, which
 //! also resolves `out_dir` through `finish`. Computing due times is `report::schedule`'s job.
 
-use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
 use chrono::{NaiveTime, Weekday};
@@ -14,7 +13,7 @@ use serde::Deserialize;
 
 use super::de::{self, Int, Text};
 use super::model::{Every, Formats, ReportSchedule};
-use super::problem::{Cx, Problem};
+use super::problem::{again, Cx, FirstSeen, Problem};
 use super::reader::Tbl;
 use super::site::Pos;
 use super::smtp::plain_address;
@@ -181,33 +180,23 @@ pub(crate) struct SiteReports<'a> {
 
 /// Unique report ids across sites; contact lists named by a report exist in its site.
 pub(crate) fn cross_check(files: &[SiteReports<'_>], problems: &mut Vec<Problem>) {
-    let mut seen: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
-    let problem = |file: &Path, pos: Pos, message: String| Problem {
-        file: file.to_path_buf(),
-        line: pos.0,
-        column: pos.1,
-        message,
-    };
+    let mut seen = FirstSeen::new();
     for f in files {
         for e in f.entries {
             if let Some((id, pos)) = &e.id {
-                if let Some((f0, p0)) = seen.get(id.as_str()) {
-                    problems.push(problem(
+                if let Some((at, ())) = again(&mut seen, id, (f.file, *pos), ()) {
+                    problems.push(Problem::at(
                         f.file,
                         *pos,
                         format!(
-                            "report id {id:?} is already used at {}:{}; expected report ids unique across all sites",
-                            f0.display(),
-                            p0.0
+                            "report id {id:?} is already used at {at}; expected report ids unique across all sites"
                         ),
                     ));
-                } else {
-                    seen.insert(id, (f.file, *pos));
                 }
             }
             for (name, pos) in &e.contacts {
                 if !f.contact_lists.contains(name) {
-                    problems.push(problem(
+                    problems.push(Problem::at(
                         f.file,
                         *pos,
                         format!(

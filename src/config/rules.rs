@@ -6,8 +6,8 @@
 //! no-data bounds from the instrument's interval) are in `cross_check` and `finish`, called by
 //! `load`.
 
-use std::collections::{BTreeMap, BTreeSet};
-use std::path::{Path, PathBuf};
+use std::collections::BTreeSet;
+use std::path::PathBuf;
 
 use serde::Deserialize;
 
@@ -17,7 +17,7 @@ use super::alerting::{Contacts, Policy, Rule, SiteAlerting};
 use super::de::{self, Int, Nested, Num, Text};
 use super::limits;
 use super::model::{Config, Instrument};
-use super::problem::{Cx, Problem};
+use super::problem::{again, Cx, FirstSeen, Problem};
 use super::reader::{found_item, Tbl};
 use super::site::Pos;
 use super::smtp::plain_address;
@@ -440,20 +440,12 @@ pub(crate) fn cross_check(
     objects: &BTreeSet<String>,
     problems: &mut Vec<Problem>,
 ) {
-    let mut ids: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
-    let problem = |file: &Path, pos: Pos, message: String| Problem {
-        file: file.to_path_buf(),
-        line: pos.0,
-        column: pos.1,
-        message,
-    };
+    let mut ids = FirstSeen::new();
     for (file, sr) in files {
         for e in &sr.rules {
             if let Some((id, pos)) = &e.id {
-                if let Some((f0, p0)) = ids.get(id.as_str()) {
-                    problems.push(problem(file, *pos, format!("rule id {id:?} is already used at {}:{}; expected rule ids unique across all sites", f0.display(), p0.0)));
-                } else {
-                    ids.insert(id, (file, *pos));
+                if let Some((at, ())) = again(&mut ids, id, (file, *pos), ()) {
+                    problems.push(Problem::at(file, *pos, format!("rule id {id:?} is already used at {at}; expected rule ids unique across all sites")));
                 }
             }
             let (Some((object, pos)), Some(q)) = (&e.object, &e.quantity) else {
@@ -470,7 +462,7 @@ pub(crate) fn cross_check(
                 None
             };
             if let Some(m) = message {
-                problems.push(problem(file, *pos, m));
+                problems.push(Problem::at(file, *pos, m));
             }
         }
     }

@@ -11,10 +11,10 @@ use std::collections::BTreeMap;
 
 use serde::Deserialize;
 
-use super::de::{self, Int, Num, Text};
+use super::de::{self, Int, Num, Text, Within};
 use super::limits;
 use super::model::{HealthSettings, HstSpec, RateSpan, SiteTrends, StageResponseSpec};
-use super::objects::{reference_problem, Known, Ref, Want};
+use super::objects::{reference_problem, Known, Reader, Ref, Want};
 use super::problem::Cx;
 use super::reader::Tbl;
 use super::site::Pos;
@@ -31,20 +31,6 @@ struct RawTrends {
     max_points: Option<Int<2, 5000>>,
 }
 
-/// `[health]` as written; defaults are `HealthSettings::default()`, checks in `health`.
-#[derive(Deserialize)]
-struct RawHealth {
-    spike_window: Option<Int<3, 10_000>>,
-    spike_k: Option<Num>,
-    spike_floor: Option<Num>,
-    flatline_count: Option<Int<2, 10_000>>,
-    flatline_tolerance: Option<Num>,
-    no_data_factor: Option<Num>,
-    thermistor_range: Option<de::Pair>,
-    thermistor_max_jump: Option<Num>,
-    use_flagged: Option<bool>,
-}
-
 /// `[[stage_response]]` as written.
 #[derive(Deserialize, Default)]
 struct RawStageResponse {
@@ -52,10 +38,10 @@ struct RawStageResponse {
     _id: Option<Text>,
     piezometer: Option<Text>,
     stage_gauge: Option<Text>,
-    training_days: Option<Num>,
+    training_days: Option<Within<0, { limits::TRAINING_DAYS as i64 }>>,
     lag_range_h: Option<de::Pair>,
-    lag_step_h: Option<Num>,
-    refit_interval_h: Option<Num>,
+    lag_step_h: Option<Hours>,
+    refit_interval_h: Option<Hours>,
 }
 
 /// `[[hst]]` as written.
@@ -66,8 +52,11 @@ struct RawHst {
     instrument: Option<Text>,
     reservoir_gauge: Option<Text>,
     degree: Option<Int<1, 4>>,
-    refit_interval_h: Option<Num>,
+    refit_interval_h: Option<Hours>,
 }
+
+/// Hours, more than 0 and at most a year.
+type Hours = Within<0, { limits::YEAR_S / 3600 }>;
 
 /// Defaults of a `[[stage_response]]` table.
 const DEFAULT_TRAINING_DAYS: f64 = 30.0;
@@ -126,8 +115,13 @@ pub(crate) fn read(
     }
     if let Some(mut t) = root.sub(cx, "health", "[health]") {
         t.what = "[health]".into();
-        if let Some(r) = de::table::<RawHealth>(cx, &t) {
-            s.health = health(cx, &t, r, m_per_unit);
+        if let Some(h) = de::table::<HealthSettings>(cx, &t) {
+            let written = t.has("spike_floor");
+            let floor_m = h.spike_floor_m * if written { m_per_unit } else { 1.0 };
+            s.health = HealthSettings {
+                spike_floor_m: floor_m,
+                ..h
+            };
         }
     }
     let settings = Some(s).filter(|_| cx.problems.len() == before);
@@ -197,83 +191,16 @@ pub(crate) fn duration_s(text: &str) -> Option<i64> {
     Some(n * per)
 }
 
-/// A number > `lo` and <= `hi` under `key`, or `default`.
-fn within(
-    cx: &mut Cx<'_>,
-    t: &Tbl<'_>,
-    (key, v): (&str, Option<Num>),
-    lo: f64,
-    hi: f64,
-    default: f64,
-) -> f64 {
-    let expected = format!("a number > {lo} and at most {hi}");
-    checked(cx, t, key, v, (|v| v > lo && v <= hi, &expected)).unwrap_or(default)
-}
-
-/// The number under `key` when `ok` accepts it; a problem naming what is `expected` otherwise.
-fn checked(
-    cx: &mut Cx<'_>,
-    t: &Tbl<'_>,
-    key: &str,
-    v: Option<Num>,
-    (ok, expected): (impl Fn(f64) -> bool, &str),
-) -> Option<f64> {
-    let Num(v) = v?;
-    if ok(v) {
-        return Some(v);
+/// `no_data_factor`: a multiple of the instrument's interval, 1 to `limits::NO_DATA_FACTOR`.
+pub(crate) fn no_data_factor<'de, D: serde::Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+    let Num(v) = Num::deserialize(d)?;
+    if (1.0..=limits::NO_DATA_FACTOR).contains(&v) {
+        return Ok(v);
     }
-    t.problem_at(
-        cx,
-        key,
-        format!("key \"{key}\" is {v}, expected {expected}"),
-    );
-    None
-}
-
-fn health(cx: &mut Cx<'_>, t: &Tbl<'_>, r: RawHealth, m: f64) -> HealthSettings {
-    let d = HealthSettings::default();
-    let nonneg = (|v: f64| v >= 0.0, "a number >= 0");
-    let positive = (|v: f64| v > 0.0, "a number > 0");
-    let factor = format!(
-        "a number >= 1 and at most {} (a multiple of the instrument's interval_s)",
+    Err(serde::de::Error::custom(format!(
+        "is {v}, expected a number >= 1 and at most {} (a multiple of the instrument's interval_s)",
         limits::NO_DATA_FACTOR
-    );
-    let factor_ok = |v: f64| (1.0..=limits::NO_DATA_FACTOR).contains(&v);
-    let spike_floor = checked(cx, t, "spike_floor", r.spike_floor, nonneg);
-    let max_jump = checked(
-        cx,
-        t,
-        "thermistor_max_jump",
-        r.thermistor_max_jump,
-        positive,
-    );
-    HealthSettings {
-        spike_window: r.spike_window.map_or(d.spike_window, |n| n.0 as usize),
-        spike_k: checked(cx, t, "spike_k", r.spike_k, positive).unwrap_or(d.spike_k),
-        spike_floor_m: spike_floor.map_or(d.spike_floor_m, |v| v * m),
-        flatline_count: r.flatline_count.map_or(d.flatline_count, |n| n.0 as usize),
-        // In the raw value's own unit (it differs by instrument), so no length conversion.
-        flatline_tolerance_raw: checked(cx, t, "flatline_tolerance", r.flatline_tolerance, nonneg)
-            .unwrap_or(d.flatline_tolerance_raw),
-        no_data_factor: checked(
-            cx,
-            t,
-            "no_data_factor",
-            r.no_data_factor,
-            (factor_ok, &factor),
-        )
-        .unwrap_or(d.no_data_factor),
-        thermistor_range_c: r
-            .thermistor_range
-            .map_or(d.thermistor_range_c, |p| (p.0, p.1)),
-        thermistor_max_jump_c: max_jump.unwrap_or(d.thermistor_max_jump_c),
-        use_flagged: r.use_flagged.unwrap_or(d.use_flagged),
-    }
-}
-
-/// `refit_interval_h`: hours, more than 0 and at most a year.
-fn refit_h(cx: &mut Cx<'_>, t: &Tbl<'_>, v: Option<Num>, default: f64) -> f64 {
-    within(cx, t, ("refit_interval_h", v), 0.0, limits::YEAR_H, default)
+    )))
 }
 
 /// Hours (a number, as written) to whole seconds.
@@ -291,33 +218,20 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
         t.what = format!("{table} {id:?}");
     }
     let id_pos = cx.pos(t.value_span("id"));
-    let mut refs = Vec::new();
-    let mut reference = |cx: &mut Cx<'_>, t: &Tbl<'_>, key: &'static str, v: Option<Text>, want| {
-        let found = t.need(cx, key, v)?.0;
-        let pos = cx.pos(t.value_span(key));
-        refs.push(Ref {
-            key,
-            id: found.clone(),
-            pos,
-            want,
-        });
-        Some(found)
+    let mut r = Reader {
+        t,
+        m: 1.0,
+        refs: Vec::new(),
     };
     let name = id.clone().unwrap_or_default();
     let model = if table == "stage_response" {
-        let r: RawStageResponse = de::table(cx, &t).unwrap_or_default();
-        let _ = t.need(cx, "id", id.as_ref());
-        let piezometer = reference(cx, &t, "piezometer", r.piezometer, Want::Piezometer);
-        let gauge = reference(cx, &t, "stage_gauge", r.stage_gauge, Want::StageGauge);
-        let training = within(
-            cx,
-            &t,
-            ("training_days", r.training_days),
-            0.0,
-            limits::TRAINING_DAYS,
-            DEFAULT_TRAINING_DAYS,
-        );
-        let (lo, hi) = r.lag_range_h.map_or(DEFAULT_LAG_RANGE_H, |p| (p.0, p.1));
+        let raw: RawStageResponse = de::table(cx, &r.t).unwrap_or_default();
+        let _ = r.t.need(cx, "id", id.as_ref());
+        let piezometer = r.reference(cx, "piezometer", raw.piezometer, true, Want::Piezometer);
+        let gauge = r.reference(cx, "stage_gauge", raw.stage_gauge, true, Want::StageGauge);
+        let t = &r.t;
+        let training = raw.training_days.map_or(DEFAULT_TRAINING_DAYS, |d| d.0);
+        let (lo, hi) = raw.lag_range_h.map_or(DEFAULT_LAG_RANGE_H, |p| (p.0, p.1));
         if lo < 0.0 || hi > limits::YEAR_H {
             t.problem_at(
                 cx,
@@ -328,19 +242,12 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
                 ),
             );
         }
-        let step = within(
-            cx,
-            &t,
-            ("lag_step_h", r.lag_step_h),
-            0.0,
-            limits::YEAR_H,
-            DEFAULT_LAG_STEP_H,
-        );
+        let step = raw.lag_step_h.map_or(DEFAULT_LAG_STEP_H, |h| h.0);
         let range_ok = lo >= 0.0 && hi <= limits::YEAR_H;
         if range_ok && (hi - lo) / step > MAX_LAGS {
             t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
         }
-        let refit = refit_h(cx, &t, r.refit_interval_h, DEFAULT_STAGE_RESPONSE_REFIT_H);
+        let refit = raw.refit_interval_h.map_or(DEFAULT_STAGE_RESPONSE_REFIT_H, |h| h.0);
         match (piezometer, gauge) {
             (Some(piezometer), Some(stage_gauge)) => {
                 Some(Model::StageResponse(StageResponseSpec {
@@ -358,18 +265,12 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
             _ => None,
         }
     } else {
-        let r: RawHst = de::table(cx, &t).unwrap_or_default();
-        let _ = t.need(cx, "id", id.as_ref());
-        let instrument = reference(cx, &t, "instrument", r.instrument, Want::Piezometer);
-        let gauge = reference(
-            cx,
-            &t,
-            "reservoir_gauge",
-            r.reservoir_gauge,
-            Want::StageGauge,
-        );
-        let degree = r.degree.map_or(DEFAULT_HST_DEGREE, |d| d.0) as usize;
-        let refit = refit_h(cx, &t, r.refit_interval_h, DEFAULT_HST_REFIT_H);
+        let raw: RawHst = de::table(cx, &r.t).unwrap_or_default();
+        let _ = r.t.need(cx, "id", id.as_ref());
+        let instrument = r.reference(cx, "instrument", raw.instrument, true, Want::Piezometer);
+        let gauge = r.reference(cx, "reservoir_gauge", raw.reservoir_gauge, true, Want::StageGauge);
+        let degree = raw.degree.map_or(DEFAULT_HST_DEGREE, |d| d.0) as usize;
+        let refit = raw.refit_interval_h.map_or(DEFAULT_HST_REFIT_H, |h| h.0);
         match (instrument, gauge) {
             (Some(instrument), Some(reservoir_gauge)) => Some(Model::Hst(HstSpec {
                 id: name,
@@ -385,9 +286,9 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
     let ok = id.is_some() && cx.problems.len() == before;
     ModelEntry {
         table,
-        what: t.what.clone(),
+        what: r.t.what.clone(),
         id: id.map(|s| (s, id_pos)),
-        refs,
+        refs: r.refs,
         model: model.filter(|_| ok),
     }
 }

@@ -35,7 +35,7 @@ impl<const LO: i64> Number for AtLeast<LO> {
 }
 
 /// One object table being read, with the references found so far.
-pub(super) struct Reader<'t> {
+pub(crate) struct Reader<'t> {
     pub t: Tbl<'t>,
     /// Metres per unit of the site's `length_unit`.
     pub m: f64,
@@ -67,7 +67,7 @@ impl Reader<'_> {
     }
 
     /// One instrument id under `key`, recorded as a reference.
-    pub(super) fn reference(
+    pub(crate) fn reference(
         &mut self,
         cx: &mut Cx<'_>,
         key: &'static str,
