@@ -23,7 +23,7 @@ use super::rules;
 use super::section_model;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
-use super::trends::{self, Model};
+use super::trends::Model;
 use crate::objkind::ObjectKind;
 
 pub use super::problem::{Problem, Problems};
@@ -375,7 +375,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
         for (table, id) in sf
             .objects
             .iter()
-            .map(|o| (o.kind.table(), &o.id))
+            .map(|o| (o.table, &o.id))
             .chain(models)
         {
             let Some((id, pos)) = id else { continue };
@@ -421,7 +421,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
     for (file, sf) in sites {
         trends.sites.extend(sf.trends.settings.clone());
         for m in &sf.trends.models {
-            let (found, model) = trends::resolve(m, site_of(sf), &known);
+            let (found, model) = objects::resolve(m, site_of(sf), &known);
             problems.extend(found.into_iter().map(|(pos, m)| Problem::at(file, pos, m)));
             match model {
                 Some(Model::StageResponse(r)) => trends.stage_responses.push(r),

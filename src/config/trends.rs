@@ -3,21 +3,18 @@
 //! in metres).
 //!
 //! Owns those keys, their defaults and ranges. Like `objects`, it must not decide what a
-//! reference names: each model's instrument references are recorded and settled by `resolve`
-//! once every site file is read (through `objects`' reference checks), and `load` checks that
-//! model ids are unique among instruments and objects.
-
-use std::collections::BTreeMap;
+//! reference names: a model table is read as an object table is (`objects::entry`), its
+//! instrument references settled by `objects::resolve` once every site file is read, and `load`
+//! checks that model ids are unique among instruments and objects.
 
 use serde::Deserialize;
 
 use super::de::{self, Int, Num, Text, Within};
 use super::limits;
 use super::model::{HealthSettings, HstSpec, RateSpan, SiteTrends, StageResponseSpec};
-use super::objects::{reference_problem, Known, Reader, Ref, Want};
+use super::objects::{entry, Entry, Read, Reader, Settle, Want};
 use super::problem::Cx;
 use super::reader::Tbl;
-use super::site::Pos;
 
 /// The tables of a site file read here, as written.
 pub(crate) const TABLES: [&str; 4] = ["trends", "health", "stage_response", "hst"];
@@ -34,8 +31,7 @@ struct RawTrends {
 /// `[[stage_response]]` as written.
 #[derive(Deserialize, Default)]
 struct RawStageResponse {
-    #[serde(rename = "id")]
-    _id: Option<Text>,
+    id: Option<Text>,
     piezometer: Option<Text>,
     stage_gauge: Option<Text>,
     training_days: Option<Within<0, { limits::TRAINING_DAYS as i64 }>>,
@@ -47,8 +43,7 @@ struct RawStageResponse {
 /// `[[hst]]` as written.
 #[derive(Deserialize, Default)]
 struct RawHst {
-    #[serde(rename = "id")]
-    _id: Option<Text>,
+    id: Option<Text>,
     instrument: Option<Text>,
     reservoir_gauge: Option<Text>,
     degree: Option<Int<1, 4>>,
@@ -76,17 +71,14 @@ pub(crate) enum Model {
     Hst(HstSpec),
 }
 
-/// What `load` needs of one `[[stage_response]]` or `[[hst]]` table.
-pub(crate) struct ModelEntry {
-    /// `stage_response` or `hst`.
-    pub table: &'static str,
-    /// How messages name it, e.g. `stage_response "AB-RESP-1B"`.
-    pub what: String,
-    pub id: Option<(String, Pos)>,
-    pub refs: Vec<Ref>,
-    /// The model, if its own table had no problems (already reported).
-    pub model: Option<Model>,
+impl Settle for Model {
+    fn settle(self, _: Option<i64>) -> Option<Self> {
+        Some(self)
+    }
 }
+
+/// What `load` needs of one `[[stage_response]]` or `[[hst]]` table.
+pub(crate) type ModelEntry = Entry<Model>;
 
 /// The trend tables of one site file.
 pub(crate) struct SiteTrendsEntry {
@@ -128,7 +120,7 @@ pub(crate) fn read(
     let mut models = Vec::new();
     for table in ["stage_response", "hst"] {
         for t in root.tables(cx, table) {
-            models.push(model(cx, t, table, site));
+            models.push(entry(cx, t, table, 1.0, |cx, r| model(cx, r, site)));
         }
     }
     SiteTrendsEntry { settings, models }
@@ -208,25 +200,11 @@ fn hours_s(h: f64) -> i64 {
     (h * 3600.0).round() as i64
 }
 
-fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> ModelEntry {
-    let before = cx.problems.len();
-    let id = t
-        .peek_str("id")
-        .filter(|id| !id.trim().is_empty())
-        .map(String::from);
-    if let Some(id) = &id {
-        t.what = format!("{table} {id:?}");
-    }
-    let id_pos = cx.pos(t.value_span("id"));
-    let mut r = Reader {
-        t,
-        m: 1.0,
-        refs: Vec::new(),
-    };
-    let name = id.clone().unwrap_or_default();
-    let model = if table == "stage_response" {
+/// One `[[stage_response]]` or `[[hst]]` table (`r.t.header` tells which).
+fn model(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &str) -> Read<Model> {
+    let name = r.t.peek_str("id").unwrap_or_default().to_string();
+    if r.t.header == "[[stage_response]]" {
         let raw: RawStageResponse = de::table(cx, &r.t).unwrap_or_default();
-        let _ = r.t.need(cx, "id", id.as_ref());
         let piezometer = r.reference(cx, "piezometer", raw.piezometer, true, Want::Piezometer);
         let gauge = r.reference(cx, "stage_gauge", raw.stage_gauge, true, Want::StageGauge);
         let t = &r.t;
@@ -248,7 +226,7 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
             t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
         }
         let refit = raw.refit_interval_h.map_or(DEFAULT_STAGE_RESPONSE_REFIT_H, |h| h.0);
-        match (piezometer, gauge) {
+        let model = match (piezometer, gauge) {
             (Some(piezometer), Some(stage_gauge)) => {
                 Some(Model::StageResponse(StageResponseSpec {
                     id: name,
@@ -263,15 +241,19 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
                 }))
             }
             _ => None,
+        };
+        Read {
+            id: raw.id,
+            tolerance_s: None,
+            object: model,
         }
     } else {
         let raw: RawHst = de::table(cx, &r.t).unwrap_or_default();
-        let _ = r.t.need(cx, "id", id.as_ref());
         let instrument = r.reference(cx, "instrument", raw.instrument, true, Want::Piezometer);
         let gauge = r.reference(cx, "reservoir_gauge", raw.reservoir_gauge, true, Want::StageGauge);
         let degree = raw.degree.map_or(DEFAULT_HST_DEGREE, |d| d.0) as usize;
         let refit = raw.refit_interval_h.map_or(DEFAULT_HST_REFIT_H, |h| h.0);
-        match (instrument, gauge) {
+        let model = match (instrument, gauge) {
             (Some(instrument), Some(reservoir_gauge)) => Some(Model::Hst(HstSpec {
                 id: name,
                 site: site.into(),
@@ -281,34 +263,13 @@ fn model(cx: &mut Cx<'_>, mut t: Tbl<'_>, table: &'static str, site: &str) -> Mo
                 refit_s: hours_s(refit).max(1),
             })),
             _ => None,
+        };
+        Read {
+            id: raw.id,
+            tolerance_s: None,
+            object: model,
         }
-    };
-    let ok = id.is_some() && cx.problems.len() == before;
-    ModelEntry {
-        table,
-        what: r.t.what.clone(),
-        id: id.map(|s| (s, id_pos)),
-        refs: r.refs,
-        model: model.filter(|_| ok),
     }
-}
-
-/// Check a model's references against every known id (`site`: the model's site). Returns the
-/// problems (position, message) and the model when there were none.
-pub(crate) fn resolve(
-    e: &ModelEntry,
-    site: &str,
-    ids: &BTreeMap<&str, Known<'_>>,
-) -> (Vec<(Pos, String)>, Option<Model>) {
-    let problems: Vec<(Pos, String)> = e
-        .refs
-        .iter()
-        .filter_map(|r| {
-            reference_problem(&e.what, site, r, ids.get(r.id.as_str())).map(|m| (r.pos, m))
-        })
-        .collect();
-    let model = e.model.clone().filter(|_| problems.is_empty());
-    (problems, model)
 }
 
 #[cfg(test)]
