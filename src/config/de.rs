@@ -387,65 +387,50 @@ impl<'de> de::Visitor<'de> for TextOf {
     }
 }
 
-/// A finite number above `LO` ("is 0, expected a number > 0" otherwise).
+/// A finite number above `LO` (`OPEN`) or of at least `LO`, and at most `HI` (unbounded at
+/// `i64::MAX`): "is 0, expected a number > 0" (`Above`), "is -1, expected a number >= 0"
+/// (`AtLeast`), "is 0, expected a number > 0 and at most 8784" (`Within`) otherwise.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Above<const LO: i64>(pub f64);
+pub(crate) struct Bounded<const LO: i64, const HI: i64, const OPEN: bool>(pub f64);
 
-impl<'de, const LO: i64> Deserialize<'de> for Above<LO> {
+/// A finite number above `LO`.
+pub(crate) type Above<const LO: i64> = Bounded<LO, { i64::MAX }, true>;
+/// A finite number of at least `LO`.
+pub(crate) type AtLeast<const LO: i64> = Bounded<LO, { i64::MAX }, false>;
+/// A finite number above `LO` and at most `HI`.
+pub(crate) type Within<const LO: i64, const HI: i64> = Bounded<LO, HI, true>;
+
+impl<'de, const LO: i64, const HI: i64, const OPEN: bool> Deserialize<'de>
+    for Bounded<LO, HI, OPEN>
+{
     fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
         let Num(n) = Num::deserialize(d)?;
-        if n > LO as f64 {
-            return Ok(Above(n));
+        let (lo, hi) = (LO as f64, HI as f64);
+        if (n > lo || (!OPEN && n == lo)) && (HI == i64::MAX || n <= hi) {
+            return Ok(Bounded(n));
         }
-        Err(de::Error::custom(format!(
-            "is {n}, expected a number > {LO}"
-        )))
+        let above = if OPEN { ">" } else { ">=" };
+        let most = if HI == i64::MAX {
+            String::new()
+        } else {
+            format!(" and at most {HI}")
+        };
+        let message = format!("is {n}, expected a number {above} {LO}{most}");
+        Err(de::Error::custom(message))
     }
 }
 
-/// A finite number of at least `LO` ("is -1, expected a number >= 0" otherwise).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct AtLeast<const LO: i64>(pub f64);
-
-impl<'de, const LO: i64> Deserialize<'de> for AtLeast<LO> {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let Num(n) = Num::deserialize(d)?;
-        if n >= LO as f64 {
-            return Ok(AtLeast(n));
-        }
-        Err(de::Error::custom(format!(
-            "is {n}, expected a number >= {LO}"
-        )))
+impl<const LO: i64, const HI: i64, const OPEN: bool> From<Bounded<LO, HI, OPEN>> for f64 {
+    fn from(n: Bounded<LO, HI, OPEN>) -> f64 {
+        n.0
     }
 }
 
-/// A finite number above `LO` and at most `HI` ("is 0, expected a number > 0 and at most 8784"
-/// otherwise).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Within<const LO: i64, const HI: i64>(pub f64);
-
-impl<'de, const LO: i64, const HI: i64> Deserialize<'de> for Within<LO, HI> {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let Num(n) = Num::deserialize(d)?;
-        if n > LO as f64 && n <= HI as f64 {
-            return Ok(Within(n));
-        }
-        Err(de::Error::custom(format!(
-            "is {n}, expected a number > {LO} and at most {HI}"
-        )))
+impl From<Num> for f64 {
+    fn from(n: Num) -> f64 {
+        n.0
     }
 }
-
-macro_rules! number_into {
-    ($($t:ident $(<$($c:ident),*>)?),*) => {$(
-        impl$(<$(const $c: i64),*>)? From<$t$(<$($c),*>)?> for f64 {
-            fn from(n: $t$(<$($c),*>)?) -> f64 {
-                n.0
-            }
-        }
-    )*};
-}
-number_into!(Num, Above<LO>, AtLeast<LO>, Within<LO, HI>);
 
 #[cfg(test)]
 mod tests {

@@ -286,6 +286,12 @@ impl<'t> Tbl<'t> {
         Tbl::new(cx, item, self.what.clone(), header)
     }
 
+    /// A sub-table that messages name by its own header (`[mqtt.tls]`), if present.
+    pub fn part(&self, cx: &mut Cx<'_>, key: &str, header: &str) -> Option<Tbl<'t>> {
+        let item = self.table.get(key)?;
+        Tbl::new(cx, item, header, header)
+    }
+
     /// The `[[key]]` tables, named `key #1`, `key #2`... in messages (callers rename them once
     /// they know an id). A problem if `key` holds something else; empty when absent.
     pub fn tables(&self, cx: &mut Cx<'_>, key: &str) -> Vec<Tbl<'t>> {

@@ -67,11 +67,8 @@ pub(crate) struct SiteRules {
 /// only levels some rule of the site defines (a problem otherwise: that list would never hear
 /// of the level it meant); a rule level no contact list receives is a warning.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
-    let policy = match root.sub(cx, "alerting", "[alerting]") {
-        Some(mut t) => {
-            t.what = "[alerting]".into();
-            read_policy(cx, &t)
-        }
+    let policy = match root.part(cx, "alerting", "[alerting]") {
+        Some(t) => read_policy(cx, &t),
         None => Policy::default(),
     };
     let rule_tables = root.tables(cx, "rule");

@@ -96,8 +96,7 @@ pub(crate) fn read(
 ) -> SiteTrendsEntry {
     let before = cx.problems.len();
     let mut s = SiteTrends::defaults(site);
-    if let Some(mut t) = root.sub(cx, "trends", "[trends]") {
-        t.what = "[trends]".into();
+    if let Some(t) = root.part(cx, "trends", "[trends]") {
         if let Some(r) = de::table::<RawTrends>(cx, &t) {
             if let Some(w) = rate_windows(cx, &t) {
                 s.rate_windows = w;
@@ -105,8 +104,7 @@ pub(crate) fn read(
             s.max_points = r.max_points.map_or(96, |n| n.0 as usize);
         }
     }
-    if let Some(mut t) = root.sub(cx, "health", "[health]") {
-        t.what = "[health]".into();
+    if let Some(t) = root.part(cx, "health", "[health]") {
         if let Some(h) = de::table::<HealthSettings>(cx, &t) {
             let written = t.has("spike_floor");
             let floor_m = h.spike_floor_m * if written { m_per_unit } else { 1.0 };
