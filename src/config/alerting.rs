@@ -50,19 +50,25 @@ pub struct Rule {
     pub spec: Spec,
 }
 
-/// How a site's alerts are sent.
-#[derive(Debug, Clone)]
+/// How a site's alerts are sent (`[alerting]`, read straight into this; written in seconds).
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct Policy {
     /// Notices waiting this long are sent together in one message (ms; 0: at once).
+    #[serde(rename = "bundle_window_s", deserialize_with = "de::ms::<3600, _>")]
     pub bundle_window_ms: i64,
     /// Reminder interval while active and unacknowledged (ms); `None`: no reminders.
+    #[serde(rename = "remind_every_s", deserialize_with = "de::ms_or_never")]
     pub remind_every_ms: Option<i64>,
     /// The escalation lists are told when an alert is not acknowledged within this (ms).
+    #[serde(rename = "escalate_after_s", deserialize_with = "de::ms_or_never")]
     pub escalate_after_ms: Option<i64>,
     /// Link printed in every message (a placeholder until a status page exists).
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub status_url: String,
     /// A rule's derived value without a value (its inputs missing, stale or rejected) this
     /// long is itself an alert, "safety value unavailable" (ms; `None`: never).
+    #[serde(rename = "unavailable_after_s", deserialize_with = "de::ms_or_never")]
     pub unavailable_after_ms: Option<i64>,
 }
 

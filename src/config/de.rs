@@ -241,6 +241,16 @@ pub(crate) fn via_opt<'de, C: Deserialize<'de> + Into<T>, T, D: Deserializer<'de
     C::deserialize(d).map(|c| Some(c.into()))
 }
 
+/// Seconds as written (0 to `HI`), in milliseconds.
+pub(crate) fn ms<'de, const HI: i64, D: Deserializer<'de>>(d: D) -> Result<i64, D::Error> {
+    Int::<0, HI>::deserialize(d).map(|s| s.0 * 1000)
+}
+
+/// Seconds as written (at most a year), in milliseconds; 0 is never (`None`).
+pub(crate) fn ms_or_never<'de, D: Deserializer<'de>>(d: D) -> Result<Option<i64>, D::Error> {
+    ms::<{ super::limits::YEAR_S }, D>(d).map(|ms| Some(ms).filter(|ms| *ms > 0))
+}
+
 macro_rules! int_into {
     ($($t:ty),*) => {$(
         impl<const LO: i64, const HI: i64> From<Int<LO, HI>> for $t {

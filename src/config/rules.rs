@@ -68,7 +68,7 @@ pub(crate) struct SiteRules {
 /// of the level it meant); a rule level no contact list receives is a warning.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
     let policy = match root.part(cx, "alerting", "[alerting]") {
-        Some(t) => read_policy(cx, &t),
+        Some(t) => de::table(cx, &t).unwrap_or_default(),
         None => Policy::default(),
     };
     let rule_tables = root.tables(cx, "rule");
@@ -128,36 +128,6 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
             contacts,
             warnings,
         },
-    }
-}
-
-fn millis(s: Option<i64>) -> Option<i64> {
-    s.filter(|s| *s > 0).map(|s| s * 1000)
-}
-
-/// `[alerting]` as written; defaults are `Policy::default()`.
-#[derive(Deserialize)]
-struct RawPolicy {
-    bundle_window_s: Option<Int<0, 3600>>,
-    remind_every_s: Option<Int<0, { limits::YEAR_S }>>,
-    escalate_after_s: Option<Int<0, { limits::YEAR_S }>>,
-    status_url: Option<Text>,
-    unavailable_after_s: Option<Int<0, { limits::YEAR_S }>>,
-}
-
-fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
-    let d = Policy::default();
-    let Some(r) = de::table::<RawPolicy>(cx, t) else {
-        return d;
-    };
-    let ms =
-        |v: Option<Int<0, { limits::YEAR_S }>>, default| v.map_or(default, |s| millis(Some(s.0)));
-    Policy {
-        bundle_window_ms: r.bundle_window_s.map_or(d.bundle_window_ms, |s| s.0 * 1000),
-        remind_every_ms: ms(r.remind_every_s, d.remind_every_ms),
-        escalate_after_ms: ms(r.escalate_after_s, d.escalate_after_ms),
-        status_url: r.status_url.map_or(d.status_url, |u| u.0),
-        unavailable_after_ms: ms(r.unavailable_after_s, d.unavailable_after_ms),
     }
 }
 
