@@ -7,7 +7,7 @@ use std::path::PathBuf;
 
 use crate::domain::rules::Spec;
 
-use super::de::{self, Int, Text};
+use super::de::{self, Int, Strings, Text};
 use super::limits;
 use super::model::Secret;
 
@@ -84,12 +84,16 @@ impl Default for Policy {
     }
 }
 
-/// A named list of addresses that receives some levels.
-#[derive(Debug, Clone)]
+/// A named list of addresses that receives some levels (`[[contacts]]`, read straight into
+/// this).
+#[derive(Debug, Clone, Default, serde::Deserialize)]
+#[serde(default)]
 pub struct Contacts {
     pub name: String,
+    #[serde(deserialize_with = "de::via::<Strings<true>, _, _>")]
     pub emails: Vec<String>,
     /// Level names this list receives; empty: every level.
+    #[serde(deserialize_with = "de::via::<Strings<false>, _, _>")]
     pub levels: Vec<String>,
     /// An escalation list: told only when an alert is not acknowledged in time.
     pub escalation: bool,

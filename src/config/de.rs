@@ -295,6 +295,27 @@ impl<'de> Deserialize<'de> for Text {
     }
 }
 
+/// A list of non-blank strings, not empty when `NONEMPTY`.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub(crate) struct Strings<const NONEMPTY: bool>(pub Vec<String>);
+
+impl<'de, const NONEMPTY: bool> Deserialize<'de> for Strings<NONEMPTY> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let v = Vec::<String>::deserialize(d)?;
+        if v.iter().any(|s| s.trim().is_empty()) || (NONEMPTY && v.is_empty()) {
+            let message = "has an empty entry or is empty; expected non-empty strings";
+            return Err(de::Error::custom(message));
+        }
+        Ok(Strings(v))
+    }
+}
+
+impl<const NONEMPTY: bool> From<Strings<NONEMPTY>> for Vec<String> {
+    fn from(s: Strings<NONEMPTY>) -> Vec<String> {
+        s.0
+    }
+}
+
 /// A finite number; integers are numbers too ("is inf, expected a finite number" otherwise).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) struct Num(pub f64);

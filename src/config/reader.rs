@@ -129,25 +129,6 @@ impl<'t> Tbl<'t> {
         }
     }
 
-    /// An array of strings as read (`req`: required; a required array must not be empty):
-    /// `None`, with a problem, when an entry is blank.
-    pub fn entries_of(
-        &self,
-        cx: &mut Cx<'_>,
-        key: &str,
-        v: Option<Vec<String>>,
-        req: bool,
-    ) -> Option<Vec<String>> {
-        let v = if req { self.need(cx, key, v)? } else { v? };
-        if v.iter().any(|s| s.trim().is_empty()) || (req && v.is_empty()) {
-            let message =
-                format!("key \"{key}\" has an empty entry or is empty; expected non-empty strings");
-            self.problem_at(cx, key, message);
-            return None;
-        }
-        Some(v)
-    }
-
     /// Whether a key is present.
     pub fn has(&self, key: &str) -> bool {
         self.table.contains_key(key)

@@ -11,7 +11,7 @@ use chrono::{NaiveTime, Weekday};
 
 use serde::Deserialize;
 
-use super::de::{self, Int, Text};
+use super::de::{self, Int, Strings, Text};
 use super::model::{Every, Formats, ReportSchedule};
 use super::problem::{again, Cx, FirstSeen, Problem};
 use super::reader::Tbl;
@@ -30,8 +30,8 @@ struct Raw {
     at: Option<String>,
     weekday: Option<Day>,
     day: Option<Int<1, 28>>,
-    recipients: Option<Vec<String>>,
-    contacts: Option<Vec<String>>,
+    recipients: Option<Strings<false>>,
+    contacts: Option<Strings<false>>,
     out_dir: Option<Text>,
 }
 
@@ -118,9 +118,7 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             );
         }
     }
-    let recipients = t
-        .entries_of(cx, "recipients", r.recipients, false)
-        .unwrap_or_default();
+    let recipients = r.recipients.unwrap_or_default().0;
     for r in recipients.iter().filter(|r| !plain_address(r)) {
         t.problem_at(
             cx,
@@ -128,9 +126,7 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             format!("address {r:?} is not a plain address; expected e.g. engineer@example.org"),
         );
     }
-    let contacts = t
-        .entries_of(cx, "contacts", r.contacts, false)
-        .unwrap_or_default();
+    let contacts = r.contacts.unwrap_or_default().0;
     if recipients.is_empty() && contacts.is_empty() && !t.has("recipients") && !t.has("contacts") {
         t.problem(
             cx,

@@ -131,40 +131,17 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
     }
 }
 
-/// `[[contacts]]` as written.
-#[derive(Deserialize, Default)]
-struct RawContacts {
-    #[serde(rename = "name")]
-    _name: Option<String>,
-    emails: Option<Vec<String>>,
-    levels: Option<Vec<String>>,
-    escalation: Option<bool>,
-}
-
 fn read_contacts(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Contacts> {
     let before = cx.problems.len();
-    let name = t.peek_str("name").map(String::from);
-    if let Some(n) = &name {
-        t.what = format!("contacts {n:?}");
-    }
-    let r: RawContacts = de::table(cx, t).unwrap_or_default();
-    let name = t.need(cx, "name", name);
-    let emails = t.entries_of(cx, "emails", r.emails, true);
-    for e in emails.iter().flatten().filter(|e| !plain_address(e)) {
+    let c: Contacts = de::named(cx, t, ("contacts", "name"));
+    t.require(cx, &["name", "emails"]);
+    for e in c.emails.iter().filter(|e| !plain_address(e)) {
         t.problem_at(
             cx,
             "emails",
             format!("address {e:?} is not a plain address; expected e.g. oncall@example.org"),
         );
     }
-    let c = Contacts {
-        name: name?,
-        emails: emails?,
-        levels: t
-            .entries_of(cx, "levels", r.levels, false)
-            .unwrap_or_default(),
-        escalation: r.escalation.unwrap_or(false),
-    };
     (cx.problems.len() == before).then_some(c)
 }
 
