@@ -372,12 +372,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
     }
     for (file, sf) in sites {
         let models = sf.trends.models.iter().map(|m| (m.table, &m.id));
-        for (table, id) in sf
-            .objects
-            .iter()
-            .map(|o| (o.table, &o.id))
-            .chain(models)
-        {
+        for (table, id) in sf.objects.iter().map(|o| (o.table, &o.id)).chain(models) {
             let Some((id, pos)) = id else { continue };
             if let Some(k) = known.get(id.as_str()) {
                 let by = if k.object {

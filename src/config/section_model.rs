@@ -311,26 +311,33 @@ pub(crate) fn read(
         cx.at(at, format!("{what}: [section.model]: {p}"));
     }
     let width = width(&model.outline);
-    let element_size_m = raw.element_size.as_ref().map_or(width / DEFAULT_ELEMENTS_ACROSS, |s| {
-        let v = *s.get_ref() * m;
-        let (lo, hi) = (width / MAX_ELEMENTS_ACROSS, width / MIN_ELEMENTS_ACROSS);
-        let ok = v.is_finite() && v >= lo && v <= hi;
-        let expected = format!(
-            "between {} and {} (from {MAX_ELEMENTS_ACROSS} to {MIN_ELEMENTS_ACROSS} elements \
-             across the outline)",
-            lo / m,
-            hi / m
-        );
-        check(cx, (what, "element_size"), s, ok, &expected) * m
-    });
+    let (lo, hi) = (width / MAX_ELEMENTS_ACROSS, width / MIN_ELEMENTS_ACROSS);
+    let sizes = format!(
+        "between {} and {} (from {MAX_ELEMENTS_ACROSS} to {MIN_ELEMENTS_ACROSS} elements across \
+         the outline)",
+        lo / m,
+        hi / m
+    );
+    let element_size_m = match &raw.element_size {
+        None => width / DEFAULT_ELEMENTS_ACROSS,
+        Some(s) => {
+            let v = *s.get_ref() * m;
+            let ok = v.is_finite() && v >= lo && v <= hi;
+            check(cx, (what, "element_size"), s, ok, &sizes) * m
+        }
+    };
     let resolve_change_m = raw.resolve_change.as_ref().map_or(0.1, |s| {
         let ok = (*s.get_ref() * m).is_finite() && *s.get_ref() > 0.0;
         check(cx, (what, "resolve_change"), s, ok, "a level change > 0") * m
     });
-    let resolve_every_s = raw.resolve_every_s.as_ref().map_or(DEFAULT_RESOLVE_EVERY_S, |s| {
-        let ok = (60..=YEAR_S).contains(s.get_ref());
-        check(cx, (what, "resolve_every_s"), s, ok, &format!("60 to {YEAR_S}"))
-    });
+    let every = (what, "resolve_every_s");
+    let resolve_every_s = raw
+        .resolve_every_s
+        .as_ref()
+        .map_or(DEFAULT_RESOLVE_EVERY_S, |s| {
+            let ok = (60..=YEAR_S).contains(s.get_ref());
+            check(cx, every, s, ok, &format!("60 to {YEAR_S}"))
+        });
     (cx.problems.len() == before).then(|| SeepageSpec {
         model,
         water,
@@ -352,8 +359,11 @@ fn check<T: Copy + std::fmt::Display>(
     expected: &str,
 ) -> T {
     if !ok {
-        let message = format!("{what}: key \"{key}\" is {}, expected {expected}", s.get_ref());
-        cx.at(Some(s.span()), message);
+        let v = s.get_ref();
+        cx.at(
+            Some(s.span()),
+            format!("{what}: key \"{key}\" is {v}, expected {expected}"),
+        );
     }
     *s.get_ref()
 }

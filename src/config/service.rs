@@ -92,7 +92,9 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
         None if root.has("mqtt") => None,
         None => Some(Mqtt::default()),
     };
-    let export = root.part(cx, "export", "[export]").and_then(|t| super::export::read(cx, &t, dir, env));
+    let export = root
+        .part(cx, "export", "[export]")
+        .and_then(|t| super::export::read(cx, &t, dir, env));
     let mut subscriptions: Vec<Subscription> = Vec::new();
     for mut t in root.tables(cx, "subscription") {
         if let Some(s) = read_subscription(cx, &mut t) {
@@ -117,9 +119,15 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
             "no [[subscription]] table; expected at least one (without one seepd receives nothing)",
         );
     }
-    let smtp = root.part(cx, "smtp", "[smtp]").and_then(|t| super::smtp::read(cx, &t, dir, env));
-    let http = root.part(cx, "http", "[http]").and_then(|t| crate::config::http::read(cx, &t));
-    let heartbeat = root.part(cx, "heartbeat", "[heartbeat]").and_then(|t| super::heartbeat::read(cx, &t, smtp.is_some()));
+    let smtp = root
+        .part(cx, "smtp", "[smtp]")
+        .and_then(|t| super::smtp::read(cx, &t, dir, env));
+    let http = root
+        .part(cx, "http", "[http]")
+        .and_then(|t| crate::config::http::read(cx, &t));
+    let heartbeat = root
+        .part(cx, "heartbeat", "[heartbeat]")
+        .and_then(|t| super::heartbeat::read(cx, &t, smtp.is_some()));
     ServiceFile {
         service,
         export,
@@ -169,7 +177,9 @@ fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<M
             "a password is configured but \"username\" is not; expected both or neither",
         );
     }
-    m.tls = t.part(cx, "tls", "[mqtt.tls]").and_then(|tls| read_tls(cx, &tls, dir));
+    m.tls = t
+        .part(cx, "tls", "[mqtt.tls]")
+        .and_then(|tls| read_tls(cx, &tls, dir));
     let (min, max) = (m.reconnect_min_ms, m.reconnect_max_ms);
     t.min_max(cx, ("reconnect_min_ms", min), ("reconnect_max_ms", max));
     (cx.problems.len() == before).then_some(m)

@@ -223,7 +223,9 @@ fn model(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &str) -> Read<Model> {
         if range_ok && (hi - lo) / step > MAX_LAGS {
             t.problem_at(cx, "lag_step_h", format!("key \"lag_step_h\" is {step}: {:.0} lags over lag_range_h, expected at most {MAX_LAGS}", (hi - lo) / step));
         }
-        let refit = raw.refit_interval_h.map_or(DEFAULT_STAGE_RESPONSE_REFIT_H, |h| h.0);
+        let refit = raw
+            .refit_interval_h
+            .map_or(DEFAULT_STAGE_RESPONSE_REFIT_H, |h| h.0);
         let model = match (piezometer, gauge) {
             (Some(piezometer), Some(stage_gauge)) => {
                 Some(Model::StageResponse(StageResponseSpec {
@@ -248,7 +250,13 @@ fn model(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &str) -> Read<Model> {
     } else {
         let raw: RawHst = de::table(cx, &r.t).unwrap_or_default();
         let instrument = r.reference(cx, "instrument", raw.instrument, true, Want::Piezometer);
-        let gauge = r.reference(cx, "reservoir_gauge", raw.reservoir_gauge, true, Want::StageGauge);
+        let gauge = r.reference(
+            cx,
+            "reservoir_gauge",
+            raw.reservoir_gauge,
+            true,
+            Want::StageGauge,
+        );
         let degree = raw.degree.map_or(DEFAULT_HST_DEGREE, |d| d.0) as usize;
         let refit = raw.refit_interval_h.map_or(DEFAULT_HST_REFIT_H, |h| h.0);
         let model = match (instrument, gauge) {
