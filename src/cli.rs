@@ -270,6 +270,10 @@ pub enum Command {
         /// The value in the instrument's raw unit (what its logger would send).
         #[arg(allow_negative_numbers = true)]
         value: String,
+        /// The thermistor temperature read with it, °C (vibrating-wire piezometers: the
+        /// thermal correction needs it).
+        #[arg(long, value_name = "C", allow_hyphen_values = true)]
+        temperature: Option<String>,
         /// When it was read (RFC 3339 or YYYY-MM-DD, UTC); default: now.
         #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
         time: Option<DateTime<Utc>>,
@@ -456,11 +460,12 @@ fn write_or_emit(out: Option<&Path>, text: &str) -> anyhow::Result<()> {
     }
 }
 
-/// Who runs the command ($USER, else "operator").
+/// Who runs the command, for `--by` (`$USER`, else `$LOGNAME`, else "operator").
 fn who() -> String {
-    std::env::var("USER")
-        .ok()
-        .filter(|u| !u.is_empty())
+    ["USER", "LOGNAME"]
+        .iter()
+        .filter_map(|v| std::env::var(v).ok())
+        .find(|u| !u.trim().is_empty())
         .unwrap_or_else(|| "operator".into())
 }
 
@@ -672,18 +677,20 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             config,
             instrument,
             value,
+            temperature,
             time,
             by,
         } => {
             let cfg = load(&config)?;
-            let by = by.unwrap_or_else(crate::manual::login_name);
-            emit(&crate::manual::record_cmd(
-                &cfg,
-                &instrument,
-                &value,
+            let by = by.unwrap_or_else(who);
+            let given = crate::manual::Given {
+                instrument: &instrument,
+                value: &value,
+                temperature: temperature.as_deref(),
                 time,
-                &by,
-            )?)
+                by: &by,
+            };
+            emit(&crate::manual::record_cmd(&cfg, &given)?)
         }
         Command::User { action } => {
             let (db, _) = operator(action.on())?;

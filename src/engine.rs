@@ -54,6 +54,18 @@ impl Outcome {
     }
 }
 
+/// A value read by hand, as `Engine::process_manual` takes it.
+#[derive(Debug, Clone, Copy)]
+pub struct HandReading<'a> {
+    pub instrument: &'a str,
+    /// In the instrument's raw unit.
+    pub value: f64,
+    /// Thermistor temperature read with it, °C.
+    pub temperature_c: Option<f64>,
+    /// Who read it.
+    pub by: &'a str,
+}
+
 /// The pipeline state.
 pub struct Engine {
     /// The validated configuration.
@@ -250,22 +262,21 @@ impl Engine {
         self.take_entries(msg, &fields, entries, Flags::empty(), out)
     }
 
-    /// Process one hand-read value of `instrument` (in its raw unit) read at `time` and
-    /// entered at `entered`: the same checks, reduction, health and derived values as a
+    /// Process one hand-read value (in the instrument's raw unit, with the thermistor
+    /// temperature when one was read) read at `time` and entered at `entered`: the same checks, reduction, health and derived values as a
     /// logger's reading, flagged `manual`. A reject is quarantined under topic
     /// `manual/<instrument>` with the entry as payload.
     pub fn process_manual(
         &mut self,
-        instrument: &str,
-        value: f64,
+        hand: &HandReading<'_>,
         time: DateTime<Utc>,
         entered: DateTime<Utc>,
-        by: &str,
     ) -> Outcome {
         let msg = Message {
-            topic: format!("manual/{instrument}"),
+            topic: format!("manual/{}", hand.instrument),
             payload: serde_json::json!({
-                "instrument": instrument, "value": value, "time": time.to_rfc3339(), "by": by,
+                "instrument": hand.instrument, "value": hand.value,
+                "temperature_c": hand.temperature_c, "time": time.to_rfc3339(), "by": hand.by,
             })
             .to_string()
             .into_bytes(),
@@ -273,11 +284,11 @@ impl Engine {
             redelivered: false,
         };
         let entry = Decoded {
-            instrument: Some(instrument.to_string()),
+            instrument: Some(hand.instrument.to_string()),
             channel: None,
             time: Some(time),
-            value,
-            temperature_c: None,
+            value: hand.value,
+            temperature_c: hand.temperature_c,
         };
         self.take_entries(
             &msg,

@@ -3,7 +3,8 @@
 //! river-stage rule as two logger readings would; the same entry again is reported as already
 //! stored; an unknown instrument, a bad value and a time in the future are refused with the
 //! reason and nothing is queued; with no service running the entry waits in the inbox and the
-//! next start takes it.
+//! next start takes it. A vibrating-wire readout entered with its thermistor temperature is
+//! corrected for it; one without is stored uncorrected, flagged and the reader told.
 
 mod common;
 
@@ -108,6 +109,64 @@ fn a_hand_read_level_goes_through_the_running_service_once_and_fires_the_rule() 
         assert!(text(&o).contains(says), "{args:?}: {}", text(&o));
     }
     assert_eq!(count(rig.path(), "manual_inbox", "1"), 3);
+}
+
+/// Flag bit of a reading reduced without its temperature.
+const TEMP_MISSING: i64 = 1 << 2;
+
+#[test]
+fn a_vibrating_wire_readout_takes_its_thermistor_temperature() {
+    let rig = Rig::start();
+    let t1 = (chrono::Utc::now() - chrono::Duration::minutes(20)).to_rfc3339();
+    let t2 = (chrono::Utc::now() - chrono::Duration::minutes(10)).to_rfc3339();
+    // AB-PZ-1A: linear calibration, thermal factor K = 0.02 kPa/°C from T0 = 15 °C.
+    let with = record(
+        &rig.cfg,
+        &["AB-PZ-1A", "2450", "--temperature", "25", "--time", &t1],
+    );
+    assert!(text(&with).contains("(25 °C)"), "{}", text(&with));
+    assert!(text(&with).contains(": stored."), "{}", text(&with));
+    assert!(!text(&with).contains("temp_missing"), "{}", text(&with));
+    let without = record(&rig.cfg, &["AB-PZ-1A", "2450", "--time", &t2]);
+    assert!(text(&without).contains(": stored."), "{}", text(&without));
+    assert!(
+        text(&without).contains("without the thermal correction and flagged temp_missing"),
+        "{}",
+        text(&without)
+    );
+    let rows: Vec<(Option<f64>, f64, i64)> = {
+        let c = db(rig.path());
+        let mut st = c
+            .prepare(
+                "SELECT temperature_c, pressure_kpa, flags FROM readings
+                 WHERE instrument = 'AB-PZ-1A' ORDER BY t_ms",
+            )
+            .unwrap();
+        let r = st
+            .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+            .unwrap();
+        r.collect::<Result<_, _>>().unwrap()
+    };
+    assert_eq!(rows.len(), 2, "{rows:?}");
+    assert_eq!(rows[0].0, Some(25.0));
+    assert_eq!(rows[0].2 & TEMP_MISSING, 0, "{rows:?}");
+    assert_eq!(rows[1].0, None);
+    assert_ne!(rows[1].2 & TEMP_MISSING, 0, "{rows:?}");
+    // The same frequency: the pressures differ by K·(T1 − T0) = 0.02 × (25 − 15) = 0.2 kPa.
+    assert!(
+        (rows[0].1 - rows[1].1 - 0.2).abs() < 1e-9,
+        "thermal correction {} kPa",
+        rows[0].1 - rows[1].1
+    );
+    // A temperature for an instrument whose reduction uses none is refused; nothing queued.
+    let o = record(&rig.cfg, &["AB-SP-3", "4.0", "--temperature", "12"]);
+    assert!(!o.status.success());
+    assert!(
+        text(&o).contains("its reduction uses no temperature"),
+        "{}",
+        text(&o)
+    );
+    assert_eq!(count(rig.path(), "manual_inbox", "1"), 2);
 }
 
 #[test]

@@ -117,6 +117,22 @@ fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     );
     assert!(b.fits_width(), "the instrument page fits a phone's width");
     save(&b, "manual-phone.png", true);
+    // A vibrating-wire piezometer's form also takes the readout's thermistor temperature.
+    b.goto(&format!("{base}/instruments/AB-PZ-1A?days=3"));
+    b.type_into("#value", "2450.5");
+    b.type_into("#temperature", "11.5");
+    save(&b, "manual-vw-phone.png", false);
+    b.click("button[type=submit]");
+    let src = b.wait_text("Manual reading 2:");
+    assert!(src.contains("Manual reading 2: stored."), "{src}");
+    assert_eq!(
+        count(
+            dir.path(),
+            "readings",
+            "instrument = 'AB-PZ-1A' AND raw = 2450.5 AND temperature_c = 11.5"
+        ),
+        1
+    );
 
     // A viewer signs in on the same browser: no form, and the page says why.
     web::add_user(seepd_bin(), cfg, "victor", PASSWORD, "viewer");
@@ -128,7 +144,11 @@ fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     b.click("button[type=submit]");
     let src = b.wait_text("needs the responder role");
     assert!(!src.contains("id=\"value\""), "no manual form for a viewer");
-    assert_eq!(count(dir.path(), "manual_inbox", "1"), 1);
+    assert_eq!(
+        count(dir.path(), "manual_inbox", "1"),
+        2,
+        "the two responder entries"
+    );
     drop(b);
 }
 

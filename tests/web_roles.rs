@@ -123,6 +123,31 @@ fn a_viewer_reads_but_every_change_is_refused_and_a_responder_records_a_reading(
         1
     );
     assert_eq!(count(rig.path(), "manual_inbox", "by = 'rhea'"), 1);
+    // A stage gauge's form asks no temperature; a vibrating-wire piezometer's does, and the
+    // reading keeps it.
+    assert!(!inst.body.contains("name=\"temperature\""));
+    let vw = web::get(port, "/instruments/AB-PZ-1A", Some(&responder));
+    assert!(vw.body.contains("name=\"temperature\""), "{}", vw.body);
+    let a = web::post_form(
+        port,
+        "/instruments/AB-PZ-1A/manual",
+        &headers,
+        &[
+            ("csrf", &csrf),
+            ("value", "2450"),
+            ("temperature", "11.5"),
+            ("time", ""),
+        ],
+    );
+    assert_eq!(a.status, 303, "{}", a.body);
+    assert_eq!(
+        count(
+            rig.path(),
+            "readings",
+            "instrument = 'AB-PZ-1A' AND temperature_c = 11.5 AND (flags & 128) != 0"
+        ),
+        1
+    );
 
     // Taking the role away counts at once, in the session already open.
     web::add_user(seepd_bin(), &rig.cfg, "rhea", PASSWORD, "viewer");

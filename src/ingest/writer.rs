@@ -282,9 +282,7 @@ impl Writer {
             let now = Utc::now();
             let time = DateTime::from_timestamp_millis(m.t_ms).unwrap_or(now);
             let entered = DateTime::from_timestamp_millis(m.entered_ms).unwrap_or(now);
-            let mut out = self
-                .engine
-                .process_manual(&m.instrument, m.value, time, entered, &m.by);
+            let mut out = self.engine.process_manual(&hand(&m), time, entered);
             // The writer's engine is in batch mode: close this one-entry batch (its rates).
             out.append(self.engine.end_batch());
             let aw = self.alerts.evaluate_outcome(&out);
@@ -339,5 +337,15 @@ impl Writer {
                 Err(e) => tracing::warn!(error = %e, "Cannot record the broker link state"),
             }
         }
+    }
+}
+
+/// The engine's view of a manual reading from the inbox.
+fn hand(m: &crate::store::pages::ManualReading) -> crate::engine::HandReading<'_> {
+    crate::engine::HandReading {
+        instrument: &m.instrument,
+        value: m.value,
+        temperature_c: m.temperature_c,
+        by: &m.by,
     }
 }

@@ -119,6 +119,8 @@ pub struct ManualReading {
     pub instrument: String,
     /// In the instrument's raw unit (what its logger would send).
     pub value: f64,
+    /// Thermistor temperature read with it, °C.
+    pub temperature_c: Option<f64>,
     pub t_ms: i64,
     /// Who read it.
     pub by: String,
@@ -329,22 +331,22 @@ impl Store {
         Ok(rows.collect::<Result<_, _>>()?)
     }
 
-    /// Put a manual reading in the inbox; its id.
+    /// Put a manual reading in the inbox (its `id` is ignored); its id.
     ///
     /// # Errors
     /// SQLite errors.
-    pub fn queue_manual(
-        &self,
-        instrument: &str,
-        value: f64,
-        t_ms: i64,
-        by: &str,
-        entered_ms: i64,
-    ) -> Result<i64, StoreError> {
+    pub fn queue_manual(&self, m: &ManualReading) -> Result<i64, StoreError> {
         self.conn.execute(
-            "INSERT INTO manual_inbox (instrument, value, t_ms, by, entered_ms)
-             VALUES (?1, ?2, ?3, ?4, ?5)",
-            params![instrument, value, t_ms, by, entered_ms],
+            "INSERT INTO manual_inbox (instrument, value, temperature_c, t_ms, by, entered_ms)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+            params![
+                m.instrument,
+                m.value,
+                m.temperature_c,
+                m.t_ms,
+                m.by,
+                m.entered_ms
+            ],
         )?;
         Ok(self.conn.last_insert_rowid())
     }
@@ -355,7 +357,7 @@ impl Store {
     /// SQLite errors.
     pub fn waiting_manual(&self) -> Result<Vec<ManualReading>, StoreError> {
         let mut st = self.conn.prepare_cached(
-            "SELECT id, instrument, value, t_ms, by, entered_ms FROM manual_inbox
+            "SELECT id, instrument, value, temperature_c, t_ms, by, entered_ms FROM manual_inbox
              WHERE done_ms IS NULL ORDER BY id",
         )?;
         let rows = st.query_map([], |r| {
@@ -363,9 +365,10 @@ impl Store {
                 id: r.get(0)?,
                 instrument: r.get(1)?,
                 value: r.get(2)?,
-                t_ms: r.get(3)?,
-                by: r.get(4)?,
-                entered_ms: r.get(5)?,
+                temperature_c: r.get(3)?,
+                t_ms: r.get(4)?,
+                by: r.get(5)?,
+                entered_ms: r.get(6)?,
             })
         })?;
         Ok(rows.collect::<Result<_, _>>()?)

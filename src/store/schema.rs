@@ -257,6 +257,9 @@ const MIGRATIONS: &[&str] = &[
         result TEXT
     );
     CREATE INDEX manual_inbox_waiting ON manual_inbox (done_ms);",
+    // 12: a manual reading may carry the thermistor temperature read with it (a vibrating-wire
+    // readout box shows both), for the thermal correction.
+    "ALTER TABLE manual_inbox ADD COLUMN temperature_c REAL;",
 ];
 
 /// The schema version this build writes.

@@ -13,7 +13,7 @@ use serde::Deserialize;
 
 use super::html::{self, escape};
 use super::Shared;
-use crate::config::Instrument;
+use crate::config::{Instrument, Kind};
 use crate::store::pages::ManualFate;
 
 /// The form (or, for a viewer, a line saying who may use it).
@@ -33,13 +33,28 @@ pub fn form(inst: &Instrument, viewer: &super::auth::Viewer, may_change: bool) -
          <input id=\"value\" name=\"value\" inputmode=\"decimal\" required maxlength=\"40\">\
          <p class=\"note\">In the instrument's raw unit, as its logger would send it (physical \
          range {lo} to {hi}); a standpipe's sounding as configured for it.</p>\
-         <label for=\"time\">Read at (site time; empty: now)</label>\
+         {temperature}<label for=\"time\">Read at (site time; empty: now)</label>\
          <input id=\"time\" name=\"time\" type=\"datetime-local\">\
          <button type=\"submit\">Record as {user}</button></form>",
         id = escape(&inst.id),
+        temperature = temperature_field(inst),
         csrf = html::csrf_field(&s.csrf),
         user = escape(&s.user),
     )
+}
+
+/// The thermistor temperature field, for a vibrating-wire piezometer only (the others' reduction
+/// uses none).
+fn temperature_field(inst: &Instrument) -> &'static str {
+    match inst.kind {
+        Kind::VibratingWire(_) => {
+            "<label for=\"temperature\">Thermistor temperature, °C (empty: none read)</label>\
+             <input id=\"temperature\" name=\"temperature\" inputmode=\"decimal\" \
+             maxlength=\"20\"><p class=\"note\">Without it the reading is stored without the \
+             thermal correction, flagged temp_missing.</p>"
+        }
+        _ => "",
+    }
 }
 
 /// The card saying what became of manual reading `entry` (`None`: still waiting).
@@ -64,6 +79,8 @@ pub fn fate_card(entry: i64, fate: Option<&ManualFate>) -> String {
 pub struct ManualForm {
     csrf: String,
     value: String,
+    #[serde(default)]
+    temperature: String,
     #[serde(default)]
     time: String,
 }
@@ -105,7 +122,14 @@ pub async fn post(
             None => return refused(format!("time {t:?}: expected a date and time of day")),
         },
     };
-    let entry = match crate::manual::check(&web.cfg, &id, &f.value, time, &session.user, now) {
+    let given = crate::manual::Given {
+        instrument: &id,
+        value: &f.value,
+        temperature: Some(&f.temperature),
+        time,
+        by: &session.user,
+    };
+    let entry = match crate::manual::check(&web.cfg, &given, now) {
         Ok(e) => e,
         Err(e) => return refused(format!("{e:#}")),
     };
