@@ -1,4 +1,5 @@
-//! One TOML table deserialized into a `#[derive(Deserialize)]` raw struct, every problem located.
+//! One TOML table deserialized into a `#[derive(Deserialize)]` model type or raw struct, every
+//! problem located.
 //!
 //! Owns the bridge from serde to our located problems: unknown keys (old names refused through
 //! `renamed`, others with a "did you mean"), wrong types and the checks the value types below
@@ -6,12 +7,15 @@
 //! file:line:column, all keys of a table at once. The raw structs and their validation live
 //! with their tables; a table declares each key once, with its type, bound and default.
 //!
-//! Value types beside `Int`/`Text`/`Num`: `Pair` (`[low, high]`), `Label` (a string or an
-//! integer), `DateText` (a string or a TOML date), `Nested` (a sub-table read on its own).
+//! Value types beside `Int`/`Text`/`Num`: `Strings` (non-blank strings), `Bounded` (`Above`,
+//! `AtLeast`, `Within`), `Pair` (`[low, high]`), `Label` (a string or an integer), `DateText` (a
+//! string or a TOML date), `Nested` (a sub-table read on its own). A model field of a plain type
+//! is read through one of them with `via`/`via_opt` (`de::ms` for seconds kept in milliseconds).
 //!
-//! Raw structs: every field optional (`Option<T>` or `#[serde(default)]`), required keys asked
-//! for in validation with `Tbl::need`; no `#[serde(flatten)]` (the key list is read from the
-//! derive).
+//! Every field optional (`Option<T>`, or `#[serde(default)]` on the struct with its `Default`
+//! holding the defaults), required keys asked for in validation with `Tbl::need`/`Tbl::require`;
+//! no `#[serde(flatten)]` (the key list is read from the derive): `table2` reads a table whose
+//! keys are split between a model type and the keys it does not keep.
 
 use serde::de::{self, DeserializeOwned, IntoDeserializer};
 use serde::{Deserialize, Deserializer};

@@ -469,11 +469,7 @@ pub fn summary(cfg: &Config) -> String {
     }
     let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
     for sub in &cfg.subscriptions {
-        let format = match sub.format {
-            PayloadFormat::Json => "json",
-            PayloadFormat::Senml => "senml",
-            PayloadFormat::Csv => "csv",
-        };
+        let format = super::de::variants::<PayloadFormat>()[sub.format as usize];
         let _ = writeln!(
             s,
             "  {}  ({format}, qos {}, from pattern {})",

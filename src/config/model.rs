@@ -1,7 +1,10 @@
 //! The validated configuration model: what the rest of seepd reads.
 //!
-//! Everything here is already checked and in SI units (m, kPa, s); the TOML-facing raw types and
-//! the validation that produces these live in `config::load`. Nothing here does I/O.
+//! Everything here is already checked and in SI units (m, kPa, s). The types that keep their keys
+//! as written (`Service`, `Mqtt`, `Export`, `JsonFields`) are read straight from their tables:
+//! their `Default` holds the defaults and their `#[serde]` attributes the bounds; the other
+//! types are built from raw structs by the table readers (`config::load` and its modules).
+//! Nothing here does I/O.
 
 use std::collections::BTreeMap;
 use std::fmt;

@@ -92,17 +92,6 @@ pub(crate) struct Read<T = Object> {
     pub object: Option<T>,
 }
 
-impl Read {
-    /// A table `de::table` could not read at all (its problems are reported).
-    fn nothing() -> Read {
-        Read {
-            id: None,
-            tolerance_s: None,
-            object: None,
-        }
-    }
-}
-
 /// What every kind's reader gets: the site's id, length unit (`Reader::m`) and unit weight of
 /// water (kN/m³).
 pub(super) struct Site<'a> {
