@@ -201,7 +201,7 @@ fn hours_s(h: f64) -> i64 {
 /// One `[[stage_response]]` or `[[hst]]` table (`r.t.header` tells which).
 fn model(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &str) -> Read<Model> {
     let name = r.t.peek_str("id").unwrap_or_default().to_string();
-    if r.t.header == "[[stage_response]]" {
+    let (id, object) = if r.t.header == "[[stage_response]]" {
         let raw: RawStageResponse = de::table(cx, &r.t).unwrap_or_default();
         let piezometer = r.reference(cx, "piezometer", raw.piezometer, true, Want::Piezometer);
         let gauge = r.reference(cx, "stage_gauge", raw.stage_gauge, true, Want::StageGauge);
@@ -242,11 +242,7 @@ fn model(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &str) -> Read<Model> {
             }
             _ => None,
         };
-        Read {
-            id: raw.id,
-            tolerance_s: None,
-            object: model,
-        }
+        (raw.id, model)
     } else {
         let raw: RawHst = de::table(cx, &r.t).unwrap_or_default();
         let instrument = r.reference(cx, "instrument", raw.instrument, true, Want::Piezometer);
@@ -270,11 +266,12 @@ fn model(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &str) -> Read<Model> {
             })),
             _ => None,
         };
-        Read {
-            id: raw.id,
-            tolerance_s: None,
-            object: model,
-        }
+        (raw.id, model)
+    };
+    Read {
+        id,
+        tolerance_s: None,
+        object,
     }
 }
 
