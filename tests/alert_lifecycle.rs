@@ -134,6 +134,58 @@ fn history_keeps_each_step_with_its_level_and_value() {
     assert!(text.contains("now concern"), "{text}");
 }
 
+/// A catch-up: readings stamped long ago arrive a second apart on a much later wall clock
+/// (a logger's backlog after an outage). The all-clear sits in the readings' timeline beside
+/// the raise — when the 2 h keep-active time had passed in reading time — not at the wall time
+/// it was evaluated, so the alert's history and the report read in order.
+#[test]
+fn a_caught_up_all_clear_is_stamped_in_the_readings_timeline() {
+    let ex = example(|_, t| t);
+    let cfg = Arc::new(ex.cfg.clone());
+    let mut store = Store::open(&cfg.service.database).unwrap();
+    let mut e = Evaluator::load(Arc::clone(&cfg), &store).unwrap();
+    let wall = START_MS + 30 * 24 * HOUR_MS;
+    // Watch is above 95.0 m, two readings to raise; cleared at 94.0 m (below the 0.2 m
+    // deadband), kept active 2 h.
+    let stages = [
+        (0, 95.5),
+        (1, 95.6),
+        (2, 94.0),
+        (3, 94.0),
+        (4, 94.0),
+        (5, 94.0),
+    ];
+    for (k, &(h, v)) in stages.iter().enumerate() {
+        let w = e.evaluate(&[river(h, v)], wall + k as i64 * 1000);
+        store.write_alerts(&w).unwrap();
+    }
+    let (alert, raised, resolved): (i64, i64, Option<i64>) = store
+        .conn()
+        .query_row("SELECT id, raised_ms, resolved_ms FROM alerts", [], |r| {
+            Ok((r.get(0)?, r.get(1)?, r.get(2)?))
+        })
+        .unwrap();
+    assert_eq!(raised, START_MS + HOUR_MS, "raised at the second reading");
+    assert_eq!(
+        resolved,
+        Some(START_MS + 4 * HOUR_MS),
+        "resolved when 2 h inside had passed in reading time"
+    );
+    let h: Vec<(String, i64)> = store
+        .alert_events(alert)
+        .unwrap()
+        .into_iter()
+        .map(|x| (x.kind, x.t_ms))
+        .collect();
+    assert_eq!(
+        h,
+        vec![
+            ("raised".into(), START_MS + HOUR_MS),
+            ("resolved".into(), START_MS + 4 * HOUR_MS)
+        ]
+    );
+}
+
 /// Issue 11, item 6: an alert whose rule was removed from the configuration is closed at the
 /// next start, with an event saying why and a message to the contacts; its rule state goes.
 #[test]

@@ -350,10 +350,20 @@ impl Evaluator {
             .last
             .or(old.last)
             .map_or((now_ms, None), |(t, v)| (t, Some(v)));
-        // Timer actions, and clearing after a keep-active time, happen at the evaluation time,
-        // not at the time of the last value (raises and escalations are the value's).
-        if !matches!(a, Action::Raise { .. } | Action::Escalate { .. }) {
-            t_ms = now_ms;
+        // Raises and escalations happen at the value's time. Clearing after a keep-active time
+        // happens on the reading clock the rule measured it on (the last value's time plus the
+        // evaluation time since it was applied: the value's own time when a value completed
+        // it), so a catch-up's all-clear sits in the readings' timeline beside its raise. The
+        // notice timers (reminders, escalation to the second list) are evaluation-time events.
+        match a {
+            Action::Raise { .. } | Action::Escalate { .. } => {}
+            Action::DeEscalate { .. } | Action::Resolve { .. } => {
+                t_ms = match (next.last.or(old.last), next.applied_ms.or(old.applied_ms)) {
+                    (Some((t, _)), Some(applied)) => t + (now_ms - applied).max(0),
+                    _ => now_ms,
+                };
+            }
+            _ => t_ms = now_ms,
         }
         let alert_id = match a {
             Action::Raise { .. } => {

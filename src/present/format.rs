@@ -63,12 +63,17 @@ pub fn fixed(v: f64, decimals: usize) -> String {
     }
 }
 
-/// `v` with `n` significant figures, in plain decimal notation, trailing zeros kept.
+/// `v` with `n` significant figures, trailing zeros kept: in plain decimal notation down to
+/// 0.0001, in E notation below it ("2.35e-5": a run of zeros is easy to misread, and a table
+/// cell would cut it).
 pub fn significant(v: f64, n: usize) -> String {
     if v == 0.0 || !v.is_finite() {
         return fixed(v, 0);
     }
     let magnitude = v.abs().log10().floor() as i64;
+    if magnitude < -4 {
+        return format!("{v:.prec$e}", prec = n.saturating_sub(1));
+    }
     let decimals = (n as i64 - 1 - magnitude).clamp(0, 15) as usize;
     fixed(v, decimals)
 }
@@ -271,8 +276,13 @@ mod tests {
         // Small flows by significant figures.
         assert_eq!(
             shown(2.3456e-5, "expected_flow", "m2/s", SI),
-            "0.0000235 m³/s per m"
+            "2.35e-5 m³/s per m"
         );
+        assert_eq!(
+            shown(2.2449e-4, "expected_flow", "m2/s", SI),
+            "0.000224 m³/s per m"
+        );
+        assert_eq!(significant(-2.0e-8, 3), "-2.00e-8");
         // Rates per day.
         assert_eq!(
             shown_rate_per_day(0.25 / 3600.0, "total_head", "m", SI),

@@ -3,6 +3,15 @@
 
 use crate::config::DisplayUnits;
 
+/// The label of an alert event kind (`de_escalated` → "lowered"), for the pages and the report.
+pub fn event(kind: &str) -> String {
+    match kind {
+        "de_escalated" => "lowered".into(),
+        "escalation_notified" => "second list told".into(),
+        other => other.replace('_', " "),
+    }
+}
+
 /// Instrument kinds in words.
 const KINDS: [(&str, &str); 5] = [
     ("vibrating_wire", "vibrating-wire piezometer"),

@@ -64,7 +64,7 @@ pub fn rows(
             e.t_ms,
             [
                 local(e.t_ms, tz),
-                e.kind.replace('_', " "),
+                crate::present::labels::event(&e.kind),
                 format!("{object} / {}", e.rule),
                 e.level,
                 detail,

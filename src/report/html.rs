@@ -7,8 +7,9 @@ use chrono::{TimeZone, Utc};
 use chrono_tz::Tz;
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
+use super::parts::{self, Part};
 use crate::config::DisplayUnits;
-use crate::present::format::{digits, fixed, shown, shown_bare, with_digits, FS_CAP_RULE};
+use crate::present::format::{digits, fixed, shown, shown_bare, with_digits};
 use crate::present::labels::system_name;
 use crate::present::units::{convert_difference, unit_label};
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
@@ -20,6 +21,35 @@ table{border-collapse:collapse;margin:6px 0;width:100%;font-size:11px}th,td{bord
 th{background:#eee}td.l,th.l{text-align:left}.caution{border:2px solid #b00;padding:6px 10px;margin:10px 0;background:#fff6f6}\
 .ids{font-size:9px;color:#666}.summary li{margin:2px 0}.meta td{border:none;text-align:left;padding:1px 8px 1px 0}.note{color:#555}.sign td{border:none;padding:18px 12px 2px 0;text-align:left}\
 svg{max-width:100%;height:auto}@media print{body{margin:10mm}h2{break-after:avoid}svg,table{break-inside:avoid}}";
+
+/// A part's heading.
+fn heading(s: &mut String, part: Part) {
+    let _ = writeln!(s, "<h2>{}</h2>", esc(part.title()));
+}
+
+/// A table of text cells: the columns in `left` aligned left, the rest right.
+fn text_table(s: &mut String, header: &[&str], rows: &[Vec<String>], left: &[usize]) {
+    let class = |k: usize| {
+        if left.contains(&k) {
+            " class=\"l\""
+        } else {
+            ""
+        }
+    };
+    s.push_str("<table><tr>");
+    for (k, h) in header.iter().enumerate() {
+        let _ = write!(s, "<th{}>{}</th>", class(k), esc(h));
+    }
+    s.push_str("</tr>\n");
+    for r in rows {
+        s.push_str("<tr>");
+        for (k, c) in r.iter().enumerate() {
+            let _ = write!(s, "<td{}>{}</td>", class(k), esc(c));
+        }
+        s.push_str("</tr>\n");
+    }
+    s.push_str("</table>\n");
+}
 
 /// Format a UTC millisecond time in the report's time zone.
 pub fn local(t_ms: i64, tz: Tz) -> String {
@@ -178,7 +208,8 @@ pub fn render(d: &ReportData, x: &Extras) -> String {
         "<div class=\"caution\"><b>Caution.</b> {}</div>",
         esc(x.caution)
     );
-    s.push_str("<h2>Summary</h2>\n<ul class=\"summary\">\n");
+    heading(&mut s, Part::Summary);
+    s.push_str("<ul class=\"summary\">\n");
     for line in &x.summary {
         let _ = writeln!(s, "<li>{}</li>", esc(line));
     }
@@ -186,43 +217,37 @@ pub fn render(d: &ReportData, x: &Extras) -> String {
     if d.is_empty() {
         s.push_str("<p><b>No readings were stored for this site in this period.</b> The tables below are empty; check the loggers, the broker and the quarantine summary.</p>\n");
     }
-    s.push_str("<h2>Instruments and where they are</h2>\n");
+    heading(&mut s, Part::Places);
     locations_table(&mut s, d, tz);
     let u = d.units;
-    s.push_str("<h2>Piezometers</h2>\n");
+    heading(&mut s, Part::Piezometers);
     stats_table(&mut s, &d.piezometers, tz, u);
-    s.push_str("<h2>Pool and river stage</h2>\n");
+    heading(&mut s, Part::Stages);
     stats_table(&mut s, &d.stages, tz, u);
     if !d.others.is_empty() {
-        s.push_str("<h2>Other instruments</h2>\n");
+        heading(&mut s, Part::Others);
         stats_table(&mut s, &d.others, tz, u);
     }
-    s.push_str("<h2>Plots</h2>\n");
+    heading(&mut s, Part::Plots);
     for (t, svg) in &x.charts {
         let _ = writeln!(s, "<div title=\"{}\">{svg}</div>", esc(t));
     }
-    if !d.toes.is_empty() {
-        s.push_str("<h2>Toe checks</h2>\n");
-        derived_table(&mut s, &d.toes, tz, u);
-        let _ = writeln!(
-            s,
-            "<p class=\"note\">Exit gradient i = h_o/z_t (positive upward); FS = i_c/i, not applicable (—) while i ≤ 0. The lowest factor of safety in the period and its time are in the Minimum columns; its maximum is not shown (it says nothing about safety). {}</p>",
-            esc(FS_CAP_RULE)
-        );
-    }
-    if !d.gradients.is_empty() {
-        s.push_str("<h2>Vertical gradients</h2>\n");
-        derived_table(&mut s, &d.gradients, tz, u);
-        s.push_str("<p class=\"note\">Positive gradients mean upward flow.</p>\n");
-    }
-    if !d.blankets.is_empty() {
-        s.push_str("<h2>Blanket theory (expected underseepage heads)</h2>\n");
-        derived_table(&mut s, &d.blankets, tz, u);
-        s.push_str("<p class=\"note\">Expected values from blanket theory for the river stage at the time; measured excess head from the toe piezometer.</p>\n");
+    for (part, rows) in [
+        (Part::Toes, &d.toes),
+        (Part::Gradients, &d.gradients),
+        (Part::Blankets, &d.blankets),
+        (Part::Sections, &d.sections),
+    ] {
+        if rows.is_empty() {
+            continue;
+        }
+        heading(&mut s, part);
+        derived_table(&mut s, rows, tz, u);
+        if let Some(n) = part.note() {
+            let _ = writeln!(s, "<p class=\"note\">{}</p>", esc(&n));
+        }
     }
     if !d.sections.is_empty() {
-        s.push_str("<h2>Sections</h2>\n");
-        derived_table(&mut s, &d.sections, tz, u);
         for (caption, svg) in &x.sections {
             let _ = writeln!(s, "<h3>{}</h3>", esc(caption));
             match svg {
@@ -233,59 +258,41 @@ pub fn render(d: &ReportData, x: &Extras) -> String {
             }
         }
     }
-    s.push_str("<h2>Alerts, acknowledgements and silences</h2>\n");
+    heading(&mut s, Part::Alerts);
     match &x.alerts {
         None => s.push_str("<p class=\"note\">This database holds no alert records.</p>\n"),
         Some(rows) if rows.is_empty() => s.push_str("<p>None in this period.</p>\n"),
         Some(rows) => {
-            s.push_str("<table><tr><th class=\"l\">Time</th><th class=\"l\">Event</th><th class=\"l\">Object / rule</th><th class=\"l\">Level</th><th class=\"l\">Detail</th></tr>\n");
-            for r in rows {
-                let _ = writeln!(
-                    s,
-                    "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td></tr>",
-                    esc(&r[0]), esc(&r[1]), esc(&r[2]), esc(&r[3]), esc(&r[4])
-                );
-            }
-            s.push_str("</table>\n");
-        }
-    }
-    s.push_str("<h2>Data quality</h2>\n<h3>Quarantined input (whole service)</h3>\n");
-    if d.quarantine.is_empty() {
-        s.push_str("<p>None in this period.</p>\n");
-    } else {
-        s.push_str("<table><tr><th class=\"l\">Reason</th><th>Count</th></tr>\n");
-        for (r, n) in &d.quarantine {
-            let _ = writeln!(s, "<tr><td class=\"l\">{}</td><td>{n}</td></tr>", esc(r));
-        }
-        s.push_str("</table>\n");
-    }
-    s.push_str("<h3>Instruments with health flags</h3>\n");
-    let flagged: Vec<&InstrumentStats> = d
-        .piezometers
-        .iter()
-        .chain(&d.stages)
-        .chain(&d.others)
-        .filter(|i| i.flagged > 0)
-        .collect();
-    if flagged.is_empty() {
-        s.push_str("<p>None in this period.</p>\n");
-    } else {
-        s.push_str("<table><tr><th class=\"l\">Instrument</th><th>Flagged readings</th><th class=\"l\">Flags</th></tr>\n");
-        for i in flagged {
-            let flags: Vec<String> = i
-                .flag_counts
-                .iter()
-                .map(|(n, c)| format!("{n} {c}"))
-                .collect();
-            let _ = writeln!(
-                s,
-                "<tr><td class=\"l\">{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
-                esc(&i.id),
-                i.flagged,
-                esc(&flags.join(", "))
+            let rows: Vec<Vec<String>> = rows.iter().map(|r| r.to_vec()).collect();
+            text_table(
+                &mut s,
+                &["Time", "Event", "Object / rule", "Level", "Detail"],
+                &rows,
+                &[0, 1, 2, 3, 4],
             );
         }
-        s.push_str("</table>\n");
+    }
+    heading(&mut s, Part::Quality);
+    for (part, header, rows, left) in [
+        (
+            Part::Quarantine,
+            &parts::QUARANTINE_HEADER[..],
+            parts::quarantine_rows(d),
+            &[0][..],
+        ),
+        (
+            Part::Flagged,
+            &parts::FLAGGED_HEADER[..],
+            parts::flagged_rows(d),
+            &[0, 1][..],
+        ),
+    ] {
+        let _ = writeln!(s, "<h3>{}</h3>", esc(part.title()));
+        if rows.is_empty() {
+            s.push_str("<p>None in this period.</p>\n");
+        } else {
+            text_table(&mut s, header, &rows, left);
+        }
     }
     let _ = writeln!(
         s,

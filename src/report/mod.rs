@@ -8,6 +8,7 @@ pub mod csv;
 pub mod data;
 mod files;
 pub mod html;
+pub mod parts;
 #[cfg(feature = "pdf")]
 pub mod pdf;
 mod places;

@@ -17,9 +17,10 @@ use krilla_svg::{SurfaceExt, SvgSettings};
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
 use super::html::{local, Extras};
+use super::parts::{self, Part};
 use super::raster::{svg_options, FONT};
 use crate::config::DisplayUnits;
-use crate::present::format::{shown_bare, FS_CAP_RULE};
+use crate::present::format::shown_bare;
 use crate::present::labels::system_name;
 use crate::present::units::unit_label;
 use crate::present::{kind_name, measure_of, quantity_name, Measure};
@@ -422,11 +423,11 @@ fn layout(d: &ReportData, x: &Extras) -> Layout {
     }
     l.y += 4.0;
     l.boxed(&format!("Caution. {}", x.caution));
-    l.heading("Summary");
+    l.heading(Part::Summary.title());
     for s in &x.summary {
         l.paragraph(BODY, &format!("• {s}"), 4.0);
     }
-    l.heading("Instruments and where they are");
+    l.heading(Part::Places.title());
     let cols: Vec<_> = super::places::columns(d, tz)
         .into_iter()
         .filter(|c| c.pdf_width > 0.0)
@@ -438,36 +439,30 @@ fn layout(d: &ReportData, x: &Extras) -> Layout {
         .map(|k| cols.iter().map(|c| c.cells[k].clone()).collect())
         .collect();
     l.table(&h, &widths, left, &rows);
-    l.heading("Piezometers");
+    l.heading(Part::Piezometers.title());
     stats_table(&mut l, &d.piezometers, d);
-    l.heading("Pool and river stage");
+    l.heading(Part::Stages.title());
     stats_table(&mut l, &d.stages, d);
     if !d.others.is_empty() {
-        l.heading("Other instruments");
+        l.heading(Part::Others.title());
         stats_table(&mut l, &d.others, d);
     }
-    if !d.toes.is_empty() {
-        l.heading("Toe checks");
-        derived_table(&mut l, &d.toes, d);
-        l.paragraph(
-            7.0,
-            &format!("The lowest factor of safety and its time are in the Minimum columns; its maximum is not shown. {FS_CAP_RULE}"),
-            0.0,
-        );
+    for (part, rows) in [
+        (Part::Toes, &d.toes),
+        (Part::Gradients, &d.gradients),
+        (Part::Blankets, &d.blankets),
+        (Part::Sections, &d.sections),
+    ] {
+        if rows.is_empty() {
+            continue;
+        }
+        l.heading(part.title());
+        derived_table(&mut l, rows, d);
+        if let Some(n) = part.note() {
+            l.paragraph(7.0, &n, 0.0);
+        }
     }
-    if !d.gradients.is_empty() {
-        l.heading("Vertical gradients (+ upward)");
-        derived_table(&mut l, &d.gradients, d);
-    }
-    if !d.blankets.is_empty() {
-        l.heading("Blanket theory");
-        derived_table(&mut l, &d.blankets, d);
-    }
-    if !d.sections.is_empty() {
-        l.heading("Sections");
-        derived_table(&mut l, &d.sections, d);
-    }
-    l.heading("Plots");
+    l.heading(Part::Plots.title());
     for (_, svg) in &x.charts {
         let (w, h) = svg_size(svg);
         l.svg(svg, w, h);
@@ -483,7 +478,7 @@ fn layout(d: &ReportData, x: &Extras) -> Layout {
             Err(why) => l.paragraph(BODY, &format!("Not drawn: {why}"), 0.0),
         }
     }
-    l.heading("Alerts, acknowledgements and silences");
+    l.heading(Part::Alerts.title());
     match &x.alerts {
         Some(rows) if !rows.is_empty() => {
             let rows: Vec<Vec<String>> = rows.iter().map(|r| r.to_vec()).collect();
@@ -496,6 +491,28 @@ fn layout(d: &ReportData, x: &Extras) -> Layout {
         }
         Some(_) => l.paragraph(BODY, "None in this period.", 0.0),
         None => l.paragraph(BODY, "This database holds no alert records.", 0.0),
+    }
+    l.heading(Part::Quality.title());
+    for (part, header, rows, widths) in [
+        (
+            Part::Quarantine,
+            &parts::QUARANTINE_HEADER[..],
+            parts::quarantine_rows(d),
+            &[4.0, 1.0][..],
+        ),
+        (
+            Part::Flagged,
+            &parts::FLAGGED_HEADER[..],
+            parts::flagged_rows(d),
+            &[1.0, 4.0, 1.0][..],
+        ),
+    ] {
+        l.paragraph(BODY, part.title(), 0.0);
+        if rows.is_empty() {
+            l.paragraph(BODY, "None in this period.", 0.0);
+        } else {
+            l.table(header, widths, header.len() - 1, &rows);
+        }
     }
     // The sign-off block stays whole on the last page.
     l.room(90.0);

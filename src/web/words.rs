@@ -27,14 +27,7 @@ pub fn flag(f: &str) -> String {
     }
 }
 
-/// The label of an alert event kind.
-pub fn event(kind: &str) -> String {
-    match kind {
-        "de_escalated" => "lowered".into(),
-        "escalation_notified" => "second list told".into(),
-        other => other.replace('_', " "),
-    }
-}
+pub use crate::present::labels::event;
 
 /// The label of a quarantine reason code.
 pub fn reason(r: &str) -> String {
