@@ -7,6 +7,8 @@ use std::path::PathBuf;
 
 use crate::domain::rules::Spec;
 
+use super::de::{self, Int, Strings, Text};
+use super::limits;
 use super::model::Secret;
 
 /// Everything about alerts and email.
@@ -48,19 +50,25 @@ pub struct Rule {
     pub spec: Spec,
 }
 
-/// How a site's alerts are sent.
-#[derive(Debug, Clone)]
+/// How a site's alerts are sent (`[alerting]`, read straight into this; written in seconds).
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct Policy {
     /// Notices waiting this long are sent together in one message (ms; 0: at once).
+    #[serde(rename = "bundle_window_s", deserialize_with = "de::ms::<3600, _>")]
     pub bundle_window_ms: i64,
     /// Reminder interval while active and unacknowledged (ms); `None`: no reminders.
+    #[serde(rename = "remind_every_s", deserialize_with = "de::ms_or_never")]
     pub remind_every_ms: Option<i64>,
     /// The escalation lists are told when an alert is not acknowledged within this (ms).
+    #[serde(rename = "escalate_after_s", deserialize_with = "de::ms_or_never")]
     pub escalate_after_ms: Option<i64>,
     /// Link printed in every message (a placeholder until a status page exists).
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub status_url: String,
     /// A rule's derived value without a value (its inputs missing, stale or rejected) this
     /// long is itself an alert, "safety value unavailable" (ms; `None`: never).
+    #[serde(rename = "unavailable_after_s", deserialize_with = "de::ms_or_never")]
     pub unavailable_after_ms: Option<i64>,
 }
 
@@ -76,12 +84,16 @@ impl Default for Policy {
     }
 }
 
-/// A named list of addresses that receives some levels.
-#[derive(Debug, Clone)]
+/// A named list of addresses that receives some levels (`[[contacts]]`, read straight into
+/// this).
+#[derive(Debug, Clone, Default, serde::Deserialize)]
+#[serde(default)]
 pub struct Contacts {
     pub name: String,
+    #[serde(deserialize_with = "de::via::<Strings<true>, _, _>")]
     pub emails: Vec<String>,
     /// Level names this list receives; empty: every level.
+    #[serde(deserialize_with = "de::via::<Strings<false>, _, _>")]
     pub levels: Vec<String>,
     /// An escalation list: told only when an alert is not acknowledged in time.
     pub escalation: bool,
@@ -134,21 +146,50 @@ pub enum SmtpSecurity {
     Plain,
 }
 
-/// The mail relay.
-#[derive(Debug, Clone)]
+/// The mail relay (`[smtp]`, read straight into this; the password is read after).
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct Smtp {
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub host: String,
+    /// By `security` when not written: 587, 465 or 25.
+    #[serde(deserialize_with = "de::via::<Int<1, 65535>, _, _>")]
     pub port: u16,
     pub security: SmtpSecurity,
+    #[serde(deserialize_with = "de::via_opt::<Text, _, _>")]
     pub username: Option<String>,
+    #[serde(skip)]
     pub password: Option<Secret>,
     /// Extra trusted CA (PEM) for the relay's certificate; the built-in roots otherwise.
+    #[serde(deserialize_with = "de::via_opt::<Text, _, _>")]
     pub ca_file: Option<PathBuf>,
     /// Sender address (`From`, envelope sender, Message-ID domain).
+    #[serde(deserialize_with = "super::smtp::address")]
     pub from: String,
     /// Connection and command timeout (s).
+    #[serde(deserialize_with = "de::via::<Int<1, 3600>, _, _>")]
     pub timeout_s: u64,
     /// Retry backoff after a connection failure or a 4xx reply: first delay and cap (s).
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::MAIL_RETRY_S }>, _, _>")]
     pub retry_min_s: u64,
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::MAIL_RETRY_S }>, _, _>")]
     pub retry_max_s: u64,
+}
+
+impl Default for Smtp {
+    /// The defaults; `host` and `from` are required.
+    fn default() -> Self {
+        Smtp {
+            host: String::new(),
+            port: 587,
+            security: SmtpSecurity::Starttls,
+            username: None,
+            password: None,
+            ca_file: None,
+            from: String::new(),
+            timeout_s: 30,
+            retry_min_s: 5,
+            retry_max_s: 600,
+        }
+    }
 }

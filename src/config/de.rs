@@ -1,4 +1,5 @@
-//! One TOML table deserialized into a `#[derive(Deserialize)]` raw struct, every problem located.
+//! One TOML table deserialized into a `#[derive(Deserialize)]` model type or raw struct, every
+//! problem located.
 //!
 //! Owns the bridge from serde to our located problems: unknown keys (old names refused through
 //! `renamed`, others with a "did you mean"), wrong types and the checks the value types below
@@ -6,12 +7,15 @@
 //! file:line:column, all keys of a table at once. The raw structs and their validation live
 //! with their tables; a table declares each key once, with its type, bound and default.
 //!
-//! Value types beside `Int`/`Text`/`Num`: `Pair` (`[low, high]`), `Label` (a string or an
-//! integer), `DateText` (a string or a TOML date), `Nested` (a sub-table read on its own).
+//! Value types beside `Int`/`Text`/`Num`: `Strings` (non-blank strings), `Bounded` (`Above`,
+//! `AtLeast`, `Within`), `Pair` (`[low, high]`), `Label` (a string or an integer), `DateText` (a
+//! string or a TOML date), `Nested` (a sub-table read on its own). A model field of a plain type
+//! is read through one of them with `via`/`via_opt` (`de::ms` for seconds kept in milliseconds).
 //!
-//! Raw structs: every field optional (`Option<T>` or `#[serde(default)]`), required keys asked
-//! for in validation with `Tbl::need`; no `#[serde(flatten)]` (the key list is read from the
-//! derive).
+//! Every field optional (`Option<T>`, or `#[serde(default)]` on the struct with its `Default`
+//! holding the defaults), required keys asked for in validation with `Tbl::need`/`Tbl::require`;
+//! no `#[serde(flatten)]` (the key list is read from the derive): `table2` reads a table whose
+//! keys are split between a model type and the keys it does not keep.
 
 use serde::de::{self, DeserializeOwned, IntoDeserializer};
 use serde::{Deserialize, Deserializer};
@@ -24,8 +28,24 @@ use super::reader::{found_item, Tbl};
 /// failed value checks. A key at fault is left out, as if absent, so that validation still runs
 /// and reports its own problems; callers judge the table by the problem count, as before.
 pub(crate) fn table<T: DeserializeOwned>(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<T> {
+    t.check_keys(cx, fields::<T>());
+    keys_of(cx, t)
+}
+
+/// `table` for a table whose keys are shared by two structs: a model type read straight from
+/// the table, and `U`, the keys it does not keep (secrets, sub-tables read on their own).
+pub(crate) fn table2<T: DeserializeOwned, U: DeserializeOwned>(
+    cx: &mut Cx<'_>,
+    t: &Tbl<'_>,
+) -> Option<(T, U)> {
+    t.check_keys(cx, &[fields::<T>(), fields::<U>()].concat());
+    let u = keys_of(cx, t);
+    Some((keys_of(cx, t)?, u?))
+}
+
+/// `T` from the keys of `t` it declares, each key at fault reported and left out.
+fn keys_of<T: DeserializeOwned>(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Option<T> {
     let keys = fields::<T>();
-    t.check_keys(cx, keys);
     let mut known: Vec<(&str, &Item)> = t.entries().filter(|(k, _)| keys.contains(k)).collect();
     if let Ok(v) = from_entries::<T>(&known) {
         return Some(v);
@@ -210,6 +230,61 @@ impl<'de, const LO: i64, const HI: i64> Deserialize<'de> for Int<LO, HI> {
     }
 }
 
+/// A model field read through the checking type `C` (`Int`, `Text`...):
+/// `#[serde(deserialize_with = "de::via::<Int<1, 65535>, _, _>")]` on a plain `u16`.
+pub(crate) fn via<'de, C: Deserialize<'de> + Into<T>, T, D: Deserializer<'de>>(
+    d: D,
+) -> Result<T, D::Error> {
+    C::deserialize(d).map(Into::into)
+}
+
+/// `via` for an optional model field (absent stays `None`, with `#[serde(default)]`).
+pub(crate) fn via_opt<'de, C: Deserialize<'de> + Into<T>, T, D: Deserializer<'de>>(
+    d: D,
+) -> Result<Option<T>, D::Error> {
+    C::deserialize(d).map(|c| Some(c.into()))
+}
+
+/// Seconds as written (0 to `HI`), in milliseconds.
+pub(crate) fn ms<'de, const HI: i64, D: Deserializer<'de>>(d: D) -> Result<i64, D::Error> {
+    Int::<0, HI>::deserialize(d).map(|s| s.0 * 1000)
+}
+
+/// Seconds as written (at most a year), in milliseconds; 0 is never (`None`).
+pub(crate) fn ms_or_never<'de, D: Deserializer<'de>>(d: D) -> Result<Option<i64>, D::Error> {
+    ms::<{ super::limits::YEAR_S }, D>(d).map(|ms| Some(ms).filter(|ms| *ms > 0))
+}
+
+macro_rules! int_into {
+    ($($t:ty),*) => {$(
+        impl<const LO: i64, const HI: i64> From<Int<LO, HI>> for $t {
+            /// In range by construction (`LO..=HI` fits the field's type).
+            fn from(n: Int<LO, HI>) -> $t {
+                n.0 as $t
+            }
+        }
+    )*};
+}
+int_into!(u8, u16, u32, u64, usize, i64);
+
+impl From<Pair> for (f64, f64) {
+    fn from(p: Pair) -> (f64, f64) {
+        (p.0, p.1)
+    }
+}
+
+impl From<Text> for String {
+    fn from(t: Text) -> String {
+        t.0
+    }
+}
+
+impl From<Text> for std::path::PathBuf {
+    fn from(t: Text) -> std::path::PathBuf {
+        t.0.into()
+    }
+}
+
 /// A string that is not blank ("is empty" otherwise).
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub(crate) struct Text(pub String);
@@ -221,6 +296,27 @@ impl<'de> Deserialize<'de> for Text {
             return Err(de::Error::custom("is empty"));
         }
         Ok(Text(s))
+    }
+}
+
+/// A list of non-blank strings, not empty when `NONEMPTY`.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub(crate) struct Strings<const NONEMPTY: bool>(pub Vec<String>);
+
+impl<'de, const NONEMPTY: bool> Deserialize<'de> for Strings<NONEMPTY> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let v = Vec::<String>::deserialize(d)?;
+        if v.iter().any(|s| s.trim().is_empty()) || (NONEMPTY && v.is_empty()) {
+            let message = "has an empty entry or is empty; expected non-empty strings";
+            return Err(de::Error::custom(message));
+        }
+        Ok(Strings(v))
+    }
+}
+
+impl<const NONEMPTY: bool> From<Strings<NONEMPTY>> for Vec<String> {
+    fn from(s: Strings<NONEMPTY>) -> Vec<String> {
+        s.0
     }
 }
 
@@ -326,35 +422,48 @@ impl<'de> de::Visitor<'de> for TextOf {
     }
 }
 
-/// A finite number above `LO` ("is 0, expected a number > 0" otherwise).
+/// A finite number above `LO` (`OPEN`) or of at least `LO`, and at most `HI` (unbounded at
+/// `i64::MAX`): "is 0, expected a number > 0" (`Above`), "is -1, expected a number >= 0"
+/// (`AtLeast`), "is 0, expected a number > 0 and at most 8784" (`Within`) otherwise.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct Above<const LO: i64>(pub f64);
+pub(crate) struct Bounded<const LO: i64, const HI: i64, const OPEN: bool>(pub f64);
 
-impl<'de, const LO: i64> Deserialize<'de> for Above<LO> {
+/// A finite number above `LO`.
+pub(crate) type Above<const LO: i64> = Bounded<LO, { i64::MAX }, true>;
+/// A finite number of at least `LO`.
+pub(crate) type AtLeast<const LO: i64> = Bounded<LO, { i64::MAX }, false>;
+/// A finite number above `LO` and at most `HI`.
+pub(crate) type Within<const LO: i64, const HI: i64> = Bounded<LO, HI, true>;
+
+impl<'de, const LO: i64, const HI: i64, const OPEN: bool> Deserialize<'de>
+    for Bounded<LO, HI, OPEN>
+{
     fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
         let Num(n) = Num::deserialize(d)?;
-        if n > LO as f64 {
-            return Ok(Above(n));
+        let (lo, hi) = (LO as f64, HI as f64);
+        if (n > lo || (!OPEN && n == lo)) && (HI == i64::MAX || n <= hi) {
+            return Ok(Bounded(n));
         }
-        Err(de::Error::custom(format!(
-            "is {n}, expected a number > {LO}"
-        )))
+        let above = if OPEN { ">" } else { ">=" };
+        let most = if HI == i64::MAX {
+            String::new()
+        } else {
+            format!(" and at most {HI}")
+        };
+        let message = format!("is {n}, expected a number {above} {LO}{most}");
+        Err(de::Error::custom(message))
     }
 }
 
-/// A finite number of at least `LO` ("is -1, expected a number >= 0" otherwise).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct AtLeast<const LO: i64>(pub f64);
+impl<const LO: i64, const HI: i64, const OPEN: bool> From<Bounded<LO, HI, OPEN>> for f64 {
+    fn from(n: Bounded<LO, HI, OPEN>) -> f64 {
+        n.0
+    }
+}
 
-impl<'de, const LO: i64> Deserialize<'de> for AtLeast<LO> {
-    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let Num(n) = Num::deserialize(d)?;
-        if n >= LO as f64 {
-            return Ok(AtLeast(n));
-        }
-        Err(de::Error::custom(format!(
-            "is {n}, expected a number >= {LO}"
-        )))
+impl From<Num> for f64 {
+    fn from(n: Num) -> f64 {
+        n.0
     }
 }
 

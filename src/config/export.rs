@@ -6,8 +6,7 @@
 
 use std::path::Path;
 
-use super::de::{self, Int, Text};
-use super::limits;
+use super::de::{self, Text};
 use super::model::Export;
 use super::problem::Cx;
 use super::reader::Tbl;
@@ -56,37 +55,27 @@ pub(crate) fn check_url(url: &str) -> Result<(), String> {
     Ok(())
 }
 
-/// `[export]` as written; defaults and checks in `read`.
+/// `url`: a server root (`check_url`), kept without a trailing slash.
+pub(crate) fn server_root<'de, D: serde::Deserializer<'de>>(d: D) -> Result<String, D::Error> {
+    let u = <String as serde::Deserialize>::deserialize(d)?;
+    check_url(&u).map_err(|e| serde::de::Error::custom(format!("is {u:?}: {e}")))?;
+    Ok(u.trim_end_matches('/').to_string())
+}
+
+/// The keys of `[export]` that `Export` does not keep as written.
 #[derive(serde::Deserialize)]
-struct Raw {
-    url: Option<String>,
-    org: Option<Text>,
-    bucket: Option<Text>,
+struct Keys {
     token_env: Option<Text>,
     token_file: Option<Text>,
-    ca_file: Option<Text>,
-    batch_size: Option<Int<1, 1_000_000>>,
-    flush_interval_ms: Option<Int<1, { limits::EXPORT_MS }>>,
     series: Option<Vec<String>>,
-    enabled: Option<bool>,
-    retry_min_ms: Option<Int<1, { limits::BACKOFF_MS }>>,
-    retry_max_ms: Option<Int<1, { limits::BACKOFF_MS }>>,
-    timeout_ms: Option<Int<1, { limits::EXPORT_MS }>>,
 }
 
 /// Read `[export]`; `None` (with problems recorded) when anything is wrong.
 pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Export> {
     let before = cx.problems.len();
-    let raw: Raw = de::table(cx, t)?;
-    let url = t.need(cx, "url", raw.url);
-    if let Some(u) = &url {
-        if let Err(e) = check_url(u) {
-            t.problem_at(cx, "url", format!("key \"url\" is {u:?}: {e}"));
-        }
-    }
-    let org = t.need(cx, "org", raw.org.map(|o| o.0));
-    let bucket = t.need(cx, "bucket", raw.bucket.map(|b| b.0));
-    let keys = (raw.token_env.map(|v| v.0), raw.token_file.map(|v| v.0));
+    let (mut e, k): (Export, Keys) = de::table2(cx, t)?;
+    t.require(cx, &["url", "org", "bucket"]);
+    let keys = (k.token_env.map(|v| v.0), k.token_file.map(|v| v.0));
     let token = read_secret(cx, (t, dir, env), "token", "the InfluxDB API token", keys);
     if token.is_none() && !t.has("token_env") && !t.has("token_file") {
         t.missing(
@@ -95,22 +84,11 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
             " (or \"token_file\"): expected where the API token is",
         );
     }
-    let (readings, derived) = read_series(cx, t, raw.series);
-    let e = Export {
-        url: url.unwrap_or_default().trim_end_matches('/').to_string(),
-        org: org.unwrap_or_default(),
-        bucket: bucket.unwrap_or_default(),
-        token: token.unwrap_or(super::model::Secret(String::new())),
-        ca_file: existing_file(cx, t, dir, "ca_file", raw.ca_file.map(|f| f.0)),
-        batch_size: raw.batch_size.map_or(5000, |b| b.0 as usize),
-        flush_interval_ms: raw.flush_interval_ms.map_or(1000, Int::u64),
-        readings,
-        derived,
-        enabled: raw.enabled.unwrap_or(true),
-        retry_min_ms: raw.retry_min_ms.map_or(500, Int::u64),
-        retry_max_ms: raw.retry_max_ms.map_or(30_000, Int::u64),
-        timeout_ms: raw.timeout_ms.map_or(10_000, Int::u64),
-    };
+    e.token = token.unwrap_or_default();
+    e.ca_file = existing_file(cx, t, dir, "ca_file", e.ca_file);
+    if let Some(names) = k.series {
+        (e.readings, e.derived) = read_series(cx, t, &names);
+    }
     t.min_max(
         cx,
         ("retry_min_ms", e.retry_min_ms),
@@ -120,13 +98,10 @@ pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Op
 }
 
 /// `series = ["readings", "derived"]` (the default): which series are exported.
-fn read_series(cx: &mut Cx<'_>, t: &Tbl<'_>, names: Option<Vec<String>>) -> (bool, bool) {
+fn read_series(cx: &mut Cx<'_>, t: &Tbl<'_>, names: &[String]) -> (bool, bool) {
     let expected = format!("an array of one or both of: {}", SERIES.join(", "));
-    let Some(names) = names else {
-        return (true, true);
-    };
     let mut chosen = (false, false);
-    for name in &names {
+    for name in names {
         match name.as_str() {
             "readings" => chosen.0 = true,
             "derived" => chosen.1 = true,

@@ -46,10 +46,9 @@ impl Heartbeat {
     }
 }
 
-/// Read `[heartbeat]` (`t`, when present); `None` when absent or wrong (every problem
-/// recorded at its key). `smtp` says whether `[smtp]` is configured.
-pub(crate) fn read(cx: &mut Cx<'_>, t: Option<&Tbl<'_>>, smtp: bool) -> Option<Heartbeat> {
-    let t = t?;
+/// Read `[heartbeat]`; `None` when wrong (every problem recorded at its key). `smtp` says
+/// whether `[smtp]` is configured.
+pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, smtp: bool) -> Option<Heartbeat> {
     let before = cx.problems.len();
     let h: Heartbeat = super::de::table(cx, t)?;
     if let Some(topic) = &h.topic {

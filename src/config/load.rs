@@ -16,14 +16,14 @@ use toml_edit::ImDocument;
 use super::alerting::Alerting;
 use super::model::{Config, Objects, PayloadFormat, Trends};
 use super::objects::{self, Known};
-use super::problem::{whole_file, Cx, LineIndex};
+use super::problem::{again, whole_file, Cx, FirstSeen, LineIndex};
 use super::reader::Tbl;
 use super::reports;
 use super::rules;
 use super::section_model;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
-use super::trends::{self, Model};
+use super::trends::Model;
 use crate::objkind::ObjectKind;
 
 pub use super::problem::{Problem, Problems};
@@ -285,59 +285,41 @@ fn at(file: &Path, pos: Pos) -> String {
     format!("{}:{}", file.display(), pos.0)
 }
 
-fn problem(file: &Path, pos: Pos, message: String) -> Problem {
-    Problem {
-        file: file.to_path_buf(),
-        line: pos.0,
-        column: pos.1,
-        message,
-    }
-}
-
 /// Checks across all site files: unique site ids, unique instrument and object ids, barometer
 /// references to barometers, unique (logger, channel) pairs, object references. Returns the
 /// objects that passed (all of them when there are no problems at all).
 fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> (Objects, Trends) {
-    let mut site_ids: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
+    let mut site_ids = FirstSeen::new();
     for (file, sf) in sites {
         let Some((id, pos)) = &sf.id else { continue };
-        if let Some((f0, p0)) = site_ids.get(id.as_str()) {
+        if let Some((at, ())) = again(&mut site_ids, id, (file, *pos), ()) {
             let msg = format!(
-                "site id {id:?} is already used at {}; expected each site file to have its own id",
-                at(f0, *p0)
+                "site id {id:?} is already used at {at}; expected each site file to have its own id"
             );
-            problems.push(problem(file, *pos, msg));
-        } else {
-            site_ids.insert(id, (file, *pos));
+            problems.push(Problem::at(file, *pos, msg));
         }
     }
 
-    // First occurrence of each instrument id: file, position, kind.
-    let mut ids: BTreeMap<&str, (&Path, Pos, Option<&str>)> = BTreeMap::new();
-    let mut channels: BTreeMap<(&str, &str), (&Path, Pos, &str)> = BTreeMap::new();
+    // First occurrence of each instrument id (with its kind) and of each logger channel.
+    let mut ids = FirstSeen::new();
+    let mut channels = FirstSeen::new();
     for (file, sf) in sites {
         for e in &sf.entries {
             let Some((id, pos)) = &e.id else { continue };
-            if let Some((f0, p0, _)) = ids.get(id.as_str()) {
+            if let Some((at, _)) = again(&mut ids, id.as_str(), (file, *pos), e.kind) {
                 let msg = format!(
-                    "instrument id {id:?} is already used at {}; expected ids unique across all sites",
-                    at(f0, *p0)
+                    "instrument id {id:?} is already used at {at}; expected ids unique across all sites"
                 );
-                problems.push(problem(file, *pos, msg));
-            } else {
-                ids.insert(id, (file, *pos, e.kind));
+                problems.push(Problem::at(file, *pos, msg));
             }
             if let Some((logger, channel, cpos)) = &e.logger_channel {
                 let key = (logger.as_str(), channel.as_str());
-                if let Some((f0, p0, other)) = channels.get(&key) {
+                if let Some((at, other)) = again(&mut channels, key, (file, *cpos), id) {
                     let msg = format!(
                         "instrument {id:?}: logger {logger:?} channel {channel:?} is already \
-                         mapped to instrument {other:?} at {}; expected each logger channel once",
-                        at(f0, *p0)
+                         mapped to instrument {other:?} at {at}; expected each logger channel once"
                     );
-                    problems.push(problem(file, *cpos, msg));
-                } else {
-                    channels.insert(key, (file, *cpos, id));
+                    problems.push(Problem::at(file, *cpos, msg));
                 }
             }
         }
@@ -348,19 +330,18 @@ fn cross_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> (
             let (Some((id, _)), Some((baro, pos))) = (&e.id, &e.barometer) else {
                 continue;
             };
-            let msg = match ids.get(baro.as_str()) {
+            let msg = match ids.get(&baro.as_str()) {
                 None => format!(
                     "instrument {id:?}: barometer {baro:?} is not an instrument in any site file; \
                      expected the id of a kind = \"barometer\" instrument"
                 ),
-                Some((f0, p0, Some(kind))) if *kind != "barometer" => format!(
-                    "instrument {id:?}: barometer {baro:?} is a {kind} (at {}); expected an \
-                     instrument of kind \"barometer\"",
-                    at(f0, *p0)
+                Some((at, Some(kind))) if *kind != "barometer" => format!(
+                    "instrument {id:?}: barometer {baro:?} is a {kind} (at {at}); expected an \
+                     instrument of kind \"barometer\""
                 ),
                 Some(_) => continue,
             };
-            problems.push(problem(file, *pos, msg));
+            problems.push(Problem::at(file, *pos, msg));
         }
     }
     object_checks(sites, problems)
@@ -391,12 +372,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
     }
     for (file, sf) in sites {
         let models = sf.trends.models.iter().map(|m| (m.table, &m.id));
-        for (table, id) in sf
-            .objects
-            .iter()
-            .map(|o| (o.kind.table(), &o.id))
-            .chain(models)
-        {
+        for (table, id) in sf.objects.iter().map(|o| (o.table, &o.id)).chain(models) {
             let Some((id, pos)) = id else { continue };
             if let Some(k) = known.get(id.as_str()) {
                 let by = if k.object {
@@ -409,7 +385,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
                      instruments and objects of all sites",
                     table, k.at
                 );
-                problems.push(problem(file, *pos, msg));
+                problems.push(Problem::at(file, *pos, msg));
                 continue;
             }
             known.insert(
@@ -430,7 +406,7 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
     for (file, sf) in sites {
         for o in &sf.objects {
             let (found, object) = objects::resolve(o, site_of(sf), &known);
-            problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
+            problems.extend(found.into_iter().map(|(pos, m)| Problem::at(file, pos, m)));
             if let Some(object) = object {
                 out.push(object);
             }
@@ -440,8 +416,8 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
     for (file, sf) in sites {
         trends.sites.extend(sf.trends.settings.clone());
         for m in &sf.trends.models {
-            let (found, model) = trends::resolve(m, site_of(sf), &known);
-            problems.extend(found.into_iter().map(|(pos, m)| problem(file, pos, m)));
+            let (found, model) = objects::resolve(m, site_of(sf), &known);
+            problems.extend(found.into_iter().map(|(pos, m)| Problem::at(file, pos, m)));
             match model {
                 Some(Model::StageResponse(r)) => trends.stage_responses.push(r),
                 Some(Model::Hst(h)) => trends.hst.push(h),
@@ -493,11 +469,7 @@ pub fn summary(cfg: &Config) -> String {
     }
     let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
     for sub in &cfg.subscriptions {
-        let format = match sub.format {
-            PayloadFormat::Json => "json",
-            PayloadFormat::Senml => "senml",
-            PayloadFormat::Csv => "csv",
-        };
+        let format = super::de::variants::<PayloadFormat>()[sub.format as usize];
         let _ = writeln!(
             s,
             "  {}  ({format}, qos {}, from pattern {})",

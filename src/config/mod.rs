@@ -1,9 +1,10 @@
 //! Configuration: the validated model (`model`) and loading/validation from a TOML directory
 //! (`load`, with `service`, `export`, `http`, `smtp`, `reports`, `site`, `kinds`, `objects`,
-//! `rules` and `trends` reading the tables: into serde-derived raw structs through `de::table`,
-//! or, for the site tables not yet moved, through `reader`'s typed reads; unknown keys are
-//! refused, old names named through `renamed`; every bound from `limits`); the alerting model
-//! is in `alerting`; `locate` finds the database alone for the operator commands.
+//! `rules` and `trends` reading the tables through `de::table`: straight into the model type
+//! where it keeps the keys as written, into a serde-derived raw struct where it is shaped
+//! otherwise; arrays whose elements are located one by one through `reader`'s `Tbl::array`;
+//! unknown keys are refused, old names named through `renamed`; every bound from `limits`); the
+//! alerting model is in `alerting`; `locate` finds the database alone for the operator commands.
 
 pub mod alerting;
 mod de;

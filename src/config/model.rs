@@ -1,7 +1,10 @@
 //! The validated configuration model: what the rest of seepd reads.
 //!
-//! Everything here is already checked and in SI units (m, kPa, s); the TOML-facing raw types and
-//! the validation that produces these live in `config::load`. Nothing here does I/O.
+//! Everything here is already checked and in SI units (m, kPa, s). The types that keep their keys
+//! as written (`Service`, `Mqtt`, `Export`, `JsonFields`) are read straight from their tables:
+//! their `Default` holds the defaults and their `#[serde]` attributes the bounds; the other
+//! types are built from raw structs by the table readers (`config::load` and its modules).
+//! Nothing here does I/O.
 
 use std::collections::BTreeMap;
 use std::fmt;
@@ -9,10 +12,12 @@ use std::path::PathBuf;
 
 use chrono::{DateTime, Utc};
 
+use super::de::{self, Int, Text};
+use super::limits;
 use crate::objkind::ObjectKind;
 
 /// A secret (password, token). Never printed by `Debug` or `Display`.
-#[derive(Clone, PartialEq, Eq)]
+#[derive(Clone, Default, PartialEq, Eq)]
 pub struct Secret(pub String);
 
 impl fmt::Debug for Secret {
@@ -72,74 +77,165 @@ impl Config {
     }
 }
 
-/// Service-wide settings from `seepd.toml`.
-#[derive(Debug, Clone)]
+/// Service-wide settings from `seepd.toml` (`[service]`, read straight into this; defaults in
+/// its `Default`, bounds in the field types it is read through).
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct Service {
     /// SQLite database file (absolute, resolved against the config directory).
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub database: PathBuf,
     /// Group commit: a batch closes at this many readings...
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::COMMIT_READINGS }>, _, _>")]
     pub commit_max_readings: usize,
     /// ...or this long after its first message, or when the queue runs dry.
+    #[serde(deserialize_with = "de::via::<Int<0, { limits::COMMIT_MS }>, _, _>")]
     pub commit_max_ms: u64,
     /// Payloads larger than this are quarantined as `oversized` (bytes).
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::MQTT_PACKET_BYTES }>, _, _>")]
     pub max_payload_bytes: usize,
     /// Readings stamped further than this into the future are quarantined (s). Default 600.
+    #[serde(deserialize_with = "de::via::<Int<0, { limits::FUTURE_S }>, _, _>")]
     pub max_future_s: i64,
     /// Readings stamped more than this after their arrival (but within `max_future_s`) are
     /// stored flagged `time_ahead` and kept out of rules, health, rates and derived values
     /// (s). Default 60.
+    #[serde(deserialize_with = "de::via::<Int<0, { limits::FUTURE_S }>, _, _>")]
     pub clock_skew_s: i64,
     /// How far apart in time a barometer reading may be from the reading it corrects (s).
+    #[serde(deserialize_with = "de::via::<Int<0, { limits::BAROMETER_AGE_S }>, _, _>")]
     pub barometer_max_age_s: i64,
     /// Shutdown deadline (s): after SIGINT/SIGTERM the service exits within this.
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::SHUTDOWN_S }>, _, _>")]
     pub shutdown_deadline_s: u64,
 }
 
-/// MQTT connection settings.
-#[derive(Debug, Clone)]
+impl Default for Service {
+    /// The defaults; `database` is relative until resolved against the directory.
+    fn default() -> Self {
+        Service {
+            database: "seepd.sqlite".into(),
+            commit_max_readings: 500,
+            commit_max_ms: 50,
+            max_payload_bytes: 65536,
+            max_future_s: 600,
+            clock_skew_s: 60,
+            barometer_max_age_s: 7200,
+            shutdown_deadline_s: 10,
+        }
+    }
+}
+
+/// MQTT connection settings (`[mqtt]`, read straight into this; the password and `[mqtt.tls]`
+/// are read after).
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct Mqtt {
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub host: String,
+    #[serde(deserialize_with = "de::via::<Int<1, 65535>, _, _>")]
     pub port: u16,
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub client_id: String,
+    #[serde(deserialize_with = "de::via_opt::<Text, _, _>")]
     pub username: Option<String>,
+    #[serde(skip)]
     pub password: Option<Secret>,
+    #[serde(skip)]
     pub tls: Option<Tls>,
     /// Keep the broker session between connections (clean_session = false).
     pub persistent_session: bool,
+    #[serde(deserialize_with = "de::via::<Int<0, 65535>, _, _>")]
     pub keep_alive_s: u64,
     /// Largest MQTT packet the client accepts or sends (bytes).
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::MQTT_PACKET_BYTES }>, _, _>")]
     pub max_packet_bytes: usize,
     /// Reconnect backoff: first delay and cap (ms).
+    #[serde(deserialize_with = "de::via::<Int<0, { limits::BACKOFF_MS }>, _, _>")]
     pub reconnect_min_ms: u64,
+    #[serde(deserialize_with = "de::via::<Int<0, { limits::BACKOFF_MS }>, _, _>")]
     pub reconnect_max_ms: u64,
 }
 
-/// InfluxDB v2 export settings (`[export]`): where to write and what.
-#[derive(Debug, Clone)]
+impl Default for Mqtt {
+    fn default() -> Self {
+        Mqtt {
+            host: "127.0.0.1".into(),
+            port: 1883,
+            client_id: "seepd".into(),
+            username: None,
+            password: None,
+            tls: None,
+            persistent_session: true,
+            keep_alive_s: 30,
+            max_packet_bytes: 1_048_576,
+            reconnect_min_ms: 500,
+            reconnect_max_ms: 30_000,
+        }
+    }
+}
+
+/// InfluxDB v2 export settings (`[export]`, read straight into this; the token and `series`
+/// are read after): where to write and what.
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct Export {
     /// Server root, `http://` or `https://` with host and optional port, no path.
+    #[serde(deserialize_with = "super::export::server_root")]
     pub url: String,
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub org: String,
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub bucket: String,
     /// API token (`Authorization: Token ...`), from `token_env` or `token_file`.
+    #[serde(skip)]
     pub token: Secret,
     /// Extra CA certificate (PEM) trusted for `https://`.
+    #[serde(deserialize_with = "de::via_opt::<Text, _, _>")]
     pub ca_file: Option<PathBuf>,
     /// Most points per write request; the queue is read this many entries at a time.
+    #[serde(deserialize_with = "de::via::<Int<1, 1_000_000>, _, _>")]
     pub batch_size: usize,
     /// How often a partial batch is sent (full batches go at once).
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::EXPORT_MS }>, _, _>")]
     pub flush_interval_ms: u64,
     /// Readings (`seepd_reading`, `seepd_input`) are exported.
+    #[serde(skip)]
     pub readings: bool,
     /// Derived values (`seepd_derived`) are exported.
+    #[serde(skip)]
     pub derived: bool,
     /// `enabled = false` keeps the section but neither queues nor sends.
     pub enabled: bool,
     /// Retry backoff after a failed write: first delay and cap.
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::BACKOFF_MS }>, _, _>")]
     pub retry_min_ms: u64,
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::BACKOFF_MS }>, _, _>")]
     pub retry_max_ms: u64,
     /// Whole-request timeout of one write.
+    #[serde(deserialize_with = "de::via::<Int<1, { limits::EXPORT_MS }>, _, _>")]
     pub timeout_ms: u64,
+}
+
+impl Default for Export {
+    /// The defaults; `url`, `org`, `bucket` and the token are required.
+    fn default() -> Self {
+        Export {
+            url: String::new(),
+            org: String::new(),
+            bucket: String::new(),
+            token: Secret::default(),
+            ca_file: None,
+            batch_size: 5000,
+            flush_interval_ms: 1000,
+            readings: true,
+            derived: true,
+            enabled: true,
+            retry_min_ms: 500,
+            retry_max_ms: 30_000,
+            timeout_ms: 10_000,
+        }
+    }
 }
 
 /// TLS to the broker.
@@ -172,18 +268,25 @@ pub enum EpochUnit {
     Milliseconds,
 }
 
-/// Field names of the JSON payload format.
-#[derive(Debug, Clone)]
+/// Field names of the JSON payload format (`[subscription.json]`, read straight into this).
+#[derive(Debug, Clone, serde::Deserialize)]
+#[serde(default)]
 pub struct JsonFields {
     /// Time of the reading (RFC 3339 string or epoch number). Missing → arrival time, flagged.
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub time: String,
     /// Instrument id in the payload (optional way of mapping).
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub instrument: String,
     /// Logger channel in the payload.
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub channel: String,
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub value: String,
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub temperature: String,
     /// When present, an array of per-channel objects (several channels per message).
+    #[serde(deserialize_with = "de::via::<Text, _, _>")]
     pub readings: String,
 }
 

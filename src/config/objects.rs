@@ -25,9 +25,9 @@ use super::problem::Cx;
 use super::reader::Tbl;
 use super::site::Pos;
 use crate::objkind::ObjectKind;
-use values::Reader;
 
-pub(crate) use refs::{problem as reference_problem, resolve, Known};
+pub(crate) use refs::{resolve, Known, Settle};
+pub(crate) use values::Reader;
 
 /// The object tables of a site file, as written (`[[nest]]` ...), from the registry.
 pub(crate) const TABLES: [&str; ObjectKind::ALL.len()] = {
@@ -41,7 +41,7 @@ pub(crate) const TABLES: [&str; ObjectKind::ALL.len()] = {
 };
 
 /// `tolerance_s` as every object table declares it.
-type Tolerance = Option<Int<1, { limits::YEAR_S }>>;
+pub(crate) type Tolerance = Option<Int<1, { limits::YEAR_S }>>;
 
 /// What an instrument reference must name.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -65,10 +65,10 @@ pub(crate) struct Ref {
     pub want: Want,
 }
 
-/// What `load` needs of one object table.
-pub(crate) struct ObjEntry {
-    /// The object's kind (its table name is `kind.table()`).
-    pub kind: ObjectKind,
+/// What `load` needs of one object table (`T`: `Object`) or model table (`trends::Model`).
+pub(crate) struct Entry<T> {
+    /// The table name, as written (`nest`, `hst`...).
+    pub table: &'static str,
     /// How messages name the object, e.g. `nest "AB-N1"`.
     pub what: String,
     /// The id, if readable, and where it is written.
@@ -78,26 +78,18 @@ pub(crate) struct ObjEntry {
     /// `tolerance_s` as written; `None` means "1.5 × the largest input interval".
     pub tolerance_s: Option<i64>,
     /// The object, if its own table had no problems (already reported).
-    pub object: Option<Object>,
+    pub object: Option<T>,
 }
+
+/// One object table.
+pub(crate) type ObjEntry = Entry<Object>;
 
 /// What a kind's reader gives back: the keys every object has, and the object (`None` after a
 /// problem).
-pub(super) struct Read {
-    id: Option<Text>,
-    tolerance_s: Tolerance,
-    object: Option<Object>,
-}
-
-impl Read {
-    /// A table `de::table` could not read at all (its problems are reported).
-    fn nothing() -> Read {
-        Read {
-            id: None,
-            tolerance_s: None,
-            object: None,
-        }
-    }
+pub(crate) struct Read<T = Object> {
+    pub id: Option<Text>,
+    pub tolerance_s: Tolerance,
+    pub object: Option<T>,
 }
 
 /// What every kind's reader gets: the site's id, length unit (`Reader::m`) and unit weight of
@@ -123,36 +115,45 @@ pub(crate) fn read(
     let mut out = Vec::new();
     for kind in ObjectKind::ALL {
         for t in root.tables(cx, kind.table()) {
-            let mut r = Reader {
-                t,
-                m: m_per_unit,
-                refs: Vec::new(),
-            };
-            out.push(entry(cx, &mut r, kind, &site));
+            out.push(entry(cx, t, kind.table(), m_per_unit, |cx, r| match kind {
+                ObjectKind::Nest => nest::read(cx, r, &site),
+                ObjectKind::Toe => toe::read(cx, r, &site),
+                ObjectKind::Blanket => blanket::read(cx, r, &site),
+                ObjectKind::Section => section::read(cx, r, &site),
+            }));
         }
     }
     out
 }
 
-fn entry(cx: &mut Cx<'_>, r: &mut Reader<'_>, kind: ObjectKind, site: &Site<'_>) -> ObjEntry {
+/// Read one object or model table `t` of `table` with `read` (`m`: metres per site length
+/// unit): named `table "id"` in messages once its id is known, references recorded, the
+/// value kept only when the table had no problem.
+pub(crate) fn entry<T>(
+    cx: &mut Cx<'_>,
+    mut t: Tbl<'_>,
+    table: &'static str,
+    m: f64,
+    read: impl FnOnce(&mut Cx<'_>, &mut Reader<'_>) -> Read<T>,
+) -> Entry<T> {
     let before = cx.problems.len();
-    if let Some(id) = r.t.peek_str("id").filter(|id| !id.trim().is_empty()) {
-        r.t.what = format!("{} {id:?}", kind.table());
+    if let Some(id) = t.peek_str("id").filter(|id| !id.trim().is_empty()) {
+        t.what = format!("{table} {id:?}");
     }
-    let read = match kind {
-        ObjectKind::Nest => nest::read(cx, r, site),
-        ObjectKind::Toe => toe::read(cx, r, site),
-        ObjectKind::Blanket => blanket::read(cx, r, site),
-        ObjectKind::Section => section::read(cx, r, site),
+    let mut r = Reader {
+        t,
+        m,
+        refs: Vec::new(),
     };
+    let read = read(cx, &mut r);
     let id = r.t.need(cx, "id", read.id).map(|Text(id)| id);
     let id_pos = cx.pos(r.t.value_span("id"));
     let ok = id.is_some() && cx.problems.len() == before;
-    ObjEntry {
-        kind,
-        what: r.t.what.clone(),
+    Entry {
+        table,
+        what: r.t.what,
         id: id.map(|s| (s, id_pos)),
-        refs: std::mem::take(&mut r.refs),
+        refs: r.refs,
         tolerance_s: read.tolerance_s.map(|Int(t)| t),
         object: read.object.filter(|_| ok),
     }

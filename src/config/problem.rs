@@ -125,13 +125,42 @@ impl Cx<'_> {
     }
 }
 
+impl Problem {
+    /// A problem at a 1-based (line, column) of `file`.
+    pub(crate) fn at(file: &Path, (line, column): (usize, usize), message: String) -> Problem {
+        let file = file.to_path_buf();
+        Problem {
+            file,
+            line,
+            column,
+            message,
+        }
+    }
+}
+
 /// A problem for a whole file (cannot be read, missing): located at line 1, column 1.
 pub(crate) fn whole_file(file: &Path, message: impl Into<String>) -> Problem {
-    Problem {
-        file: file.to_path_buf(),
-        line: 1,
-        column: 1,
-        message: message.into(),
+    Problem::at(file, (1, 1), message.into())
+}
+
+/// Where each id (or other key that must be unique) was first written (`file:line`), with what
+/// was recorded with it.
+pub(crate) type FirstSeen<K, V = ()> = std::collections::BTreeMap<K, (String, V)>;
+
+/// The first occurrence of `key` when it is seen again; otherwise `None`, and `key` recorded as
+/// written at `file`, `pos`, with `v`.
+pub(crate) fn again<'m, K: Ord, V>(
+    seen: &'m mut FirstSeen<K, V>,
+    key: K,
+    (file, pos): (&Path, (usize, usize)),
+    v: V,
+) -> Option<&'m (String, V)> {
+    match seen.entry(key) {
+        std::collections::btree_map::Entry::Occupied(e) => Some(e.into_mut()),
+        std::collections::btree_map::Entry::Vacant(e) => {
+            e.insert((format!("{}:{}", file.display(), pos.0), v));
+            None
+        }
     }
 }
 

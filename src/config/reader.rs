@@ -1,9 +1,9 @@
 //! Typed, located reads from one TOML table of a parsed (span-keeping) document.
 //!
 //! Owns the generic checks every table gets: unknown keys, missing required keys, a table's
-//! located problems, its sub-tables and `[[arrays]]`. The typed reads below (`nonempty`,
-//! `number`, `opt_int_in`, `choice`, `array`) serve the tables not read through `de`: the object
-//! tables and `[trends]`'s `rate_windows`. It does not know what any key means.
+//! located problems, its sub-tables and `[[arrays]]`. Its one typed read, `array`, serves the
+//! lists whose elements are located one by one (the object tables' ids and points, `[trends]`'s
+//! `rate_windows`); every other value is read through `de`. It does not know what any key means.
 
 use std::ops::Range;
 
@@ -103,6 +103,13 @@ impl<'t> Tbl<'t> {
         value
     }
 
+    /// A "missing key" problem at the table header for each of `keys` not written.
+    pub fn require(&self, cx: &mut Cx<'_>, keys: &[&str]) {
+        for key in keys.iter().filter(|k| !self.has(k)) {
+            self.missing(cx, key, "");
+        }
+    }
+
     /// A problem when the lower bound `(min_key, min)` is above the upper `(max_key, max)`,
     /// located at the one of the two keys written (the lower when both are).
     pub fn min_max(
@@ -120,25 +127,6 @@ impl<'t> Tbl<'t> {
             let message = format!("{min_key} is {min} but {max_key} is {max}; expected min <= max");
             self.problem_at(cx, at, message);
         }
-    }
-
-    /// An array of strings as read (`req`: required; a required array must not be empty):
-    /// `None`, with a problem, when an entry is blank.
-    pub fn entries_of(
-        &self,
-        cx: &mut Cx<'_>,
-        key: &str,
-        v: Option<Vec<String>>,
-        req: bool,
-    ) -> Option<Vec<String>> {
-        let v = if req { self.need(cx, key, v)? } else { v? };
-        if v.iter().any(|s| s.trim().is_empty()) || (req && v.is_empty()) {
-            let message =
-                format!("key \"{key}\" has an empty entry or is empty; expected non-empty strings");
-            self.problem_at(cx, key, message);
-            return None;
-        }
-        Some(v)
     }
 
     /// Whether a key is present.
@@ -215,33 +203,6 @@ impl<'t> Tbl<'t> {
         self.problem(cx, format!("missing key \"{key}\" in {}{why}", self.header));
     }
 
-    /// The value under `key`, converted by `conv`; problems for a wrong type or (if `required`)
-    /// absence.
-    fn get<T>(
-        &self,
-        cx: &mut Cx<'_>,
-        key: &str,
-        required: bool,
-        expected: &str,
-        conv: impl Fn(&Value) -> Option<T>,
-    ) -> Option<T> {
-        let Some(item) = self.table.get(key) else {
-            if required {
-                self.missing(cx, key, "");
-            }
-            return None;
-        };
-        let converted = item.as_value().and_then(&conv);
-        if converted.is_none() {
-            self.problem_at(
-                cx,
-                key,
-                format!("key \"{key}\" is {}, expected {expected}", found_item(item)),
-            );
-        }
-        converted
-    }
-
     /// An array (`expected` describes it) whose every element `conv` accepts, each element with
     /// its span (`req`: required). A problem names the first element `conv` rejects and what
     /// each `element` should be.
@@ -253,7 +214,18 @@ impl<'t> Tbl<'t> {
         (expected, element): (&str, &str),
         conv: impl Fn(&Value) -> Option<T>,
     ) -> Option<Vec<(T, Option<Range<usize>>)>> {
-        let array = self.get(cx, key, req, expected, |v| v.as_array().cloned())?;
+        let Some(item) = self.table.get(key) else {
+            if req {
+                self.missing(cx, key, "");
+            }
+            return None;
+        };
+        let Some(array) = item.as_array() else {
+            let found = found_item(item);
+            let message = format!("key \"{key}\" is {found}, expected {expected}");
+            self.problem_at(cx, key, message);
+            return None;
+        };
         let mut out = Vec::with_capacity(array.len());
         for (i, v) in array.iter().enumerate() {
             let Some(t) = conv(v) else {
@@ -277,6 +249,12 @@ impl<'t> Tbl<'t> {
     pub fn sub(&self, cx: &mut Cx<'_>, key: &str, header: &str) -> Option<Tbl<'t>> {
         let item = self.table.get(key)?;
         Tbl::new(cx, item, self.what.clone(), header)
+    }
+
+    /// A sub-table that messages name by its own header (`[mqtt.tls]`), if present.
+    pub fn part(&self, cx: &mut Cx<'_>, key: &str, header: &str) -> Option<Tbl<'t>> {
+        let item = self.table.get(key)?;
+        Tbl::new(cx, item, header, header)
     }
 
     /// The `[[key]]` tables, named `key #1`, `key #2`... in messages (callers rename them once

@@ -5,16 +5,15 @@
 //! contact lists that exist in the same site) are in `cross_check`, called by `load`, which
 //! also resolves `out_dir` through `finish`. Computing due times is `report::schedule`'s job.
 
-use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
 use chrono::{NaiveTime, Weekday};
 
 use serde::Deserialize;
 
-use super::de::{self, Int, Text};
+use super::de::{self, Int, Strings, Text};
 use super::model::{Every, Formats, ReportSchedule};
-use super::problem::{Cx, Problem};
+use super::problem::{again, Cx, FirstSeen, Problem};
 use super::reader::Tbl;
 use super::site::Pos;
 use super::smtp::plain_address;
@@ -31,8 +30,8 @@ struct Raw {
     at: Option<String>,
     weekday: Option<Day>,
     day: Option<Int<1, 28>>,
-    recipients: Option<Vec<String>>,
-    contacts: Option<Vec<String>>,
+    recipients: Option<Strings<false>>,
+    contacts: Option<Strings<false>>,
     out_dir: Option<Text>,
 }
 
@@ -119,9 +118,7 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             );
         }
     }
-    let recipients = t
-        .entries_of(cx, "recipients", r.recipients, false)
-        .unwrap_or_default();
+    let recipients = r.recipients.unwrap_or_default().0;
     for r in recipients.iter().filter(|r| !plain_address(r)) {
         t.problem_at(
             cx,
@@ -129,9 +126,7 @@ fn read_one(cx: &mut Cx<'_>, t: &mut Tbl<'_>, site: &str) -> ReportEntry {
             format!("address {r:?} is not a plain address; expected e.g. engineer@example.org"),
         );
     }
-    let contacts = t
-        .entries_of(cx, "contacts", r.contacts, false)
-        .unwrap_or_default();
+    let contacts = r.contacts.unwrap_or_default().0;
     if recipients.is_empty() && contacts.is_empty() && !t.has("recipients") && !t.has("contacts") {
         t.problem(
             cx,
@@ -181,33 +176,23 @@ pub(crate) struct SiteReports<'a> {
 
 /// Unique report ids across sites; contact lists named by a report exist in its site.
 pub(crate) fn cross_check(files: &[SiteReports<'_>], problems: &mut Vec<Problem>) {
-    let mut seen: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
-    let problem = |file: &Path, pos: Pos, message: String| Problem {
-        file: file.to_path_buf(),
-        line: pos.0,
-        column: pos.1,
-        message,
-    };
+    let mut seen = FirstSeen::new();
     for f in files {
         for e in f.entries {
             if let Some((id, pos)) = &e.id {
-                if let Some((f0, p0)) = seen.get(id.as_str()) {
-                    problems.push(problem(
+                if let Some((at, ())) = again(&mut seen, id, (f.file, *pos), ()) {
+                    problems.push(Problem::at(
                         f.file,
                         *pos,
                         format!(
-                            "report id {id:?} is already used at {}:{}; expected report ids unique across all sites",
-                            f0.display(),
-                            p0.0
+                            "report id {id:?} is already used at {at}; expected report ids unique across all sites"
                         ),
                     ));
-                } else {
-                    seen.insert(id, (f.file, *pos));
                 }
             }
             for (name, pos) in &e.contacts {
                 if !f.contact_lists.contains(name) {
-                    problems.push(problem(
+                    problems.push(Problem::at(
                         f.file,
                         *pos,
                         format!(

@@ -6,8 +6,8 @@
 //! no-data bounds from the instrument's interval) are in `cross_check` and `finish`, called by
 //! `load`.
 
-use std::collections::{BTreeMap, BTreeSet};
-use std::path::{Path, PathBuf};
+use std::collections::BTreeSet;
+use std::path::PathBuf;
 
 use serde::Deserialize;
 
@@ -17,7 +17,7 @@ use super::alerting::{Contacts, Policy, Rule, SiteAlerting};
 use super::de::{self, Int, Nested, Num, Text};
 use super::limits;
 use super::model::{Config, Instrument};
-use super::problem::{Cx, Problem};
+use super::problem::{again, Cx, FirstSeen, Problem};
 use super::reader::{found_item, Tbl};
 use super::site::Pos;
 use super::smtp::plain_address;
@@ -67,11 +67,8 @@ pub(crate) struct SiteRules {
 /// only levels some rule of the site defines (a problem otherwise: that list would never hear
 /// of the level it meant); a rule level no contact list receives is a warning.
 pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
-    let policy = match root.sub(cx, "alerting", "[alerting]") {
-        Some(mut t) => {
-            t.what = "[alerting]".into();
-            read_policy(cx, &t)
-        }
+    let policy = match root.part(cx, "alerting", "[alerting]") {
+        Some(t) => de::table(cx, &t).unwrap_or_default(),
         None => Policy::default(),
     };
     let rule_tables = root.tables(cx, "rule");
@@ -134,70 +131,17 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, site: &str) -> SiteRules {
     }
 }
 
-fn millis(s: Option<i64>) -> Option<i64> {
-    s.filter(|s| *s > 0).map(|s| s * 1000)
-}
-
-/// `[alerting]` as written; defaults are `Policy::default()`.
-#[derive(Deserialize)]
-struct RawPolicy {
-    bundle_window_s: Option<Int<0, 3600>>,
-    remind_every_s: Option<Int<0, { limits::YEAR_S }>>,
-    escalate_after_s: Option<Int<0, { limits::YEAR_S }>>,
-    status_url: Option<Text>,
-    unavailable_after_s: Option<Int<0, { limits::YEAR_S }>>,
-}
-
-fn read_policy(cx: &mut Cx<'_>, t: &Tbl<'_>) -> Policy {
-    let d = Policy::default();
-    let Some(r) = de::table::<RawPolicy>(cx, t) else {
-        return d;
-    };
-    let ms =
-        |v: Option<Int<0, { limits::YEAR_S }>>, default| v.map_or(default, |s| millis(Some(s.0)));
-    Policy {
-        bundle_window_ms: r.bundle_window_s.map_or(d.bundle_window_ms, |s| s.0 * 1000),
-        remind_every_ms: ms(r.remind_every_s, d.remind_every_ms),
-        escalate_after_ms: ms(r.escalate_after_s, d.escalate_after_ms),
-        status_url: r.status_url.map_or(d.status_url, |u| u.0),
-        unavailable_after_ms: ms(r.unavailable_after_s, d.unavailable_after_ms),
-    }
-}
-
-/// `[[contacts]]` as written.
-#[derive(Deserialize, Default)]
-struct RawContacts {
-    #[serde(rename = "name")]
-    _name: Option<String>,
-    emails: Option<Vec<String>>,
-    levels: Option<Vec<String>>,
-    escalation: Option<bool>,
-}
-
 fn read_contacts(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Contacts> {
     let before = cx.problems.len();
-    let name = t.peek_str("name").map(String::from);
-    if let Some(n) = &name {
-        t.what = format!("contacts {n:?}");
-    }
-    let r: RawContacts = de::table(cx, t).unwrap_or_default();
-    let name = t.need(cx, "name", name);
-    let emails = t.entries_of(cx, "emails", r.emails, true);
-    for e in emails.iter().flatten().filter(|e| !plain_address(e)) {
+    let c: Contacts = de::named(cx, t, ("contacts", "name"));
+    t.require(cx, &["name", "emails"]);
+    for e in c.emails.iter().filter(|e| !plain_address(e)) {
         t.problem_at(
             cx,
             "emails",
             format!("address {e:?} is not a plain address; expected e.g. oncall@example.org"),
         );
     }
-    let c = Contacts {
-        name: name?,
-        emails: emails?,
-        levels: t
-            .entries_of(cx, "levels", r.levels, false)
-            .unwrap_or_default(),
-        escalation: r.escalation.unwrap_or(false),
-    };
     (cx.problems.len() == before).then_some(c)
 }
 
@@ -440,20 +384,12 @@ pub(crate) fn cross_check(
     objects: &BTreeSet<String>,
     problems: &mut Vec<Problem>,
 ) {
-    let mut ids: BTreeMap<&str, (&Path, Pos)> = BTreeMap::new();
-    let problem = |file: &Path, pos: Pos, message: String| Problem {
-        file: file.to_path_buf(),
-        line: pos.0,
-        column: pos.1,
-        message,
-    };
+    let mut ids = FirstSeen::new();
     for (file, sr) in files {
         for e in &sr.rules {
             if let Some((id, pos)) = &e.id {
-                if let Some((f0, p0)) = ids.get(id.as_str()) {
-                    problems.push(problem(file, *pos, format!("rule id {id:?} is already used at {}:{}; expected rule ids unique across all sites", f0.display(), p0.0)));
-                } else {
-                    ids.insert(id, (file, *pos));
+                if let Some((at, ())) = again(&mut ids, id, (file, *pos), ()) {
+                    problems.push(Problem::at(file, *pos, format!("rule id {id:?} is already used at {at}; expected rule ids unique across all sites")));
                 }
             }
             let (Some((object, pos)), Some(q)) = (&e.object, &e.quantity) else {
@@ -470,7 +406,7 @@ pub(crate) fn cross_check(
                 None
             };
             if let Some(m) = message {
-                problems.push(problem(file, *pos, m));
+                problems.push(Problem::at(file, *pos, m));
             }
         }
     }

@@ -14,6 +14,7 @@ use std::path::PathBuf;
 use serde::Deserialize;
 use toml::Spanned;
 
+use super::limits::YEAR_S;
 use super::problem::{Cx, Problem};
 use crate::seepage::{
     validate, Boundary, BoundaryKind, ImperviousLine, Material, Point, SectionModel, Subject, Zone,
@@ -310,60 +311,33 @@ pub(crate) fn read(
         cx.at(at, format!("{what}: [section.model]: {p}"));
     }
     let width = width(&model.outline);
+    let (lo, hi) = (width / MAX_ELEMENTS_ACROSS, width / MIN_ELEMENTS_ACROSS);
+    let sizes = format!(
+        "between {} and {} (from {MAX_ELEMENTS_ACROSS} to {MIN_ELEMENTS_ACROSS} elements across \
+         the outline)",
+        lo / m,
+        hi / m
+    );
     let element_size_m = match &raw.element_size {
         None => width / DEFAULT_ELEMENTS_ACROSS,
         Some(s) => {
             let v = *s.get_ref() * m;
-            let (lo, hi) = (width / MAX_ELEMENTS_ACROSS, width / MIN_ELEMENTS_ACROSS);
-            if !(v.is_finite() && v >= lo && v <= hi) {
-                cx.at(
-                    Some(s.span()),
-                    format!(
-                        "{what}: key \"element_size\" is {}, expected between {} and {} (from {} \
-                         to {} elements across the outline)",
-                        s.get_ref(),
-                        lo / m,
-                        hi / m,
-                        MAX_ELEMENTS_ACROSS,
-                        MIN_ELEMENTS_ACROSS
-                    ),
-                );
-            }
-            v
+            let ok = v.is_finite() && v >= lo && v <= hi;
+            check(cx, (what, "element_size"), s, ok, &sizes) * m
         }
     };
-    let resolve_change_m = match &raw.resolve_change {
-        None => 0.1,
-        Some(s) => {
-            let v = *s.get_ref() * m;
-            if !(v.is_finite() && v > 0.0) {
-                cx.at(
-                    Some(s.span()),
-                    format!(
-                        "{what}: key \"resolve_change\" is {}, expected a level change > 0",
-                        s.get_ref()
-                    ),
-                );
-            }
-            v
-        }
-    };
-    let resolve_every_s = match &raw.resolve_every_s {
-        None => DEFAULT_RESOLVE_EVERY_S,
-        Some(s) => {
-            let v = *s.get_ref();
-            if !(60..=super::limits::YEAR_S).contains(&v) {
-                cx.at(
-                    Some(s.span()),
-                    format!(
-                        "{what}: key \"resolve_every_s\" is {v}, expected 60 to {}",
-                        super::limits::YEAR_S
-                    ),
-                );
-            }
-            v
-        }
-    };
+    let resolve_change_m = raw.resolve_change.as_ref().map_or(0.1, |s| {
+        let ok = (*s.get_ref() * m).is_finite() && *s.get_ref() > 0.0;
+        check(cx, (what, "resolve_change"), s, ok, "a level change > 0") * m
+    });
+    let every = (what, "resolve_every_s");
+    let resolve_every_s = raw
+        .resolve_every_s
+        .as_ref()
+        .map_or(DEFAULT_RESOLVE_EVERY_S, |s| {
+            let ok = (60..=YEAR_S).contains(s.get_ref());
+            check(cx, every, s, ok, &format!("60 to {YEAR_S}"))
+        });
     (cx.problems.len() == before).then(|| SeepageSpec {
         model,
         water,
@@ -374,6 +348,24 @@ pub(crate) fn read(
         file: cx.file.to_path_buf(),
         pos: cx.pos(span),
     })
+}
+
+/// A written value, with a problem at it saying what is `expected` unless `ok`.
+fn check<T: Copy + std::fmt::Display>(
+    cx: &mut Cx<'_>,
+    (what, key): (&str, &str),
+    s: &Spanned<T>,
+    ok: bool,
+    expected: &str,
+) -> T {
+    if !ok {
+        let v = s.get_ref();
+        cx.at(
+            Some(s.span()),
+            format!("{what}: key \"{key}\" is {v}, expected {expected}"),
+        );
+    }
+    *s.get_ref()
 }
 
 /// The horizontal extent of a ring, m.
@@ -491,16 +483,12 @@ pub(crate) fn check_tips(
             .filter_map(|id| tip(id).map(|(x, y)| (id.clone(), Point::new(x, y))))
             .collect();
         for p in crate::seepage::check_points(&spec.model, &points) {
-            problems.push(Problem {
-                file: spec.file.clone(),
-                line: spec.pos.0,
-                column: spec.pos.1,
-                message: format!(
-                    "section {:?}: [section.model]: {p}; expected every piezometer tip inside \
-                     the model's outline",
-                    s.id
-                ),
-            });
+            let message = format!(
+                "section {:?}: [section.model]: {p}; expected every piezometer tip inside the \
+                 model's outline",
+                s.id
+            );
+            problems.push(Problem::at(&spec.file, spec.pos, message));
         }
     }
 }

@@ -7,7 +7,6 @@
 use std::path::{Path, PathBuf};
 
 use super::de::{self, Int, Text};
-use super::limits;
 use super::model::{
     EpochUnit, Export, JsonFields, Mqtt, PayloadFormat, Secret, Service, Subscription, Tls,
 };
@@ -52,9 +51,9 @@ pub(crate) fn existing_file(
     t: &Tbl<'_>,
     dir: &Path,
     key: &str,
-    name: Option<String>,
+    name: Option<impl AsRef<Path>>,
 ) -> Option<PathBuf> {
-    let path = resolve(dir, &name?);
+    let path = dir.join(name?);
     if !path.is_file() {
         let shown = path.display();
         t.problem_at(
@@ -80,26 +79,22 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
             "heartbeat",
         ],
     );
-    let service = match root.sub(cx, "service", "[service]") {
-        Some(mut t) => {
-            t.what = "[service]".into();
-            read_service(cx, &t, dir)
-        }
+    let service = match root.part(cx, "service", "[service]") {
+        Some(t) => read_service(cx, &t, dir),
         None if root.has("service") => None,
-        None => Some(default_service(dir)),
+        None => Some(Service {
+            database: dir.join("seepd.sqlite"),
+            ..Service::default()
+        }),
     };
-    let mqtt = match root.sub(cx, "mqtt", "[mqtt]") {
-        Some(mut t) => {
-            t.what = "[mqtt]".into();
-            read_mqtt(cx, &t, dir, env)
-        }
+    let mqtt = match root.part(cx, "mqtt", "[mqtt]") {
+        Some(t) => read_mqtt(cx, &t, dir, env),
         None if root.has("mqtt") => None,
-        None => Some(default_mqtt()),
+        None => Some(Mqtt::default()),
     };
-    let export = root.sub(cx, "export", "[export]").and_then(|mut t| {
-        t.what = "[export]".into();
-        super::export::read(cx, &t, dir, env)
-    });
+    let export = root
+        .part(cx, "export", "[export]")
+        .and_then(|t| super::export::read(cx, &t, dir, env));
     let mut subscriptions: Vec<Subscription> = Vec::new();
     for mut t in root.tables(cx, "subscription") {
         if let Some(s) = read_subscription(cx, &mut t) {
@@ -124,18 +119,15 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
             "no [[subscription]] table; expected at least one (without one seepd receives nothing)",
         );
     }
-    let smtp = root.sub(cx, "smtp", "[smtp]").and_then(|mut t| {
-        t.what = "[smtp]".into();
-        super::smtp::read(cx, &t, dir, env)
-    });
-    let http = root.sub(cx, "http", "[http]").and_then(|mut t| {
-        t.what = "[http]".into();
-        crate::config::http::read(cx, &t)
-    });
-    let heartbeat = root.sub(cx, "heartbeat", "[heartbeat]").and_then(|mut t| {
-        t.what = "[heartbeat]".into();
-        super::heartbeat::read(cx, Some(&t), smtp.is_some())
-    });
+    let smtp = root
+        .part(cx, "smtp", "[smtp]")
+        .and_then(|t| super::smtp::read(cx, &t, dir, env));
+    let http = root
+        .part(cx, "http", "[http]")
+        .and_then(|t| crate::config::http::read(cx, &t));
+    let heartbeat = root
+        .part(cx, "heartbeat", "[heartbeat]")
+        .and_then(|t| super::heartbeat::read(cx, &t, smtp.is_some()));
     ServiceFile {
         service,
         export,
@@ -147,69 +139,10 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, dir: &Path, env: Env<'_>) ->
     }
 }
 
-fn default_service(dir: &Path) -> Service {
-    Service {
-        database: dir.join("seepd.sqlite"),
-        commit_max_readings: 500,
-        commit_max_ms: 50,
-        max_payload_bytes: 65536,
-        max_future_s: 600,
-        clock_skew_s: 60,
-        barometer_max_age_s: 7200,
-        shutdown_deadline_s: 10,
-    }
-}
-
-fn default_mqtt() -> Mqtt {
-    Mqtt {
-        host: "127.0.0.1".into(),
-        port: 1883,
-        client_id: "seepd".into(),
-        username: None,
-        password: None,
-        tls: None,
-        persistent_session: true,
-        keep_alive_s: 30,
-        max_packet_bytes: 1_048_576,
-        reconnect_min_ms: 500,
-        reconnect_max_ms: 30_000,
-    }
-}
-
-/// `[service]` as written; defaults in `default_service`, checks in `read_service`.
-#[derive(serde::Deserialize)]
-struct RawService {
-    database: Option<Text>,
-    commit_max_readings: Option<Int<1, { limits::COMMIT_READINGS }>>,
-    commit_max_ms: Option<Int<0, { limits::COMMIT_MS }>>,
-    max_payload_bytes: Option<Int<1, { limits::MQTT_PACKET_BYTES }>>,
-    max_future_s: Option<Int<0, { limits::FUTURE_S }>>,
-    clock_skew_s: Option<Int<0, { limits::FUTURE_S }>>,
-    barometer_max_age_s: Option<Int<0, { limits::BAROMETER_AGE_S }>>,
-    shutdown_deadline_s: Option<Int<1, { limits::SHUTDOWN_S }>>,
-}
-
 fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
-    let d = default_service(dir);
     let before = cx.problems.len();
-    let r: RawService = de::table(cx, t)?;
-    // Defaults come from `default_service` alone.
-    let s = Service {
-        database: r.database.map_or(d.database, |p| resolve(dir, &p.0)),
-        commit_max_readings: r
-            .commit_max_readings
-            .map_or(d.commit_max_readings, |n| n.0 as usize),
-        commit_max_ms: r.commit_max_ms.map_or(d.commit_max_ms, Int::u64),
-        max_payload_bytes: r
-            .max_payload_bytes
-            .map_or(d.max_payload_bytes, |n| n.0 as usize),
-        max_future_s: r.max_future_s.map_or(d.max_future_s, |n| n.0),
-        clock_skew_s: r.clock_skew_s.map_or(d.clock_skew_s, |n| n.0),
-        barometer_max_age_s: r.barometer_max_age_s.map_or(d.barometer_max_age_s, |n| n.0),
-        shutdown_deadline_s: r
-            .shutdown_deadline_s
-            .map_or(d.shutdown_deadline_s, Int::u64),
-    };
+    let mut s: Service = de::table(cx, t)?;
+    s.database = dir.join(&s.database);
     if s.clock_skew_s > s.max_future_s && t.has("clock_skew_s") {
         t.problem_at(
             cx,
@@ -223,57 +156,30 @@ fn read_service(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path) -> Option<Service> {
     (cx.problems.len() == before).then_some(s)
 }
 
-/// `[mqtt]` as written; defaults in `default_mqtt`, checks in `read_mqtt`.
+/// The keys of `[mqtt]` that `Mqtt` does not keep as written.
 #[derive(serde::Deserialize)]
-struct RawMqtt {
-    host: Option<Text>,
-    port: Option<Int<1, 65535>>,
-    client_id: Option<Text>,
-    username: Option<Text>,
+struct MqttSecret {
     password_env: Option<Text>,
     password_file: Option<Text>,
-    persistent_session: Option<bool>,
-    keep_alive_s: Option<Int<0, 65535>>,
-    max_packet_bytes: Option<Int<1, { limits::MQTT_PACKET_BYTES }>>,
-    reconnect_min_ms: Option<Int<0, { limits::BACKOFF_MS }>>,
-    reconnect_max_ms: Option<Int<0, { limits::BACKOFF_MS }>>,
     /// `[mqtt.tls]`, read as a table of its own.
     #[serde(rename = "tls")]
     _tls: Option<de::Nested>,
 }
 
 fn read_mqtt(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Mqtt> {
-    let d = default_mqtt();
     let before = cx.problems.len();
-    let r: RawMqtt = de::table(cx, t)?;
-    let username = r.username.map(|u| u.0);
+    let (mut m, r): (Mqtt, MqttSecret) = de::table2(cx, t)?;
     let keys = (r.password_env.map(|v| v.0), r.password_file.map(|v| v.0));
-    let password = read_secret(cx, (t, dir, env), "password", "the MQTT password", keys);
-    if password.is_some() && username.is_none() {
+    m.password = read_secret(cx, (t, dir, env), "password", "the MQTT password", keys);
+    if m.password.is_some() && m.username.is_none() {
         t.problem(
             cx,
             "a password is configured but \"username\" is not; expected both or neither",
         );
     }
-    let tls = t.sub(cx, "tls", "[mqtt.tls]").and_then(|mut tls| {
-        tls.what = "[mqtt.tls]".into();
-        read_tls(cx, &tls, dir)
-    });
-    let m = Mqtt {
-        host: r.host.map_or(d.host, |h| h.0),
-        port: r.port.map_or(d.port, |p| p.0 as u16),
-        client_id: r.client_id.map_or(d.client_id, |c| c.0),
-        username,
-        password,
-        tls,
-        persistent_session: r.persistent_session.unwrap_or(d.persistent_session),
-        keep_alive_s: r.keep_alive_s.map_or(d.keep_alive_s, Int::u64),
-        max_packet_bytes: r
-            .max_packet_bytes
-            .map_or(d.max_packet_bytes, |n| n.0 as usize),
-        reconnect_min_ms: r.reconnect_min_ms.map_or(d.reconnect_min_ms, Int::u64),
-        reconnect_max_ms: r.reconnect_max_ms.map_or(d.reconnect_max_ms, Int::u64),
-    };
+    m.tls = t
+        .part(cx, "tls", "[mqtt.tls]")
+        .and_then(|tls| read_tls(cx, &tls, dir));
     let (min, max) = (m.reconnect_min_ms, m.reconnect_max_ms);
     t.min_max(cx, ("reconnect_min_ms", min), ("reconnect_max_ms", max));
     (cx.problems.len() == before).then_some(m)
@@ -416,17 +322,6 @@ struct RawSubscription {
     _json: Option<de::Nested>,
 }
 
-/// `[subscription.json]`: the payload's field names, each defaulting to `JsonFields`'.
-#[derive(serde::Deserialize)]
-struct RawJson {
-    time: Option<Text>,
-    instrument: Option<Text>,
-    channel: Option<Text>,
-    value: Option<Text>,
-    temperature: Option<Text>,
-    readings: Option<Text>,
-}
-
 fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
     let before = cx.problems.len();
     let r: RawSubscription = de::table(cx, t)?;
@@ -451,15 +346,7 @@ fn read_subscription(cx: &mut Cx<'_>, t: &mut Tbl<'_>) -> Option<Subscription> {
                 "[subscription.json] is set but format is not \"json\"; expected it only with format = \"json\"",
             );
         }
-        if let Some(j) = de::table::<RawJson>(cx, &j) {
-            let pick = |v: Option<Text>, d: &mut String| *d = v.map_or(std::mem::take(d), |v| v.0);
-            pick(j.time, &mut json.time);
-            pick(j.instrument, &mut json.instrument);
-            pick(j.channel, &mut json.channel);
-            pick(j.value, &mut json.value);
-            pick(j.temperature, &mut json.temperature);
-            pick(j.readings, &mut json.readings);
-        }
+        json = de::table(cx, &j).unwrap_or(json);
     }
     let (qos, epoch_unit) = (
         r.qos.map_or(1, |q| q.0 as u8),

@@ -84,9 +84,8 @@ pub(crate) fn read(cx: &mut Cx<'_>, root: &Tbl<'_>, file: &Path) -> SiteFile {
     let mut m_per_unit = 1.0;
     let mut gamma_w = 9.81;
     let mut id = None;
-    let site = match root.sub(cx, "site", "[site]") {
+    let site = match root.part(cx, "site", "[site]") {
         Some(mut t) => {
-            t.what = "[site]".into();
             let before = cx.problems.len();
             let r: RawSite = de::named(cx, &mut t, ("site", "id"));
             let sid = t.need(cx, "id", r.id.map(|s| s.0));

@@ -8,8 +8,7 @@ use std::net::IpAddr;
 use std::path::Path;
 
 use super::alerting::{Smtp, SmtpSecurity};
-use super::de::{self, Int, Text};
-use super::limits;
+use super::de::{self, Text};
 use super::problem::Cx;
 use super::reader::Tbl;
 use super::service::{existing_file, read_secret, Env};
@@ -32,87 +31,59 @@ pub(crate) fn plain_address(addr: &str) -> bool {
     ok_chars && !local.is_empty() && domain.contains('.') && !domain.starts_with('.')
 }
 
-/// `[smtp]` as written; defaults and checks in `read`.
+/// `from`: a plain address (`plain_address`).
+pub(crate) fn address<'de, D: serde::Deserializer<'de>>(d: D) -> Result<String, D::Error> {
+    let Text(f) = <Text as serde::Deserialize>::deserialize(d)?;
+    if !plain_address(&f) {
+        let message = format!("is {f:?}, expected an address such as seepd@example.org");
+        return Err(serde::de::Error::custom(message));
+    }
+    Ok(f)
+}
+
+/// The keys of `[smtp]` that `Smtp` does not keep as written.
 #[derive(serde::Deserialize)]
-struct Raw {
-    host: Option<Text>,
-    port: Option<Int<1, 65535>>,
-    security: Option<SmtpSecurity>,
-    username: Option<Text>,
+struct Keys {
     password_env: Option<Text>,
     password_file: Option<Text>,
-    ca_file: Option<Text>,
-    from: Option<Text>,
-    timeout_s: Option<Int<1, 3600>>,
-    retry_min_s: Option<Int<1, { limits::MAIL_RETRY_S }>>,
-    retry_max_s: Option<Int<1, { limits::MAIL_RETRY_S }>>,
 }
 
 /// Read `[smtp]`; `None` if it has problems (reported).
 pub(crate) fn read(cx: &mut Cx<'_>, t: &Tbl<'_>, dir: &Path, env: Env<'_>) -> Option<Smtp> {
     let before = cx.problems.len();
-    let raw: Raw = de::table(cx, t)?;
-    let host = t.need(cx, "host", raw.host.map(|h| h.0));
-    let security = raw.security.unwrap_or(SmtpSecurity::Starttls);
-    if let Some(h) = host.as_deref().filter(|h| !is_loopback(h)) {
-        if security == SmtpSecurity::Plain {
-            t.problem_at(
-                cx,
-                "security",
-                format!(
-                    "security = \"plain\" with host {h:?}, which is not on loopback; expected \
-                     \"starttls\" or \"tls\" (plain is only for a relay on 127.0.0.1/::1/localhost)"
-                ),
-            );
-        }
+    let (mut s, k): (Smtp, Keys) = de::table2(cx, t)?;
+    t.require(cx, &["host"]);
+    if !s.host.is_empty() && !is_loopback(&s.host) && s.security == SmtpSecurity::Plain {
+        t.problem_at(
+            cx,
+            "security",
+            format!(
+                "security = \"plain\" with host {:?}, which is not on loopback; expected \
+                 \"starttls\" or \"tls\" (plain is only for a relay on 127.0.0.1/::1/localhost)",
+                s.host
+            ),
+        );
     }
-    let default_port = match security {
-        SmtpSecurity::Starttls => 587,
-        SmtpSecurity::Tls => 465,
-        SmtpSecurity::Plain => 25,
-    };
-    let username = raw.username.map(|u| u.0);
-    let keys = (
-        raw.password_env.map(|v| v.0),
-        raw.password_file.map(|v| v.0),
-    );
-    let password = read_secret(cx, (t, dir, env), "password", "the SMTP password", keys);
-    if password.is_some() != username.is_some() {
+    if !t.has("port") {
+        s.port = match s.security {
+            SmtpSecurity::Starttls => 587,
+            SmtpSecurity::Tls => 465,
+            SmtpSecurity::Plain => 25,
+        };
+    }
+    let keys = (k.password_env.map(|v| v.0), k.password_file.map(|v| v.0));
+    s.password = read_secret(cx, (t, dir, env), "password", "the SMTP password", keys);
+    if s.password.is_some() != s.username.is_some() {
         t.problem(
             cx,
             "expected both \"username\" and a password (password_env or password_file), or neither",
         );
     }
-    let ca_file = existing_file(cx, t, dir, "ca_file", raw.ca_file.map(|f| f.0));
+    s.ca_file = existing_file(cx, t, dir, "ca_file", s.ca_file);
     if !t.has("from") {
         t.missing(cx, "from", " (the sender address of alert messages)");
     }
-    let from = raw.from.map(|f| f.0);
-    if let Some(f) = from.as_deref().filter(|f| !plain_address(f)) {
-        t.problem_at(
-            cx,
-            "from",
-            format!("key \"from\" is {f:?}, expected an address such as seepd@example.org"),
-        );
-    }
-    let retry_min_s = raw.retry_min_s.map_or(5, Int::u64);
-    let retry_max_s = raw.retry_max_s.map_or(600, Int::u64);
-    t.min_max(
-        cx,
-        ("retry_min_s", retry_min_s),
-        ("retry_max_s", retry_max_s),
-    );
-    let smtp = Smtp {
-        host: host?,
-        port: raw.port.map_or(default_port, |p| p.0 as u16),
-        security,
-        username,
-        password,
-        ca_file,
-        from: from?,
-        timeout_s: raw.timeout_s.map_or(30, Int::u64),
-        retry_min_s,
-        retry_max_s,
-    };
-    (cx.problems.len() == before).then_some(smtp)
+    let (min, max) = (s.retry_min_s, s.retry_max_s);
+    t.min_max(cx, ("retry_min_s", min), ("retry_max_s", max));
+    (cx.problems.len() == before).then_some(s)
 }

@@ -4,6 +4,8 @@
 //! Already checked and in SI units (durations in seconds, heads in metres); read by `watch`.
 //! Nothing here parses or does I/O (that is `config::trends`).
 
+use crate::config::de::{self, Above, AtLeast, Int, Pair};
+
 /// One trailing window a rate is computed over, e.g. `24h`.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct RateSpan {
@@ -13,25 +15,39 @@ pub struct RateSpan {
     pub span_s: i64,
 }
 
-/// Sensor-health settings of a site (`[health]`).
-#[derive(Debug, Clone, PartialEq)]
+/// Sensor-health settings of a site (`[health]`, read straight into this; `spike_floor` then
+/// converted from the site's length unit).
+#[derive(Debug, Clone, PartialEq, serde::Deserialize)]
+#[serde(default)]
 pub struct HealthSettings {
     /// Trailing readings the spike median and MAD are taken over.
+    #[serde(deserialize_with = "de::via::<Int<3, 10_000>, _, _>")]
     pub spike_window: usize,
     /// Multiple of 1.4826·MAD beyond which a reading is a spike.
+    #[serde(deserialize_with = "de::via::<Above<0>, _, _>")]
     pub spike_k: f64,
     /// Smallest departure from the median that can be a spike, metres of head.
+    #[serde(rename = "spike_floor")]
+    #[serde(deserialize_with = "de::via::<AtLeast<0>, _, _>")]
     pub spike_floor_m: f64,
     /// Consecutive readings whose raw values must be identical for a flatline.
+    #[serde(deserialize_with = "de::via::<Int<2, 10_000>, _, _>")]
     pub flatline_count: usize,
     /// Largest spread of raw values (max − min) that still counts as identical, in the raw
     /// value's own unit (Hz, digits, mA, kPa, m...).
+    #[serde(rename = "flatline_tolerance")]
+    #[serde(deserialize_with = "de::via::<AtLeast<0>, _, _>")]
     pub flatline_tolerance_raw: f64,
     /// An instrument is silent after this many expected intervals without a reading.
+    #[serde(deserialize_with = "crate::config::trends::no_data_factor")]
     pub no_data_factor: f64,
     /// Plausible thermistor temperatures of vibrating-wire sensors, °C.
+    #[serde(rename = "thermistor_range")]
+    #[serde(deserialize_with = "de::via::<Pair, _, _>")]
     pub thermistor_range_c: (f64, f64),
     /// Largest plausible thermistor change between consecutive readings, °C.
+    #[serde(rename = "thermistor_max_jump")]
+    #[serde(deserialize_with = "de::via::<Above<0>, _, _>")]
     pub thermistor_max_jump_c: f64,
     /// Use rejected readings (confirmed spikes) in derived quantities anyway (default false).
     pub use_flagged: bool,

@@ -14,7 +14,7 @@ use crate::config::problem::Cx;
 use crate::config::reader::finite;
 
 /// A `[[blanket]]` table as written.
-#[derive(Deserialize)]
+#[derive(Deserialize, Default)]
 struct Raw {
     id: Option<Text>,
     river_gauge: Option<Text>,
@@ -54,9 +54,7 @@ enum Land {
 }
 
 pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read {
-    let Some(raw) = de::table::<Raw>(cx, &r.t) else {
-        return Read::nothing();
-    };
+    let raw: Raw = de::table(cx, &r.t).unwrap_or_default();
     let river_gauge = r.reference(cx, "river_gauge", raw.river_gauge, true, Want::StageGauge);
     let landside_level = r.level(
         cx,

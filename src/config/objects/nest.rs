@@ -14,7 +14,7 @@ use crate::config::problem::Cx;
 const DEFAULT_DEADBAND: f64 = 0.02;
 
 /// A `[[nest]]` table as written.
-#[derive(Deserialize)]
+#[derive(Deserialize, Default)]
 struct Raw {
     id: Option<Text>,
     #[allow(dead_code)] // read element by element (`Tbl::array`)
@@ -24,9 +24,7 @@ struct Raw {
 }
 
 pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read {
-    let Some(raw) = de::table::<Raw>(cx, &r.t) else {
-        return Read::nothing();
-    };
+    let raw: Raw = de::table(cx, &r.t).unwrap_or_default();
     let piezometers = r.references(cx, "piezometers", 2, "piezometer", Want::Piezometer);
     let deadband = r.number(cx, "deadband", raw.deadband, false);
     let object = piezometers.map(|piezometers| {

@@ -7,7 +7,7 @@
 
 use std::collections::BTreeMap;
 
-use super::{ObjEntry, Object, Ref, Want};
+use super::{Entry, Object, Ref, Want};
 use crate::config::site::Pos;
 
 /// What the reference checks need of an id already written in some site file.
@@ -32,14 +32,27 @@ pub(crate) struct Known<'a> {
 /// up), so that one late reading of the slowest input still pairs.
 const TOLERANCE_PER_INTERVAL: (u64, u64) = (3, 2);
 
+/// What an entry holds once its references are settled: an object takes its tolerance (`None`
+/// without one), a model has none.
+pub(crate) trait Settle: Clone {
+    fn settle(self, tolerance_s: Option<i64>) -> Option<Self>;
+}
+
+impl Settle for Object {
+    fn settle(mut self, t: Option<i64>) -> Option<Self> {
+        self.set_tolerance(t?);
+        Some(self)
+    }
+}
+
 /// Check `e`'s references against every known id (`site`: the object's site id) and settle its
 /// tolerance. Returns the problems (position, message), and the finished object when there
 /// were none and its own table was valid.
-pub(crate) fn resolve(
-    e: &ObjEntry,
+pub(crate) fn resolve<T: Settle>(
+    e: &Entry<T>,
     site: &str,
     ids: &BTreeMap<&str, Known<'_>>,
-) -> (Vec<(Pos, String)>, Option<Object>) {
+) -> (Vec<(Pos, String)>, Option<T>) {
     let mut problems = Vec::new();
     let mut largest = None::<u64>;
     for r in &e.refs {
@@ -54,15 +67,8 @@ pub(crate) fn resolve(
         let t = largest?.saturating_mul(num).div_ceil(den);
         Some(i64::try_from(t).unwrap_or(i64::MAX))
     });
-    let object = match (&e.object, tolerance) {
-        (Some(o), Some(t)) if problems.is_empty() => {
-            let mut o = o.clone();
-            o.set_tolerance(t);
-            Some(o)
-        }
-        _ => None,
-    };
-    (problems, object)
+    let object = e.object.clone().filter(|_| problems.is_empty());
+    (problems, object.and_then(|o| o.settle(tolerance)))
 }
 
 /// How a reference's expected target is named.

@@ -13,7 +13,7 @@ use crate::config::problem::Cx;
 use crate::config::reader::finite;
 
 /// A `[[section]]` table as written.
-#[derive(Deserialize)]
+#[derive(Deserialize, Default)]
 struct Raw {
     id: Option<Text>,
     #[allow(dead_code)] // read element by element (`Tbl::array`)
@@ -29,9 +29,7 @@ struct Raw {
 }
 
 pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read {
-    let Some(raw) = de::table::<Raw>(cx, &r.t) else {
-        return Read::nothing();
-    };
+    let raw: Raw = de::table(cx, &r.t).unwrap_or_default();
     let id = id_of(&raw.id);
     let ground = ground(cx, r);
     let pool_gauge = r.reference(cx, "pool_gauge", raw.pool_gauge, true, Want::StageGauge);

@@ -15,7 +15,7 @@ use crate::config::problem::Cx;
 const DEFAULT_FS_TARGET: f64 = 1.6;
 
 /// A `[[toe]]` table as written.
-#[derive(Deserialize)]
+#[derive(Deserialize, Default)]
 struct Raw {
     id: Option<Text>,
     piezometer: Option<Text>,
@@ -31,9 +31,7 @@ struct Raw {
 }
 
 pub(super) fn read(cx: &mut Cx<'_>, r: &mut Reader<'_>, site: &Site<'_>) -> Read {
-    let Some(raw) = de::table::<Raw>(cx, &r.t) else {
-        return Read::nothing();
-    };
+    let raw: Raw = de::table(cx, &r.t).unwrap_or_default();
     let piezometer = r.reference(cx, "piezometer", raw.piezometer, true, Want::Piezometer);
     let ground = r.length(cx, "ground_elevation", raw.ground_elevation, true);
     let water = r.level(

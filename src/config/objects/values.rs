@@ -6,36 +6,13 @@
 //! Owns those messages. Must not know which keys a table has (each kind's raw struct does).
 
 use super::{Ref, Want};
-use crate::config::de::{Above, AtLeast, Num, Text};
+use crate::config::de::{Above, Num, Text};
 use crate::config::model::Level;
 use crate::config::problem::Cx;
 use crate::config::reader::Tbl;
 
-/// A number `de::table` read and checked (`Num`, or one with a bound).
-pub(super) trait Number: Copy {
-    fn get(self) -> f64;
-}
-
-impl Number for Num {
-    fn get(self) -> f64 {
-        self.0
-    }
-}
-
-impl<const LO: i64> Number for Above<LO> {
-    fn get(self) -> f64 {
-        self.0
-    }
-}
-
-impl<const LO: i64> Number for AtLeast<LO> {
-    fn get(self) -> f64 {
-        self.0
-    }
-}
-
 /// One object table being read, with the references found so far.
-pub(super) struct Reader<'t> {
+pub(crate) struct Reader<'t> {
     pub t: Tbl<'t>,
     /// Metres per unit of the site's `length_unit`.
     pub m: f64,
@@ -44,7 +21,7 @@ pub(super) struct Reader<'t> {
 
 impl Reader<'_> {
     /// A number as written; `req`: a missing key is a problem.
-    pub(super) fn number<N: Number>(
+    pub(super) fn number<N: Into<f64>>(
         &self,
         cx: &mut Cx<'_>,
         key: &str,
@@ -52,11 +29,11 @@ impl Reader<'_> {
         req: bool,
     ) -> Option<f64> {
         let v = if req { self.t.need(cx, key, v) } else { v };
-        v.map(N::get)
+        v.map(Into::into)
     }
 
     /// A length in the site's unit, in metres; `req`: a missing key is a problem.
-    pub(super) fn length<N: Number>(
+    pub(super) fn length<N: Into<f64>>(
         &self,
         cx: &mut Cx<'_>,
         key: &str,
@@ -67,7 +44,7 @@ impl Reader<'_> {
     }
 
     /// One instrument id under `key`, recorded as a reference.
-    pub(super) fn reference(
+    pub(crate) fn reference(
         &mut self,
         cx: &mut Cx<'_>,
         key: &'static str,
