@@ -226,8 +226,11 @@ pub fn run(
         boundaries,
         offset_limit_m,
     };
-    let mut fit = fit_section(id, spec, &cases, &choice, now.timestamp_millis())
-        .map_err(|e| anyhow::anyhow!("section {id:?}: {e}"))?;
+    // A refusal says what the data warnings found (why each tip was left out, say).
+    let mut fit = fit_section(id, spec, &cases, &choice, now.timestamp_millis()).map_err(|e| {
+        let why: String = warnings.iter().map(|w| format!("\n  {w}")).collect();
+        anyhow::anyhow!("section {id:?}: {e}{why}")
+    })?;
     warnings.append(&mut fit.warnings);
     fit.warnings = warnings;
     store.insert_model(&fit.to_row())?;

@@ -165,6 +165,18 @@ fn a_section_is_calibrated_stored_with_history_and_used_live() {
             .unwrap()
             .to_rfc3339()
     };
+    // A month after the last readings: refused, saying why each tip was left out.
+    let long_after = chrono::DateTime::from_timestamp_millis(hour(4) + 30 * 86_400_000)
+        .unwrap()
+        .to_rfc3339();
+    let (code, out, err) = fit(&cfg_dir, &["--at", &long_after, "--zone", "foundation"]);
+    assert_eq!(code, 1, "{out}{err}");
+    assert!(
+        err.contains("no piezometer head to fit")
+            && err.contains("FD-PZ-2: newest reading at")
+            && err.contains("older than the section's tolerance; left out"),
+        "{err}"
+    );
     // Two zones from two heads at one time: not determined, stored but not applied.
     let (code, out, err) = fit(
         &cfg_dir,
