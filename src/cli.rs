@@ -536,38 +536,21 @@ fn dispatch(cli: Cli) -> anyhow::Result<()> {
             json,
             out,
         } => {
+            use crate::flownet_cmd::{printed, run, Levels};
             let cfg = load(&config)?;
-            let s = crate::flownet_cmd::section(&cfg, &id)?;
-            let (levels, store) = match upstream {
-                Some(pool_m) => (
-                    crate::flownet_cmd::Levels::Given {
-                        pool_m,
-                        tail_m: downstream,
-                    },
-                    None,
-                ),
-                None => (
-                    crate::flownet_cmd::Levels::At(at.unwrap_or(now)),
-                    Some(db.open(&cfg)?),
-                ),
+            let levels = match upstream {
+                Some(pool_m) => Levels::Given {
+                    pool_m,
+                    tail_m: downstream,
+                },
+                None => Levels::At(at.unwrap_or(now)),
             };
-            // Given levels: the calibration in use still applies when the database exists.
-            let store = match store {
-                Some(s) => Some(s),
-                None if db.path(&cfg).exists() => Some(db.open(&cfg)?),
-                None => None,
-            };
-            let solved = crate::flownet_cmd::solve(&cfg, store.as_ref(), s, &levels)?;
+            let (s, solved) = run(&cfg, db.path(&cfg), &id, &levels)?;
             if let Some(path) = &out {
                 let svg = crate::section_cmd::flownet_svg(&cfg, s, &solved.net);
                 write_or_emit(Some(path), &svg)?;
             }
-            let text = if json {
-                format!("{}\n", crate::flownet_cmd::json(&id, &solved))
-            } else {
-                crate::flownet_cmd::text(&id, &solved)
-            };
-            emit(&text)
+            emit(&printed(&id, &solved, json))
         }
         Command::Report {
             config,

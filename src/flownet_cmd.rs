@@ -93,6 +93,37 @@ pub fn section<'a>(cfg: &'a Config, id: &str) -> anyhow::Result<&'a Section> {
     Ok(s)
 }
 
+/// `seepd flownet`: section `id` of `cfg` solved at `levels`. Stored levels are read from the
+/// database `db`; given levels still take the calibration in use when the database exists.
+///
+/// # Errors
+/// As [`section`] and [`solve`]; database errors.
+pub fn run<'a>(
+    cfg: &'a Config,
+    db: &std::path::Path,
+    id: &str,
+    levels: &Levels,
+) -> anyhow::Result<(&'a Section, Solved)> {
+    let s = section(cfg, id)?;
+    let store = match levels {
+        Levels::At(_) => Some(Store::open(db)?),
+        Levels::Given { .. } if db.exists() => Some(Store::open(db)?),
+        Levels::Given { .. } => None,
+    };
+    let solved = solve(cfg, store.as_ref(), s, levels)?;
+    Ok((s, solved))
+}
+
+/// The command's output: one JSON object, or the text.
+#[must_use]
+pub fn printed(id: &str, solved: &Solved, as_json: bool) -> String {
+    if as_json {
+        format!("{}\n", json(id, solved))
+    } else {
+        text(id, solved)
+    }
+}
+
 /// Solve section `s` at `levels`, reading stored heads from `store` for `Levels::At`.
 ///
 /// # Errors
