@@ -95,7 +95,8 @@ pub fn check(cfg: &Config, g: &Given<'_>, now: DateTime<Utc>) -> anyhow::Result<
     if v < lo || v > hi {
         bail!(
             "value {v} is outside the physical range of {instrument} [{lo}, {hi}] (the value is \
-             in the instrument's raw unit, as its logger would send it)"
+             its {}, as its logger would send it)",
+            crate::present::labels::raw_value(&inst.kind)
         );
     }
     let time = time.unwrap_or(now);
@@ -271,7 +272,14 @@ mod tests {
         assert!(refused("NOPE", "1", None, "Kim").contains("no instrument \"NOPE\""));
         assert!(refused("AB-SP-3", "four", None, "Kim").contains("not a finite number"));
         assert!(refused("AB-SP-3", "NaN", None, "Kim").contains("not a finite number"));
-        assert!(refused("AB-SP-3", "9.5", None, "Kim").contains("outside the physical range"));
+        let r = refused("AB-SP-3", "9.5", None, "Kim");
+        assert!(r.contains("outside the physical range"), "{r}");
+        assert!(
+            r.contains("its depth to water below the reference point in m"),
+            "{r}"
+        );
+        let r = refused("AB-PZ-1A", "6000", None, "Kim");
+        assert!(r.contains("its frequency in Hz"), "{r}");
         assert!(refused("AB-SP-3", "-0.1", None, "Kim").contains("outside the physical range"));
         assert!(refused("AB-SP-3", "4", Some("2026-05-01T13:00:00Z"), "Kim").contains("future"));
         assert!(refused("AB-SP-3", "4", Some("2025-02-01T00:00:00Z"), "Kim").contains("installed"));

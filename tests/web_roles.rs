@@ -128,6 +128,11 @@ fn a_viewer_reads_but_every_change_is_refused_and_a_responder_records_a_reading(
     assert!(!inst.body.contains("name=\"temperature\""));
     let vw = web::get(port, "/instruments/AB-PZ-1A", Some(&responder));
     assert!(vw.body.contains("name=\"temperature\""), "{}", vw.body);
+    assert!(
+        vw.body.contains("The frequency in Hz, as its logger"),
+        "{}",
+        vw.body
+    );
     let a = web::post_form(
         port,
         "/instruments/AB-PZ-1A/manual",

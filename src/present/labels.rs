@@ -1,7 +1,50 @@
 //! Display names in words: one table per instrument kind and per quantity identifier, used
 //! wherever a person reads them. Identifiers stay in CSV, NDJSON and the small "ids" columns.
 
-use crate::config::DisplayUnits;
+use crate::config::{DisplayUnits, Kind, StageMode, TransducerOutput, VwReading};
+use crate::domain::units::{LengthUnit, PressureUnit};
+
+/// What an instrument's raw value is, in words with its unit, as its logger sends it (and as a
+/// hand-read value is entered): "frequency in Hz", "depth to water below the reference point in
+/// ft".
+pub fn raw_value(kind: &Kind) -> String {
+    let pressure = |u: PressureUnit| match u {
+        PressureUnit::Kpa => "kPa",
+        PressureUnit::Psi => "psi",
+        PressureUnit::Bar => "bar",
+        PressureUnit::Mpa => "MPa",
+        PressureUnit::Hpa => "hPa",
+        PressureUnit::MWater => "m of water",
+        PressureUnit::FtWater => "ft of water",
+    };
+    let length = |u: LengthUnit| match u {
+        LengthUnit::M => "m",
+        LengthUnit::Ft => "ft",
+    };
+    match kind {
+        Kind::VibratingWire(vw) => match vw.reading {
+            VwReading::FrequencyHz => "frequency in Hz".into(),
+            VwReading::PeriodS => "period in s".into(),
+            VwReading::PeriodUs => "period in µs".into(),
+            VwReading::Digits => "digits (f²/1000)".into(),
+        },
+        Kind::Transducer(t) => match t.output {
+            TransducerOutput::Pressure(u) => format!("pressure in {}", pressure(u)),
+            TransducerOutput::Current { .. } => "current in mA".into(),
+        },
+        Kind::Standpipe(s) => format!(
+            "depth to water below the reference point in {}",
+            length(s.depth_unit)
+        ),
+        Kind::StageGauge(g) => match g.mode {
+            StageMode::Elevation(u) => format!("water-surface elevation in {}", length(u)),
+            StageMode::DepthAboveDatum { unit, .. } => {
+                format!("depth above the gauge datum in {}", length(unit))
+            }
+        },
+        Kind::Barometer(b) => format!("pressure in {}", pressure(b.unit)),
+    }
+}
 
 /// The label of an alert event kind (`de_escalated` → "lowered"), for the pages and the report.
 pub fn event(kind: &str) -> String {

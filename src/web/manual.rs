@@ -31,13 +31,14 @@ pub fn form(inst: &Instrument, viewer: &super::auth::Viewer, may_change: bool) -
         "<h2>Manual reading</h2><form method=\"post\" action=\"/instruments/{id}/manual\">{csrf}\
          <label for=\"value\">Value read by hand</label>\
          <input id=\"value\" name=\"value\" inputmode=\"decimal\" required maxlength=\"40\">\
-         <p class=\"note\">In the instrument's raw unit, as its logger would send it (physical \
-         range {lo} to {hi}); a standpipe's sounding as configured for it.</p>\
+         <p class=\"note\">The {raw}, as its logger would send it (physical range {lo} to \
+         {hi}).</p>\
          {temperature}<label for=\"time\">Read at (site time; empty: now)</label>\
          <input id=\"time\" name=\"time\" type=\"datetime-local\">\
          <button type=\"submit\">Record as {user}</button></form>",
         id = escape(&inst.id),
         temperature = temperature_field(inst),
+        raw = escape(&crate::present::labels::raw_value(&inst.kind)),
         csrf = html::csrf_field(&s.csrf),
         user = escape(&s.user),
     )
