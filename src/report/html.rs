@@ -232,15 +232,7 @@ pub fn render(d: &ReportData, x: &Extras) -> String {
     for (t, svg) in &x.charts {
         let _ = writeln!(s, "<div title=\"{}\">{svg}</div>", esc(t));
     }
-    for (part, rows) in [
-        (Part::Toes, &d.toes),
-        (Part::Gradients, &d.gradients),
-        (Part::Blankets, &d.blankets),
-        (Part::Sections, &d.sections),
-    ] {
-        if rows.is_empty() {
-            continue;
-        }
+    for (part, rows) in parts::derived(d) {
         heading(&mut s, part);
         derived_table(&mut s, rows, tz, u);
         if let Some(n) = part.note() {

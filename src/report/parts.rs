@@ -5,7 +5,7 @@
 //! Owns the wording of headings, notes and data-quality rows. Must not: lay out or format for
 //! one document.
 
-use super::data::{InstrumentStats, ReportData};
+use super::data::{DerivedStats, InstrumentStats, ReportData};
 use crate::present::format::FS_CAP_RULE;
 
 /// A part of the report.
@@ -66,6 +66,19 @@ impl Part {
             _ => None,
         }
     }
+}
+
+/// The derived-value parts that have rows, in the order both documents show them.
+pub fn derived(d: &ReportData) -> impl Iterator<Item = (Part, &[DerivedStats])> {
+    [
+        (Part::Toes, &d.toes),
+        (Part::Gradients, &d.gradients),
+        (Part::Blankets, &d.blankets),
+        (Part::Sections, &d.sections),
+    ]
+    .into_iter()
+    .filter(|(_, rows)| !rows.is_empty())
+    .map(|(part, rows)| (part, rows.as_slice()))
 }
 
 /// Header of the quarantine table.

@@ -447,15 +447,7 @@ fn layout(d: &ReportData, x: &Extras) -> Layout {
         l.heading(Part::Others.title());
         stats_table(&mut l, &d.others, d);
     }
-    for (part, rows) in [
-        (Part::Toes, &d.toes),
-        (Part::Gradients, &d.gradients),
-        (Part::Blankets, &d.blankets),
-        (Part::Sections, &d.sections),
-    ] {
-        if rows.is_empty() {
-            continue;
-        }
+    for (part, rows) in parts::derived(d) {
         l.heading(part.title());
         derived_table(&mut l, rows, d);
         if let Some(n) = part.note() {
