@@ -17,9 +17,10 @@ use crate::config::{Config, Level, Section};
 use crate::derive::calibration::{fit_section, Choice, LoadCase, SectionFit};
 use crate::derive::excluding_flags;
 use crate::derive::flownet::tips;
-use crate::fit_cmd::time;
-use crate::flownet_cmd::{fit_in_use, section, stored_levels};
+use crate::flownet_cmd::{section, stored_levels};
 use crate::present::format::fixed;
+use crate::present::format::utc as time;
+use crate::section_cmd::fit_in_use;
 use crate::store::Store;
 
 /// Conditions count as steady when the driving levels stayed within `resolve_change` over this

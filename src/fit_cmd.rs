@@ -1,22 +1,79 @@
 //! `seepd fit`: refit the stage-response and HST models now from a database (the configured one,
 //! or a replay database) and print one line per model.
 //!
-//! Owns the output lines and the exit status; fitting is `watch::fit`.
+//! Owns the command's arguments (also `--id SECTION`'s, handed to `calibrate_cmd`), the output
+//! lines and the exit status; fitting is `watch::fit`.
 
 use std::fmt::Write as _;
 
-use chrono::{SecondsFormat, TimeZone, Utc};
+use chrono::{DateTime, Utc};
 
+use crate::command::{emit, status, ConfigDb, Run};
 use crate::config::Config;
+use crate::present::format::utc as time;
 use crate::store::{ModelRow, Store};
 use crate::watch::fit::{fit_and_store, model_ids, FitError};
 
-/// A time as RFC 3339 to the second, UTC (the raw number when out of range).
-pub fn time(t_ms: i64) -> String {
-    Utc.timestamp_millis_opt(t_ms).single().map_or_else(
-        || t_ms.to_string(),
-        |t| t.to_rfc3339_opts(SecondsFormat::Secs, true),
-    )
+/// `seepd fit`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    #[command(flatten)]
+    on: ConfigDb,
+    /// Fit only this model, or calibrate this section (default: every configured model).
+    #[arg(long, value_name = "MODEL|SECTION")]
+    id: Option<String>,
+    /// Section: calibrate to the heads stored at this time (RFC 3339 or YYYY-MM-DD, UTC;
+    /// repeat for several times, fitted together); default: now.
+    #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant, requires = "id")]
+    at: Vec<DateTime<Utc>>,
+    /// Section: fit this zone's permeability factor (repeat; default: every zone, unless
+    /// --boundary is given).
+    #[arg(long, value_name = "NAME", requires = "id")]
+    zone: Vec<String>,
+    /// Section: fit an offset on this water boundary's level (repeat; default: none).
+    #[arg(long, value_name = "NAME", requires = "id")]
+    boundary: Vec<String>,
+    /// Section: search boundary offsets within ± this many metres.
+    #[arg(long, value_name = "M", default_value_t = crate::derive::calibration::OFFSET_LIMIT_M, requires = "boundary")]
+    offset_limit: f64,
+    /// Section: print one JSON object (SI units).
+    #[arg(long, requires = "id")]
+    json: bool,
+}
+
+impl Run for Args {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let cfg = self.on.load()?;
+        let store = self.on.open(&cfg)?;
+        let mut out = String::new();
+        let section = self
+            .id
+            .as_deref()
+            .filter(|id| cfg.objects.sections.iter().any(|s| s.id == *id));
+        let code = match section {
+            Some(id) => {
+                let req = crate::calibrate_cmd::Request {
+                    id,
+                    times: &self.at,
+                    zones: &self.zone,
+                    boundaries: &self.boundary,
+                    offset_limit_m: self.offset_limit,
+                    json: self.json,
+                };
+                crate::calibrate_cmd::run(&cfg, &store, &req, now, &mut out)?
+            }
+            None if !self.at.is_empty()
+                || !self.zone.is_empty()
+                || !self.boundary.is_empty()
+                || self.json =>
+            {
+                anyhow::bail!("--at, --zone, --boundary and --json are for calibrating a section")
+            }
+            None => run(&cfg, &store, self.id.as_deref(), &mut out)?,
+        };
+        emit(&out)?;
+        status(code)
+    }
 }
 
 /// One line describing a stored fit.

@@ -10,10 +10,60 @@ use std::time::Instant;
 use chrono::{DateTime, Utc};
 use serde_json::{json, Value};
 
+use crate::command::{emit, write_or_emit, ConfigDb, Run};
 use crate::config::{Config, Level, Section};
-use crate::derive::calibration::{in_use, SectionFit, KIND};
+use crate::derive::calibration::SectionFit;
 use crate::derive::flownet::{solve_calibrated, tips, FlowNet};
+use crate::section_cmd::{fit_in_use, flownet_svg};
 use crate::store::Store;
+
+/// `seepd flownet`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    #[command(flatten)]
+    on: ConfigDb,
+    /// Section id.
+    #[arg(long)]
+    id: String,
+    /// Solve at the levels stored at this time (RFC 3339 or YYYY-MM-DD, UTC); default: now.
+    #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant, conflicts_with = "upstream")]
+    at: Option<DateTime<Utc>>,
+    /// Upstream (pool) level, m, instead of the stored one.
+    #[arg(long, value_name = "LEVEL", allow_negative_numbers = true)]
+    upstream: Option<f64>,
+    /// Downstream (tail-water) level, m, with --upstream.
+    #[arg(
+        long,
+        value_name = "LEVEL",
+        allow_negative_numbers = true,
+        requires = "upstream"
+    )]
+    downstream: Option<f64>,
+    /// Print one JSON object (SI units).
+    #[arg(long)]
+    json: bool,
+    /// Also draw the flow net as SVG into this file.
+    #[arg(long, value_name = "FILE")]
+    out: Option<std::path::PathBuf>,
+}
+
+impl Run for Args {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let cfg = self.on.load()?;
+        let levels = match self.upstream {
+            Some(pool_m) => Levels::Given {
+                pool_m,
+                tail_m: self.downstream,
+            },
+            None => Levels::At(self.at.unwrap_or(now)),
+        };
+        let (s, solved) = run(&cfg, self.on.path(&cfg), &self.id, &levels)?;
+        if let Some(path) = &self.out {
+            write_or_emit(Some(path), &flownet_svg(&cfg, s, &solved.net))?;
+        }
+        emit(&printed(&self.id, &solved, self.json))
+    }
+}
 
 /// The water levels to solve at.
 pub enum Levels {
@@ -29,14 +79,6 @@ pub struct Solved {
     pub solve_ms: f64,
     /// The calibration solved with (none: the model as written).
     pub fit: Option<SectionFit>,
-}
-
-/// The calibration in use for `section`: the newest applied fit in the model history.
-///
-/// # Errors
-/// Database errors.
-pub fn fit_in_use(store: &Store, section: &str) -> anyhow::Result<Option<SectionFit>> {
-    Ok(in_use(&store.models_of_kind(KIND)?).remove(section))
 }
 
 /// The water levels and piezometer heads stored at a time.

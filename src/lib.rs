@@ -9,7 +9,9 @@ pub mod alerts;
 pub mod background;
 pub mod backoff;
 pub mod calibrate_cmd;
+pub mod check_cmd;
 pub mod cli;
+pub mod command;
 pub mod config;
 #[cfg(feature = "demo-broker")]
 pub mod demo;

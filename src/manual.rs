@@ -159,13 +159,49 @@ pub fn caution(cfg: &Config, e: &Entry) -> Option<String> {
     }
 }
 
+/// `seepd record`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Record {
+    #[command(flatten)]
+    config: crate::command::ConfigDir,
+    /// Instrument id.
+    instrument: String,
+    /// The value in the instrument's raw unit (what its logger would send).
+    #[arg(allow_negative_numbers = true)]
+    value: String,
+    /// The thermistor temperature read with it, °C (vibrating-wire piezometers: the
+    /// thermal correction needs it).
+    #[arg(long, value_name = "C", allow_hyphen_values = true)]
+    temperature: Option<String>,
+    /// When it was read (RFC 3339 or YYYY-MM-DD, UTC); default: now.
+    #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+    time: Option<DateTime<Utc>>,
+    /// Who read it (default: the login name).
+    #[arg(long, value_name = "NAME")]
+    by: Option<String>,
+}
+
+impl crate::command::Run for Record {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let cfg = self.config.load()?;
+        let by = crate::command::who(self.by);
+        let given = Given {
+            instrument: &self.instrument,
+            value: &self.value,
+            temperature: self.temperature.as_deref(),
+            time: self.time,
+            by: &by,
+        };
+        crate::command::emit(&record(&cfg, &given, now)?)
+    }
+}
+
 /// `seepd record`: check, put in the inbox, and wait a few seconds for a running service to
 /// take it; say what became of it.
 ///
 /// # Errors
 /// A refused entry (see `check`), database errors, or a reading the service quarantined.
-pub fn record_cmd(cfg: &Config, given: &Given<'_>) -> anyhow::Result<String> {
-    let now = Utc::now();
+fn record(cfg: &Config, given: &Given<'_>, now: DateTime<Utc>) -> anyhow::Result<String> {
     let e = check(cfg, given, now)?;
     let id = submit(&cfg.service.database, &e, now)?;
     let store = Store::open(&cfg.service.database)?;

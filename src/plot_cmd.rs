@@ -5,12 +5,48 @@
 use chrono::{DateTime, Utc};
 use chrono_tz::Tz;
 
+use anyhow::Context as _;
+
+use crate::command::{write_or_emit, ConfigDb, Period, Run};
 use crate::config::Config;
 use crate::present::labels::quantity_name;
 use crate::present::units::unit_label;
 use crate::present::{measure_of, FS_DISPLAY_CAP};
 use crate::report::chart::{self, Chart, Series};
 use crate::store::Store;
+
+/// `seepd plot`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    #[command(flatten)]
+    on: ConfigDb,
+    /// Instrument or derived-object id.
+    #[arg(long)]
+    id: String,
+    /// Quantity (default: an instrument's total head or water level).
+    #[arg(long)]
+    quantity: Option<String>,
+    #[command(flatten)]
+    period: Period,
+    /// Output file, SVG or PNG by its extension (default: SVG to standard output).
+    #[arg(long, value_name = "FILE")]
+    out: Option<std::path::PathBuf>,
+}
+
+impl Run for Args {
+    fn run(self, _now: DateTime<Utc>) -> anyhow::Result<()> {
+        let cfg = self.on.load()?;
+        let store = self.on.open(&cfg)?;
+        let Period { from, to } = self.period;
+        let svg = render(&cfg, &store, &self.id, self.quantity.as_deref(), from, to)?;
+        match self.out.as_deref() {
+            Some(p) if p.extension().is_some_and(|e| e.eq_ignore_ascii_case("png")) => {
+                std::fs::write(p, png(&svg)?).with_context(|| format!("writing {}", p.display()))
+            }
+            out => write_or_emit(out, &svg),
+        }
+    }
+}
 
 /// The quantity plotted when none is asked for: an instrument's total head (water level), else
 /// its engineering value; an object's first derived quantity stored.

@@ -7,13 +7,18 @@
 //! (`time,instrument,value[,temperature]` per line) and `senml` (one SenML pack per line).
 
 use crate::present::format::clean;
-use std::io::{BufRead, Write};
+use std::fs::File;
+use std::io::{BufRead, BufReader, BufWriter, Write};
+use std::path::PathBuf;
 use std::sync::Arc;
+
+use anyhow::Context as _;
 
 use chrono::{DateTime, SecondsFormat, TimeZone, Utc};
 use serde::Serialize;
 
 use crate::alerts::{Evaluator, Transition};
+use crate::command::{is_broken_pipe, ConfigDir, Run};
 use crate::config::{Config, EpochUnit, JsonFields, PayloadFormat, Subscription};
 use crate::engine::{Engine, Message, Outcome};
 use crate::store::{AlertWrites, DerivedRow, FlagUpdate, QuarantineRow, ReadingRow, Store};
@@ -97,6 +102,94 @@ pub fn replay_subscription(format: PayloadFormat) -> Subscription {
         format,
         epoch_unit: EpochUnit::Auto,
         json: JsonFields::default(),
+    }
+}
+
+/// `seepd replay`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    #[command(flatten)]
+    config: ConfigDir,
+    /// The readings, one per line.
+    #[arg(long, value_name = "FILE")]
+    input: PathBuf,
+    /// How each line is written: a JSON reading, `time,instrument,value[,temperature]`, or a
+    /// SenML pack.
+    #[arg(long, value_enum, default_value = "ndjson")]
+    format: Format,
+    /// Store into this SQLite database (default: in memory only).
+    #[arg(long, value_name = "FILE")]
+    db: Option<PathBuf>,
+    /// Write records here (default: standard output).
+    #[arg(long, value_name = "FILE")]
+    output: Option<PathBuf>,
+    /// Also send the alert messages through [smtp] (default: alert records only).
+    #[arg(long)]
+    send_email: bool,
+}
+
+/// Replay input formats.
+#[derive(Debug, Clone, Copy, clap::ValueEnum)]
+pub enum Format {
+    Ndjson,
+    Csv,
+    Senml,
+}
+
+impl From<Format> for PayloadFormat {
+    fn from(f: Format) -> Self {
+        match f {
+            Format::Ndjson => PayloadFormat::Json,
+            Format::Csv => PayloadFormat::Csv,
+            Format::Senml => PayloadFormat::Senml,
+        }
+    }
+}
+
+impl Run for Args {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let cfg = self.config.load()?;
+        let mut store = match &self.db {
+            Some(p) => Store::open(p)?,
+            None => Store::open_in_memory()?,
+        };
+        store.sync_instruments(&cfg, now)?;
+        let input = &self.input;
+        let reader = BufReader::new(
+            File::open(input).with_context(|| format!("opening {}", input.display()))?,
+        );
+        let mut out: Box<dyn Write> = match &self.output {
+            Some(p) => Box::new(BufWriter::new(
+                File::create(p).with_context(|| format!("creating {}", p.display()))?,
+            )),
+            None => Box::new(BufWriter::new(std::io::stdout().lock())),
+        };
+        let started = std::time::Instant::now();
+        let format = self.format.into();
+        let t = run_with(
+            &cfg,
+            format,
+            reader,
+            &mut store,
+            &mut out,
+            now,
+            self.send_email,
+        );
+        let t = match t {
+            Err(e) if is_broken_pipe(&e) => return Ok(()),
+            other => other?,
+        };
+        eprintln!(
+            "replay: {} lines, {} readings stored, {} duplicates, {} quarantined, {} records in \
+             {:.3} s",
+            t.lines,
+            t.readings,
+            t.duplicates,
+            t.quarantined,
+            t.records,
+            started.elapsed().as_secs_f64()
+        );
+        Ok(())
     }
 }
 

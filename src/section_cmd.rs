@@ -10,7 +10,9 @@ use std::cell::RefCell;
 
 use chrono::{DateTime, Utc};
 
+use crate::command::{write_or_emit, ConfigDb, Run};
 use crate::config::{Config, Section};
+use crate::derive::calibration::{in_use, SectionFit, KIND};
 use crate::derive::flownet::{solve_calibrated, FlowNet};
 use crate::derive::section_input;
 use crate::domain::section::analyse;
@@ -18,11 +20,43 @@ use crate::section_svg::{render_flownet_svg, render_section_svg, SvgOptions};
 use crate::seepage::Point;
 use crate::store::Store;
 
+/// `seepd section`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    #[command(flatten)]
+    on: ConfigDb,
+    /// Section id.
+    #[arg(long)]
+    id: String,
+    /// Time (RFC 3339 or YYYY-MM-DD, UTC); default: now (the latest heads).
+    #[arg(long, value_name = "TIME", value_parser = crate::timetext::instant)]
+    at: Option<DateTime<Utc>>,
+    /// Output file (default: standard output).
+    #[arg(long, value_name = "FILE")]
+    out: Option<std::path::PathBuf>,
+}
+
+impl Run for Args {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let cfg = self.on.load()?;
+        let svg = render(&cfg, &self.on.open(&cfg)?, &self.id, self.at.unwrap_or(now))?;
+        write_or_emit(self.out.as_deref(), &svg)
+    }
+}
+
 fn units_of(cfg: &Config, s: &Section) -> crate::config::DisplayUnits {
     cfg.sites
         .iter()
         .find(|x| x.id == s.site)
         .map_or(crate::config::DisplayUnits::Si, |x| x.display_units)
+}
+
+/// The calibration in use for `section`: the newest applied fit in the model history.
+///
+/// # Errors
+/// Database errors.
+pub fn fit_in_use(store: &Store, section: &str) -> anyhow::Result<Option<SectionFit>> {
+    Ok(in_use(&store.models_of_kind(KIND)?).remove(section))
 }
 
 /// A solved section drawn as a flow net, titled with its levels.
@@ -79,7 +113,7 @@ pub fn render(cfg: &Config, store: &Store, id: &str, at: DateTime<Utc>) -> anyho
                     (p.id.clone(), tip, Some(p.head_m))
                 })
                 .collect();
-            let fit = crate::flownet_cmd::fit_in_use(store, id)?;
+            let fit = fit_in_use(store, id)?;
             let net = solve_calibrated(
                 spec,
                 fit.as_ref(),

@@ -49,6 +49,23 @@ pub fn shutdown_for(cfg: &Config) -> Shutdown {
     Shutdown::new(Duration::from_secs(cfg.service.shutdown_deadline_s))
 }
 
+/// `seepd run`: the service on its own runtime until SIGINT/SIGTERM.
+///
+/// # Errors
+/// As `run`.
+pub fn run_until_signal(cfg: Config) -> anyhow::Result<()> {
+    let cfg = Arc::new(cfg);
+    let rt = tokio::runtime::Runtime::new()?;
+    let shutdown = shutdown_for(&cfg);
+    let result = rt.block_on(async {
+        shutdown.request_on_signal();
+        run(cfg, Arc::new(Counters::default()), shutdown.clone()).await
+    });
+    // A task stuck past the shutdown deadline must not hold the exit.
+    rt.shutdown_timeout(Duration::from_millis(500));
+    result
+}
+
 /// Run the service until `shutdown` is requested; every part stops within its deadline.
 ///
 /// # Errors

@@ -3,6 +3,8 @@
 //! report. The service applies acknowledgements and silences on its next tick (≤ 1 s). They
 //! need only the database: the configuration, when it loads, adds names and checks, so that
 //! an operator can always see and acknowledge alerts (even with a broken configuration).
+//!
+//! Owns these commands' arguments (`Alerts`, `Ack`, `Silence`) and wording.
 
 use std::fmt::Write as _;
 use std::path::Path;
@@ -10,6 +12,7 @@ use std::path::Path;
 use anyhow::{bail, Context as _};
 use chrono::{DateTime, Utc};
 
+use crate::command::{emit, who, Operator, Run};
 use crate::config::Config;
 use crate::domain::rules::{Phase, State};
 use crate::store::outbox::AckOutcome;
@@ -17,6 +20,86 @@ use crate::store::{SilenceRow, Store};
 
 use crate::config::DisplayUnits;
 use crate::present::{quantity_name, shown};
+
+/// `seepd alerts`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Alerts {
+    #[command(flatten)]
+    on: Operator,
+}
+
+impl Run for Alerts {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let (db, cfg) = self.on.open()?;
+        emit(&report_db(&db, cfg.as_ref(), now)?)
+    }
+}
+
+/// `seepd ack`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Ack {
+    /// The alert number (see `seepd alerts`).
+    alert: i64,
+    #[command(flatten)]
+    on: Operator,
+    /// Who acknowledges (default: $USER).
+    #[arg(long, value_name = "NAME")]
+    by: Option<String>,
+    #[arg(long, value_name = "TEXT")]
+    note: Option<String>,
+}
+
+impl Run for Ack {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let (db, _) = self.on.open()?;
+        let by = who(self.by);
+        emit(&ack(&db, self.alert, &by, self.note.as_deref(), now)?)
+    }
+}
+
+/// `seepd silence`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Silence {
+    #[command(flatten)]
+    on: Operator,
+    #[arg(
+        long,
+        value_name = "ID",
+        conflicts_with = "instrument",
+        required_unless_present = "instrument"
+    )]
+    rule: Option<String>,
+    /// An instrument or derived-object id (silences every rule on it).
+    #[arg(long, value_name = "ID")]
+    instrument: Option<String>,
+    /// RFC 3339 time, a date, or +30m / +4h / +2d.
+    #[arg(long, value_name = "TIME")]
+    until: String,
+    #[arg(long, value_name = "TEXT")]
+    reason: String,
+    /// Who silences (default: $USER).
+    #[arg(long, value_name = "NAME")]
+    by: Option<String>,
+    /// Also silence the most severe level of the rules (never silenced otherwise).
+    #[arg(long)]
+    all_levels: bool,
+}
+
+impl Run for Silence {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let (db, cfg) = self.on.open()?;
+        let by = who(self.by);
+        let args = SilenceArgs {
+            rule: self.rule.as_deref(),
+            object: self.instrument.as_deref(),
+            until: &self.until,
+            reason: &self.reason,
+            by: &by,
+            all_levels: self.all_levels,
+        };
+        emit(&silence(&db, cfg.as_ref(), &args, now)?)
+    }
+}
 
 /// Operator listings show UTC (they span sites).
 fn time(t_ms: i64) -> String {

@@ -8,13 +8,12 @@
 //! Per-table keys and checks live in `service`, `site`, `kinds` and `objects`.
 
 use std::collections::{BTreeMap, BTreeSet};
-use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use toml_edit::ImDocument;
 
 use super::alerting::Alerting;
-use super::model::{Config, Objects, PayloadFormat, Trends};
+use super::model::{Config, Objects, Trends};
 use super::objects::{self, Known};
 use super::problem::{again, whole_file, Cx, FirstSeen, LineIndex};
 use super::reader::Tbl;
@@ -24,7 +23,6 @@ use super::section_model;
 use super::service::{self, Env, ServiceFile};
 use super::site::{self, Pos, SiteFile};
 use super::trends::Model;
-use crate::objkind::ObjectKind;
 
 pub use super::problem::{Problem, Problems};
 
@@ -426,122 +424,6 @@ fn object_checks(sites: &[(PathBuf, SiteFile)], problems: &mut Vec<Problem>) -> 
         }
     }
     (out, trends)
-}
-
-/// Human summary for `seepd check`: sites, instruments per site and kind, objects per site and
-/// table (with their ids), topic filters subscribed, database path.
-pub fn summary(cfg: &Config) -> String {
-    let mut s = String::new();
-    let m = &cfg.mqtt;
-    let _ = writeln!(s, "Configuration: {}", cfg.dir.display());
-    let _ = writeln!(s, "Database: {}", cfg.service.database.display());
-    let _ = writeln!(
-        s,
-        "MQTT broker: {}:{} as client {:?}, TLS {}, {} session",
-        m.host,
-        m.port,
-        m.client_id,
-        if m.tls.is_some() { "on" } else { "off" },
-        if m.persistent_session {
-            "persistent"
-        } else {
-            "clean"
-        }
-    );
-    let _ = match &cfg.alerting.smtp {
-        Some(m) => writeln!(
-            s,
-            "Mail relay: {}:{} ({:?}) from {}",
-            m.host, m.port, m.security, m.from
-        ),
-        None => writeln!(s, "Mail relay: none (alert messages stay in the outbox)"),
-    };
-    let _ = writeln!(s, "Alert rules: {}", cfg.alerting.rules.len());
-    if let Some(e) = &cfg.export {
-        let _ = writeln!(
-            s,
-            "Export: InfluxDB v2 at {} (org {:?}, bucket {:?}){}",
-            e.url,
-            e.org,
-            e.bucket,
-            if e.enabled { "" } else { ", disabled" }
-        );
-    }
-    let _ = writeln!(s, "Subscriptions ({}):", cfg.subscriptions.len());
-    for sub in &cfg.subscriptions {
-        let format = super::de::variants::<PayloadFormat>()[sub.format as usize];
-        let _ = writeln!(
-            s,
-            "  {}  ({format}, qos {}, from pattern {})",
-            sub.filter, sub.qos, sub.pattern
-        );
-    }
-    let _ = writeln!(
-        s,
-        "Sites ({}), instruments ({}):",
-        cfg.sites.len(),
-        cfg.instruments.len()
-    );
-    for site in &cfg.sites {
-        let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
-        for i in cfg.instruments.values().filter(|i| i.site == site.id) {
-            *kinds.entry(i.kind.name()).or_default() += 1;
-        }
-        let file = site
-            .file
-            .file_name()
-            .map_or_else(String::new, |n| n.to_string_lossy().into_owned());
-        let objects = site_objects(&cfg.objects, &site.id);
-        let _ = writeln!(
-            s,
-            "  {}: {:?}, file {}, {} instruments, {} objects",
-            site.id,
-            site.name,
-            file,
-            kinds.values().sum::<usize>(),
-            objects.iter().map(|(_, ids)| ids.len()).sum::<usize>()
-        );
-        for (kind, n) in kinds {
-            let _ = writeln!(s, "    {kind}: {n}");
-        }
-        for (table, ids) in objects.iter().filter(|(_, ids)| !ids.is_empty()) {
-            let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
-        }
-        let t = &cfg.trends;
-        let models = [
-            (
-                "stage_response",
-                t.stage_responses
-                    .iter()
-                    .filter(|r| r.site == site.id)
-                    .map(|r| r.id.as_str())
-                    .collect::<Vec<_>>(),
-            ),
-            (
-                "hst",
-                t.hst
-                    .iter()
-                    .filter(|h| h.site == site.id)
-                    .map(|h| h.id.as_str())
-                    .collect(),
-            ),
-        ];
-        for (table, ids) in models.iter().filter(|(_, ids)| !ids.is_empty()) {
-            let _ = writeln!(s, "    [[{table}]] {}: {}", ids.len(), ids.join(", "));
-        }
-    }
-    s
-}
-
-/// A site's object ids per table name, in the order the tables are read.
-fn site_objects<'a>(o: &'a Objects, site: &str) -> Vec<(&'static str, Vec<&'a str>)> {
-    ObjectKind::ALL
-        .into_iter()
-        .map(|k| {
-            let ids = o.of(k).into_iter().filter(|(_, s)| *s == site);
-            (k.table(), ids.map(|(id, _)| id).collect())
-        })
-        .collect()
 }
 
 #[cfg(test)]

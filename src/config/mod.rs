@@ -30,7 +30,7 @@ mod smtp;
 mod trends;
 
 pub use alerting::{Alerting, Contacts, Policy, Rule, SiteAlerting, Smtp, SmtpSecurity};
-pub use load::{load_dir, summary, Problem, Problems};
+pub use load::{load_dir, Problem, Problems};
 pub use locate::database_path;
 pub use model::*;
 pub use smtp::is_loopback;

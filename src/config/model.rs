@@ -256,6 +256,14 @@ pub enum PayloadFormat {
     Csv,
 }
 
+impl PayloadFormat {
+    /// The name as written in `format = "..."`.
+    #[must_use]
+    pub fn name(self) -> &'static str {
+        super::de::variants::<PayloadFormat>()[self as usize]
+    }
+}
+
 /// How numeric timestamps are read.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
 pub enum EpochUnit {

@@ -11,9 +11,58 @@ use anyhow::bail;
 
 use super::line::{self, ObjectTags};
 use super::{deliver, reject_row, Encoded, Sink};
+use crate::command::{ConfigDir, Exit, Period, Run, EXIT_CONFIG};
 use crate::config::{Config, Export};
 use crate::shutdown::Shutdown;
 use crate::store::export::{ExportQueue, ExportRow, Queued, Series};
+
+/// `seepd export`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    #[command(flatten)]
+    config: ConfigDir,
+    #[command(flatten)]
+    period: Period,
+}
+
+impl Run for Args {
+    fn run(self, _now: chrono::DateTime<chrono::Utc>) -> anyhow::Result<()> {
+        let cfg = self.config.load()?;
+        let Period { from, to } = self.period;
+        let Some(e) = &cfg.export else {
+            eprintln!("seepd: no [export] section in seepd.toml; nothing to export to");
+            return Err(Exit(EXIT_CONFIG).into());
+        };
+        anyhow::ensure!(from < to, "--from must be before --to");
+        #[cfg(feature = "influx")]
+        {
+            let rt = tokio::runtime::Runtime::new()?;
+            let sink = super::influx::InfluxSink::new(e)?;
+            let started = std::time::Instant::now();
+            let (from, to) = (from.timestamp_millis(), to.timestamp_millis());
+            let t = rt.block_on(async {
+                let stop = Shutdown::new(std::time::Duration::ZERO);
+                stop.request_on_signal();
+                run(&cfg, e, &sink, from, to, &stop).await
+            })?;
+            eprintln!(
+                "export: {} readings, {} derived values, {} points accepted, {} refused (see \
+                 export_rejects) in {:.3} s",
+                t.readings,
+                t.derived,
+                t.points,
+                t.rejected,
+                started.elapsed().as_secs_f64()
+            );
+            Ok(())
+        }
+        #[cfg(not(feature = "influx"))]
+        {
+            let _ = (e, from, to);
+            anyhow::bail!("this build has no InfluxDB client: rebuild with the `influx` feature")
+        }
+    }
+}
 
 /// Consecutive failed attempts after which the backfill gives up.
 const MAX_ATTEMPTS: u32 = 8;

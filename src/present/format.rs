@@ -150,6 +150,15 @@ pub fn clean(v: f64) -> f64 {
     }
 }
 
+/// A time as RFC 3339 to the second in UTC (the raw milliseconds when out of range): the
+/// command-line outputs' and the CSV tables' times.
+pub fn utc(t_ms: i64) -> String {
+    chrono::DateTime::<chrono::Utc>::from_timestamp_millis(t_ms).map_or_else(
+        || t_ms.to_string(),
+        |t| t.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
+    )
+}
+
 /// A duration in words: seconds, minutes, hours or days ("40 min", "5.0 h", "3.2 days").
 pub fn duration(s: i64) -> String {
     match s {

@@ -2,14 +2,12 @@
 //! (the field names are the header). Columns are documented in README "Reports"; times are
 //! RFC 3339 in UTC, values in SI units with 4 decimals; empty cells mean "none in the period".
 
-use chrono::{SecondsFormat, TimeZone, Utc};
 use serde::Serialize;
 
 use super::data::{DerivedStats, InstrumentStats, ReportData};
 
 fn time(t: Option<(i64, f64)>) -> String {
-    t.and_then(|(t, _)| Utc.timestamp_millis_opt(t).single())
-        .map(|t| t.to_rfc3339_opts(SecondsFormat::Secs, true))
+    t.map(|(t, _)| crate::present::format::utc(t))
         .unwrap_or_default()
 }
 

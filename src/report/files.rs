@@ -1,7 +1,7 @@
 //! A report's documents: which formats are written (`--format`, a schedule's `formats`), the
 //! documents rendered in memory (HTML, PDF, CSV tables, in that order), and writing them to a
 //! directory. What goes into them is `build`'s job (in `report`), how they look the format
-//! modules'.
+//! modules'. Also `seepd report`'s arguments (`Args`).
 
 use std::path::{Path, PathBuf};
 
@@ -9,8 +9,49 @@ use anyhow::Context as _;
 use chrono::{DateTime, Utc};
 
 use super::{build, csv, html};
+use crate::command::{emit, ConfigDb, Period, Run};
 use crate::config::{Config, Formats};
 use crate::store::Store;
+
+/// `seepd report`'s arguments.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    #[command(flatten)]
+    on: ConfigDb,
+    #[arg(long)]
+    site: String,
+    #[command(flatten)]
+    period: Period,
+    /// Output directory.
+    #[arg(long, value_name = "DIR")]
+    out: PathBuf,
+    /// Documents to write, comma-separated: any of html, pdf, csv (default: all).
+    #[arg(long, value_name = "LIST", default_value_t)]
+    format: Formats,
+}
+
+impl Run for Args {
+    fn run(self, now: DateTime<Utc>) -> anyhow::Result<()> {
+        let cfg = self.on.load()?;
+        let store = self.on.open(&cfg)?;
+        let Period { from, to } = self.period;
+        let files = generate(
+            &cfg,
+            &store,
+            &self.site,
+            (from, to),
+            now,
+            self.format,
+            &self.out,
+        )?;
+        emit(
+            &files
+                .iter()
+                .map(|p| format!("{}\n", p.display()))
+                .collect::<String>(),
+        )
+    }
+}
 
 /// One generated file, in memory: its name (e.g. `SITE_FROM_TO.html`), MIME type and bytes.
 #[derive(Debug, Clone)]

@@ -30,7 +30,7 @@ use crate::store::Store;
 
 use chart::{Beyond, Chart, LevelLine, Series};
 use data::{Readings, ReportData};
-pub use files::{generate, render_report, write_files, Document};
+pub use files::{generate, render_report, write_files, Args, Document};
 
 /// A chart group: a title and its piezometers, with the stage gauge drawn on the second axis.
 struct Group {

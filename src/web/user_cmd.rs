@@ -3,14 +3,53 @@
 //! responder). The password is read from standard input (one line), never from the command
 //! line, and never printed.
 //!
-//! Owns those commands' wording.
+//! Owns those commands' arguments (`Action`) and wording.
 
 use std::path::Path;
 
 use anyhow::{bail, Context as _};
 use chrono::Utc;
 
+use crate::command::{emit, Operator, Run};
 use crate::store::pages::Role;
+
+/// The `seepd user` subcommands.
+#[derive(clap::Subcommand, Debug)]
+pub enum Action {
+    /// Add a user, or change their password (read from standard input, one line).
+    Add {
+        name: String,
+        /// `viewer` reads the pages; `responder` also acknowledges, silences and records
+        /// manual readings.
+        #[arg(long, default_value = "viewer")]
+        role: String,
+        #[command(flatten)]
+        on: Operator,
+    },
+    /// Remove a user.
+    Remove {
+        name: String,
+        #[command(flatten)]
+        on: Operator,
+    },
+    /// List the users.
+    List {
+        #[command(flatten)]
+        on: Operator,
+    },
+}
+
+impl Run for Action {
+    fn run(self, _now: chrono::DateTime<Utc>) -> anyhow::Result<()> {
+        let (Action::Add { on, .. } | Action::Remove { on, .. } | Action::List { on }) = &self;
+        let (db, _) = on.open()?;
+        emit(&match &self {
+            Action::Add { name, role, .. } => add(&db, name, role, &mut stdin()),
+            Action::Remove { name, .. } => remove(&db, name),
+            Action::List { .. } => list(&db),
+        }?)
+    }
+}
 
 /// `seepd user add NAME`: read the password from `input`, store its hash.
 ///

@@ -184,7 +184,7 @@ fn judge(dir: &Path) -> Result<bool, String> {
     match loaded {
         Ok(cfg) => {
             let built = std::panic::catch_unwind(|| {
-                let _ = seepd::config::summary(&cfg);
+                let _ = seepd::check_cmd::summary(&cfg);
                 // The durations a run adds to the clock must not overflow.
                 let now = std::time::Instant::now();
                 let _ = now + std::time::Duration::from_secs(cfg.service.shutdown_deadline_s);

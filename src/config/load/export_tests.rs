@@ -2,6 +2,7 @@
 
 use super::tests::{no_env, problems_of, write, SERVICE};
 use super::*;
+use crate::check_cmd::summary;
 
 #[test]
 fn export_section_with_defaults_and_a_token_file() {

@@ -4,6 +4,7 @@
 use std::path::Path;
 
 use super::*;
+use crate::check_cmd::summary;
 use crate::config::model::{
     BlanketReach, CriticalGradientFrom, LandsideCase, LandwardDistance, Level, Nest, RiversideCase,
     Section, ToeCheck,

@@ -4,6 +4,7 @@
 use std::path::{Path, PathBuf};
 
 use super::*;
+use crate::check_cmd::summary;
 use crate::config::model::{BaroCorrection, Kind, StageMode, VwCalibration, VwSign};
 
 /// Write `text` to `dir/name`.
