@@ -263,6 +263,45 @@ fn backfill_sends_exactly_the_requested_range() {
     );
 }
 
+/// `seepd export --db FILE` sends another database's rows (a replay's, say) to the configured
+/// server: the database moved away from the configured path is the one read.
+#[test]
+fn backfill_reads_the_database_given_with_db() {
+    let dir = tempfile::tempdir().unwrap();
+    let vm = Victoria::start(dir.path());
+    let cfg = export_config(dir.path(), free_port(), &vm.url(), "batch_size = 64");
+    let times = prefill(&cfg, 40, t0_ms(), 1000, false);
+    let config = seepd::config::load_dir(&cfg).unwrap_or_else(|p| panic!("{p}"));
+    let elsewhere = dir.path().join("replayed.sqlite");
+    std::fs::rename(&config.service.database, &elsewhere).unwrap();
+    let iso = |ms: i64| {
+        chrono::DateTime::from_timestamp_millis(ms)
+            .unwrap()
+            .to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
+    };
+    let out = Command::new(seepd_bin())
+        .args(["export", "--config"])
+        .arg(&cfg)
+        .arg("--db")
+        .arg(&elsewhere)
+        .args(["--from", &iso(times[0]), "--to", &iso(times[39] + 1)])
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    assert!(stderr.contains("40 readings"), "{stderr}");
+    wait_samples(
+        &vm,
+        times.len() * SAMPLES_PER_READING,
+        &dir.path().join("none"),
+    );
+    assert_all_there(&vm, &times, true);
+    assert!(
+        !config.service.database.exists(),
+        "the configured database was not to be created"
+    );
+}
+
 /// https with the server's certificate trusted through `ca_file` (a private CA): every point
 /// arrives; without the CA file the certificate is refused and nothing is written.
 #[test]

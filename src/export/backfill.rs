@@ -11,7 +11,7 @@ use anyhow::bail;
 
 use super::line::{self, ObjectTags};
 use super::{deliver, reject_row, Encoded, Sink};
-use crate::command::{ConfigDir, Exit, Period, Run, EXIT_CONFIG};
+use crate::command::{ConfigDb, Exit, Period, Run, EXIT_CONFIG};
 use crate::config::{Config, Export};
 use crate::shutdown::Shutdown;
 use crate::store::export::{ExportQueue, ExportRow, Queued, Series};
@@ -19,15 +19,17 @@ use crate::store::export::{ExportQueue, ExportRow, Queued, Series};
 /// `seepd export`'s arguments.
 #[derive(clap::Args, Debug)]
 pub struct Args {
+    // `--db`: a replay's database, say, sent to the configured server.
     #[command(flatten)]
-    config: ConfigDir,
+    on: ConfigDb,
     #[command(flatten)]
     period: Period,
 }
 
 impl Run for Args {
     fn run(self, _now: chrono::DateTime<chrono::Utc>) -> anyhow::Result<()> {
-        let cfg = self.config.load()?;
+        let mut cfg = self.on.load()?;
+        cfg.service.database = self.on.path(&cfg).to_path_buf();
         let Period { from, to } = self.period;
         let Some(e) = &cfg.export else {
             eprintln!("seepd: no [export] section in seepd.toml; nothing to export to");
