@@ -170,7 +170,7 @@ pub fn report_db(db: &Path, cfg: Option<&Config>, now: DateTime<Utc>) -> anyhow:
                 s,
                 "      {}  {:<20} {:<10} {}{detail}",
                 time(e.t_ms),
-                e.kind,
+                crate::present::labels::event(&e.kind),
                 e.level,
                 value
             );
