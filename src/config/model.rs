@@ -689,7 +689,7 @@ pub struct Section {
 }
 
 /// All derived-quantity objects of the configuration, one list per kind
-/// (`crate::objkind::ObjectKind`); `of` and `push` are the exhaustive matches.
+/// (`crate::objkind::ObjectKind`); `of_kind` and `push` are the exhaustive matches.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Objects {
     pub nests: Vec<Nest>,
@@ -719,6 +719,48 @@ impl Object {
     }
 }
 
+/// One configured object, borrowed, of any kind. Outputs that show objects (`report::data`,
+/// the web pages) match on it, so a new kind makes them say what they show of it.
+#[derive(Debug, Clone, Copy)]
+pub enum ObjectRef<'a> {
+    Nest(&'a Nest),
+    Toe(&'a ToeCheck),
+    Blanket(&'a BlanketReach),
+    Section(&'a Section),
+}
+
+impl<'a> ObjectRef<'a> {
+    /// Its kind.
+    pub fn kind(self) -> ObjectKind {
+        match self {
+            ObjectRef::Nest(_) => ObjectKind::Nest,
+            ObjectRef::Toe(_) => ObjectKind::Toe,
+            ObjectRef::Blanket(_) => ObjectKind::Blanket,
+            ObjectRef::Section(_) => ObjectKind::Section,
+        }
+    }
+
+    /// Its id and site.
+    fn names(self) -> (&'a str, &'a str) {
+        match self {
+            ObjectRef::Nest(x) => (&x.id, &x.site),
+            ObjectRef::Toe(x) => (&x.id, &x.site),
+            ObjectRef::Blanket(x) => (&x.id, &x.site),
+            ObjectRef::Section(x) => (&x.id, &x.site),
+        }
+    }
+
+    /// Its id.
+    pub fn id(self) -> &'a str {
+        self.names().0
+    }
+
+    /// Its site.
+    pub fn site(self) -> &'a str {
+        self.names().1
+    }
+}
+
 impl Objects {
     /// The section `id`, if configured.
     pub fn section(&self, id: &str) -> Option<&Section> {
@@ -735,23 +777,37 @@ impl Objects {
         }
     }
 
-    /// (id, site) of every object of `kind`, in configuration order.
-    pub fn of(&self, kind: ObjectKind) -> Vec<(&str, &str)> {
-        fn ids<T>(v: &[T], f: fn(&T) -> (&str, &str)) -> Vec<(&str, &str)> {
+    /// Every object of `kind`, in configuration order: the one exhaustive match on the lists.
+    pub fn of_kind(&self, kind: ObjectKind) -> Vec<ObjectRef<'_>> {
+        fn refs<'a, T>(v: &'a [T], f: fn(&'a T) -> ObjectRef<'a>) -> Vec<ObjectRef<'a>> {
             v.iter().map(f).collect()
         }
         match kind {
-            ObjectKind::Nest => ids(&self.nests, |x| (&x.id, &x.site)),
-            ObjectKind::Toe => ids(&self.toes, |x| (&x.id, &x.site)),
-            ObjectKind::Blanket => ids(&self.blankets, |x| (&x.id, &x.site)),
-            ObjectKind::Section => ids(&self.sections, |x| (&x.id, &x.site)),
+            ObjectKind::Nest => refs(&self.nests, ObjectRef::Nest),
+            ObjectKind::Toe => refs(&self.toes, ObjectRef::Toe),
+            ObjectKind::Blanket => refs(&self.blankets, ObjectRef::Blanket),
+            ObjectKind::Section => refs(&self.sections, ObjectRef::Section),
         }
+    }
+
+    /// Every object, kinds in registry order (`ObjectKind::ALL`).
+    pub fn iter(&self) -> impl Iterator<Item = ObjectRef<'_>> {
+        ObjectKind::ALL.into_iter().flat_map(|k| self.of_kind(k))
+    }
+
+    /// The object `id`, of whatever kind.
+    pub fn get(&self, id: &str) -> Option<ObjectRef<'_>> {
+        self.iter().find(|o| o.id() == id)
+    }
+
+    /// The (id, site) of every object of `kind`.
+    pub fn of(&self, kind: ObjectKind) -> Vec<(&str, &str)> {
+        let of = self.of_kind(kind).into_iter();
+        of.map(|o| (o.id(), o.site())).collect()
     }
 
     /// Every object as (kind, id, site), kinds in registry order.
     pub fn all(&self) -> impl Iterator<Item = (ObjectKind, &str, &str)> {
-        ObjectKind::ALL
-            .into_iter()
-            .flat_map(|k| self.of(k).into_iter().map(move |(id, site)| (k, id, site)))
+        self.iter().map(|o| (o.kind(), o.id(), o.site()))
     }
 }

@@ -2,7 +2,9 @@
 //! statistics, stage summary, toe checks, sections, quarantine and health flags. No formatting
 //! here (see `html`, `csv`, `chart`).
 
-use crate::config::{Config, DisplayUnits, Instrument, Kind, LandwardDistance, Location};
+use crate::config::{
+    Config, DisplayUnits, Instrument, Kind, LandwardDistance, Location, ObjectRef,
+};
 use crate::model::ReadingQuantity;
 use crate::quality::Flags;
 use crate::store::{Store, StoreError};
@@ -264,6 +266,11 @@ pub fn derived_stats(
     })
 }
 
+/// Quantity names as owned strings.
+fn names(q: &[&str]) -> Vec<String> {
+    q.iter().map(|q| (*q).to_string()).collect()
+}
+
 /// Gather a site's report data for [from, to).
 ///
 /// # Errors
@@ -324,32 +331,32 @@ pub fn gather_from(
             _ => data.piezometers.push(stats),
         }
     }
-    let o = &cfg.objects;
-    for toe in o.toes.iter().filter(|x| x.site == site) {
-        for q in ["exit_gradient", "factor_of_safety", "excess_head"] {
-            data.toes.push(derived_stats(store, &toe.id, q, f, t)?);
-        }
-    }
-    for sec in o.sections.iter().filter(|x| x.site == site) {
-        for q in ["exit_elevation", "seepage_face_height", "min_cover"] {
-            data.sections.push(derived_stats(store, &sec.id, q, f, t)?);
-        }
-    }
-    for c in o.nests.iter().filter(|x| x.site == site) {
-        data.gradients
-            .push(derived_stats(store, &c.id, "vertical_gradient", f, t)?);
-    }
-    for b in o.blankets.iter().filter(|x| x.site == site) {
-        let at: Vec<String> = b.distances.iter().map(LandwardDistance::quantity).collect();
-        let fixed = [
-            "net_head",
-            "expected_excess_head",
-            "measured_excess_head",
-            "expected_exit_gradient",
-            "expected_flow",
-        ];
-        for q in fixed.iter().copied().chain(at.iter().map(String::as_str)) {
-            data.blankets.push(derived_stats(store, &b.id, q, f, t)?);
+    // What each kind shows in the tables: one match, so a new kind must say.
+    for o in cfg.objects.iter().filter(|o| o.site() == site) {
+        let (rows, quantities): (_, Vec<String>) = match o {
+            ObjectRef::Nest(_) => (&mut data.gradients, names(&["vertical_gradient"])),
+            ObjectRef::Toe(_) => (
+                &mut data.toes,
+                names(&["exit_gradient", "factor_of_safety", "excess_head"]),
+            ),
+            ObjectRef::Blanket(b) => {
+                let mut q = names(&[
+                    "net_head",
+                    "expected_excess_head",
+                    "measured_excess_head",
+                    "expected_exit_gradient",
+                    "expected_flow",
+                ]);
+                q.extend(b.distances.iter().map(LandwardDistance::quantity));
+                (&mut data.blankets, q)
+            }
+            ObjectRef::Section(_) => (
+                &mut data.sections,
+                names(&["exit_elevation", "seepage_face_height", "min_cover"]),
+            ),
+        };
+        for q in quantities {
+            rows.push(derived_stats(store, o.id(), &q, f, t)?);
         }
     }
     data.quarantine = store.quarantine_by_reason(f, t)?;

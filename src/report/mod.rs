@@ -22,7 +22,7 @@ use chrono::{DateTime, Utc};
 use chrono_tz::Tz;
 use std::collections::BTreeSet;
 
-use crate::config::{Config, DisplayUnits, Kind};
+use crate::config::{Config, DisplayUnits, Kind, ObjectRef};
 use crate::domain::rules::{Check, Direction};
 use crate::present::units::{convert, unit_label};
 use crate::present::{measure_of, Measure, FS_DISPLAY_CAP};
@@ -47,25 +47,27 @@ fn groups(cfg: &Config, site: &str) -> Vec<Group> {
         .values()
         .find(|i| i.site == site && matches!(i.kind, Kind::StageGauge(_)))
         .map(|i| i.id.clone());
+    let river = o.blankets.iter().find(|b| b.site == site);
+    let river = river
+        .map(|b| b.river_gauge.clone())
+        .or_else(|| site_stage.clone());
+    // Which kinds have a group of piezometers to plot: one match, so a new kind must say.
     let mut out = Vec::new();
-    for c in o.nests.iter().filter(|c| c.site == site) {
-        let stage = o
-            .blankets
-            .iter()
-            .find(|b| b.site == site)
-            .map(|b| b.river_gauge.clone())
-            .or_else(|| site_stage.clone());
+    for x in o.iter().filter(|x| x.site() == site) {
+        let (title, piezometers, stage) = match x {
+            ObjectRef::Nest(c) => (format!("Nest {}", c.id), &c.piezometers, river.clone()),
+            ObjectRef::Section(s) => (
+                format!("Section {}", s.id),
+                &s.piezometers,
+                Some(s.pool_gauge.clone()),
+            ),
+            ObjectRef::Toe(_) | ObjectRef::Blanket(_) => continue,
+        };
+        let piezometers = piezometers.clone();
         out.push(Group {
-            title: format!("Nest {}", c.id),
-            piezometers: c.piezometers.clone(),
+            title,
+            piezometers,
             stage,
-        });
-    }
-    for s in o.sections.iter().filter(|s| s.site == site) {
-        out.push(Group {
-            title: format!("Section {}", s.id),
-            piezometers: s.piezometers.clone(),
-            stage: Some(s.pool_gauge.clone()),
         });
     }
     let grouped: BTreeSet<&String> = out.iter().flat_map(|g| g.piezometers.iter()).collect();

@@ -6,7 +6,7 @@
 //!
 //! Owns the choice of what goes on a page's chart; the drawing is `report::chart`'s.
 
-use crate::config::Kind;
+use crate::config::{Kind, ObjectRef};
 use crate::present::units::{measure_of, unit_label, Measure};
 use crate::report::chart::{self, Chart, Series};
 use crate::store::Store;
@@ -95,12 +95,10 @@ impl Plot {
 /// The stage gauge whose water level belongs beside `object`'s values: a section's pool gauge,
 /// a blanket reach's river gauge, else the first stage gauge of the object's site.
 pub fn stage_for(web: &Web, object: &str) -> Option<String> {
-    let o = &web.cfg.objects;
-    if let Some(s) = o.sections.iter().find(|s| s.id == object) {
-        return Some(s.pool_gauge.clone());
-    }
-    if let Some(b) = o.blankets.iter().find(|b| b.id == object) {
-        return Some(b.river_gauge.clone());
+    match web.cfg.objects.get(object) {
+        Some(ObjectRef::Section(s)) => return Some(s.pool_gauge.clone()),
+        Some(ObjectRef::Blanket(b)) => return Some(b.river_gauge.clone()),
+        Some(ObjectRef::Nest(_) | ObjectRef::Toe(_)) | None => {}
     }
     let site = web.site_of(object)?;
     let mut gauges: Vec<&String> = web
