@@ -10,8 +10,7 @@ use crate::config::{
 };
 
 fn config(objects: Objects) -> Arc<Config> {
-    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("config");
-    let mut cfg = crate::config::load_dir(&dir).expect("example config");
+    let mut cfg = crate::config::load_dir(&example_dir()).expect("example config");
     cfg.objects = objects;
     Arc::new(cfg)
 }
@@ -251,4 +250,65 @@ fn section_exit_point_on_the_downstream_slope() {
     let out = d.on_reading(&row("TH-PZ-3", 60, 199.8, Flags::empty()));
     assert!(find(&out, "S", "exit_elevation").value.is_none());
     assert_eq!(find(&out, "S", "seepage_face_height").value, Some(0.0));
+}
+
+/// The quantities each kind computes are the registry's (`ObjectKind::quantities`), with the
+/// same units, both when they have values and when an input is missing: the example site's
+/// objects, every input given a reading that lets each object compute, then one object's input
+/// taken away.
+#[test]
+fn every_kind_computes_its_registry_quantities_with_their_units() {
+    let cfg = Arc::new(crate::config::load_dir(&example_dir()).expect("example config"));
+    let heads = [
+        ("AB-RIVER", 102.0),
+        ("AB-PZ-1A", 99.5),
+        ("AB-PZ-1B", 100.0),
+        ("AB-PZ-2A", 99.0),
+        ("AB-PZ-2B", 99.8),
+        ("AB-SP-3", 98.0),
+        ("TH-POOL", 220.0),
+        ("TH-TAIL", 199.3),
+        ("TH-PZ-1", 213.0),
+        ("TH-PZ-2", 209.0),
+        ("TH-PZ-3", 206.0),
+    ];
+    let mut d = Deriver::new(Arc::clone(&cfg));
+    let mut out = Vec::new();
+    for (id, h) in heads {
+        out.extend(d.on_reading(&row(id, 0, h, Flags::empty())));
+    }
+    assert_eq!(cfg.objects.all().count(), 6, "the example's objects");
+    for kind in ObjectKind::ALL {
+        let objects = cfg.objects.of(kind);
+        assert!(!objects.is_empty(), "the example has no {kind:?}");
+        for (id, _) in objects {
+            for &(q, unit) in kind.quantities() {
+                let newest = out.iter().rev().find(|r| r.object == id && r.quantity == q);
+                let r = newest.unwrap_or_else(|| panic!("{kind:?} {id}: no {q}"));
+                assert_eq!(r.unit, unit, "{kind:?} {id}: unit of {q}");
+                assert!(r.value.is_some(), "{kind:?} {id}: {q} has no value: {r:?}");
+            }
+        }
+    }
+    // A stale input (two hours later, beyond every tolerance): the same names and units, no value.
+    let mut d = Deriver::new(Arc::clone(&cfg));
+    d.on_reading(&row("TH-PZ-1", 0, 213.0, Flags::empty()));
+    d.on_reading(&row("AB-PZ-1A", 0, 99.5, Flags::empty()));
+    let later = 4 * 3600;
+    let mut out = Vec::new();
+    for (id, h) in [("AB-PZ-1B", 100.0), ("AB-RIVER", 102.0), ("TH-POOL", 220.0)] {
+        out.extend(d.on_reading(&row(id, later, h, Flags::empty())));
+    }
+    for (kind, id) in [(ObjectKind::Nest, "AB-N1"), (ObjectKind::Section, "TH-S1")] {
+        for &(q, unit) in kind.quantities() {
+            let r = out.iter().rev().find(|r| r.object == id && r.quantity == q);
+            let r = r.unwrap_or_else(|| panic!("{kind:?} {id}: no {q} without its input"));
+            assert_eq!(r.unit, unit, "{kind:?} {id}: unit of {q}");
+            assert!(r.value.is_none() && r.reason.is_some(), "{r:?}");
+        }
+    }
+}
+
+fn example_dir() -> std::path::PathBuf {
+    std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("config")
 }
