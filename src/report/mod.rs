@@ -24,6 +24,7 @@ use std::collections::BTreeSet;
 
 use crate::config::{Config, DisplayUnits, Kind, ObjectRef};
 use crate::domain::rules::{Check, Direction};
+use crate::objkind::ObjectKind;
 use crate::present::units::{convert, unit_label};
 use crate::present::{measure_of, Measure, FS_DISPLAY_CAP};
 use crate::store::Store;
@@ -184,12 +185,6 @@ fn safety_charts(
 ) -> anyhow::Result<Vec<(String, Chart)>> {
     let o = &cfg.objects;
     let mut out = Vec::new();
-    let toes: Vec<String> = o
-        .toes
-        .iter()
-        .filter(|x| x.site == site)
-        .map(|x| x.id.clone())
-        .collect();
     let derived = |objects: &[String], q: &str, m: Measure| -> anyhow::Result<Vec<Series>> {
         let mut v = Vec::new();
         for id in objects {
@@ -200,83 +195,103 @@ fn safety_charts(
         }
         Ok(v)
     };
-    if !toes.is_empty() {
-        let mut c = chart(
-            "Factor of safety against heave at the toes".into(),
-            "Factor of safety".into(),
-            f,
-            t,
-            tz,
-        );
-        c.series = derived(&toes, "factor_of_safety", Measure::FactorOfSafety)?;
-        c.levels = level_lines(cfg, &toes, ("factor_of_safety", "-"), units);
-        if c.levels.is_empty() {
-            c.levels.push(LevelLine {
-                label: "FS = 1".into(),
-                value: 1.0,
-                beyond: Beyond::Below,
-            });
+    // Each kind's charts, in the order they appear: matches, so a new kind must say.
+    let mut kinds = ObjectKind::ALL;
+    kinds.sort_by_key(|k| match k {
+        ObjectKind::Toe => 0,
+        ObjectKind::Nest => 1,
+        ObjectKind::Blanket => 2,
+        ObjectKind::Section => 3,
+    });
+    for kind in kinds {
+        let ids: Vec<String> = o
+            .of(kind)
+            .into_iter()
+            .filter(|(_, s)| *s == site)
+            .map(|(id, _)| id.to_string())
+            .collect();
+        match kind {
+            _ if ids.is_empty() => {}
+            ObjectKind::Toe => {
+                let toes = ids;
+                let mut c = chart(
+                    "Factor of safety against heave at the toes".into(),
+                    "Factor of safety".into(),
+                    f,
+                    t,
+                    tz,
+                );
+                c.series = derived(&toes, "factor_of_safety", Measure::FactorOfSafety)?;
+                c.levels = level_lines(cfg, &toes, ("factor_of_safety", "-"), units);
+                if c.levels.is_empty() {
+                    c.levels.push(LevelLine {
+                        label: "FS = 1".into(),
+                        value: 1.0,
+                        beyond: Beyond::Below,
+                    });
+                }
+                c.cap = Some(FS_DISPLAY_CAP);
+                out.push(("Factor of safety".to_string(), c));
+                let mut c = chart(
+                    "Exit gradient at the toes".into(),
+                    "Exit gradient (+ upward)".into(),
+                    f,
+                    t,
+                    tz,
+                );
+                c.series = derived(&toes, "exit_gradient", Measure::Gradient)?;
+                c.levels = level_lines(cfg, &toes, ("exit_gradient", "-"), units);
+                out.push(("Exit gradient".to_string(), c));
+            }
+            ObjectKind::Nest => {
+                let nests = ids;
+                let mut c = chart(
+                    "Vertical gradients in the nests".into(),
+                    "Vertical gradient (+ upward)".into(),
+                    f,
+                    t,
+                    tz,
+                );
+                c.series = derived(&nests, "vertical_gradient", Measure::Gradient)?;
+                c.levels = level_lines(cfg, &nests, ("vertical_gradient", "-"), units);
+                c.zero_line = true;
+                out.push(("Vertical gradients".to_string(), c));
+            }
+            ObjectKind::Blanket => {
+                for b in o.blankets.iter().filter(|x| x.site == site) {
+                    let mut c = chart(
+                        format!(
+                            "Excess head at the toe of {}: measured and expected (blanket theory)",
+                            b.id
+                        ),
+                        format!("Excess head ({})", length_unit(units)),
+                        f,
+                        t,
+                        tz,
+                    );
+                    for (q, label) in [
+                        ("measured_excess_head", "measured"),
+                        ("expected_excess_head", "expected"),
+                    ] {
+                        c.series.push(Series {
+                            label: label.into(),
+                            points: to_display(
+                                store.derived_points(&b.id, q, f, t)?,
+                                Measure::Length,
+                                units,
+                            ),
+                        });
+                    }
+                    let (stage, axis) =
+                        stage_of(cfg, (store, readings), Some(&b.river_gauge), units)?;
+                    c.stage = stage;
+                    c.stage_axis = axis;
+                    out.push((format!("Excess head {}", b.id), c));
+                }
+            }
+            // Sections are drawn, not charted (the report's sections part).
+            ObjectKind::Section => {}
         }
-        c.cap = Some(FS_DISPLAY_CAP);
-        out.push(("Factor of safety".to_string(), c));
-        let mut c = chart(
-            "Exit gradient at the toes".into(),
-            "Exit gradient (+ upward)".into(),
-            f,
-            t,
-            tz,
-        );
-        c.series = derived(&toes, "exit_gradient", Measure::Gradient)?;
-        c.levels = level_lines(cfg, &toes, ("exit_gradient", "-"), units);
-        out.push(("Exit gradient".to_string(), c));
-    }
-    let nests: Vec<String> = o
-        .nests
-        .iter()
-        .filter(|x| x.site == site)
-        .map(|x| x.id.clone())
-        .collect();
-    if !nests.is_empty() {
-        let mut c = chart(
-            "Vertical gradients in the nests".into(),
-            "Vertical gradient (+ upward)".into(),
-            f,
-            t,
-            tz,
-        );
-        c.series = derived(&nests, "vertical_gradient", Measure::Gradient)?;
-        c.levels = level_lines(cfg, &nests, ("vertical_gradient", "-"), units);
-        c.zero_line = true;
-        out.push(("Vertical gradients".to_string(), c));
-    }
-    for b in o.blankets.iter().filter(|x| x.site == site) {
-        let mut c = chart(
-            format!(
-                "Excess head at the toe of {}: measured and expected (blanket theory)",
-                b.id
-            ),
-            format!("Excess head ({})", length_unit(units)),
-            f,
-            t,
-            tz,
-        );
-        for (q, label) in [
-            ("measured_excess_head", "measured"),
-            ("expected_excess_head", "expected"),
-        ] {
-            c.series.push(Series {
-                label: label.into(),
-                points: to_display(
-                    store.derived_points(&b.id, q, f, t)?,
-                    Measure::Length,
-                    units,
-                ),
-            });
-        }
-        let (stage, axis) = stage_of(cfg, (store, readings), Some(&b.river_gauge), units)?;
-        c.stage = stage;
-        c.stage_axis = axis;
-        out.push((format!("Excess head {}", b.id), c));
     }
     Ok(out)
 }
