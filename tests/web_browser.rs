@@ -125,6 +125,10 @@ fn sign_in_see_the_alert_and_acknowledge_from_the_email_at_phone_width() {
     b.click("button[type=submit]");
     let src = b.wait_text("Manual reading 2:");
     assert!(src.contains("Manual reading 2: stored."), "{src}");
+    // The engineering value at the readout's resolution: 2450.5² / 1000 digits.
+    b.goto(&format!("{base}/instruments/AB-PZ-1A?days=3"));
+    let src = b.wait_text("Engineering value");
+    assert!(src.contains("6004.95 digits"), "{src}");
     assert_eq!(
         count(
             dir.path(),

@@ -47,7 +47,8 @@ pub fn digits(m: Measure, u: DisplayUnits) -> Digits {
         Measure::Temperature | Measure::Percent | Measure::Position => 1,
         Measure::Duration => 0,
         Measure::FlowPerLength => return Digits::Significant(3),
-        Measure::Other => return Digits::Significant(4),
+        // A readout's own unit (digits, Hz, mA): its resolution, not a rounded figure.
+        Measure::Other => return Digits::Significant(6),
     })
 }
 
@@ -292,6 +293,11 @@ mod tests {
             "0.000224 m³/s per m"
         );
         assert_eq!(significant(-2.0e-8, 3), "-2.00e-8");
+        // A readout's own unit keeps its resolution (no float noise).
+        assert_eq!(
+            shown(4694.138227216, "engineering_value", "digits", SI),
+            "4694.14 digits"
+        );
         // Rates per day.
         assert_eq!(
             shown_rate_per_day(0.25 / 3600.0, "total_head", "m", SI),

@@ -122,7 +122,7 @@ pub async fn page(
                 ],
                 vec![
                     "Engineering value".into(),
-                    escape(&format!("{} {}", r.eng_value, r.eng_unit)),
+                    escape(&opt(Some(r.eng_value), "engineering_value", &r.eng_unit)),
                 ],
                 vec![
                     "Temperature".into(),
