@@ -212,7 +212,10 @@ pub async fn page(State(web): State<Shared>, Path(id): Path<i64>, headers: Heade
             };
             vec![
                 escape(&html::time(e.t_ms, tz)),
-                format!("{}{detail}", escape(&words::event(&e.kind))),
+                format!(
+                    "<span class=\"word\">{}</span>{detail}",
+                    escape(&words::event(&e.kind))
+                ),
                 html::level(&e.level, web.top_level(&a.rule, &e.level)),
                 format!(
                     "<span class=\"num\">{}</span>",

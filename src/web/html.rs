@@ -21,7 +21,7 @@ main{padding:.6rem .8rem;max-width:60rem;margin:auto}\
 h1{font-size:1.3rem;margin:.6rem 0}h2{font-size:1.1rem;margin:1rem 0 .4rem;border-bottom:1px solid #ccc}\
 table{border-collapse:collapse;width:100%;margin:.3rem 0 .8rem;font-size:.95rem}\
 th,td{text-align:left;padding:.3rem .4rem;border-bottom:1px solid #ddd;vertical-align:top;overflow-wrap:anywhere}\
-table.kv th{background:none;width:38%}.num{white-space:nowrap}\
+table.kv th{background:none;width:38%}.num{white-space:nowrap}.word{overflow-wrap:normal}\
 th{font-weight:600;background:#eef1f3;overflow-wrap:normal}\
 .lvl{display:inline-block;white-space:nowrap;overflow-wrap:normal;padding:.05rem .45rem;border-radius:.3rem;font-weight:700;border:2px solid #333;background:#fff}\
 .lvl-top{background:#000;color:#fff}\
