@@ -18,6 +18,19 @@ use common::*;
 /// total head (`seepd_reading_value`), raw and flags (`seepd_input_raw`, `seepd_input_flags`).
 const SAMPLES_PER_READING: usize = 4;
 
+/// `seepd export --config CFG [extra] --from --to` over `[from, to)` (ms), ready to run.
+fn backfill(cfg: &std::path::Path, extra: &[&std::ffi::OsStr], (from, to): (i64, i64)) -> Command {
+    let iso = |ms: i64| {
+        chrono::DateTime::from_timestamp_millis(ms)
+            .unwrap()
+            .to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
+    };
+    let mut c = Command::new(seepd_bin());
+    c.args(["export", "--config"]).arg(cfg).args(extra);
+    c.args(["--from", &iso(from), "--to", &iso(to)]);
+    c
+}
+
 fn t0_ms() -> i64 {
     // Recent, with a non-zero millisecond part, so that millisecond precision is visible.
     (chrono::Utc::now().timestamp() - 3 * 86_400) * 1000 + 123
@@ -235,17 +248,7 @@ fn backfill_sends_exactly_the_requested_range() {
     let times = prefill(&cfg, 300, t0, 1000, false);
     assert_eq!(count(dir.path(), "export_queue", "1"), 0);
     let (from, to) = (times[50], times[250]);
-    let iso = |ms: i64| {
-        chrono::DateTime::from_timestamp_millis(ms)
-            .unwrap()
-            .to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
-    };
-    let out = Command::new(seepd_bin())
-        .args(["export", "--config"])
-        .arg(&cfg)
-        .args(["--from", &iso(from), "--to", &iso(to)])
-        .output()
-        .unwrap();
+    let out = backfill(&cfg, &[], (from, to)).output().unwrap();
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(out.status.success(), "{stderr}");
     assert!(stderr.contains("200 readings"), "{stderr}");
@@ -274,17 +277,8 @@ fn backfill_reads_the_database_given_with_db() {
     let config = seepd::config::load_dir(&cfg).unwrap_or_else(|p| panic!("{p}"));
     let elsewhere = dir.path().join("replayed.sqlite");
     std::fs::rename(&config.service.database, &elsewhere).unwrap();
-    let iso = |ms: i64| {
-        chrono::DateTime::from_timestamp_millis(ms)
-            .unwrap()
-            .to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
-    };
-    let out = Command::new(seepd_bin())
-        .args(["export", "--config"])
-        .arg(&cfg)
-        .arg("--db")
-        .arg(&elsewhere)
-        .args(["--from", &iso(times[0]), "--to", &iso(times[39] + 1)])
+    let db = ["--db".as_ref(), elsewhere.as_os_str()];
+    let out = backfill(&cfg, &db, (times[0], times[39] + 1))
         .output()
         .unwrap();
     let stderr = String::from_utf8_lossy(&out.stderr);
@@ -310,15 +304,7 @@ fn https_with_a_private_ca_file_delivers_and_an_unknown_certificate_is_refused()
     let (mut vm, cert) = Victoria::start_tls(dir.path());
     let url = format!("https://127.0.0.1:{}", vm.port);
     let export = |cfg: &std::path::Path, from: i64, to: i64| {
-        let iso = |ms: i64| {
-            chrono::DateTime::from_timestamp_millis(ms)
-                .unwrap()
-                .to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
-        };
-        Command::new(seepd_bin())
-            .args(["export", "--config"])
-            .arg(cfg)
-            .args(["--from", &iso(from), "--to", &iso(to)])
+        backfill(cfg, &[], (from, to))
             .stdout(std::process::Stdio::null())
             .stderr(std::process::Stdio::piped())
             .spawn()
